@@ -1,0 +1,3 @@
+"""Sluice: network-flow optimisation over HTTP."""
+
+__version__ = "0.1.0"

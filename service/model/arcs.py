@@ -1,0 +1,219 @@
+"""Arcs in object form or columnar form, normalised into numpy arrays.
+
+Object form: ``[{"from": a, "to": b, "capacity": 80, ...}, ...]``.
+Columnar form: ``{"from": [...], "to": [...], "capacity": [...], ...}``.
+Both are read column by column: one C-level pass per field, never a per-arc schema.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from itertools import chain
+from operator import itemgetter
+
+import numpy as np
+
+from ..errors import FieldError, InputError, ProblemTooLarge
+from .columns import MAX_REPORTED_ERRORS, NumberColumn, number_column
+from .ids import MAX_ID_LENGTH, IdColumn, NodeIndex, intern_ids
+
+ARC_FIELDS = ("from", "to", "capacity", "cost", "lower", "key")
+REQUIRED = ("from", "to")
+#: Value used for an absent optional field.
+DEFAULTS = {"capacity": None, "cost": 0, "lower": 0, "key": None}
+
+
+@dataclass(frozen=True)
+class RawArcs:
+    """The arcs' columns as decoded lists, each with its pointer function."""
+
+    columns: dict  # field -> IdColumn-like (values, where)
+    count: int
+    form: str  # "objects" or "columns"
+
+
+def read_arcs(raw: object, *, base: str = "/arcs", max_arcs: int | None = None) -> RawArcs:
+    """Split the ``arcs`` member into columns, checking its shape.
+
+    Raises
+    ------
+    InputError
+        Wrong shape, unknown or missing fields, columns of unequal length.
+    ProblemTooLarge
+        More than ``max_arcs`` arcs.
+    """
+    if isinstance(raw, list):
+        arcs = _read_objects(raw, base)
+    elif isinstance(raw, dict):
+        arcs = _read_columns(raw, base)
+    else:
+        raise InputError.at(base, "must be a list of arc objects or an object of columns")
+    if max_arcs is not None and arcs.count > max_arcs:
+        raise ProblemTooLarge(FieldError(base, f"has {arcs.count} arcs; the limit is {max_arcs}"))
+    return arcs
+
+
+def _read_objects(raw: list, base: str) -> RawArcs:
+    if set(map(type, raw)) - {dict}:
+        i = next(i for i, a in enumerate(raw) if type(a) is not dict)
+        raise InputError.at(f"{base}/{i}", "must be an arc object")
+    present = set(chain.from_iterable(raw))
+    unknown = present - set(ARC_FIELDS)
+    if unknown:
+        i, name = next((i, k) for i, a in enumerate(raw) for k in a if k in unknown)
+        raise InputError.at(f"{base}/{i}/{_escape(name)}", "unknown field")
+    columns = {}
+    for name in ARC_FIELDS:
+        if name not in present and name not in REQUIRED:
+            continue
+        where = _object_where(base, name)
+        try:
+            values = list(map(itemgetter(name), raw))
+        except KeyError:
+            if name in REQUIRED:
+                missing = [i for i, a in enumerate(raw) if name not in a][:MAX_REPORTED_ERRORS]
+                raise InputError([FieldError(f"{base}/{i}/{name}", "is required") for i in missing]) from None
+            default = DEFAULTS[name]
+            values = [a.get(name, default) for a in raw]
+        columns[name] = IdColumn(values, where)
+    return RawArcs(columns, len(raw), "objects")
+
+
+def _read_columns(raw: dict, base: str) -> RawArcs:
+    unknown = set(raw) - set(ARC_FIELDS)
+    if unknown:
+        raise InputError.at(f"{base}/{_escape(sorted(unknown)[0])}", "unknown field")
+    for name in REQUIRED:
+        if name not in raw:
+            raise InputError.at(f"{base}/{name}", "is required")
+    count = None
+    columns = {}
+    for name in ARC_FIELDS:
+        if name not in raw:
+            continue
+        values = raw[name]
+        if not isinstance(values, list):
+            raise InputError.at(f"{base}/{name}", "must be a list")
+        if count is None:
+            count = len(values)
+        elif len(values) != count:
+            raise InputError.at(f"{base}/{name}", f"has {len(values)} entries; {base}/from has {count}")
+        columns[name] = IdColumn(values, _column_where(base, name))
+    return RawArcs(columns, count or 0, "columns")
+
+
+def _escape(name: str) -> str:
+    return str(name).replace("~", "~0").replace("/", "~1")
+
+
+def _object_where(base: str, name: str):
+    return lambda i: f"{base}/{i}/{name}"
+
+
+def _column_where(base: str, name: str):
+    return lambda i: f"{base}/{name}/{i}"
+
+
+@dataclass
+class Network:
+    """A normalised network: dense node indices and one numpy array per arc field.
+
+    ``capacity`` holds 0 where ``unlimited`` is set. ``cost`` and ``lower`` are
+    ``None`` when the request did not give them (all zero).
+    """
+
+    nodes: NodeIndex
+    tail: np.ndarray
+    head: np.ndarray
+    capacity: np.ndarray
+    unlimited: np.ndarray | None
+    cost: np.ndarray | None
+    lower: np.ndarray | None
+    keys: list | None
+
+    @property
+    def num_nodes(self) -> int:
+        return len(self.nodes)
+
+    @property
+    def num_arcs(self) -> int:
+        return int(self.tail.size)
+
+    @property
+    def integral(self) -> bool:
+        return all(a is None or a.dtype.kind == "i" for a in (self.capacity, self.cost, self.lower))
+
+    def capacity_or(self, big) -> np.ndarray:
+        """Capacities with unlimited arcs set to ``big``."""
+        if self.unlimited is None or not self.unlimited.any():
+            return self.capacity
+        cap = self.capacity.astype(np.result_type(self.capacity.dtype, type(big)), copy=True)
+        cap[self.unlimited] = big
+        return cap
+
+
+def build_network(raw: RawArcs, declared: IdColumn, *, allow_lower: bool = True) -> Network:
+    """Normalise decoded arcs and declared node ids into a :class:`Network`.
+
+    Raises
+    ------
+    InputError
+        Any bad id or number, naming the field by JSON Pointer.
+    """
+    cols = raw.columns
+    nodes, tail, head = intern_ids(declared, cols["from"], cols["to"])
+    capacity, unlimited = _capacity(cols.get("capacity"), raw.count)
+    cost = _optional(cols.get("cost"), minimum=None)
+    lower = _optional(cols.get("lower"), minimum=0)
+    if lower is not None:
+        if not lower.any():
+            lower = None
+        elif not allow_lower:
+            i = int(np.flatnonzero(lower)[0])
+            raise InputError.at(cols["lower"].where(i), "lower bounds are not supported by this problem kind")
+        else:
+            _check_lower(lower, capacity, unlimited, cols["lower"])
+    keys = _keys(cols.get("key"))
+    return Network(nodes, tail, head, capacity, unlimited, cost, lower, keys)
+
+
+def _capacity(col: IdColumn | None, count: int):
+    if col is None:
+        return np.zeros(count, dtype=np.int64), np.ones(count, dtype=bool)
+    checked: NumberColumn = number_column(col.values, col.where, allow_null=True, minimum=0)
+    return checked.values, checked.null
+
+
+def _optional(col: IdColumn | None, *, minimum):
+    if col is None:
+        return None
+    return number_column(col.values, col.where, minimum=minimum).values
+
+
+def _check_lower(lower, capacity, unlimited, col: IdColumn) -> None:
+    bad = lower > capacity
+    if unlimited is not None:
+        bad &= ~unlimited
+    if bad.any():
+        idx = np.flatnonzero(bad)[:MAX_REPORTED_ERRORS]
+        raise InputError([FieldError(col.where(int(i)), "must not exceed the arc's capacity") for i in idx])
+
+
+def _keys(col: IdColumn | None) -> list | None:
+    if col is None:
+        return None
+    values = col.values
+    kinds = set(map(type, values))
+    if not kinds <= {str, type(None)}:
+        i = next(i for i, v in enumerate(values) if v is not None and type(v) is not str)
+        raise InputError.at(col.where(i), "must be a string or null")
+    seen: dict = {}
+    for i, v in enumerate(values):
+        if v is None:
+            continue
+        if not 1 <= len(v) <= MAX_ID_LENGTH:
+            raise InputError.at(col.where(i), "must be 1-200 characters long")
+        if v in seen:
+            raise InputError.at(col.where(i), f"duplicate arc key {v!r} (first at arc {seen[v]})")
+        seen[v] = i
+    return values

@@ -1,0 +1,191 @@
+"""Node ids: strings (1-200 characters) or non-negative integers, one kind per payload.
+
+Interning maps every id to a dense int32 index, in the contract's order: the
+request's ``nodes`` first, then nodes first seen in the arcs, in order of appearance
+(``from`` before ``to`` within an arc).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from ..errors import FieldError, InputError
+from .columns import MAX_REPORTED_ERRORS, PointerFn
+
+MAX_ID_LENGTH = 200
+#: Dense lookup tables for integer ids are used while the largest id is at most this
+#: many times the number of ids seen (plus a constant); beyond that we sort.
+DENSE_FACTOR = 8
+
+
+@dataclass(frozen=True)
+class IdColumn:
+    """A list of ids as decoded from JSON, with a function naming each element."""
+
+    values: list
+    where: PointerFn
+
+
+@dataclass
+class NodeIndex:
+    """Interned node ids: ``ids[i]`` is the id of node ``i``."""
+
+    ids: list
+    kind: type  # str or int
+    lookup: dict | None = None  # id -> index, built on demand
+
+    def __len__(self) -> int:
+        return len(self.ids)
+
+    def index_of(self, node_id: object) -> int | None:
+        if self.lookup is None:
+            self.lookup = {v: i for i, v in enumerate(self.ids)}
+        if type(node_id) is not self.kind:
+            return None
+        return self.lookup.get(node_id)
+
+
+def _kinds(col: IdColumn) -> set:
+    return set(map(type, col.values))
+
+
+def _check_kinds(columns: list[IdColumn]) -> type | None:
+    seen = set().union(*(_kinds(c) for c in columns))
+    if not seen:
+        return None
+    if not seen <= {str, int} or seen == {str, int}:
+        majority = str if sum(isinstance(v, str) for c in columns for v in c.values[:1000]) else int
+        allowed = {majority} if seen & {str, int} else set()
+        errors = []
+        for c in columns:
+            for i, v in enumerate(c.values):
+                if type(v) not in allowed:
+                    errors.append(FieldError(c.where(i), _id_message(v, majority)))
+                    if len(errors) >= MAX_REPORTED_ERRORS:
+                        raise InputError(errors)
+        raise InputError(errors)
+    return seen.pop()
+
+
+def _id_message(value: object, majority: type) -> str:
+    if type(value) in (str, int):
+        kind = "strings" if majority is str else "integers"
+        return f"node ids in one payload must all be {kind}"
+    return "must be a node id: a string of 1-200 characters or a non-negative integer"
+
+
+def _check_strings(columns: list[IdColumn]) -> None:
+    for c in columns:
+        if not c.values:
+            continue
+        lengths = np.fromiter(map(len, c.values), dtype=np.int64, count=len(c.values))
+        bad = (lengths < 1) | (lengths > MAX_ID_LENGTH)
+        if bad.any():
+            idx = np.flatnonzero(bad)[:MAX_REPORTED_ERRORS]
+            raise InputError([FieldError(c.where(int(i)), "must be 1-200 characters long") for i in idx])
+
+
+def _int_arrays(columns: list[IdColumn]) -> list[np.ndarray]:
+    arrays = []
+    for c in columns:
+        try:
+            arr = np.asarray(c.values, dtype=np.int64)
+        except OverflowError:
+            raise InputError.at(c.where(0), "integer node ids must fit in 63 bits") from None
+        if arr.size == 0:
+            arr = arr.astype(np.int64)
+        bad = arr < 0
+        if bad.any():
+            idx = np.flatnonzero(bad)[:MAX_REPORTED_ERRORS]
+            raise InputError([FieldError(c.where(int(i)), "must be a non-negative integer") for i in idx])
+        arrays.append(arr)
+    return arrays
+
+
+def _interleave(a: np.ndarray | list, b: np.ndarray | list):
+    """a0, b0, a1, b1, ...: the order in which an arc list mentions its nodes."""
+    if isinstance(a, np.ndarray):
+        out = np.empty(a.size + b.size, dtype=a.dtype)
+    else:
+        out = [None] * (len(a) + len(b))
+    out[0::2] = a
+    out[1::2] = b
+    return out
+
+
+def intern_ids(declared: IdColumn, tails: IdColumn, heads: IdColumn) -> tuple[NodeIndex, np.ndarray, np.ndarray]:
+    """Intern declared node ids and the arcs' end points.
+
+    Parameters
+    ----------
+    declared : IdColumn
+        The request's ``nodes`` ids (may be empty). Duplicates are an error.
+    tails, heads : IdColumn
+        The arcs' ``from`` and ``to`` ids, of equal length.
+
+    Returns
+    -------
+    (NodeIndex, tail, head)
+        ``tail`` and ``head`` are int32 arrays of node indices.
+
+    Raises
+    ------
+    InputError
+        Mixed id kinds, bad ids, or duplicate declared nodes.
+    """
+    columns = [declared, tails, heads]
+    kind = _check_kinds(columns) or str
+    if kind is str:
+        _check_strings(columns)
+        index, tail, head = _intern_strings(declared.values, tails.values, heads.values)
+    else:
+        d, t, h = _int_arrays(columns)
+        index, tail, head = _intern_ints(d, t, h)
+    if len(index) < len(declared.values):
+        _raise_duplicates(declared)
+    if len(index) >= 2**31:
+        raise InputError.at("/nodes", "too many nodes")
+    return NodeIndex(index if isinstance(index, list) else index, kind), tail, head
+
+
+def _raise_duplicates(declared: IdColumn) -> None:
+    seen = set()
+    for i, v in enumerate(declared.values):
+        if v in seen:
+            raise InputError.at(declared.where(i), f"duplicate node id {v!r}")
+        seen.add(v)
+
+
+def _intern_strings(declared: list, tails: list, heads: list):
+    order = dict.fromkeys(declared)
+    order.update(dict.fromkeys(_interleave(tails, heads)))
+    lookup = dict(zip(order, range(len(order))))
+    tail = np.fromiter(map(lookup.__getitem__, tails), dtype=np.int32, count=len(tails))
+    head = np.fromiter(map(lookup.__getitem__, heads), dtype=np.int32, count=len(heads))
+    return list(lookup), tail, head
+
+
+def _intern_ints(declared: np.ndarray, tails: np.ndarray, heads: np.ndarray):
+    if declared.size and np.unique(declared).size < declared.size:
+        return [], None, None  # caller reports the duplicate
+    seq = np.concatenate([declared, _interleave(tails, heads)])
+    if seq.size == 0:
+        return [], tails.astype(np.int32), heads.astype(np.int32)
+    top = int(seq.max())
+    if top <= DENSE_FACTOR * seq.size + 1_000_000:
+        first = np.full(top + 1, seq.size, dtype=np.int64)
+        np.minimum.at(first, seq, np.arange(seq.size, dtype=np.int64))
+        present = np.flatnonzero(first < seq.size)
+        ids = present[np.argsort(first[present], kind="stable")]
+        rank = np.empty(top + 1, dtype=np.int32)
+        rank[ids] = np.arange(ids.size, dtype=np.int32)
+        return ids.tolist(), rank[tails], rank[heads]
+    uniq, first, inverse = np.unique(seq, return_index=True, return_inverse=True)
+    order = np.argsort(first, kind="stable")
+    rank = np.empty(uniq.size, dtype=np.int32)
+    rank[order] = np.arange(uniq.size, dtype=np.int32)
+    codes = rank[inverse]
+    n_decl = declared.size
+    return uniq[order].tolist(), codes[n_decl::2].copy(), codes[n_decl + 1 :: 2].copy()
