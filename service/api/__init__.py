@@ -1,0 +1,58 @@
+"""The HTTP layer: the Flask application factory and its blueprints."""
+
+from __future__ import annotations
+
+import logging
+from dataclasses import dataclass
+
+from flask import Flask, request
+
+from ..config import Settings
+from ..errors import FieldError, ProblemTooLarge
+from ..kinds import Limits
+from . import ops, problems, solve
+from .jsonio import OrjsonProvider
+
+log = logging.getLogger("sluice")
+
+
+@dataclass
+class SluiceState:
+    """What the app keeps in ``app.extensions["sluice"]``."""
+
+    settings: Settings
+    limits: Limits
+    spec: dict
+
+
+def _enforce_body_limit():
+    # Refuse from Content-Length alone, before a byte of the body is read.
+    limit = request.max_content_length
+    if request.content_length is not None and limit is not None and request.content_length > limit:
+        raise ProblemTooLarge(FieldError("", f"the body has {request.content_length} bytes; the limit is {limit}"))
+
+
+def create_app(config: Settings | dict | None = None) -> Flask:
+    """Build the Sluice WSGI application.
+
+    Parameters
+    ----------
+    config : Settings or dict, optional
+        Settings to use; a dict overrides fields of ``Settings.from_env()``.
+    """
+    settings = config if isinstance(config, Settings) else Settings.from_env()
+    if isinstance(config, dict):
+        settings = Settings(**{**settings.__dict__, **config})
+    app = Flask(__name__)
+    app.json = OrjsonProvider(app)
+    app.config["MAX_CONTENT_LENGTH"] = settings.max_body_bytes
+    app.url_map.strict_slashes = False
+    limits = Limits(max_arcs=settings.max_arcs, max_nodes=settings.max_nodes, time_limit=settings.time_limit)
+    problems.init_app(app)
+    app.before_request(_enforce_body_limit)
+    app.register_blueprint(ops.bp)
+    app.register_blueprint(solve.bp)
+    from .spec import build_spec
+
+    app.extensions["sluice"] = SluiceState(settings, limits, build_spec())
+    return app

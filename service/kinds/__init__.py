@@ -1,0 +1,12 @@
+"""Problem kinds: parse a request into a normalised problem, solve it into a response.
+
+``KINDS`` maps the kind name (also the path segment under ``/v1/``) to its module
+object. See :mod:`service.kinds.base` for the interface.
+"""
+
+from .base import Kind, Limits
+from .maxflow import KIND as MAXFLOW
+
+KINDS: dict[str, Kind] = {MAXFLOW.name: MAXFLOW}
+
+__all__ = ["KINDS", "Kind", "Limits"]

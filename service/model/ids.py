@@ -40,10 +40,14 @@ class NodeIndex:
         return len(self.ids)
 
     def index_of(self, node_id: object) -> int | None:
-        if self.lookup is None:
-            self.lookup = {v: i for i, v in enumerate(self.ids)}
         if type(node_id) is not self.kind:
             return None
+        if self.lookup is not None:
+            return self.lookup.get(node_id)
+        if self.kind is int:
+            hits = np.flatnonzero(np.asarray(self.ids, dtype=np.int64) == node_id)
+            return int(hits[0]) if hits.size else None
+        self.lookup = {v: i for i, v in enumerate(self.ids)}
         return self.lookup.get(node_id)
 
 
@@ -139,15 +143,17 @@ def intern_ids(declared: IdColumn, tails: IdColumn, heads: IdColumn) -> tuple[No
     kind = _check_kinds(columns) or str
     if kind is str:
         _check_strings(columns)
-        index, tail, head = _intern_strings(declared.values, tails.values, heads.values)
+        lookup, tail, head = _intern_strings(declared.values, tails.values, heads.values)
+        index = NodeIndex(list(lookup), str, lookup)
     else:
         d, t, h = _int_arrays(columns)
-        index, tail, head = _intern_ints(d, t, h)
+        ids, tail, head = _intern_ints(d, t, h)
+        index = NodeIndex(ids, int)
     if len(index) < len(declared.values):
         _raise_duplicates(declared)
     if len(index) >= 2**31:
         raise InputError.at("/nodes", "too many nodes")
-    return NodeIndex(index if isinstance(index, list) else index, kind), tail, head
+    return index, tail, head
 
 
 def _raise_duplicates(declared: IdColumn) -> None:
@@ -164,7 +170,7 @@ def _intern_strings(declared: list, tails: list, heads: list):
     lookup = dict(zip(order, range(len(order))))
     tail = np.fromiter(map(lookup.__getitem__, tails), dtype=np.int32, count=len(tails))
     head = np.fromiter(map(lookup.__getitem__, heads), dtype=np.int32, count=len(heads))
-    return list(lookup), tail, head
+    return lookup, tail, head
 
 
 def _intern_ints(declared: np.ndarray, tails: np.ndarray, heads: np.ndarray):

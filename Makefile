@@ -1,0 +1,29 @@
+# One venv per checkout; every target installs what it needs first.
+PYTHON ?= python3
+VENV   ?= .venv
+BIN     = $(VENV)/bin
+
+.PHONY: install serve test bench spec clean
+
+$(BIN)/python:
+	$(PYTHON) -m venv $(VENV)
+	$(BIN)/pip install --quiet --upgrade pip
+
+install: $(BIN)/python
+	$(BIN)/pip install --quiet -e ".[test]"
+
+serve: install
+	$(BIN)/sluice serve
+
+test: install
+	bash .ci/ensure-redis
+	$(BIN)/python -m pytest -q
+
+bench: install
+	$(BIN)/python -m tests.perf
+
+spec: install
+	$(BIN)/sluice spec > openapi/openapi.yaml
+
+clean:
+	rm -rf $(VENV) .pytest_cache .hypothesis

@@ -1,0 +1,44 @@
+"""Settings from the environment, with safe defaults."""
+
+from __future__ import annotations
+
+import os
+from dataclasses import dataclass, field
+
+
+def _int(name: str, default: int) -> int:
+    raw = os.environ.get(name)
+    return default if raw in (None, "") else int(raw)
+
+
+def _float(name: str, default: float) -> float:
+    raw = os.environ.get(name)
+    return default if raw in (None, "") else float(raw)
+
+
+@dataclass(frozen=True)
+class Settings:
+    """Everything configurable. ``from_env`` reads the ``SLUICE_*`` variables."""
+
+    data_dir: str = ".sluice"
+    redis_url: str | None = None
+    max_body_mb: float = 128.0  # a 1M-arc object-form body is about 65 MB
+    max_arcs: int = 5_000_000
+    max_nodes: int = 5_000_000
+    time_limit: float = 30.0
+    api_keys: dict = field(default_factory=dict)
+
+    @classmethod
+    def from_env(cls) -> "Settings":
+        return cls(
+            data_dir=os.environ.get("SLUICE_DATA_DIR") or ".sluice",
+            redis_url=os.environ.get("SLUICE_REDIS_URL") or None,
+            max_body_mb=_float("SLUICE_MAX_BODY_MB", 128.0),
+            max_arcs=_int("SLUICE_MAX_ARCS", 5_000_000),
+            max_nodes=_int("SLUICE_MAX_NODES", 5_000_000),
+            time_limit=_float("SLUICE_TIME_LIMIT", 30.0),
+        )
+
+    @property
+    def max_body_bytes(self) -> int:
+        return int(self.max_body_mb * 1024 * 1024)

@@ -1,0 +1,72 @@
+"""What every problem kind provides, and helpers they share.
+
+A *kind* turns a decoded JSON request into a normalised problem (``parse``) and a
+problem into a response document (``solve``). The HTTP layer, batches and jobs all
+go through this interface, so a new problem kind is one module here plus its entry in
+:data:`service.kinds.KINDS`.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from operator import itemgetter
+from typing import Any, Protocol
+
+import numpy as np
+
+from ..errors import InputError
+from ..model.ids import NodeIndex
+
+
+@dataclass(frozen=True)
+class Limits:
+    """Size and time limits applied while parsing and solving."""
+
+    max_arcs: int = 5_000_000
+    max_nodes: int = 5_000_000
+    time_limit: float = 30.0
+
+
+class Problem(Protocol):
+    digest: str
+    options: dict
+
+
+class Kind(Protocol):
+    name: str
+    summary: str
+    request_schema: type
+    response_schema: type
+    example: str  # scenario file name
+
+    def parse(self, body: Any, limits: Limits) -> Problem: ...
+
+    def solve(self, problem: Problem, limits: Limits) -> dict: ...
+
+
+def ids_of(nodes: NodeIndex, indices: np.ndarray):
+    """Node ids for an array of node indices, without a per-node Python loop."""
+    if nodes.kind is int:
+        return np.asarray(nodes.ids, dtype=np.int64)[indices]
+    if indices.size == 0:
+        return []
+    if indices.size == 1:
+        return [nodes.ids[int(indices[0])]]
+    return list(itemgetter(*indices.tolist())(nodes.ids))
+
+
+def node_position(nodes: NodeIndex, node_id, ptr: str) -> int:
+    index = nodes.index_of(node_id)
+    if index is None:
+        raise InputError.at(ptr, f"unknown node {node_id!r}: it is neither in nodes nor on any arc")
+    return index
+
+
+def time_limit(options: dict, limits: Limits) -> float:
+    asked = options.get("time_limit")
+    return limits.time_limit if asked is None else min(float(asked), limits.time_limit)
+
+
+def wants(options: dict, part: str) -> bool:
+    detail = options.get("detail")
+    return detail is None or part in detail

@@ -1,0 +1,171 @@
+"""Max-flow: the most that can move from a source to a sink, with a minimum cut."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+from marshmallow import RAISE, Schema, fields, validate
+
+from ..model.arcs import Network, build_network, read_arcs
+from ..model.digest import problem_digest
+from ..model.nodes import read_nodes
+from ..model.schemas import (
+    ArcsField,
+    NodeId,
+    NodesField,
+    OptionsSchema,
+    detail_field,
+    load_envelope,
+)
+from ..solvers import maximum_flow
+from ..solvers.versions import ORTOOLS_VERSION
+from ..errors import InputError, ProblemTooLarge, FieldError
+from .base import Limits, ids_of, node_position, time_limit, wants
+
+DETAIL = ["flows", "cut"]
+
+
+class MaxFlowOptions(OptionsSchema):
+    detail = detail_field(DETAIL)
+
+
+class MaxFlowRequest(Schema):
+    class Meta:
+        unknown = RAISE
+
+    source = NodeId(required=True, metadata={"description": "Node the flow leaves."})
+    sink = NodeId(required=True, metadata={"description": "Node the flow reaches."})
+    arcs = ArcsField(required=True, metadata={"description": "Arcs in object or columnar form."})
+    nodes = NodesField(load_default=None, metadata={"description": "Optional node ids (or objects with id)."})
+    options = fields.Nested(MaxFlowOptions, load_default=lambda: MaxFlowOptions().load({}))
+
+
+class CutSchema(Schema):
+    source_side = fields.List(NodeId(), metadata={"description": "Nodes on the source side of a minimum cut."})
+    arcs = fields.List(fields.Integer(), metadata={"description": "Indices of the arcs leaving the source side."})
+    capacity = fields.Float(metadata={"description": "Total capacity of those arcs; equals value."})
+
+
+class MaxFlowCertificate(Schema):
+    checked = fields.Boolean()
+    flow_value = fields.Float(metadata={"description": "Net flow out of the source, recomputed from flows."})
+    cut_capacity = fields.Float(metadata={"description": "Capacity of the returned cut, recomputed."})
+    max_imbalance = fields.Float(metadata={"description": "Largest conservation violation at an inner node."})
+    max_capacity_excess = fields.Float(metadata={"description": "Largest capacity violation on an arc."})
+    tolerance = fields.Float(metadata={"description": "0 for exact integer arithmetic."})
+    decimal_scale = fields.Integer(metadata={"description": "Present when decimals were solved exactly as integers "
+                                                            "scaled by this factor."})
+    unbounded_path_arcs = fields.Integer()
+
+
+class EngineSchema(Schema):
+    kind = fields.String(validate=validate.OneOf(["graph", "lp"]))
+    solver = fields.String()
+    version = fields.String()
+    decimal_scale = fields.Integer()
+    tolerance = fields.Float()
+
+
+class TimingSchema(Schema):
+    parse = fields.Float()
+    solve = fields.Float()
+    total = fields.Float()
+
+
+class UnboundedPathSchema(Schema):
+    arcs = fields.List(fields.Integer(), metadata={"description": "Arc indices of an s-t path without limits."})
+    nodes = fields.List(NodeId())
+
+
+class MaxFlowResponse(Schema):
+    status = fields.String(validate=validate.OneOf(["optimal", "unbounded"]))
+    value = fields.Float(allow_none=True, metadata={"description": "Maximum flow value; null when unbounded."})
+    flows = fields.List(fields.Float(), metadata={"description": "Flow per arc, aligned with the request's arcs."})
+    cut = fields.Nested(CutSchema)
+    unbounded_path = fields.Nested(UnboundedPathSchema)
+    certificate = fields.Nested(MaxFlowCertificate)
+    digest = fields.String(metadata={"description": "sha256 of the normalised problem and answer-changing options."})
+    engine = fields.Nested(EngineSchema)
+    timing_ms = fields.Nested(TimingSchema)
+
+
+@dataclass
+class MaxFlowProblem:
+    network: Network
+    source: int
+    sink: int
+    options: dict
+    digest: str
+
+
+def parse(body, limits: Limits) -> MaxFlowProblem:
+    """Validate and normalise a max-flow request.
+
+    Raises
+    ------
+    InputError
+        Naming the offending field by JSON Pointer.
+    """
+    envelope = load_envelope(MaxFlowRequest(), body)
+    arcs = read_arcs(envelope["arcs"], max_arcs=limits.max_arcs)
+    nodes = read_nodes(envelope["nodes"], extra_fields=("supply",))
+    network = build_network(arcs, nodes.ids, allow_lower=False)
+    if network.num_nodes > limits.max_nodes:
+        raise ProblemTooLarge(FieldError("/nodes", f"has {network.num_nodes} nodes; the limit is {limits.max_nodes}"))
+    source = node_position(network.nodes, envelope["source"], "/source")
+    sink = node_position(network.nodes, envelope["sink"], "/sink")
+    if source == sink:
+        raise InputError.at("/sink", "must differ from the source")
+    options = envelope["options"]
+    return MaxFlowProblem(network, source, sink, options, digest_of(network, source, sink, options))
+
+
+def digest_of(network: Network, source: int, sink: int, options: dict) -> str:
+    return problem_digest(
+        "maxflow", ORTOOLS_VERSION, network.nodes.ids, network.tail, network.head, network.capacity,
+        network.unlimited, [source, sink], {"engine": options["engine"], "detail": options.get("detail")},
+    )
+
+
+def solve(problem: MaxFlowProblem, limits: Limits) -> dict:
+    net = problem.network
+    solution, certificate = maximum_flow(
+        net.num_nodes, net.tail, net.head, net.capacity, net.unlimited, problem.source, problem.sink,
+        engine=problem.options["engine"], time_limit=time_limit(problem.options, limits),
+    )
+    out: dict = {"status": solution.status, "value": solution.value}
+    if solution.status == "unbounded":
+        path = solution.unbounded_path
+        out["unbounded_path"] = {
+            "arcs": path,
+            "nodes": ids_of(net.nodes, np.append(net.tail[path], net.head[path[-1]])),
+        }
+    else:
+        if wants(problem.options, "flows"):
+            out["flows"] = solution.flows
+        if wants(problem.options, "cut"):
+            side = solution.source_side
+            crossing = np.flatnonzero(side[net.tail] & ~side[net.head])
+            out["cut"] = {
+                "source_side": ids_of(net.nodes, np.flatnonzero(side)),
+                "arcs": crossing,
+                "capacity": certificate["cut_capacity"],
+            }
+    out["certificate"] = certificate
+    out["digest"] = problem.digest
+    out["engine"] = solution.engine
+    return out
+
+
+class MaxFlowKind:
+    name = "maxflow"
+    summary = "Maximum flow from a source to a sink, with a minimum cut"
+    request_schema = MaxFlowRequest
+    response_schema = MaxFlowResponse
+    example = "depots-maxflow.json"
+    parse = staticmethod(parse)
+    solve = staticmethod(solve)
+
+
+KIND = MaxFlowKind()

@@ -1,0 +1,158 @@
+"""marshmallow building blocks for request envelopes and the OpenAPI document.
+
+The envelope (source, sink, options, unknown members) is validated here. Arcs and
+nodes are *documented* here but validated column-wise by :mod:`service.model.arcs`
+and :mod:`service.model.nodes`: a nested per-arc schema is far too slow for large
+networks.
+"""
+
+from __future__ import annotations
+
+import math
+
+from marshmallow import RAISE, Schema, ValidationError, fields, validate
+
+from ..errors import FieldError, InputError, pointer
+from .ids import MAX_ID_LENGTH
+
+NODE_ID_MESSAGE = "must be a node id: a string of 1-200 characters or a non-negative integer"
+
+
+class NodeId(fields.Field):
+    """A node id: a string of 1-200 characters or a non-negative integer."""
+
+    def _deserialize(self, value, attr, data, **kwargs):
+        if type(value) is str and 1 <= len(value) <= MAX_ID_LENGTH:
+            return value
+        if type(value) is int and value >= 0:
+            return value
+        raise ValidationError(NODE_ID_MESSAGE)
+
+
+class StrictNumber(fields.Field):
+    """A finite JSON number; booleans and numeric strings are rejected."""
+
+    def __init__(self, *, minimum: float | None = None, exclusive: bool = False, **kwargs):
+        super().__init__(**kwargs)
+        self.minimum = minimum
+        self.exclusive = exclusive
+
+    def _deserialize(self, value, attr, data, **kwargs):
+        if type(value) not in (int, float) or (type(value) is float and not math.isfinite(value)):
+            raise ValidationError("must be a finite number")
+        if self.minimum is not None:
+            if value < self.minimum or (self.exclusive and value == self.minimum):
+                op = ">" if self.exclusive else ">="
+                raise ValidationError(f"must be {op} {self.minimum:g}")
+        return value
+
+
+class StrictBoolean(fields.Field):
+    def _deserialize(self, value, attr, data, **kwargs):
+        if type(value) is not bool:
+            raise ValidationError("must be true or false")
+        return value
+
+
+class ArcsField(fields.Raw):
+    """Arcs in object form or columnar form (validated column-wise, not here)."""
+
+
+class NodesField(fields.Raw):
+    """Nodes as a list of ids or objects, or columns (validated column-wise)."""
+
+
+class ArcSchema(Schema):
+    """One arc in object form (documentation of the arc fields)."""
+
+    from_ = NodeId(data_key="from", required=True, metadata={"description": "Tail node id."})
+    to = NodeId(required=True, metadata={"description": "Head node id."})
+    capacity = fields.Float(
+        allow_none=True,
+        metadata={"description": "Upper bound on the flow; null or absent means no limit.", "minimum": 0},
+    )
+    cost = fields.Float(metadata={"description": "Cost per unit of flow (default 0)."})
+    lower = fields.Float(metadata={"description": "Lower bound on the flow (default 0).", "minimum": 0})
+    key = fields.String(
+        allow_none=True,
+        metadata={"description": "Client label, unique within the network; used to address the arc in changes."},
+    )
+
+
+class ArcColumnsSchema(Schema):
+    """Arcs in columnar form: parallel arrays, one entry per arc."""
+
+    from_ = fields.List(NodeId(), data_key="from", required=True)
+    to = fields.List(NodeId(), required=True)
+    capacity = fields.List(fields.Float(allow_none=True))
+    cost = fields.List(fields.Float())
+    lower = fields.List(fields.Float())
+    key = fields.List(fields.String(allow_none=True))
+
+
+class OptionsSchema(Schema):
+    """Options shared by every solve endpoint."""
+
+    class Meta:
+        unknown = RAISE
+
+    engine = fields.String(
+        load_default="auto",
+        validate=validate.OneOf(["auto", "graph", "lp"]),
+        metadata={"description": "auto: exact graph solver when the data allows, else LP. graph: force the "
+                                 "OR-Tools graph solver (integers, or decimals with at most 6 places by exact "
+                                 "scaling). lp: force GLOP (fractional data, stated tolerance)."},
+    )
+    time_limit = StrictNumber(
+        minimum=0, exclusive=True, load_default=None,
+        metadata={"description": "Seconds; capped by the server's synchronous limit.", "type": "number"},
+    )
+    cache = fields.String(load_default="use", validate=validate.OneOf(["use", "refresh", "bypass"]))
+
+
+def detail_field(choices: list[str]) -> fields.List:
+    return fields.List(
+        fields.String(validate=validate.OneOf(choices)),
+        load_default=None,
+        metadata={"description": "Parts of the answer to include; default all that apply."},
+    )
+
+
+def flatten_messages(messages, prefix: tuple = ()) -> list[FieldError]:
+    """Turn marshmallow's nested error messages into JSON Pointer field errors."""
+    out: list[FieldError] = []
+    if isinstance(messages, dict):
+        for key, value in messages.items():
+            if key == "_schema":
+                out.extend(flatten_messages(value, prefix))
+            else:
+                out.extend(flatten_messages(value, prefix + (key,)))
+    elif isinstance(messages, list):
+        if all(isinstance(m, str) for m in messages):
+            for m in messages:
+                out.append(FieldError(pointer(*prefix), _lower_first(m)))
+        else:
+            for m in messages:
+                out.extend(flatten_messages(m, prefix))
+    else:
+        out.append(FieldError(pointer(*prefix), _lower_first(str(messages))))
+    return out
+
+
+def _lower_first(message: str) -> str:
+    message = message.rstrip(".")
+    if message == "Unknown field":
+        return "unknown field"
+    if message == "Missing data for required field":
+        return "is required"
+    return message[:1].lower() + message[1:]
+
+
+def load_envelope(schema: Schema, body: object) -> dict:
+    """Validate a request envelope; raise :class:`InputError` with pointers."""
+    if not isinstance(body, dict):
+        raise InputError.at("", "the request body must be a JSON object")
+    try:
+        return schema.load(body)
+    except ValidationError as exc:
+        raise InputError(flatten_messages(exc.messages)) from None
