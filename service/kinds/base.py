@@ -43,6 +43,11 @@ class Kind(Protocol):
 
     def solve(self, problem: Problem, limits: Limits) -> dict: ...
 
+    # Optional, for kinds that can be asked of a stored network (maxflow, mincostflow):
+    # build a problem from an already-normalised Network and a query body (source/sink,
+    # or supplies, plus options) without re-parsing the arcs.
+    # def from_network(self, network: Network, query: Any, limits: Limits) -> Problem: ...
+
 
 def ids_of(nodes: NodeIndex, indices: np.ndarray):
     """Node ids for an array of node indices, without a per-node Python loop."""

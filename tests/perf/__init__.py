@@ -1,0 +1,1 @@
+"""On-demand benchmarks: `python -m tests.perf [name ...]` (never collected by pytest)."""
