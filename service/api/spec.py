@@ -51,7 +51,7 @@ def _field_attributes(self, field, ret, **kwargs):
     if isinstance(field, NodeId):
         return {"oneOf": [{"type": "string", "minLength": 1, "maxLength": 200}, {"type": "integer", "minimum": 0}]}
     if isinstance(field, StrictNumber):
-        out = {"type": "number"}
+        out = {"type": ["number", "null"] if field.allow_none else "number"}
         if field.minimum is not None:
             out["exclusiveMinimum" if field.exclusive else "minimum"] = field.minimum
         return out
@@ -61,7 +61,7 @@ def _field_attributes(self, field, ret, **kwargs):
         return {"oneOf": [{"type": "array", "items": {"$ref": "#/components/schemas/Arc"}},
                           {"$ref": "#/components/schemas/ArcColumns"}]}
     if isinstance(field, NodesField):
-        return {"oneOf": [{"type": "array", "items": {}}, {"type": "object"}]}
+        return {"oneOf": [{"type": "array", "items": {}}, {"type": "object"}, {"type": "null"}]}
     return {}
 
 

@@ -104,7 +104,7 @@ class OptionsSchema(Schema):
                                  "scaling). lp: force GLOP (fractional data, stated tolerance)."},
     )
     time_limit = StrictNumber(
-        minimum=0, exclusive=True, load_default=None,
+        minimum=0, exclusive=True, load_default=None, allow_none=True,
         metadata={"description": "Seconds; capped by the server's synchronous limit.", "type": "number"},
     )
     cache = fields.String(load_default="use", validate=validate.OneOf(["use", "refresh", "bypass"]))
