@@ -207,6 +207,9 @@ def _keys(col: IdColumn | None) -> list | None:
     if not kinds <= {str, type(None)}:
         i = next(i for i, v in enumerate(values) if v is not None and type(v) is not str)
         raise InputError.at(col.where(i), "must be a string or null")
+    labels = [v for v in values if v is not None]
+    if len(set(labels)) == len(labels) and all(1 <= len(v) <= MAX_ID_LENGTH for v in labels):
+        return values
     seen: dict = {}
     for i, v in enumerate(values):
         if v is None:

@@ -141,6 +141,8 @@ def intern_ids(declared: IdColumn, tails: IdColumn, heads: IdColumn) -> tuple[No
     """
     columns = [declared, tails, heads]
     kind = _check_kinds(columns) or str
+    if len(set(declared.values)) < len(declared.values):
+        _raise_duplicates(declared)
     if kind is str:
         _check_strings(columns)
         lookup, tail, head = _intern_strings(declared.values, tails.values, heads.values)
@@ -149,8 +151,6 @@ def intern_ids(declared: IdColumn, tails: IdColumn, heads: IdColumn) -> tuple[No
         d, t, h = _int_arrays(columns)
         ids, tail, head = _intern_ints(d, t, h)
         index = NodeIndex(ids, int)
-    if len(index) < len(declared.values):
-        _raise_duplicates(declared)
     if len(index) >= 2**31:
         raise InputError.at("/nodes", "too many nodes")
     return index, tail, head
@@ -174,8 +174,6 @@ def _intern_strings(declared: list, tails: list, heads: list):
 
 
 def _intern_ints(declared: np.ndarray, tails: np.ndarray, heads: np.ndarray):
-    if declared.size and np.unique(declared).size < declared.size:
-        return [], None, None  # caller reports the duplicate
     seq = np.concatenate([declared, _interleave(tails, heads)])
     if seq.size == 0:
         return [], tails.astype(np.int32), heads.astype(np.int32)

@@ -95,6 +95,8 @@ def certify_max_flow(solution: MaxFlowSolution, num_nodes, tail, head, capacity,
     if solution.status == "unbounded":
         certificates.check_path(tail, head, unlimited, source, sink, solution.unbounded_path)
         return {"checked": True, "unbounded_path_arcs": int(solution.unbounded_path.size)}
+    if solution.tolerance:
+        capacity = capacity.astype(np.float64)  # LP answers: compare in floating point, never wrap int64
     return certificates.check_max_flow(
         num_nodes, tail, head, capacity, unlimited, source, sink,
         solution.flows, solution.value, solution.source_side, solution.tolerance,
