@@ -8,7 +8,6 @@ Both are read column by column: one C-level pass per field, never a per-arc sche
 from __future__ import annotations
 
 from dataclasses import dataclass
-from itertools import chain
 from operator import itemgetter
 
 import numpy as np
@@ -53,30 +52,43 @@ def read_arcs(raw: object, *, base: str = "/arcs", max_arcs: int | None = None) 
     return arcs
 
 
+_ABSENT = object()
+
+
 def _read_objects(raw: list, base: str) -> RawArcs:
     if set(map(type, raw)) - {dict}:
         i = next(i for i, a in enumerate(raw) if type(a) is not dict)
         raise InputError.at(f"{base}/{i}", "must be an arc object")
-    present = set(chain.from_iterable(raw))
-    unknown = present - set(ARC_FIELDS)
-    if unknown:
-        i, name = next((i, k) for i, a in enumerate(raw) for k in a if k in unknown)
-        raise InputError.at(f"{base}/{i}/{_escape(name)}", "unknown field")
+    # Count keys instead of collecting them: every key must be accounted for by a
+    # known field, or some arc carries an unknown one (then we go and find it).
+    unaccounted = sum(map(len, raw))
     columns = {}
     for name in ARC_FIELDS:
-        if name not in present and name not in REQUIRED:
-            continue
-        where = _object_where(base, name)
-        try:
-            values = list(map(itemgetter(name), raw))
-        except KeyError:
-            if name in REQUIRED:
-                missing = [i for i, a in enumerate(raw) if name not in a][:MAX_REPORTED_ERRORS]
-                raise InputError([FieldError(f"{base}/{i}/{name}", "is required") for i in missing]) from None
-            default = DEFAULTS[name]
-            values = [a.get(name, default) for a in raw]
-        columns[name] = IdColumn(values, where)
+        if name not in REQUIRED and unaccounted == 0:
+            break
+        values, present = _object_column(raw, name, base)
+        if present:
+            columns[name] = IdColumn(values, _object_where(base, name))
+            unaccounted -= present
+    if unaccounted:
+        i, key = next((i, k) for i, a in enumerate(raw) for k in a if k not in ARC_FIELDS)
+        raise InputError.at(f"{base}/{i}/{_escape(key)}", "unknown field")
     return RawArcs(columns, len(raw), "objects")
+
+
+def _object_column(raw: list, name: str, base: str) -> tuple[list, int]:
+    """One field of every arc object, and how many arcs carry it."""
+    try:
+        return list(map(itemgetter(name), raw)), len(raw)
+    except KeyError:
+        pass
+    if name in REQUIRED:
+        missing = [i for i, a in enumerate(raw) if name not in a][:MAX_REPORTED_ERRORS]
+        raise InputError([FieldError(f"{base}/{i}/{name}", "is required") for i in missing])
+    values = [a.get(name, _ABSENT) for a in raw]
+    present = len(values) - values.count(_ABSENT)
+    default = DEFAULTS[name]
+    return [default if v is _ABSENT else v for v in values], present
 
 
 def _read_columns(raw: dict, base: str) -> RawArcs:

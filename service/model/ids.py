@@ -80,6 +80,11 @@ def _id_message(value: object, majority: type) -> str:
     return "must be a node id: a string of 1-200 characters or a non-negative integer"
 
 
+def _bad_length(ids) -> bool:
+    lengths = np.fromiter(map(len, ids), dtype=np.int64, count=len(ids))
+    return bool(lengths.size) and (lengths.min() < 1 or lengths.max() > MAX_ID_LENGTH)
+
+
 def _check_strings(columns: list[IdColumn]) -> None:
     for c in columns:
         if not c.values:
@@ -144,8 +149,10 @@ def intern_ids(declared: IdColumn, tails: IdColumn, heads: IdColumn) -> tuple[No
     if len(set(declared.values)) < len(declared.values):
         _raise_duplicates(declared)
     if kind is str:
-        _check_strings(columns)
         lookup, tail, head = _intern_strings(declared.values, tails.values, heads.values)
+        # Lengths are checked once per distinct id, not once per arc end.
+        if _bad_length(lookup):
+            _check_strings(columns)
         index = NodeIndex(list(lookup), str, lookup)
     else:
         d, t, h = _int_arrays(columns)
