@@ -6,6 +6,7 @@ import orjson
 import pytest
 
 from service.api import create_app
+from service.api.fastjson import decode_columnar
 from tests.conftest import SCENARIOS
 
 GOOD = json.loads((SCENARIOS / "depots-maxflow.json").read_text())
@@ -136,3 +137,33 @@ def test_failed_self_check_is_a_500_not_a_200(app, monkeypatch):
     r = app.test_client().post("/v1/maxflow", data=orjson.dumps(GOOD), content_type="application/json")
     doc = assert_problem(r, 500)
     assert "self-check" in doc["type"]
+
+
+# The columnar fast decoder must agree with the ordinary one, or step aside.
+@pytest.mark.parametrize("raw, pointer", [
+    (b'{"source":0,"sink":2,"arcs":{"from":[0,1],"to":[1,2],"capacity":[3,true]}}', "/arcs/capacity/1"),
+    (b'{"source":0,"sink":2,"arcs":{"from":[0,1],"to":[1,2],"capacity":[3,[4]]}}', "/arcs/capacity/1"),
+    (b'{"source":0,"sink":2,"arcs":{"from":[0,1],"to":[1,2],"capacity":[3,"4"]}}', "/arcs/capacity/1"),
+    (b'{"source":0,"sink":2,"arcs":{"from":[0,1],"to":[1,2],"capacity":[3,-4]}}', "/arcs/capacity/1"),
+    (b'{"source":0,"sink":2,"arcs":{"from":[0,1],"to":[1,2.5],"capacity":[3,4]}}', "/arcs/to/1"),
+    (b'{"source":0,"sink":2,"arcs":{"from":[0,-1],"to":[1,2],"capacity":[3,4]}}', "/arcs/from/1"),
+    (b'{"source":0,"sink":2,"arcs":{"from":[0,[1]],"to":[1,2],"capacity":[3,4]}}', "/arcs/from/1"),
+    (b'{"source":0,"sink":2,"arcs":{"from":[0,1],"to":[1,2],"capacity":[3,18446744073709551615]}}',
+     "/arcs/capacity/1"),
+    (b'{"source":0,"sink":2,"arcs":{"from":[0,1],"to":[1,2],"capacity":[3,4],"capacity":[1,1],"x":[]}}',
+     "/arcs/x"),
+])
+def test_columnar_fast_path_rejects_what_the_ordinary_path_rejects(client, raw, pointer):
+    assert_problem(post(client, raw), 422, pointer)
+
+
+def test_columnar_fast_path_gives_the_ordinary_answer(client):
+    body = {"source": 0, "sink": 3, "arcs": {"from": [0, 0, 1, 2, 1], "to": [1, 2, 3, 3, 2],
+                                             "capacity": [4, 2.5, 3, 9, 1], "cost": [1, 2, 3, 4, 5]}}
+    labelled = {**body, "arcs": {**body["arcs"], "key": ["lane[0]", "lane[1]", "lane[2]", "lane[3]", "lane[4]"]}}
+    assert decode_columnar(orjson.dumps(body)) is not None
+    assert decode_columnar(orjson.dumps(labelled)) is None  # "[" inside strings: ordinary path
+    fast = post(client, body).get_json()
+    slow = post(client, labelled).get_json()
+    assert fast["value"] == slow["value"] == 6.5 and fast["flows"] == slow["flows"]
+    assert fast["digest"] == slow["digest"]

@@ -10,6 +10,7 @@ from flask import Response, request
 from flask.json.provider import JSONProvider
 
 from ..errors import BadRequest, UnsupportedMediaType
+from .fastjson import decode_columnar, looks_columnar
 
 DUMP_OPTIONS = orjson.OPT_SERIALIZE_NUMPY | orjson.OPT_NON_STR_KEYS
 
@@ -68,6 +69,10 @@ def read_json_body():
     raw = request.get_data(cache=False)
     if not raw:
         raise BadRequest("the request body is empty; send a JSON object")
+    if looks_columnar(raw):
+        decoded = decode_columnar(raw)
+        if decoded is not None:
+            return decoded
     with no_gc():
         try:
             return orjson.loads(raw)

@@ -104,7 +104,7 @@ def _read_columns(raw: dict, base: str) -> RawArcs:
         if name not in raw:
             continue
         values = raw[name]
-        if not isinstance(values, list):
+        if not isinstance(values, (list, np.ndarray)):
             raise InputError.at(f"{base}/{name}", "must be a list")
         if count is None:
             count = len(values)

@@ -91,6 +91,8 @@ def number_column(
     >>> number_column([3, None, 4.0], lambda i: f"/c/{i}", allow_null=True).values
     array([3, 0, 4])
     """
+    if isinstance(col, np.ndarray):
+        return _typed_column(col, where, minimum)
     kinds = set(map(type, col))
     allowed = {int, float, type(None)} if allow_null else {int, float}
     if not kinds <= allowed:
@@ -116,6 +118,21 @@ def number_column(
             values = values.astype(np.int64)
         _check_range(values, where, minimum)
     return NumberColumn(values, null)
+
+
+def _typed_column(values: np.ndarray, where: PointerFn, minimum: float | None) -> NumberColumn:
+    """A column that arrived as a typed array (the columnar fast path): no type
+    checks needed, only range and finiteness."""
+    if values.dtype.kind == "f":
+        bad = ~np.isfinite(values)
+        if bad.any():
+            raise _mask_errors(bad, where, "must be a finite number")
+        _check_range(values, where, minimum)
+        if np.all(np.floor(values) == values) and np.all(np.abs(values) <= EXACT_FLOAT_INT):
+            values = values.astype(np.int64)
+        return NumberColumn(values, None)
+    _check_range(values, where, minimum)
+    return NumberColumn(values, None)
 
 
 def _check_range(values: np.ndarray, where: PointerFn, minimum: float | None) -> None:

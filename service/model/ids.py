@@ -52,6 +52,8 @@ class NodeIndex:
 
 
 def _kinds(col: IdColumn) -> set:
+    if isinstance(col.values, np.ndarray):  # typed columns from the fast decoder
+        return {int} if col.values.dtype.kind == "i" else {float}
     return set(map(type, col.values))
 
 

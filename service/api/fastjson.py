@@ -1,0 +1,92 @@
+"""A fast decode for columnar payloads of numbers.
+
+A columnar body with integer node ids is mostly long JSON arrays of numbers.
+Decoding those into Python lists and then into numpy arrays costs several times the
+solve on large networks; simdjson parses the document once and hands each numeric
+array over as a typed buffer. Only such bodies take this path, and only when the
+result provably equals the ordinary decode (see :func:`decode_columnar`); everything
+else goes through orjson.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import simdjson
+
+_HINTS = (b'"arcs":{', b'"arcs": {')
+
+
+def looks_columnar(raw: bytes) -> bool:
+    """Cheap pre-check (a few byte searches) that a body has numeric columnar arcs."""
+    if not any(h in raw for h in _HINTS):
+        return False
+    at = raw.find(b'"from":[')
+    return at >= 0 and raw[at + 8: at + 9] in b"0123456789-"
+
+
+def _numeric(array) -> np.ndarray | list:
+    """A JSON array of numbers as int64 or float64, else the plain list."""
+    for code, dtype in (("i", np.int64), ("d", np.float64)):
+        try:
+            values = np.frombuffer(array.as_buffer(of_type=code), dtype=dtype)
+        except (TypeError, ValueError, RuntimeError):
+            continue
+        # as_buffer flattens nested arrays: only a flat array keeps its length.
+        if values.size == len(array):
+            return values
+        break
+    return array.as_list()
+
+
+def _count_lists(value) -> int:
+    if isinstance(value, list):
+        return 1 + sum(_count_lists(v) for v in value)
+    if isinstance(value, dict):
+        return sum(_count_lists(v) for v in value.values())
+    return 0
+
+
+def _python(value):
+    if isinstance(value, simdjson.Object):
+        return value.as_dict()
+    if isinstance(value, simdjson.Array):
+        return value.as_list()
+    return value
+
+
+def decode_columnar(raw: bytes):
+    """Decode a columnar body, with numeric arc columns as numpy arrays.
+
+    Returns ``None`` when the body does not qualify or any doubt remains, so the
+    caller decodes it the ordinary way (which also produces the error messages).
+    The result is trusted only if every ``[`` byte in the body is accounted for by an
+    array we decoded: a bracket inside a string, a nested array inside a column or a
+    duplicate key all make the counts differ and send the body down the ordinary path.
+    """
+    try:
+        doc = simdjson.Parser().parse(raw)
+    except Exception:  # noqa: BLE001 - any refusal just means "use the ordinary decoder"
+        return None
+    if not isinstance(doc, simdjson.Object):
+        return None
+    keys = list(doc.keys())
+    arcs = doc.get("arcs")
+    if len(set(keys)) != len(keys) or not isinstance(arcs, simdjson.Object):
+        return None
+    out, arrays = {}, 0
+    for key in keys:
+        if key != "arcs":
+            out[key] = _python(doc[key])
+            arrays += _count_lists(out[key])
+    columns = {}
+    column_keys = list(arcs.keys())
+    if len(set(column_keys)) != len(column_keys):
+        return None
+    for key in column_keys:
+        value = arcs[key]
+        columns[key] = _numeric(value) if isinstance(value, simdjson.Array) else _python(value)
+        arrays += 1 if isinstance(columns[key], np.ndarray) else _count_lists(columns[key])
+    out["arcs"] = columns
+    if raw.count(b"[") != arrays:
+        return None
+    return out
