@@ -15,9 +15,11 @@ install: $(BIN)/python
 serve: install
 	$(BIN)/sluice serve
 
+# pytest exits 5 when it collected no test: that is a failure here, not a pass.
 test: install
 	bash .ci/ensure-redis
-	$(BIN)/python -m pytest -q
+	$(BIN)/python -m pytest -q; rc=$$?; \
+	if [ $$rc -eq 5 ]; then echo "make test: pytest collected no tests" >&2; exit 1; fi; exit $$rc
 
 bench: install
 	$(BIN)/python -m tests.perf
