@@ -52,6 +52,18 @@ def no_gc():
             gc.enable()
 
 
+def _read_body() -> bytes:
+    length = request.content_length
+    if length is None:  # chunked: werkzeug enforces MAX_CONTENT_LENGTH while reading
+        return request.get_data(cache=False)
+    # One read of the announced length lets the server recv() in large chunks instead
+    # of werkzeug's small ones (the length was checked against the limit already).
+    raw = request.environ["wsgi.input"].read(length)
+    if len(raw) < length:
+        raise BadRequest(f"the body ended after {len(raw)} of {length} bytes")
+    return raw
+
+
 def read_json_body():
     """Decode the request body as JSON.
 
@@ -66,7 +78,7 @@ def read_json_body():
         raise UnsupportedMediaType(
             f"send the problem as application/json (got {request.mimetype or 'no Content-Type'})"
         )
-    raw = request.get_data(cache=False)
+    raw = _read_body()
     if not raw:
         raise BadRequest("the request body is empty; send a JSON object")
     if looks_columnar(raw):

@@ -50,7 +50,10 @@ def bodies(n, tail, head, cap):
         {"from": names[a], "to": names[b], "capacity": x} for a, b, x in zip(t, h, c)]})
     columns_str = orjson.dumps({"source": names[0], "sink": names[n - 1], "arcs": {
         "from": [names[a] for a in t], "to": [names[b] for b in h], "capacity": c}})
-    return {"columns/int ids": columns, "columns/string ids": columns_str, "objects/string ids": objects}
+    objects_int = orjson.dumps({"source": 0, "sink": n - 1, "arcs": [
+        {"from": a, "to": b, "capacity": x} for a, b, x in zip(t, h, c)]})
+    return {"columns/int ids": columns, "columns/string ids": columns_str,
+            "objects/int ids": objects_int, "objects/string ids": objects}
 
 
 def networkx_time(n, tail, head, cap) -> float:
