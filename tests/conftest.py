@@ -49,15 +49,15 @@ class RunningServer:
         )
         self._wait_ready()
 
-    def _wait_ready(self, timeout: float = 30.0) -> None:
+    def _wait_ready(self, timeout: float = 60.0) -> None:
         deadline = time.monotonic() + timeout
         while time.monotonic() < deadline:
             if self.proc.poll() is not None:
                 raise RuntimeError(f"sluice serve exited: {self.proc.stderr.read().decode()[-2000:]}")
             try:
-                if requests.get(self.url + "/healthz", timeout=1).status_code == 200:
+                if requests.get(self.url + "/healthz", timeout=5).status_code == 200:
                     return
-            except requests.ConnectionError:
+            except requests.RequestException:  # not listening yet, or still importing
                 time.sleep(0.1)
         self.stop()
         raise RuntimeError("sluice serve did not become healthy in time")
