@@ -129,6 +129,9 @@ class RedisBackend:
         raw = self._call("read a body alias", self.client.getex, self._key(tenant, "b", body_key), ex=self.ttl)
         return None if raw is None else raw.decode()
 
+    def put_alias(self, tenant: str, body_key: str, digest: str) -> None:
+        self._call("store a body alias", self.client.set, self._key(tenant, "b", body_key), digest, ex=self.ttl)
+
     # -- networks ----------------------------------------------------------------
 
     @staticmethod

@@ -164,12 +164,23 @@ class SqliteBackend:
         with self._guard("answer a health check"):
             conn = self._conn()
             nbytes, entries = conn.execute("SELECT bytes, entries FROM stats WHERE id = 1").fetchone()
-            # Taking the write lock for a moment proves the file and its WAL are writable.
+            (networks,) = conn.execute("SELECT count(*) FROM networks").fetchone()
+            self._check_writable(conn)
+        return {"backend": "sqlite", "result_bytes": nbytes, "results": entries,
+                "budget_bytes": self.max_bytes, "networks": networks}
+
+    def _check_writable(self, conn: sqlite3.Connection) -> None:
+        # Taking the write lock for a moment proves the file and its WAL are writable;
+        # a lock held by another writer proves the same, so "busy" counts as healthy.
+        conn.execute("PRAGMA busy_timeout = 1000")
+        try:
             conn.execute("BEGIN IMMEDIATE")
             conn.execute("ROLLBACK")
-            (networks,) = conn.execute("SELECT count(*) FROM networks").fetchone()
-        return {"backend": "sqlite", "path": self.path, "result_bytes": nbytes, "results": entries,
-                "budget_bytes": self.max_bytes, "networks": networks}
+        except sqlite3.OperationalError as exc:
+            if "locked" not in str(exc) and "busy" not in str(exc):
+                raise
+        finally:
+            conn.execute(f"PRAGMA busy_timeout = {int(self.busy_timeout * 1000)}")
 
     # -- results -----------------------------------------------------------------
 
@@ -230,6 +241,15 @@ class SqliteBackend:
             row = self._conn().execute("SELECT digest FROM aliases WHERE tenant = ? AND body = ?",
                                        (tenant, body_key)).fetchone()
             return None if row is None else row[0]
+
+    def put_alias(self, tenant: str, body_key: str, digest: str) -> None:
+        with self._guard("store a body alias"):
+            conn = self._conn()
+            with _transaction(conn):
+                # Only while the result exists: the alias dies with it (trigger).
+                conn.execute("INSERT OR REPLACE INTO aliases (tenant, body, digest) SELECT ?, ?, ? "
+                             "WHERE EXISTS (SELECT 1 FROM results WHERE tenant = ? AND digest = ?)",
+                             (tenant, body_key, digest, tenant, digest))
 
     # -- networks ----------------------------------------------------------------
 

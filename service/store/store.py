@@ -128,6 +128,10 @@ class Store:
         """Cache a result (and the body alias leading to it); False when it is too large to cache."""
         return self._use(self.backend.put_result, check_tenant(tenant), digest, value, body_key)
 
+    def put_alias(self, tenant: str, body_key: str, digest: str) -> None:
+        """Point a raw-body hash at the digest its body normalised to."""
+        self._use(self.backend.put_alias, check_tenant(tenant), body_key, digest)
+
     # -- networks ----------------------------------------------------------------
 
     def put_network(self, tenant: str, name: str, network: Network, digest: str,
