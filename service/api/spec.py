@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import json
 import sys
+from functools import lru_cache
 from importlib import resources
 
 import yaml
@@ -153,6 +154,24 @@ def build_spec() -> dict:
     return spec.to_dict()
 
 
+@lru_cache(maxsize=None)
+def _what_if_schemas(kind_name: str) -> tuple[type, type]:
+    """Request and response schemas of a kind's what-if (made once: marshmallow registers classes)."""
+    from .networks import ChangeSchema
+
+    kind = KINDS[kind_name]
+    title = kind_name.capitalize()
+    query = getattr(kind, "query_schema", None) or Schema
+    request_schema = type(f"{title}WhatIfRequest", (query,), {
+        "changes": fields.List(fields.Nested(ChangeSchema), metadata={
+            "description": "Changes to apply for this question only; each arc at most once."}),
+    })
+    response_schema = type(f"{title}WhatIfResponse", (kind.response_schema,), {
+        "network": fields.Dict(metadata={"description": "name, version and etag of the version that answered."}),
+    })
+    return request_schema, response_schema
+
+
 def _store_paths(spec: APISpec, cache_status: dict) -> None:
     """Stored networks, what-ifs and cached solutions."""
     from .networks import (ChangeSchema, NetworkBodySchema, NetworkListSchema, NetworkMetaSchema, NetworkRequest,
@@ -211,14 +230,7 @@ def _store_paths(spec: APISpec, cache_status: dict) -> None:
     for kind_name in what_if_kinds():
         kind = KINDS[kind_name]
         title = kind_name.capitalize()
-        query = getattr(kind, "query_schema", None) or Schema
-        request_schema = type(f"{title}WhatIfRequest", (query,), {
-            "changes": fields.List(fields.Nested(ChangeSchema), metadata={
-                "description": "Changes to apply for this question only; each arc at most once."}),
-        })
-        response_schema = type(f"{title}WhatIfResponse", (kind.response_schema,), {
-            "network": fields.Dict(metadata={"description": "name, version and etag of the version that answered."}),
-        })
+        request_schema, response_schema = _what_if_schemas(kind_name)
         spec.components.schema(f"{title}WhatIfRequest", schema=request_schema)
         spec.components.schema(f"{title}WhatIfResponse", schema=response_schema)
         spec.path(path=f"/v1/networks/{{name}}/{kind_name}", parameters=[name], operations={"post": {

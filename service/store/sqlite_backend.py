@@ -143,7 +143,7 @@ class SqliteBackend:
     def _guard(self, what: str):
         try:
             yield
-        except sqlite3.Error as exc:
+        except (sqlite3.Error, OSError) as exc:
             log.warning("sqlite store: %s failed: %s", what, exc)
             self._drop_connection()
             raise StoreUnavailable(f"the embedded store could not {what}: {exc}") from None
