@@ -47,7 +47,11 @@ class RunningServer:
             [sys.executable, "-m", "service.cli", "serve", "--port", str(self.port), "--workers", str(workers)],
             cwd=ROOT, env=full_env, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE,
         )
-        self._wait_ready()
+        try:
+            self._wait_ready()
+        except BaseException:
+            self.stop()  # never leave an orphan server behind a failed start
+            raise
 
     def _wait_ready(self, timeout: float = 30.0) -> None:
         deadline = time.monotonic() + timeout
@@ -57,7 +61,8 @@ class RunningServer:
             try:
                 if requests.get(self.url + "/healthz", timeout=1).status_code == 200:
                     return
-            except requests.ConnectionError:
+            except (requests.ConnectionError, requests.Timeout):
+                # A booting worker leaves the connection accepted but unanswered.
                 time.sleep(0.1)
         self.stop()
         raise RuntimeError("sluice serve did not become healthy in time")
@@ -84,7 +89,7 @@ def server(tmp_path_factory):
 # does not answer they skip with the reason, except under CI=true, where a missing
 # Redis fails the run (.ci/run starts one first).
 
-REDIS_URL = "redis://127.0.0.1:6379/0"
+REDIS_URL = os.environ.get("SLUICE_TEST_REDIS_URL") or "redis://127.0.0.1:6379/0"
 
 
 def redis_problem(url: str) -> str | None:
@@ -104,7 +109,7 @@ def redis_problem(url: str) -> str | None:
 def redis_url() -> str:
     problem = redis_problem(REDIS_URL)
     if problem:
-        message = f"Redis does not answer on 127.0.0.1:6379 ({problem}); run .ci/ensure-redis to start it"
+        message = f"Redis does not answer at {REDIS_URL} ({problem}); run .ci/ensure-redis to start it"
         if os.environ.get("CI") == "true":
             pytest.fail(f"{message}. CI=true: the Redis tests must run, not skip", pytrace=False)
         pytest.skip(message)
