@@ -149,3 +149,30 @@ def test_an_unusable_data_dir_degrades_but_solves_still_answer(tmp_path):
     assert ready.get_json()["checks"]["store"] == "unavailable"
     r = client.get("/v1/networks")
     assert r.status_code == 503 and r.headers["Retry-After"]
+
+
+def test_answers_that_are_not_final_are_never_cached(store_app):
+    """A status like time_limit (the LP kind's) must not be served to a later request
+    that allows more time. A stand-in kind gives that status: the cache and store are real."""
+    from types import SimpleNamespace
+
+    from service.api import cache
+
+    calls = []
+    kind = SimpleNamespace(name="stand-in", solve=lambda problem, limits: calls.append(1) or
+                           {"status": "time_limit", "digest": problem.digest})
+    problem = SimpleNamespace(digest="sha256:" + "c" * 64, options={"cache": "use"})
+    with store_app.test_request_context("/v1/stand-in", method="POST"):
+        for _ in range(2):
+            r = cache.answer(kind, problem, started=0.0)
+            assert r.headers["Cache-Status"] == "sluice; fwd=miss; detail=not-final"
+        assert calls == [1, 1]
+        assert cache.get_store().get_result("public", problem.digest) is None
+
+
+def test_unbounded_answers_are_cached(store_client):
+    body = {"source": "dock-a", "sink": "dock-c",
+            "arcs": [{"from": "dock-a", "to": "dock-b"}, {"from": "dock-b", "to": "dock-c", "capacity": None}]}
+    first = post(store_client, body)
+    assert first.get_json()["status"] == "unbounded"
+    assert post(store_client, body).headers["Cache-Status"] == "sluice; hit"

@@ -22,6 +22,8 @@ Every solve response says what happened in a ``Cache-Status`` header (RFC 9211):
 ``sluice; fwd=request; detail=bypass``                 ``bypass``: solved, not stored
 ``sluice; fwd=miss; detail=too-large``                 solved; too large to cache
 ``sluice; fwd=bypass; detail=store-unavailable``       the store is down: solved, not cached
+``sluice; fwd=miss; detail=not-final``                 solved, but the status is not a final
+                                                       answer (e.g. a time limit): not cached
 ====================================================  =======================================
 
 The fast path: a byte-identical body (same endpoint, same bytes) is answered from the
@@ -54,6 +56,11 @@ REFRESHED = "sluice; fwd=request; stored"
 BYPASSED = "sluice; fwd=request; detail=bypass"
 TOO_LARGE = "sluice; fwd=miss; detail=too-large"
 UNAVAILABLE = "sluice; fwd=bypass; detail=store-unavailable"
+NOT_FINAL = "sluice; fwd=miss; detail=not-final"
+
+#: Only answers that another solve would repeat are cached; an answer cut short by a
+#: time limit would be wrong to serve to a request that allows more time.
+FINAL_STATUSES = frozenset({"optimal", "infeasible", "unbounded"})
 
 
 def init_app(app: Flask, settings: Settings) -> Store:
@@ -148,7 +155,9 @@ def answer(kind: Kind, problem, *, started: float, key: str | None = None, extra
     solved = perf_counter()
     payload = orjson.dumps(result, option=DUMP_OPTIONS)
     status = BYPASSED if mode == "bypass" else UNAVAILABLE
-    if mode != "bypass" and available:
+    if mode != "bypass" and result.get("status") not in FINAL_STATUSES:
+        status = NOT_FINAL
+    elif mode != "bypass" and available:
         try:
             stored = store.put_result(who, problem.digest, payload, key if mode == "use" else None)
             status = (STORED if mode == "use" else REFRESHED) if stored else TOO_LARGE

@@ -34,8 +34,9 @@ when possible), `refresh` (solve again and overwrite), `bypass` (neither read no
 write). Every solve response has a `Cache-Status` header (RFC 9211): `sluice; hit`,
 `sluice; fwd=miss; stored`, `sluice; fwd=request; stored` (refresh),
 `sluice; fwd=request; detail=bypass`, `sluice; fwd=miss; detail=too-large` (solved, too
-large to cache) or `sluice; fwd=bypass; detail=store-unavailable` (the store is down:
-solved without it). `GET /v1/solutions/{digest}` returns a cached answer.
+large to cache), `sluice; fwd=miss; detail=not-final` (a status other than optimal,
+infeasible or unbounded, e.g. a time limit, is never cached) or
+`sluice; fwd=bypass; detail=store-unavailable` (the store is down: solved without it). `GET /v1/solutions/{digest}` returns a cached answer.
 
 Stored networks: `PUT /v1/networks/{name}` once, then ask `POST
 /v1/networks/{name}/maxflow` (and the other kinds listed below) with `changes`; the
