@@ -5,7 +5,6 @@ from __future__ import annotations
 import json
 
 import orjson
-import pytest
 
 from service.api import create_app
 from tests.checkers import assert_max_flow
