@@ -53,6 +53,24 @@ def test_include_arcs_gives_a_body_that_stores_the_same_network(store_client):
     assert copy.get_json()["digest"] == put["digest"]
 
 
+def test_integer_ids_round_trip_too(store_client):
+    body = {"nodes": [70], "arcs": {"from": [3, 3, 9], "to": [9, 12, 12], "capacity": [4, None, 2.5],
+                                    "cost": [1, 2, 3]}}
+    put = send(store_client, "PUT", "/v1/networks/ints", body).get_json()
+    got = stored(store_client, "ints")
+    assert got["nodes"] == [70, 3, 9, 12] and got["arcs"]["from"] == [3, 3, 9]
+    assert got["arcs"]["capacity"] == [4, None, 2.5] and got["arcs"]["cost"] == [1, 2, 3]
+    again = send(store_client, "PUT", "/v1/networks/ints-copy", {"nodes": got["nodes"], "arcs": got["arcs"]})
+    assert again.get_json()["digest"] == put["digest"]
+    r = send(store_client, "POST", "/v1/networks/ints/maxflow", {"source": 3, "sink": 12})
+    assert r.get_json()["status"] == "unbounded"  # 3 -> 12 has no limit
+    r = send(store_client, "POST", "/v1/networks/ints/maxflow",
+             {"source": 3, "sink": 12, "changes": [{"arc": 1, "capacity": 1}]})
+    arcs = [{"from": 3, "to": 9, "capacity": 4}, {"from": 3, "to": 12, "capacity": 1},
+            {"from": 9, "to": 12, "capacity": 2.5}]
+    assert r.get_json()["value"] == nx_max_flow(arcs, 3, 12) == 3.5
+
+
 def test_conditional_writes(store_client):
     first = send(store_client, "PUT", "/v1/networks/depots", {"arcs": DEPOTS["arcs"]})
     etag = first.headers["ETag"]
