@@ -172,7 +172,7 @@ def test_a_writer_killed_mid_write_leaves_the_store_readable_and_consistent(stor
 
 
 @pytest.mark.redis
-def test_redis_stopped_and_started_answers_stay_correct(private_redis, tmp_path):
+def test_redis_stopped_and_started_answers_stay_correct(private_redis, tmp_path, caplog):
     app = create_app({"data_dir": str(tmp_path / "data"), "redis_url": private_redis.url,
                       "redis_prefix": "sluice-test:", "store_retry": 0.2})
     client = app.test_client()
@@ -190,12 +190,14 @@ def test_redis_stopped_and_started_answers_stay_correct(private_redis, tmp_path)
     assert client.put("/v1/networks/lanes", json={"arcs": arcs}).status_code == 201
 
     private_redis.stop()
+    caplog.set_level("WARNING", logger="sluice.store")
     for _ in range(3):
         r = solve()
         assert r.headers["Cache-Status"] == "sluice; fwd=bypass; detail=store-unavailable"
         assert r.get_json()["value"] == expected
     other = {**body, "sink": "site-d0"}
     assert solve(other).get_json()["value"] == nx_max_flow(arcs, "site-a0", "site-d0")
+    assert any("unavailable" in r.getMessage() for r in caplog.records if r.name == "sluice.store")
     ready = client.get("/readyz")
     assert ready.status_code == 200 and ready.get_json()["status"] == "degraded"
     net = client.get("/v1/networks/lanes")
@@ -204,6 +206,7 @@ def test_redis_stopped_and_started_answers_stay_correct(private_redis, tmp_path)
     private_redis.start()  # an empty Redis: no persistence configured
     time.sleep(0.3)  # past the breaker's retry interval
     assert client.get("/readyz").get_json()["status"] == "ready"
+    assert any("reachable again" in r.getMessage() for r in caplog.records if r.name == "sluice.store")
     r = solve()
     assert r.headers["Cache-Status"] == "sluice; fwd=miss; stored" and r.get_json()["value"] == expected
     r = solve()

@@ -115,7 +115,8 @@ def body_hit(key: str | None, started: float) -> Response | None:
         return None
     try:
         cached = get_store().get_result_by_body(tenant(), key)
-    except StoreUnavailable:
+    except StoreUnavailable as exc:
+        log.debug("cache skipped: %s", exc.detail)
         return None
     if cached is None:
         return None
@@ -144,7 +145,9 @@ def answer(kind: Kind, problem, *, started: float, key: str | None = None, extra
     if mode == "use":
         try:
             cached = store.get_result(who, problem.digest)
-        except StoreUnavailable:
+        except StoreUnavailable as exc:
+            # The store logs the outage once (and its end); each skipped request at debug.
+            log.debug("cache skipped for %s: %s", problem.digest, exc.detail)
             cached, available = None, False
         if cached is not None:
             if key is not None:
@@ -161,7 +164,8 @@ def answer(kind: Kind, problem, *, started: float, key: str | None = None, extra
         try:
             stored = store.put_result(who, problem.digest, payload, key if mode == "use" else None)
             status = (STORED if mode == "use" else REFRESHED) if stored else TOO_LARGE
-        except StoreUnavailable:
+        except StoreUnavailable as exc:
+            log.debug("result not cached for %s: %s", problem.digest, exc.detail)
             status = UNAVAILABLE
     return respond(payload, status, _timing(started, t0, solved - t0), extra)
 
@@ -169,8 +173,8 @@ def answer(kind: Kind, problem, *, started: float, key: str | None = None, extra
 def _quietly(fn, *args) -> None:
     try:
         fn(*args)
-    except StoreUnavailable:
-        pass
+    except StoreUnavailable as exc:
+        log.debug("cache skipped: %s", exc.detail)
 
 
 def _timing(started: float, solve_started: float, solve_s: float) -> dict:

@@ -164,10 +164,8 @@ class SqliteBackend:
         with self._guard("answer a health check"):
             conn = self._conn()
             nbytes, entries = conn.execute("SELECT bytes, entries FROM stats WHERE id = 1").fetchone()
-            (networks,) = conn.execute("SELECT count(*) FROM networks").fetchone()
             self._check_writable(conn)
-        return {"backend": "sqlite", "result_bytes": nbytes, "results": entries,
-                "budget_bytes": self.max_bytes, "networks": networks}
+        return {"backend": "sqlite", "result_bytes": nbytes, "results": entries, "budget_bytes": self.max_bytes}
 
     def _check_writable(self, conn: sqlite3.Connection) -> None:
         # Taking the write lock for a moment proves the file and its WAL are writable;
