@@ -27,6 +27,12 @@ class Settings:
     max_nodes: int = 5_000_000
     time_limit: float = 30.0
     api_keys: dict = field(default_factory=dict)
+    redis_prefix: str = "sluice:"  # every Redis key starts with it
+    cache_mb: float = 512.0  # embedded result cache budget (LRU beyond it)
+    cache_ttl: int = 86400  # seconds a Redis result lives after its last use
+    cache_item_mb: float = 64.0  # larger results are not cached
+    network_memo_mb: float = 256.0  # per-worker memo of decoded stored networks
+    store_retry: float = 1.0  # seconds between attempts to reach a store that failed
 
     @classmethod
     def from_env(cls) -> "Settings":
@@ -37,6 +43,12 @@ class Settings:
             max_arcs=_int("SLUICE_MAX_ARCS", 5_000_000),
             max_nodes=_int("SLUICE_MAX_NODES", 5_000_000),
             time_limit=_float("SLUICE_TIME_LIMIT", 30.0),
+            redis_prefix=os.environ.get("SLUICE_REDIS_PREFIX") or "sluice:",
+            cache_mb=_float("SLUICE_CACHE_MB", 512.0),
+            cache_ttl=_int("SLUICE_CACHE_TTL", 86400),
+            cache_item_mb=_float("SLUICE_CACHE_ITEM_MB", 64.0),
+            network_memo_mb=_float("SLUICE_NETWORK_MEMO_MB", 256.0),
+            store_retry=_float("SLUICE_STORE_RETRY", 1.0),
         )
 
     @property

@@ -47,7 +47,11 @@ class RunningServer:
             [sys.executable, "-m", "service.cli", "serve", "--port", str(self.port), "--workers", str(workers)],
             cwd=ROOT, env=full_env, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE,
         )
-        self._wait_ready()
+        try:
+            self._wait_ready()
+        except BaseException:
+            self.stop()  # never leave an orphan server behind a failed start
+            raise
 
     def _wait_ready(self, timeout: float = 60.0) -> None:
         deadline = time.monotonic() + timeout
@@ -57,7 +61,8 @@ class RunningServer:
             try:
                 if requests.get(self.url + "/healthz", timeout=5).status_code == 200:
                     return
-            except requests.RequestException:  # not listening yet, or still importing
+            except (requests.ConnectionError, requests.Timeout):
+                # A booting worker leaves the connection accepted but unanswered.
                 time.sleep(0.1)
         self.stop()
         raise RuntimeError("sluice serve did not become healthy in time")
@@ -77,3 +82,117 @@ def server(tmp_path_factory):
     srv = RunningServer(data_dir=str(tmp_path_factory.mktemp("server-data")))
     yield srv
     srv.stop()
+
+
+# -- Redis -------------------------------------------------------------------------
+# The Redis tests use the real server on 127.0.0.1:6379 (no fake in its place). When it
+# does not answer they skip with the reason, except under CI=true, where a missing
+# Redis fails the run (.ci/run starts one first).
+
+REDIS_URL = os.environ.get("SLUICE_TEST_REDIS_URL") or "redis://127.0.0.1:6379/0"
+
+
+def redis_problem(url: str) -> str | None:
+    """None when Redis answers PING at ``url``, else why not."""
+    import redis
+
+    try:
+        client = redis.Redis.from_url(url, socket_connect_timeout=1, socket_timeout=2)
+        client.ping()
+        client.close()
+    except redis.RedisError as exc:
+        return f"{exc.__class__.__name__}: {exc}"
+    return None
+
+
+@pytest.fixture(scope="session")
+def redis_url() -> str:
+    problem = redis_problem(REDIS_URL)
+    if problem:
+        message = f"Redis does not answer at {REDIS_URL} ({problem}); run .ci/ensure-redis to start it"
+        if os.environ.get("CI") == "true":
+            pytest.fail(f"{message}. CI=true: the Redis tests must run, not skip", pytrace=False)
+        pytest.skip(message)
+    return REDIS_URL
+
+
+@pytest.fixture
+def redis_prefix(redis_url):
+    """A key prefix of this test alone (others share the server); its keys are deleted after."""
+    import uuid
+
+    import redis
+
+    prefix = f"sluice-test:{uuid.uuid4().hex[:12]}:"
+    yield prefix
+    client = redis.Redis.from_url(redis_url)
+    keys = list(client.scan_iter(match=prefix + "*", count=1000))
+    for i in range(0, len(keys), 500):
+        client.unlink(*keys[i:i + 500])
+    client.close()
+
+
+@pytest.fixture(params=["sqlite", pytest.param("redis", marks=pytest.mark.redis)])
+def store_config(request, tmp_path) -> dict:
+    """Settings overrides for each backend: the embedded SQLite store, then the real Redis."""
+    config = {"data_dir": str(tmp_path / "data")}
+    if request.param == "redis":
+        config.update(redis_url=request.getfixturevalue("redis_url"),
+                      redis_prefix=request.getfixturevalue("redis_prefix"))
+    return config
+
+
+@pytest.fixture
+def store_app(store_config):
+    return create_app(store_config)
+
+
+@pytest.fixture
+def store_client(store_app):
+    return store_app.test_client()
+
+
+class PrivateRedis:
+    """A redis-server of this test alone on a free port, to stop and start at will
+    (the shared one on 6379 stays up for everyone else)."""
+
+    def __init__(self, tmp: Path):
+        import shutil
+
+        self.binary = shutil.which("redis-server")
+        self.port = free_port()
+        self.dir = tmp
+        self.url = f"redis://127.0.0.1:{self.port}/0"
+        self.proc = None
+
+    def start(self) -> None:
+        self.proc = subprocess.Popen(
+            [self.binary, "--port", str(self.port), "--bind", "127.0.0.1", "--save", "", "--appendonly", "no",
+             "--dir", str(self.dir)],
+            stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL,
+        )
+        deadline = time.monotonic() + 10
+        while redis_problem(self.url) and time.monotonic() < deadline:
+            time.sleep(0.05)
+        if redis_problem(self.url):
+            raise RuntimeError("private redis-server did not start")
+
+    def stop(self) -> None:
+        if self.proc is not None and self.proc.poll() is None:
+            self.proc.kill()
+            self.proc.wait()
+        self.proc = None
+
+
+@pytest.fixture
+def private_redis(tmp_path, redis_url):
+    import shutil
+
+    if shutil.which("redis-server") is None:
+        if os.environ.get("CI") == "true":
+            pytest.fail("redis-server is not installed; CI=true requires it", pytrace=False)
+        pytest.skip("redis-server is not installed")
+    server = PrivateRedis(tmp_path)
+    server.start()
+    yield server
+    server.stop()

@@ -6,7 +6,7 @@ import gc
 from contextlib import contextmanager
 
 import orjson
-from flask import Response, request
+from flask import Response, g, request
 from flask.json.provider import JSONProvider
 
 from ..errors import BadRequest, UnsupportedMediaType
@@ -52,15 +52,21 @@ def no_gc():
             gc.enable()
 
 
-def _read_body() -> bytes:
+def raw_body() -> bytes:
+    """The request body, read once per request (later calls return the same bytes)."""
+    raw = g.get("_sluice_raw_body")
+    if raw is not None:
+        return raw
     length = request.content_length
     if length is None:  # chunked: werkzeug enforces MAX_CONTENT_LENGTH while reading
-        return request.get_data(cache=False)
-    # One read of the announced length lets the server recv() in large chunks instead
-    # of werkzeug's small ones (the length was checked against the limit already).
-    raw = request.environ["wsgi.input"].read(length)
-    if len(raw) < length:
-        raise BadRequest(f"the body ended after {len(raw)} of {length} bytes")
+        raw = request.get_data(cache=False)
+    else:
+        # One read of the announced length lets the server recv() in large chunks
+        # instead of werkzeug's small ones (the length was checked against the limit).
+        raw = request.environ["wsgi.input"].read(length)
+        if len(raw) < length:
+            raise BadRequest(f"the body ended after {len(raw)} of {length} bytes")
+    g._sluice_raw_body = raw
     return raw
 
 
@@ -78,7 +84,7 @@ def read_json_body():
         raise UnsupportedMediaType(
             f"send the problem as application/json (got {request.mimetype or 'no Content-Type'})"
         )
-    raw = _read_body()
+    raw = raw_body()
     if not raw:
         raise BadRequest("the request body is empty; send a JSON object")
     if looks_columnar(raw):

@@ -6,6 +6,7 @@ import numpy as np
 from flask import Blueprint, current_app
 
 from ..solvers import maximum_flow
+from .cache import get_store
 from .jsonio import json_response
 
 bp = Blueprint("ops", __name__)
@@ -26,11 +27,22 @@ def _tiny_solve_ok() -> bool:
 
 @bp.get("/readyz")
 def readyz():
-    """The solvers answer a tiny problem correctly."""
-    checks = {"solver": "ok" if _tiny_solve_ok() else "failed"}
-    ready = all(v == "ok" for v in checks.values())
-    return json_response({"status": "ready" if ready else "not ready", "checks": checks},
-                         200 if ready else 503, headers=None if ready else {"Retry-After": "5"})
+    """The solvers answer a tiny problem correctly and the store answers.
+
+    A store that does not answer makes the service ``degraded``, not unready: solves
+    still answer (without the cache), so the instance stays in rotation (200); stored
+    networks and cached solutions answer 503 until the store is back.
+    """
+    store = get_store().health()
+    checks = {"solver": "ok" if _tiny_solve_ok() else "failed", "store": store["status"]}
+    if checks["solver"] != "ok":
+        status, code = "not ready", 503
+    elif store["status"] != "ok":
+        status, code = "degraded", 200
+    else:
+        status, code = "ready", 200
+    return json_response({"status": status, "checks": checks, "store": store},
+                         code, headers=None if code == 200 else {"Retry-After": "5"})
 
 
 @bp.get("/openapi.json")

@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import json
 import sys
+from functools import lru_cache
 from importlib import resources
 
 import yaml
@@ -27,8 +28,34 @@ Every answer carries a `certificate`: the service's own check of the solution
 fields. Node ids are strings (1-200 characters) or non-negative integers, one kind per
 payload. A capacity of `null` (or an absent capacity) means no limit.
 
-Deviation from the draft contract: a request whose Content-Type is not JSON gets
-415 Unsupported Media Type (RFC 9110), not 400.
+Results are cached by problem digest (the normalised problem, the answer-changing
+options and the solver version). `options.cache`: `use` (default: answer from the cache
+when possible), `refresh` (solve again and overwrite), `bypass` (neither read nor
+write). Every solve response has a `Cache-Status` header (RFC 9211): `sluice; hit`,
+`sluice; fwd=miss; stored`, `sluice; fwd=request; stored` (refresh),
+`sluice; fwd=request; detail=bypass`, `sluice; fwd=miss; detail=too-large` (solved, too
+large to cache), `sluice; fwd=miss; detail=not-final` (a status other than optimal,
+infeasible or unbounded, e.g. a time limit, is never cached) or
+`sluice; fwd=bypass; detail=store-unavailable` (the store is down: solved without it). `GET /v1/solutions/{digest}` returns a cached answer.
+
+Stored networks: `PUT /v1/networks/{name}` once, then ask `POST
+/v1/networks/{name}/maxflow` (and the other kinds listed below) with `changes`; the
+stored network is never modified by a what-if. Every PUT makes a new version with a new
+ETag; `If-Match` makes a PUT or DELETE conditional (412 when stale, checked atomically
+so of two writers holding one ETag exactly one wins) and `If-None-Match: *` makes a PUT
+create-only. Network names are 1-128 characters from `A-Z a-z 0-9 . _ -`, starting with
+a letter or digit.
+
+Deviations from the draft contract: a request whose Content-Type is not JSON gets
+415 Unsupported Media Type (RFC 9110), not 400. A malformed path or query parameter
+(network name, digest, `limit`, `after`, `include`) gets 400 `invalid-parameter` with
+`errors: [{"parameter": ..., "detail": ...}]` (there is no body to point into). When the
+store (SQLite file or Redis) does not answer, `/readyz` answers 200 with `status:
+degraded` (solves still answer, without the cache), while stored networks and cached
+solutions answer 503 `store-unavailable` with `Retry-After`; `/readyz` answers 503 only
+when the solvers fail. Network metadata carries `etag`, `size`, `created` and `updated`
+besides the contract's fields, and what-if answers carry `network` (name, version,
+ETag of the version that answered).
 
 Results are decision support: plans affecting people, vehicles or safety-critical
 stock must be reviewed by a responsible planner and follow local rules."""
@@ -94,6 +121,8 @@ def build_spec() -> dict:
     spec.components.schema("Problem", schema=ProblemSchema)
     spec.components.schema("Arc", schema=ArcSchema)
     spec.components.schema("ArcColumns", schema=ArcColumnsSchema)
+    cache_status = {"Cache-Status": {"description": "RFC 9211: how the result cache took part (see above).",
+                                     "schema": {"type": "string"}}}
     for kind in KINDS.values():
         title = kind.name.capitalize() if kind.name.islower() else kind.name
         spec.components.schema(f"{title}Request", schema=kind.request_schema)
@@ -106,10 +135,12 @@ def build_spec() -> dict:
                 "requestBody": {"required": True, "content": {"application/json": {
                     "schema": f"{title}Request", "example": _example(kind.example)}}},
                 "responses": {"200": {"description": "Solved (status says optimal, infeasible or unbounded).",
+                                      "headers": cache_status,
                                       "content": {"application/json": {"schema": f"{title}Response"}}},
                               **_problem_responses()},
             }},
         )
+    _store_paths(spec, cache_status)
     health = {"application/json": {"schema": HealthSchema}}
     spec.path(path="/healthz", operations={"get": {"operationId": "healthz", "summary": "The process is up.",
                                                    "responses": {"200": {"description": "Up.", "content": health}}}})
@@ -122,6 +153,106 @@ def build_spec() -> dict:
         "responses": {"200": {"description": "The OpenAPI document.",
                               "content": {"application/json": {"schema": {"type": "object"}}}}}}})
     return spec.to_dict()
+
+
+@lru_cache(maxsize=None)
+def _what_if_schemas(kind_name: str) -> tuple[type, type]:
+    """Request and response schemas of a kind's what-if (made once: marshmallow registers classes)."""
+    from .networks import ChangeSchema
+
+    kind = KINDS[kind_name]
+    title = kind_name.capitalize()
+    query = getattr(kind, "query_schema", None) or Schema
+    request_schema = type(f"{title}WhatIfRequest", (query,), {
+        "changes": fields.List(fields.Nested(ChangeSchema), metadata={
+            "description": "Changes to apply for this question only; each arc at most once."}),
+    })
+    response_schema = type(f"{title}WhatIfResponse", (kind.response_schema,), {
+        "network": fields.Dict(metadata={"description": "name, version and etag of the version that answered."}),
+    })
+    return request_schema, response_schema
+
+
+def _store_paths(spec: APISpec, cache_status: dict) -> None:
+    """Stored networks, what-ifs and cached solutions."""
+    from .networks import (ChangeSchema, NetworkBodySchema, NetworkListSchema, NetworkMetaSchema, NetworkRequest,
+                           what_if_kinds)
+
+    spec.components.schema("NetworkRequest", schema=NetworkRequest)
+    spec.components.schema("NetworkMeta", schema=NetworkMetaSchema)
+    spec.components.schema("NetworkBody", schema=NetworkBodySchema)
+    spec.components.schema("NetworkList", schema=NetworkListSchema)
+    spec.components.schema("Change", schema=ChangeSchema)
+    problem = {"application/problem+json": {"schema": "Problem"}}
+    unavailable = {"description": "The store does not answer (Retry-After says when to try again).",
+                   "content": problem}
+    name = {"name": "name", "in": "path", "required": True,
+            "schema": {"type": "string", "minLength": 1, "maxLength": 128, "pattern": "^[A-Za-z0-9][A-Za-z0-9._-]*$"}}
+    if_match = {"name": "If-Match", "in": "header", "schema": {"type": "string"},
+                "description": "Only write if the current version has this ETag (or any version, for *)."}
+    etag = {"ETag": {"description": "The version's entity tag.", "schema": {"type": "string"}}}
+    bad_name = {"description": "The name (or another parameter) is malformed.", "content": problem}
+    not_found = {"description": "No such network.", "content": problem}
+    stale = {"description": "If-Match or If-None-Match did not hold.", "content": problem}
+    meta = {"application/json": {"schema": "NetworkMeta"}}
+    spec.path(path="/v1/networks", operations={"get": {
+        "operationId": "list_networks", "summary": "Stored networks, by name, a page at a time.",
+        "parameters": [
+            {"name": "limit", "in": "query", "schema": {"type": "integer", "minimum": 1, "maximum": 1000,
+                                                        "default": 100}},
+            {"name": "after", "in": "query", "schema": {"type": "string"},
+             "description": "Start after this name (the next link sets it)."}],
+        "responses": {"200": {"description": "One page; next is the URL of the following page, or null.",
+                              "content": {"application/json": {"schema": "NetworkList"}}},
+                      "400": bad_name, "503": unavailable}}})
+    spec.path(path="/v1/networks/{name}", parameters=[name], operations={
+        "put": {
+            "operationId": "put_network", "summary": "Store a network (a new version when it exists).",
+            "parameters": [if_match, {"name": "If-None-Match", "in": "header", "schema": {"type": "string"},
+                                      "description": "* : only create, never replace."}],
+            "requestBody": {"required": True, "content": {"application/json": {"schema": "NetworkRequest"}}},
+            "responses": {"201": {"description": "Created.", "headers": etag, "content": meta},
+                          "200": {"description": "Replaced by a new version.", "headers": etag, "content": meta},
+                          **_problem_responses(), "412": stale, "503": unavailable}},
+        "get": {
+            "operationId": "get_network", "summary": "A stored network's metadata (and arcs with ?include=arcs).",
+            "parameters": [{"name": "include", "in": "query", "schema": {"type": "string", "enum": ["arcs"]}},
+                           {"name": "If-None-Match", "in": "header", "schema": {"type": "string"}}],
+            "responses": {"200": {"description": "The current version.", "headers": etag,
+                                  "content": {"application/json": {"schema": "NetworkBody"}}},
+                          "304": {"description": "Not modified (If-None-Match holds the current ETag)."},
+                          "400": bad_name, "404": not_found, "503": unavailable}},
+        "delete": {
+            "operationId": "delete_network", "summary": "Remove a stored network.",
+            "parameters": [if_match],
+            "responses": {"204": {"description": "Removed."}, "400": bad_name, "404": not_found, "412": stale,
+                          "503": unavailable}},
+    })
+    for kind_name in what_if_kinds():
+        kind = KINDS[kind_name]
+        title = kind_name.capitalize()
+        request_schema, response_schema = _what_if_schemas(kind_name)
+        spec.components.schema(f"{title}WhatIfRequest", schema=request_schema)
+        spec.components.schema(f"{title}WhatIfResponse", schema=response_schema)
+        spec.path(path=f"/v1/networks/{{name}}/{kind_name}", parameters=[name], operations={"post": {
+            "operationId": f"what_if_{kind_name}",
+            "summary": f"{kind.summary}, on a stored network with optional changes (the store is not modified).",
+            "requestBody": {"required": True, "content": {"application/json": {"schema": f"{title}WhatIfRequest"}}},
+            "responses": {"200": {"description": "Solved.", "headers": cache_status,
+                                  "content": {"application/json": {"schema": f"{title}WhatIfResponse"}}},
+                          **_problem_responses(), "404": not_found, "503": unavailable}}})
+    spec.path(path="/v1/solutions/{digest}", operations={"get": {
+        "operationId": "get_solution", "summary": "A cached answer, by the digest its solve response carried.",
+        "parameters": [{"name": "digest", "in": "path", "required": True,
+                        "schema": {"type": "string", "pattern": "^sha256:[0-9a-f]{64}$"}},
+                       {"name": "If-None-Match", "in": "header", "schema": {"type": "string"}}],
+        "responses": {"200": {"description": "The cached answer (without timing_ms).", "headers": {
+                          "ETag": {"description": "Hash of the cached answer.", "schema": {"type": "string"}}},
+                          "content": {"application/json": {"schema": {"type": "object"}}}},
+                      "304": {"description": "Not modified."},
+                      "400": {"description": "The digest is malformed.", "content": problem},
+                      "404": {"description": "Not cached (never solved here, or evicted).", "content": problem},
+                      "503": unavailable}}})
 
 
 def spec_yaml() -> str:

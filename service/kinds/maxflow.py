@@ -41,6 +41,17 @@ class MaxFlowRequest(Schema):
     options = fields.Nested(MaxFlowOptions, load_default=lambda: MaxFlowOptions().load({}))
 
 
+class MaxFlowQuery(Schema):
+    """A max-flow question about a stored network (the arcs come from the store)."""
+
+    class Meta:
+        unknown = RAISE
+
+    source = NodeId(required=True, metadata={"description": "Node the flow leaves."})
+    sink = NodeId(required=True, metadata={"description": "Node the flow reaches."})
+    options = fields.Nested(MaxFlowOptions, load_default=lambda: MaxFlowOptions().load({}))
+
+
 class CutSchema(Schema):
     source_side = fields.List(NodeId(), metadata={"description": "Nodes on the source side of a minimum cut."})
     arcs = fields.List(fields.Integer(), metadata={"description": "Indices of the arcs leaving the source side."})
@@ -121,6 +132,34 @@ def parse(body, limits: Limits) -> MaxFlowProblem:
     return MaxFlowProblem(network, source, sink, options, digest_of(network, source, sink, options))
 
 
+def from_network(network: Network, query, limits: Limits) -> MaxFlowProblem:
+    """Build a max-flow problem from an already-normalised (stored) network.
+
+    Parameters
+    ----------
+    network : Network
+        A stored network, with any what-if changes already applied.
+    query : dict
+        ``source``, ``sink`` and optional ``options`` (as in a ``POST /v1/maxflow`` body).
+
+    Raises
+    ------
+    InputError
+        Naming the offending field of the query by JSON Pointer.
+    """
+    envelope = load_envelope(MaxFlowQuery(), query)
+    if network.lower is not None:
+        raise InputError.at("", "the stored network has lower bounds on some arcs; max-flow does not support them")
+    if network.num_arcs > limits.max_arcs:
+        raise ProblemTooLarge(FieldError("", f"the network has {network.num_arcs} arcs; the limit is {limits.max_arcs}"))
+    source = node_position(network.nodes, envelope["source"], "/source")
+    sink = node_position(network.nodes, envelope["sink"], "/sink")
+    if source == sink:
+        raise InputError.at("/sink", "must differ from the source")
+    options = envelope["options"]
+    return MaxFlowProblem(network, source, sink, options, digest_of(network, source, sink, options))
+
+
 def digest_of(network: Network, source: int, sink: int, options: dict) -> str:
     return problem_digest(
         "maxflow", ORTOOLS_VERSION, network.nodes.ids, network.tail, network.head, network.capacity,
@@ -164,8 +203,10 @@ class MaxFlowKind:
     request_schema = MaxFlowRequest
     response_schema = MaxFlowResponse
     example = "depots-maxflow.json"
+    query_schema = MaxFlowQuery
     parse = staticmethod(parse)
     solve = staticmethod(solve)
+    from_network = staticmethod(from_network)
 
 
 KIND = MaxFlowKind()

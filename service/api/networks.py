@@ -1,0 +1,240 @@
+"""Stored networks: upload once, then ask what-ifs without sending the arcs again.
+
+``PUT/GET/DELETE /v1/networks/{name}``, ``GET /v1/networks`` (paged) and
+``POST /v1/networks/{name}/{kind}`` for every kind with ``from_network`` (maxflow,
+and mincostflow once that kind is registered). Versions carry ETags; ``If-Match``
+makes a write conditional and the store checks it atomically (412 when stale).
+"""
+
+from __future__ import annotations
+
+from time import perf_counter
+
+import numpy as np
+from flask import Blueprint, Response, current_app, request, url_for
+from marshmallow import RAISE, Schema, fields
+
+from ..errors import FieldError, InputError, NotFound, ProblemTooLarge
+from ..kinds import KINDS, Limits
+from ..kinds.base import ids_of
+from ..model.arcs import Network, build_network, read_arcs
+from ..model.changes import apply_changes
+from ..model.nodes import read_nodes
+from ..model.schemas import ArcsField, NodesField, load_envelope
+from ..store import InvalidParameter, NetworkMeta, Preconditions, check_name, network_digest
+from . import cache
+from .jsonio import json_response, read_json_body
+
+bp = Blueprint("networks", __name__, url_prefix="/v1/networks")
+
+MAX_PAGE = 1000
+DEFAULT_PAGE = 100
+
+
+class NetworkRequest(Schema):
+    """The body of ``PUT /v1/networks/{name}``: the network alone, no question yet."""
+
+    class Meta:
+        unknown = RAISE
+
+    nodes = NodesField(load_default=None, metadata={"description": "Optional node ids (or objects with id), "
+                                                                   "to fix their order or add isolated nodes."})
+    arcs = ArcsField(required=True, metadata={"description": "Arcs in object or columnar form; give key to "
+                                                             "address arcs by label in changes."})
+
+
+class NetworkMetaSchema(Schema):
+    name = fields.String()
+    version = fields.Integer(metadata={"description": "1 for a new network, +1 on every successful PUT."})
+    etag = fields.String(metadata={"description": "The version's entity tag, as in the ETag header."})
+    digest = fields.String(metadata={"description": "sha256 of the stored network's normalised arrays."})
+    node_count = fields.Integer()
+    arc_count = fields.Integer()
+    size = fields.Integer(metadata={"description": "Bytes the stored arrays take."})
+    created = fields.String(metadata={"description": "When the first version was stored (RFC 3339)."})
+    updated = fields.String(metadata={"description": "When this version was stored (RFC 3339)."})
+
+
+class NetworkBodySchema(NetworkMetaSchema):
+    nodes = fields.List(fields.Raw(), metadata={"description": "With ?include=arcs: node ids in index order."})
+    arcs = fields.Dict(metadata={"description": "With ?include=arcs: the arcs in columnar form; PUT it back "
+                                                "to get the same digest."})
+
+
+class NetworkListSchema(Schema):
+    networks = fields.List(fields.Nested(NetworkMetaSchema), metadata={"description": "Sorted by name."})
+    next = fields.String(allow_none=True, metadata={"description": "URL of the next page; null on the last."})
+
+
+class ChangeSchema(Schema):
+    """One what-if change (documentation; validated column-wise)."""
+
+    arc = fields.Integer(metadata={"description": "Index of the arc in the stored network (0-based)."})
+    key = fields.String(metadata={"description": "The arc's key, instead of arc."})
+    capacity = fields.Float(allow_none=True, metadata={"description": "New capacity (>= 0); null for no limit."})
+    cost = fields.Float(metadata={"description": "New cost per unit."})
+    closed = fields.Boolean(metadata={"description": "true: the arc carries no flow (capacity and lower bound 0). "
+                                                     "Cannot be combined with capacity."})
+
+
+def _limits() -> Limits:
+    return current_app.extensions["sluice"].limits
+
+
+def _etag(meta: NetworkMeta) -> str:
+    return f'"{meta.etag}"'
+
+
+def _preconditions() -> Preconditions:
+    """If-Match / If-None-Match of a write; If-Match uses strong comparison (RFC 9110 13.1.1)."""
+    def parse(header: str, etags):
+        if header not in request.headers:
+            return None
+        return "*" if etags.star_tag else frozenset(etags.as_set(include_weak=False))
+
+    return Preconditions(parse("If-Match", request.if_match), parse("If-None-Match", request.if_none_match))
+
+
+def read_network(body, limits: Limits) -> Network:
+    """Validate and normalise a network body (nodes and arcs, no question).
+
+    Raises
+    ------
+    InputError
+        Naming the field by JSON Pointer.
+    """
+    envelope = load_envelope(NetworkRequest(), body)
+    arcs = read_arcs(envelope["arcs"], max_arcs=limits.max_arcs)
+    nodes = read_nodes(envelope["nodes"])
+    network = build_network(arcs, nodes.ids, allow_lower=True)
+    if network.num_nodes > limits.max_nodes:
+        raise ProblemTooLarge(FieldError("/nodes", f"has {network.num_nodes} nodes; the limit is {limits.max_nodes}"))
+    return network
+
+
+@bp.put("/<name>")
+def put_network(name: str):
+    """Store a network (201 new, 200 replaced), optionally only if If-Match holds."""
+    check_name(name)
+    pre = _preconditions()
+    store = cache.get_store()
+    if pre.if_match is not None or pre.if_none_match is not None:
+        # Refuse a stale write before reading a large body; the store checks again atomically.
+        try:
+            current = store.network_meta(cache.tenant(), name)
+        except NotFound:
+            current = None
+        pre.check(current, name)
+    network = read_network(read_json_body(), _limits())
+    meta, created = store.put_network(cache.tenant(), name, network, network_digest(network), pre)
+    headers = {"ETag": _etag(meta)}
+    if created:
+        headers["Location"] = url_for("networks.get_network", name=name)
+    return json_response(meta.as_dict(), 201 if created else 200, headers=headers)
+
+
+@bp.get("/<name>")
+def get_network(name: str):
+    """A stored network's metadata; with ?include=arcs its nodes and arcs too."""
+    check_name(name)
+    include = _include()
+    store = cache.get_store()
+    meta = store.network_meta(cache.tenant(), name)
+    if request.if_none_match.contains_weak(meta.etag):
+        return Response(status=304, headers={"ETag": _etag(meta)})
+    if not include:
+        return json_response(meta.as_dict(), headers={"ETag": _etag(meta)})
+    loaded = store.load_network(cache.tenant(), name)
+    out = loaded.meta.as_dict()
+    out.update(export_network(loaded.network))
+    return json_response(out, headers={"ETag": _etag(loaded.meta)})
+
+
+def _include() -> set:
+    raw = request.args.get("include")
+    if raw is None or raw == "":
+        return set()
+    parts = set(raw.split(","))
+    if parts - {"arcs"}:
+        raise InvalidParameter("include", "the only value is arcs")
+    return parts
+
+
+def export_network(net: Network) -> dict:
+    """``nodes`` and columnar ``arcs`` of a stored network, as a PUT body would give them."""
+    arcs: dict = {"from": ids_of(net.nodes, net.tail), "to": ids_of(net.nodes, net.head)}
+    if net.unlimited is None:
+        arcs["capacity"] = net.capacity
+    else:
+        capacity = net.capacity.astype(object)
+        capacity[net.unlimited] = None  # JSON null: no limit
+        arcs["capacity"] = capacity.tolist()
+    if net.cost is not None:
+        arcs["cost"] = net.cost
+    if net.lower is not None:
+        arcs["lower"] = net.lower
+    if net.keys is not None:
+        arcs["key"] = net.keys
+    nodes = np.asarray(net.nodes.ids, dtype=np.int64) if net.nodes.kind is int else net.nodes.ids
+    return {"nodes": nodes, "arcs": arcs}
+
+
+@bp.delete("/<name>")
+def delete_network(name: str):
+    """Remove a stored network (204), optionally only if If-Match holds."""
+    check_name(name)
+    cache.get_store().delete_network(cache.tenant(), name, _preconditions())
+    return Response(status=204)
+
+
+@bp.get("")
+def list_networks():
+    """The tenant's networks by name, ``limit`` per page (default 100, at most 1000), after ``after``."""
+    limit = _int_arg("limit", DEFAULT_PAGE, 1, MAX_PAGE)
+    after = request.args.get("after") or None
+    if after is not None:
+        check_name(after, "after")
+    metas = cache.get_store().list_networks(cache.tenant(), after, limit + 1)
+    more = len(metas) > limit
+    metas = metas[:limit]
+    nxt = url_for("networks.list_networks", after=metas[-1].name, limit=limit) if more else None
+    headers = {"Link": f'<{nxt}>; rel="next"'} if nxt else None
+    return json_response({"networks": [m.as_dict() for m in metas], "next": nxt}, headers=headers)
+
+
+def _int_arg(name: str, default: int, low: int, high: int) -> int:
+    raw = request.args.get(name)
+    if raw is None or raw == "":
+        return default
+    if not raw.isdigit() or not low <= int(raw) <= high:
+        raise InvalidParameter(name, f"must be an integer from {low} to {high}")
+    return int(raw)
+
+
+def what_if_kinds() -> list[str]:
+    """Kinds that can be asked of a stored network (they implement ``from_network``)."""
+    return [name for name, kind in KINDS.items() if hasattr(kind, "from_network")]
+
+
+def what_if(name: str, kind_name: str):
+    """Solve a question about a stored network with optional ``changes``; the store is not modified."""
+    started = perf_counter()
+    check_name(name)
+    kind = KINDS[kind_name]
+    body = read_json_body()
+    if not isinstance(body, dict):
+        raise InputError.at("", "the request body must be a JSON object")
+    query = {k: v for k, v in body.items() if k != "changes"}
+    loaded = cache.get_store().load_network(cache.tenant(), name)
+    network = apply_changes(loaded.network, body.get("changes"), key_index=loaded.key_index)
+    problem = kind.from_network(network, query, _limits())
+    meta = loaded.meta
+    return cache.answer(kind, problem, started=started,
+                        extra={"network": {"name": meta.name, "version": meta.version, "etag": _etag(meta)}})
+
+
+# One route per kind that can be asked of a stored network, so that every route has
+# its own entry in the OpenAPI document.
+for _name in what_if_kinds():
+    bp.add_url_rule(f"/<name>/{_name}", endpoint=f"what_if_{_name}", methods=["POST"],
+                    view_func=lambda name, _kind=_name: what_if(name, _kind))

@@ -1,0 +1,31 @@
+"""Cached results by digest: ``GET /v1/solutions/{digest}`` with ETag and If-None-Match."""
+
+from __future__ import annotations
+
+import hashlib
+
+from flask import Blueprint, Response, request
+
+from ..errors import NotFound
+from ..store import check_digest
+from . import cache
+
+bp = Blueprint("solutions", __name__, url_prefix="/v1/solutions")
+
+
+@bp.get("/<digest>")
+def get_solution(digest: str):
+    """The cached answer for a problem digest (as the solve returned it, without timing_ms).
+
+    The ETag hashes the stored bytes, so it changes whenever the cached answer does.
+    """
+    check_digest(digest)
+    value = cache.get_store().get_result(cache.tenant(), digest)
+    if value is None:
+        raise NotFound(f"no cached solution for {digest}: it was never solved here or has been evicted; "
+                       "solve the problem again")
+    etag = hashlib.sha256(value).hexdigest()[:32]
+    headers = {"ETag": f'"{etag}"', "Cache-Control": "no-cache"}
+    if request.if_none_match.contains_weak(etag):
+        return Response(status=304, headers=headers)
+    return Response(value, mimetype="application/json", headers=headers)

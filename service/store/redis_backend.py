@@ -1,0 +1,206 @@
+"""The shared store: Redis, when ``SLUICE_REDIS_URL`` is set, so many hosts share it.
+
+Keys (``P`` is the configured prefix, default ``sluice:``; tenants and names never
+contain ``:``)::
+
+    P{tenant}:r:{digest}   result bytes                      TTL (sliding: reset on a hit)
+    P{tenant}:b:{sha256}   raw-body hash -> digest           TTL (same as its result)
+    P{tenant}:n:{name}     hash {meta: JSON, blob: bytes}    no TTL
+    P{tenant}:ni           sorted set of network names       no TTL (for paged listing)
+
+Eviction policy: results and body aliases carry a TTL and are the only keys Redis may
+evict; stored networks carry none. Run Redis with a ``maxmemory`` and
+``maxmemory-policy volatile-lru`` (or ``volatile-lfu`` / ``volatile-ttl``): under memory
+pressure Redis then drops the least recently used *results* and never a stored
+network. An ``allkeys-*`` policy could evict networks, so the service logs a warning
+when it sees one. Under ``noeviction`` a full Redis refuses writes: result writes are
+skipped (logged), network writes answer 503.
+
+Network writes are optimistic transactions (``WATCH`` the key, check the
+precondition, ``MULTI``/``EXEC``): when another writer commits first, ``EXEC`` fails
+and the precondition is evaluated again against the new version, so of two writers
+holding the same ETag exactly one wins. A client killed half-way through sends no
+``EXEC``, and Redis discards the queued commands.
+"""
+
+from __future__ import annotations
+
+import logging
+
+import orjson
+import redis
+from redis.backoff import NoBackoff
+from redis.exceptions import RedisError, ResponseError, WatchError
+from redis.retry import Retry
+
+from ..errors import Conflict
+from .base import NetworkMeta, Preconditions, next_meta, not_found
+from .errors import StoreUnavailable
+
+log = logging.getLogger("sluice.store")
+
+#: Bounded retries of an optimistic write that keeps losing the race (then 409).
+MAX_WRITE_ATTEMPTS = 50
+
+
+class RedisBackend:
+    """Results and networks in Redis.
+
+    Parameters
+    ----------
+    url : str
+        ``redis://host:port/db``.
+    prefix : str
+        Prepended to every key, so several deployments (or test runs) share one Redis.
+    ttl : int
+        Seconds a result (and its body alias) lives after it was last used.
+    max_item_bytes : int
+        Results larger than this are not cached.
+    """
+
+    kind = "redis"
+
+    def __init__(self, url: str, *, prefix: str = "sluice:", ttl: int = 86400, max_item_bytes: int = 64 << 20,
+                 connect_timeout: float = 0.5, socket_timeout: float = 5.0):
+        self.url = url
+        self.prefix = prefix
+        self.ttl = int(ttl)
+        self.max_item_bytes = int(max_item_bytes)
+        # One quick attempt per call: the store facade's breaker spaces out retries
+        # while Redis is down, so a request never stalls on back-off.
+        self.client = redis.Redis.from_url(
+            url, socket_connect_timeout=connect_timeout, socket_timeout=socket_timeout,
+            retry=Retry(NoBackoff(), 1), health_check_interval=15,
+        )
+        self._policy_checked = False
+
+    def _key(self, tenant: str, kind: str, name: str = "") -> str:
+        return f"{self.prefix}{tenant}:{kind}:{name}" if name else f"{self.prefix}{tenant}:{kind}"
+
+    def _call(self, what: str, fn, *args, **kwargs):
+        try:
+            return fn(*args, **kwargs)
+        except RedisError as exc:
+            if isinstance(exc, ResponseError) and "OOM" in str(exc):
+                raise StoreUnavailable(f"Redis is full and refuses writes ({what})") from None
+            raise StoreUnavailable(f"Redis could not {what}: {exc.__class__.__name__}: {exc}") from None
+
+    def close(self) -> None:
+        self.client.close()
+
+    def ping(self) -> dict:
+        self._call("answer a ping", self.client.ping)
+        out = {"backend": "redis", "prefix": self.prefix, "result_ttl": self.ttl}
+        policy = self._eviction_policy()
+        if policy:
+            out["maxmemory_policy"] = policy
+        return out
+
+    def _eviction_policy(self) -> str | None:
+        try:
+            policy = self.client.config_get("maxmemory-policy").get("maxmemory-policy")
+        except RedisError:  # CONFIG is often disabled on managed Redis
+            return None
+        policy = policy.decode() if isinstance(policy, bytes) else policy
+        if not self._policy_checked:
+            self._policy_checked = True
+            if policy and policy.startswith("allkeys"):
+                log.warning("redis maxmemory-policy is %s: stored networks may be evicted; "
+                            "use volatile-lru so only cached results are", policy)
+        return policy
+
+    # -- results -----------------------------------------------------------------
+
+    def get_result(self, tenant: str, digest: str) -> bytes | None:
+        # GETEX resets the TTL: a result that keeps being asked for stays (sliding TTL).
+        return self._call("read a result", self.client.getex, self._key(tenant, "r", digest), ex=self.ttl)
+
+    def put_result(self, tenant: str, digest: str, value: bytes, body_key: str | None = None) -> bool:
+        if len(value) > self.max_item_bytes:
+            return False
+        pipe = self.client.pipeline(transaction=True)
+        pipe.set(self._key(tenant, "r", digest), value, ex=self.ttl)
+        if body_key is not None:
+            pipe.set(self._key(tenant, "b", body_key), digest, ex=self.ttl)
+        self._call("store a result", pipe.execute)
+        return True
+
+    def get_alias(self, tenant: str, body_key: str) -> str | None:
+        raw = self._call("read a body alias", self.client.getex, self._key(tenant, "b", body_key), ex=self.ttl)
+        return None if raw is None else raw.decode()
+
+    def put_alias(self, tenant: str, body_key: str, digest: str) -> None:
+        self._call("store a body alias", self.client.set, self._key(tenant, "b", body_key), digest, ex=self.ttl)
+
+    # -- networks ----------------------------------------------------------------
+
+    @staticmethod
+    def _meta(raw: bytes | None) -> NetworkMeta | None:
+        return None if raw is None else NetworkMeta.from_dict(orjson.loads(raw))
+
+    def head_network(self, tenant: str, name: str) -> NetworkMeta | None:
+        return self._meta(self._call("read a network", self.client.hget, self._key(tenant, "n", name), "meta"))
+
+    def get_network(self, tenant: str, name: str) -> tuple[NetworkMeta, bytes] | None:
+        meta, blob = self._call("read a network", self.client.hmget, self._key(tenant, "n", name), ["meta", "blob"])
+        if meta is None:
+            return None
+        return self._meta(meta), blob
+
+    def put_network(self, tenant: str, name: str, blob: bytes, digest: str, node_count: int, arc_count: int,
+                    pre: Preconditions) -> tuple[NetworkMeta, bool]:
+        key = self._key(tenant, "n", name)
+
+        def write(pipe, current):
+            meta = next_meta(current, name, digest, node_count, arc_count, len(blob))
+            pipe.hset(key, mapping={"meta": orjson.dumps(meta.__dict__), "blob": blob})
+            pipe.zadd(self._key(tenant, "ni"), {name: 0})
+            return meta
+
+        meta, current = self._optimistic("store a network", key, name, pre, write)
+        return meta, current is None
+
+    def delete_network(self, tenant: str, name: str, pre: Preconditions) -> NetworkMeta:
+        key = self._key(tenant, "n", name)
+
+        def remove(pipe, current):
+            pipe.delete(key)
+            pipe.zrem(self._key(tenant, "ni"), name)
+            return current
+
+        _, current = self._optimistic("delete a network", key, name, pre, remove, must_exist=True)
+        return current
+
+    def _optimistic(self, what: str, key: str, name: str, pre: Preconditions, action, *, must_exist=False):
+        """WATCH key; check the precondition on the current version; MULTI action EXEC; retry on a lost race."""
+        def attempt():
+            with self.client.pipeline(transaction=True) as pipe:
+                for _ in range(MAX_WRITE_ATTEMPTS):
+                    try:
+                        pipe.watch(key)
+                        current = self._meta(pipe.hget(key, "meta"))
+                        if current is None and must_exist:
+                            raise not_found(name)
+                        pre.check(current, name)
+                        pipe.multi()
+                        out = action(pipe, current)
+                        pipe.execute()
+                        return out, current
+                    except WatchError:
+                        continue
+                    finally:
+                        pipe.reset()
+            raise Conflict(f"network {name!r} is being written by others too often; retry")
+
+        return self._call(what, attempt)
+
+    def list_networks(self, tenant: str, after: str | None, limit: int) -> list[NetworkMeta]:
+        start = f"({after}" if after else "-"
+        names = self._call("list networks", self.client.zrangebylex, self._key(tenant, "ni"), start, "+", 0, limit)
+        if not names:
+            return []
+        pipe = self.client.pipeline(transaction=False)
+        for n in names:
+            pipe.hget(self._key(tenant, "n", n.decode()), "meta")
+        metas = self._call("list networks", pipe.execute)
+        return [m for m in map(self._meta, metas) if m is not None]

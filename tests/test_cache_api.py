@@ -1,0 +1,177 @@
+"""The result cache behind POST /v1/<kind> and GET /v1/solutions, over both backends."""
+
+from __future__ import annotations
+
+import json
+
+import orjson
+
+from service.api import create_app
+from tests.checkers import assert_max_flow
+from tests.conftest import SCENARIOS
+from tests.flowdata import depot_arcs, nx_max_flow
+
+DEPOTS = json.loads((SCENARIOS / "depots-maxflow.json").read_text())
+
+
+def post(client, body, path="/v1/maxflow"):
+    return client.post(path, data=orjson.dumps(body) if not isinstance(body, bytes) else body,
+                       content_type="application/json")
+
+
+def without_timing(response) -> dict:
+    doc = response.get_json()
+    doc.pop("timing_ms")
+    return doc
+
+
+def test_second_identical_request_is_a_hit_with_the_same_certified_answer(store_client):
+    first = post(store_client, DEPOTS)
+    assert first.status_code == 200 and first.headers["Cache-Status"] == "sluice; fwd=miss; stored"
+    second = post(store_client, DEPOTS)
+    assert second.status_code == 200 and second.headers["Cache-Status"] == "sluice; hit"
+    assert without_timing(second) == without_timing(first)
+    doc = second.get_json()
+    # Reference: networkx.maximum_flow_value; and the hit's flows are a valid maximum flow.
+    assert doc["value"] == nx_max_flow(DEPOTS["arcs"], DEPOTS["source"], DEPOTS["sink"])
+    assert doc["certificate"]["checked"] is True
+    ids = {n: i for i, n in enumerate(dict.fromkeys(x for a in DEPOTS["arcs"] for x in (a["from"], a["to"])))}
+    assert_max_flow(len(ids), [ids[a["from"]] for a in DEPOTS["arcs"]], [ids[a["to"]] for a in DEPOTS["arcs"]],
+                    [a["capacity"] for a in DEPOTS["arcs"]], ids[DEPOTS["source"]], ids[DEPOTS["sink"]],
+                    doc["flows"], doc["value"])
+    assert set(doc["timing_ms"]) == {"parse", "solve", "total"} and doc["timing_ms"]["solve"] == 0
+
+
+def test_same_problem_in_another_form_hits_by_digest(store_client):
+    columns = {"source": DEPOTS["source"], "sink": DEPOTS["sink"],
+               "arcs": {f: [a[f] for a in DEPOTS["arcs"]] for f in ("from", "to", "capacity", "key")}}
+    first = post(store_client, DEPOTS)
+    other = post(store_client, columns)
+    assert other.headers["Cache-Status"] == "sluice; hit"
+    assert other.get_json()["digest"] == first.get_json()["digest"]
+    # Reformatted bytes (spaces, key order) are another body but the same problem.
+    spaced = json.dumps(dict(reversed(list(DEPOTS.items()))), indent=2).encode()
+    assert post(store_client, spaced).headers["Cache-Status"] == "sluice; hit"
+
+
+def test_a_body_one_byte_away_is_not_served_the_cached_answer(store_client):
+    arcs = depot_arcs(5)
+    body = {"source": "site-a0", "sink": "site-b0", "arcs": arcs}
+    raw = orjson.dumps(body)
+    post(store_client, raw)
+    changed = raw.replace(b'"capacity":', b'"capacity":1', 1)  # first capacity c -> 1c
+    assert changed != raw
+    got = post(store_client, changed)
+    assert got.headers["Cache-Status"] == "sluice; fwd=miss; stored"
+    assert got.get_json()["value"] == nx_max_flow(orjson.loads(changed)["arcs"], "site-a0", "site-b0")
+
+
+def test_refresh_and_bypass(store_client):
+    body = {**DEPOTS, "options": {"cache": "refresh"}}
+    assert post(store_client, body).headers["Cache-Status"] == "sluice; fwd=request; stored"
+    # A body asking for refresh never takes the byte-identical fast path.
+    assert post(store_client, body).headers["Cache-Status"] == "sluice; fwd=request; stored"
+    assert post(store_client, DEPOTS).headers["Cache-Status"] == "sluice; hit"  # refresh stored it
+
+    arcs = depot_arcs(6)
+    fresh = {"source": "site-a0", "sink": "site-b0", "arcs": arcs, "options": {"cache": "bypass"}}
+    r = post(store_client, fresh)
+    assert r.headers["Cache-Status"] == "sluice; fwd=request; detail=bypass"
+    assert post(store_client, fresh).headers["Cache-Status"] == "sluice; fwd=request; detail=bypass"
+    assert store_client.get(f"/v1/solutions/{r.get_json()['digest']}").status_code == 404  # never stored
+    use = {**fresh, "options": {"cache": "use"}}
+    assert post(store_client, use).headers["Cache-Status"] == "sluice; fwd=miss; stored"
+
+
+def test_answer_changing_options_are_separate_entries(store_client):
+    full = post(store_client, DEPOTS).get_json()
+    cut_only = post(store_client, {**DEPOTS, "options": {"detail": ["cut"]}})
+    assert cut_only.headers["Cache-Status"] == "sluice; fwd=miss; stored"
+    doc = cut_only.get_json()
+    assert doc["digest"] != full["digest"] and "flows" not in doc and doc["cut"] == full["cut"]
+
+
+def test_solutions_by_digest_with_etag(store_client):
+    solved = post(store_client, DEPOTS).get_json()
+    r = store_client.get(f"/v1/solutions/{solved['digest']}")
+    assert r.status_code == 200 and r.mimetype == "application/json"
+    solved.pop("timing_ms")
+    assert r.get_json() == solved
+    etag = r.headers["ETag"]
+    assert etag.startswith('"') and etag.endswith('"')
+    again = store_client.get(f"/v1/solutions/{solved['digest']}", headers={"If-None-Match": etag})
+    assert again.status_code == 304 and again.data == b"" and again.headers["ETag"] == etag
+    other = store_client.get(f"/v1/solutions/{solved['digest']}", headers={"If-None-Match": '"nope"'})
+    assert other.status_code == 200
+    missing = store_client.get("/v1/solutions/sha256:" + "0" * 64)
+    assert missing.status_code == 404 and missing.mimetype == "application/problem+json"
+    bad = store_client.get("/v1/solutions/md5:abc")
+    assert bad.status_code == 400 and bad.get_json()["errors"][0]["parameter"] == "digest"
+
+
+def test_bad_requests_are_not_cached(store_client):
+    bad = {**DEPOTS, "sink": "nowhere"}
+    for _ in range(2):
+        r = post(store_client, bad)
+        assert r.status_code == 422 and r.get_json()["errors"][0]["pointer"] == "/sink"
+    assert post(store_client, b"{not json").status_code == 400
+    r = store_client.post("/v1/maxflow", data=orjson.dumps(DEPOTS), content_type="text/plain")
+    assert r.status_code == 415  # a cached body does not excuse the wrong media type
+    post(store_client, DEPOTS)
+    r = store_client.post("/v1/maxflow", data=orjson.dumps(DEPOTS), content_type="text/plain")
+    assert r.status_code == 415
+
+
+def test_two_apps_on_one_store_share_results(store_config):
+    a, b = create_app(store_config).test_client(), create_app(store_config).test_client()
+    assert post(a, DEPOTS).headers["Cache-Status"] == "sluice; fwd=miss; stored"
+    assert post(b, DEPOTS).headers["Cache-Status"] == "sluice; hit"
+
+
+def test_readyz_checks_the_store(store_client, store_config):
+    r = store_client.get("/readyz")
+    doc = r.get_json()
+    assert r.status_code == 200 and doc["status"] == "ready"
+    assert doc["checks"] == {"solver": "ok", "store": "ok"}
+    assert doc["store"]["backend"] == ("redis" if store_config.get("redis_url") else "sqlite")
+
+
+def test_an_unusable_data_dir_degrades_but_solves_still_answer(tmp_path):
+    blocker = tmp_path / "not-a-dir"
+    blocker.write_text("a file where the data folder should be")
+    client = create_app({"data_dir": str(blocker / "data")}).test_client()
+    r = post(client, DEPOTS)
+    assert r.status_code == 200 and r.headers["Cache-Status"] == "sluice; fwd=bypass; detail=store-unavailable"
+    assert r.get_json()["value"] == nx_max_flow(DEPOTS["arcs"], DEPOTS["source"], DEPOTS["sink"])
+    ready = client.get("/readyz")
+    assert ready.status_code == 200 and ready.get_json()["status"] == "degraded"
+    assert ready.get_json()["checks"]["store"] == "unavailable"
+    r = client.get("/v1/networks")
+    assert r.status_code == 503 and r.headers["Retry-After"]
+
+
+def test_answers_that_are_not_final_are_never_cached(store_app):
+    """A status like time_limit (the LP kind's) must not be served to a later request
+    that allows more time. A stand-in kind gives that status: the cache and store are real."""
+    from types import SimpleNamespace
+
+    from service.api import cache
+
+    calls = []
+    kind = SimpleNamespace(name="stand-in", solve=lambda problem, limits: calls.append(1) or
+                           {"status": "time_limit", "digest": problem.digest})
+    problem = SimpleNamespace(digest="sha256:" + "c" * 64, options={"cache": "use"})
+    with store_app.test_request_context("/v1/stand-in", method="POST"):
+        for _ in range(2):
+            r = cache.answer(kind, problem, started=0.0)
+            assert r.headers["Cache-Status"] == "sluice; fwd=miss; detail=not-final"
+        assert calls == [1, 1]
+        assert cache.get_store().get_result("public", problem.digest) is None
+
+
+def test_unbounded_answers_are_cached(store_client):
+    body = {"source": "dock-a", "sink": "dock-c",
+            "arcs": [{"from": "dock-a", "to": "dock-b"}, {"from": "dock-b", "to": "dock-c", "capacity": None}]}
+    first = post(store_client, body)
+    assert first.get_json()["status"] == "unbounded"
+    assert post(store_client, body).headers["Cache-Status"] == "sluice; hit"
