@@ -124,12 +124,7 @@ def parse(body, limits: Limits) -> MaxFlowProblem:
     network = build_network(arcs, nodes.ids, allow_lower=False)
     if network.num_nodes > limits.max_nodes:
         raise ProblemTooLarge(FieldError("/nodes", f"has {network.num_nodes} nodes; the limit is {limits.max_nodes}"))
-    source = node_position(network.nodes, envelope["source"], "/source")
-    sink = node_position(network.nodes, envelope["sink"], "/sink")
-    if source == sink:
-        raise InputError.at("/sink", "must differ from the source")
-    options = envelope["options"]
-    return MaxFlowProblem(network, source, sink, options, digest_of(network, source, sink, options))
+    return _problem(network, envelope)
 
 
 def from_network(network: Network, query, limits: Limits) -> MaxFlowProblem:
@@ -152,6 +147,10 @@ def from_network(network: Network, query, limits: Limits) -> MaxFlowProblem:
         raise InputError.at("", "the stored network has lower bounds on some arcs; max-flow does not support them")
     if network.num_arcs > limits.max_arcs:
         raise ProblemTooLarge(FieldError("", f"the network has {network.num_arcs} arcs; the limit is {limits.max_arcs}"))
+    return _problem(network, envelope)
+
+
+def _problem(network: Network, envelope: dict) -> MaxFlowProblem:
     source = node_position(network.nodes, envelope["source"], "/source")
     sink = node_position(network.nodes, envelope["sink"], "/sink")
     if source == sink:
