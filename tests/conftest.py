@@ -57,7 +57,7 @@ class RunningServer:
             try:
                 if requests.get(self.url + "/healthz", timeout=1).status_code == 200:
                     return
-            except requests.ConnectionError:
+            except requests.RequestException:  # refused, or a worker still importing (read timeout)
                 time.sleep(0.1)
         self.stop()
         raise RuntimeError("sluice serve did not become healthy in time")
