@@ -27,6 +27,9 @@ class Settings:
     max_nodes: int = 5_000_000
     time_limit: float = 30.0
     api_keys: dict = field(default_factory=dict)
+    max_batch_items: int = 1000  # items in one POST /v1/batch
+    max_diagram_nodes: int = 60  # diagrams are for small networks: 413 above these
+    max_diagram_arcs: int = 200
 
     @classmethod
     def from_env(cls) -> "Settings":
@@ -37,6 +40,9 @@ class Settings:
             max_arcs=_int("SLUICE_MAX_ARCS", 5_000_000),
             max_nodes=_int("SLUICE_MAX_NODES", 5_000_000),
             time_limit=_float("SLUICE_TIME_LIMIT", 30.0),
+            max_batch_items=_int("SLUICE_MAX_BATCH_ITEMS", 1000),
+            max_diagram_nodes=_int("SLUICE_MAX_DIAGRAM_NODES", 60),
+            max_diagram_arcs=_int("SLUICE_MAX_DIAGRAM_ARCS", 200),
         )
 
     @property

@@ -10,7 +10,7 @@ from flask import Flask, request
 from ..config import Settings
 from ..errors import FieldError, ProblemTooLarge
 from ..kinds import Limits
-from . import ops, problems, solve
+from . import extras, ops, problems, solve
 from .jsonio import OrjsonProvider
 
 log = logging.getLogger("sluice")
@@ -52,6 +52,7 @@ def create_app(config: Settings | dict | None = None) -> Flask:
     app.before_request(_enforce_body_limit)
     app.register_blueprint(ops.bp)
     app.register_blueprint(solve.bp)
+    extras.init_app(app)  # plan checks, batches, diagrams, the explorer page
     from .spec import build_spec
 
     app.extensions["sluice"] = SluiceState(settings, limits, build_spec())

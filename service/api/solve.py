@@ -7,7 +7,7 @@ from time import perf_counter
 from flask import Blueprint, current_app
 
 from ..kinds import KINDS, Kind, Limits
-from .jsonio import json_response, read_json_body
+from .jsonio import decode_body, json_response
 
 bp = Blueprint("solve", __name__, url_prefix="/v1")
 
@@ -28,7 +28,7 @@ def solve_request(kind: Kind, body) -> tuple[dict, float, float]:
 def _make_view(kind: Kind):
     def view():
         started = perf_counter()
-        body = read_json_body()
+        body = decode_body(kind.name)
         result, parse_s, solve_s = solve_request(kind, body)
         result["timing_ms"] = {
             "parse": round((perf_counter() - started - solve_s) * 1000, 3),
