@@ -385,7 +385,7 @@ def _arc_style(mark, flow):
 
 def _notch(x, y, colour) -> str:
     """Two short slashes across the arc: the mark of a cut or binding arc."""
-    return "".join(f'<line x1="{x + d - 5:.1f}" y1="{y + 9:.1f}" x2="{x + d + 5:.1f}" y2="{y - 9:.1f}" '
+    return "".join(f'<line x1="{x + d - 5:.1f}" y1="{y + 13:.1f}" x2="{x + d + 5:.1f}" y2="{y - 3:.1f}" '
                    f'stroke="{colour}" stroke-width="2.4" stroke-linecap="round" class="notch"/>'
                    for d in (-4, 4))
 
