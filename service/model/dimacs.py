@@ -27,6 +27,7 @@ that a network with fractional data survives a round trip.
 
 from __future__ import annotations
 
+import json
 import math
 from dataclasses import dataclass, field
 
@@ -399,8 +400,7 @@ def to_dimacs(network: Network, fmt: str, *, source: int | None = None, sink: in
     out = [f"c {title}"] if title else []
     ids = network.nodes.ids
     if list(ids) != list(range(1, n + 1)):
-        out += [f"c node {i + 1} is {v!r}" if isinstance(v, str) else f"c node {i + 1} is {v}"
-                for i, v in enumerate(ids)]
+        out += [f"c node {i + 1} is {json.dumps(v)}" for i, v in enumerate(ids)]
     capacity = network.capacity
     if network.unlimited is not None and network.unlimited.any():
         big = stand_in_capacity(network, supply)
