@@ -118,7 +118,7 @@ def add_paths(spec: APISpec) -> None:
                       **_problems("400", "404", "413", "415", "422", "500", "504")},
     }})
     spec.path(path="/v1/batch", operations={"post": {
-        "operationId": "solve_batch_of_items",
+        "operationId": "batch",
         "summary": "Solve many small problems of any kind in one request, answered in order",
         "requestBody": {"required": True, "content": {"application/json": {
             "schema": "BatchRequest", "example": json.loads(_scenario_text("batch-depots.json"))}}},
