@@ -6,7 +6,8 @@ JavaScript, no build step); ``GET /explorer/{name}`` its script and style sheet.
 ``GET /v1/scenarios/{name}`` returns one of them.
 
 A scenario's kind comes from its file name: the stem's first ``-``-separated word
-that names a registered kind (``depots-maxflow-columns`` is a max-flow request).
+that names a kind (``depots-maxflow-columns`` is a max-flow request); its endpoint is
+given only when that kind is registered.
 A stem starting with ``verify-`` is a body for ``POST /v1/verify/{kind}``, one
 starting with ``batch-`` a body for ``POST /v1/batch``.
 """
@@ -21,6 +22,7 @@ from marshmallow import Schema, fields
 
 from ..errors import NotFound
 from ..kinds import KINDS
+from ..kinds.verify import VERIFY_KINDS
 from .jsonio import json_response
 
 bp = Blueprint("explorer", __name__)
@@ -46,9 +48,7 @@ def _folder():
 
 def _describe(name: str, suffix: str) -> dict:
     words = name.split("-")
-    kind = next((w for w in words if w in KINDS), None)
-    if kind is None and suffix == ".dimacs":
-        kind = next((k for k in ("maxflow", "mincostflow") if k in words), None)
+    kind = next((w for w in words if w in KINDS or w in VERIFY_KINDS), None)
     if words[0] == "verify":
         endpoint = f"/v1/verify/{kind}" if kind else None
     elif words[0] == "batch":
