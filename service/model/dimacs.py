@@ -151,9 +151,9 @@ def parse_dimacs(text: str, *, max_arcs: int | None = None, max_nodes: int | Non
     (1, [5, 4])
     """
     lines = text.split("\n")
-    firsts = [line[:1] for line in lines]
-    arc_index = [i for i, c in enumerate(firsts) if c == "a"]
-    p_index = [i for i, c in enumerate(firsts) if c == "p"]
+    firsts = np.array([line[:1] for line in lines], dtype="U1")
+    arc_index = np.flatnonzero(firsts == "a").tolist()
+    p_index = np.flatnonzero(firsts == "p").tolist()
     if not p_index:
         _fail(1, "no problem line: a DIMACS file starts with 'p max NODES ARCS' or 'p min NODES ARCS'")
     p_at = p_index[0]
@@ -187,11 +187,11 @@ def _problem_line(line: str, number: int):
     return parts[1], counts[0], counts[1]
 
 
-def _check_records(lines: list, firsts: list, p_at: int) -> None:
+def _check_records(lines: list, firsts: np.ndarray, p_at: int) -> None:
+    odd = np.flatnonzero(~np.isin(firsts, ["a", "c", "p", ""]))
     errors = []
-    for i, c in enumerate(firsts):
-        if c in ("a", "c", "p", ""):
-            continue
+    for i in odd.tolist():
+        c = firsts[i]
         if c == "n":
             if i < p_at:
                 errors.append(line_error(i + 1, "a node line before the problem line"))
@@ -236,14 +236,13 @@ def _bad_arc_shape(lines, index, width):
 
 def _numbers(tokens: list, name: str, lines, index, position: int, *, integer: bool) -> np.ndarray:
     """One column of number tokens as int64 (or float64 for decimals)."""
-    text = np.asarray(tokens, dtype=str)
     try:
-        return text.astype(np.int64)
+        return np.array(tokens, dtype=np.int64)  # numpy parses each token as an integer
     except (ValueError, OverflowError):
         pass
     if not integer:
         try:
-            values = text.astype(np.float64)
+            values = np.array(tokens, dtype=np.float64)
             if np.isfinite(values).all() and (np.abs(values) <= MAX_MAGNITUDE).all():
                 if np.all(np.floor(values) == values) and np.all(np.abs(values) <= 2**53):
                     return values.astype(np.int64)
@@ -294,9 +293,9 @@ def _check_bounds(columns: dict, index: list) -> None:
         raise InputError([line_error(index[j] + 1, d) for j, d in problems[:MAX_REPORTED_ERRORS]])
 
 
-def _node_lines(doc: DimacsFile, lines: list, firsts: list, p_at: int) -> None:
+def _node_lines(doc: DimacsFile, lines: list, firsts: np.ndarray, p_at: int) -> None:
     errors = []
-    for i in (i for i, c in enumerate(firsts) if c == "n"):
+    for i in np.flatnonzero(firsts == "n").tolist():
         parts = lines[i].split()
         number = i + 1
         if len(parts) != 3 or not parts[1].isdigit() or not 1 <= int(parts[1]) <= doc.num_nodes:
