@@ -233,3 +233,28 @@ def test_min_cost_file_on_the_mincostflow_endpoint(client):
     assert r.status_code == 200 and r.get_json()["status"] == "optimal"
     r = client.post("/v1/mincostflow", data=FORMAT_EXAMPLE, content_type=DIMACS)
     assert r.status_code == 422 and r.get_json()["errors"][0]["pointer"] == "/line/4"
+
+
+def test_network_hook_for_stored_networks(app):
+    """decode_body("network") is what PUT /v1/networks/{name} calls; dimacs_response exports."""
+    from service.api.jsonio import decode_body, dimacs_response
+
+    with app.test_request_context("/v1/networks/demo", method="PUT", data=FORMAT_EXAMPLE, content_type=DIMACS):
+        body = decode_body("network")
+        assert set(body) == {"nodes", "arcs"} and body["nodes"] == [1, 2, 3, 4, 5, 6]
+        assert body["arcs"]["capacity"].tolist() == [5, 15, 5, 5, 5, 5, 15, 5]
+    with app.test_request_context("/v1/networks/demo", method="PUT", data=MIN_EXAMPLE, content_type=DIMACS):
+        body = decode_body("network")
+        assert body["nodes"]["supply"] == [100, 50, 0, -90, -60] and "cost" in body["arcs"]
+    with app.test_request_context("/v1/networks/demo", method="PUT", json={"nodes": [], "arcs": []}):
+        assert decode_body("network") == {"nodes": [], "arcs": []}
+    with app.test_request_context("/v1/networks/demo", method="PUT", data="x", content_type="text/csv"):
+        with pytest.raises(Exception, match="text/x-dimacs"):
+            decode_body("network")
+    network, supply = read_min_cost(parse_dimacs(MIN_EXAMPLE).request(), Limits())
+    with app.app_context():
+        response = dimacs_response(network, "min", supply=supply)
+    assert response.mimetype == DIMACS
+    again, supply_again = read_min_cost(parse_dimacs(response.get_data(as_text=True)).request(), Limits())
+    _same(_arrays(network), _arrays(again))
+    assert supply_again.tolist() == supply.tolist()

@@ -20,15 +20,17 @@ def test_page_and_assets(client):
 
 def test_scenarios_are_listed_with_kind_and_endpoint(client):
     listed = {s["name"]: s for s in client.get("/v1/scenarios").get_json()["scenarios"]}
-    files = {p.stem for p in SCENARIOS.iterdir() if p.suffix in (".json", ".dimacs")}
-    assert set(listed) == files
+    files = {p.stem for p in SCENARIOS.iterdir() if p.suffix == ".json"}
+    files |= {p.name for p in SCENARIOS.iterdir() if p.suffix == ".dimacs"}
+    assert set(listed) == files and "depots-maxflow.dimacs" in files
     assert listed["depots-maxflow"] == {"name": "depots-maxflow", "kind": "maxflow", "endpoint": "/v1/maxflow",
                                         "title": "depots", "media_type": "application/json"}
     assert listed["verify-depots-maxflow"]["endpoint"] == "/v1/verify/maxflow"
     assert listed["verify-depots-mincostflow"]["endpoint"] == "/v1/verify/mincostflow"
     assert listed["batch-depots"]["endpoint"] == "/v1/batch"
-    assert listed["depots-maxflow"]["media_type"] == "application/json"
-    assert listed["depots-maxflow"]["kind"] == "maxflow"
+    assert listed["depots-maxflow.dimacs"] == {"name": "depots-maxflow.dimacs", "kind": "maxflow",
+                                               "endpoint": "/v1/maxflow", "title": "depots",
+                                               "media_type": "text/x-dimacs"}
 
 
 def test_every_scenario_is_answered_by_its_endpoint(client):
@@ -44,5 +46,7 @@ def test_every_scenario_is_answered_by_its_endpoint(client):
 def test_scenario_body_is_the_file(client):
     r = client.get("/v1/scenarios/depots-maxflow")
     assert r.get_json() == json.loads((SCENARIOS / "depots-maxflow.json").read_text())
+    r = client.get("/v1/scenarios/depots-maxflow.dimacs")
+    assert r.mimetype == "text/x-dimacs" and r.get_data(as_text=True).startswith("c Invented")
     r = client.get("/v1/scenarios/no-such-thing")
     assert r.status_code == 404 and r.mimetype == "application/problem+json"

@@ -204,7 +204,7 @@ def _defs() -> str:
 
 
 def render_diagram(kind: str, body: dict, result: dict, *, max_nodes: int = 60, max_arcs: int = 200) -> str:
-    """Draw a solved network as an SVG document.
+    """Draw a solved network as an SVG document, from its request body and response.
 
     Parameters
     ----------
@@ -227,10 +227,23 @@ def render_diagram(kind: str, body: dict, result: dict, *, max_nodes: int = 60, 
         Above the size limits.
     """
     network, supply = read_network(body, max_nodes, max_arcs)
+    source = _index(network, body.get("source")) if kind == "maxflow" else None
+    sink = _index(network, body.get("sink")) if kind == "maxflow" else None
+    return draw_network(kind, network, result, supply=supply, source=source, sink=sink)
+
+
+def draw_network(kind: str, network: Network, result: dict, *, supply=None, source: int | None = None,
+                 sink: int | None = None) -> str:
+    """Draw a solved, already normalised network (e.g. a stored one) as SVG.
+
+    ``source``/``sink`` are node indices (max-flow); ``supply`` is per node
+    (min-cost flow). The caller checks the size limits (see :func:`read_network`).
+    """
     # Draw from the response as a client sees it (plain JSON values, ids as sent),
     # whether it comes fresh from a solver (numpy arrays) or from the result cache.
     result = orjson.loads(orjson.dumps(result, option=orjson.OPT_SERIALIZE_NUMPY))
     n, m = network.num_nodes, network.num_arcs
+    supply = np.zeros(n) if supply is None else np.asarray(supply, dtype=np.float64)
     tail, head = network.tail.astype(np.int64), network.head.astype(np.int64)
     ids = [str(v) for v in network.nodes.ids]
     flows = result.get("flows")
@@ -238,8 +251,8 @@ def render_diagram(kind: str, body: dict, result: dict, *, max_nodes: int = 60, 
     side = None
     marked: dict[int, str] = {}
     if kind == "maxflow":
-        sources = [i for i in [_index(network, body.get("source"))] if i is not None]
-        sinks = [i for i in [_index(network, body.get("sink"))] if i is not None]
+        sources = [] if source is None else [source]
+        sinks = [] if sink is None else [sink]
         cut = result.get("cut")
         if cut:
             side = np.zeros(n, dtype=bool)
@@ -261,7 +274,7 @@ def render_diagram(kind: str, body: dict, result: dict, *, max_nodes: int = 60, 
         for a in (result.get("infeasibility") or {}).get("arcs", []):
             marked[int(a)] = "proof"
     potentials = _potentials(network, result)
-    layer, rank = layered_layout(n, tail, head, sources, [s for s in sinks])
+    layer, rank = layered_layout(n, tail, head, sources, sinks)
     return _draw(kind, network, ids, supply, tail, head, flows, side, marked, potentials, layer, rank,
                  sources, sinks, result)
 

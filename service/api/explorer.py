@@ -31,7 +31,8 @@ STATIC = {"explorer.js": "text/javascript", "explorer.css": "text/css"}
 
 
 class ScenarioSchema(Schema):
-    name = fields.String(metadata={"description": "File stem; GET /v1/scenarios/{name} returns the body."})
+    name = fields.String(metadata={"description": "The JSON file's stem, or the DIMACS file's name; GET "
+                                                 "/v1/scenarios/{name} returns the body."})
     kind = fields.String(allow_none=True, metadata={"description": "The problem kind, from the file name."})
     endpoint = fields.String(allow_none=True, metadata={"description": "Where the body is meant to be POSTed."})
     title = fields.String(metadata={"description": "A one-line description."})
@@ -47,7 +48,7 @@ def _folder():
 
 
 def _describe(name: str, suffix: str) -> dict:
-    words = name.split("-")
+    words = name.removesuffix(".dimacs").split("-")
     kind = next((w for w in words if w in KINDS or w in VERIFY_KINDS), None)
     if words[0] == "verify":
         endpoint = f"/v1/verify/{kind}" if kind else None
@@ -55,18 +56,20 @@ def _describe(name: str, suffix: str) -> dict:
         endpoint, kind = "/v1/batch", None
     else:
         endpoint = f"/v1/{kind}" if kind in KINDS else None
-    title = " ".join(w for w in words if w != kind).replace("maxflow", "max-flow")
+    title = " ".join(w for w in words if w != kind and w not in ("verify", "batch"))
     return {"name": name, "kind": kind, "endpoint": endpoint, "title": title or name,
             "media_type": "text/x-dimacs" if suffix == ".dimacs" else "application/json"}
 
 
 def scenario_files() -> dict:
-    """name -> (file, media type) of every scenario file."""
+    """name -> (file, suffix) of every scenario file: a JSON file is named by its stem,
+    a DIMACS file by its whole file name (``depots-maxflow.dimacs``)."""
     out = {}
     for entry in sorted(_folder().iterdir(), key=lambda e: e.name):
-        for suffix in (".json", ".dimacs"):
-            if entry.name.endswith(suffix):
-                out[entry.name[: -len(suffix)]] = (entry, suffix)
+        if entry.name.endswith(".json"):
+            out[entry.name[: -len(".json")]] = (entry, ".json")
+        elif entry.name.endswith(".dimacs"):
+            out[entry.name] = (entry, ".dimacs")
     return out
 
 

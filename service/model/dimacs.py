@@ -80,8 +80,9 @@ class DimacsFile:
 
     def request(self, purpose: str | None = None) -> dict:
         """The request dict for ``purpose``: ``"maxflow"``, ``"mincostflow"``, ``"network"``
-        (nodes and arcs only, as a stored network takes them) or None (the format's own
-        solve request).
+        (nodes and arcs only, as a stored network takes them; node supplies, when a
+        ``p min`` file has any, as a ``supply`` column of ``nodes``) or None (the
+        format's own solve request).
 
         Raises
         ------
@@ -99,6 +100,8 @@ class DimacsFile:
                 body = {"source": self.source, "sink": self.sink, **body}
             return body
         supply = [self.supply.get(i, 0) for i in ids]
+        if purpose == "network" and not any(supply):
+            return {"nodes": ids, "arcs": arcs}
         return {"nodes": {"id": ids, "supply": supply}, "arcs": arcs}
 
     def line_of(self, ptr: str) -> int:
