@@ -452,3 +452,15 @@ def test_a_wrong_verdict_is_a_500_never_a_200(client, monkeypatch):
     assert r.status_code == 500 and r.get_json()["type"].endswith("self-check-failed")
     monkeypatch.setattr(verify, "_path_to", real)
     assert client.post("/v1/verify/maxflow", json=PLAN).status_code == 200
+
+
+def test_huge_integers_are_checked_without_wrapping_round():
+    # Three arcs of 2**62 into one node: its imbalance (3 * 2**62) does not fit int64.
+    big = 2**62
+    tail, head = np.array([0, 0, 0, 1]), np.array([1, 1, 1, 2])
+    v = verify_max_flow(3, tail, head, np.array([big] * 4), None, 0, 2, np.array([big, big, big, 0]))
+    assert not v.feasible and v.node_violations == [(1, pytest.approx(3.0 * big))]
+    # A cost of 2**40 on a flow of 2**40 is 2**80: reported as that, not wrapped.
+    v = verify_min_cost_flow(2, np.array([0]), np.array([1]), np.array([2**40]), None, np.array([2**40]), None,
+                             np.array([2**40, -(2**40)]), np.array([2**40]))
+    assert v.feasible and v.optimal and v.objective == pytest.approx(2.0**80)

@@ -100,10 +100,26 @@ def _fail(what: str) -> None:
     raise SelfCheckFailed(f"self-check of a plan verdict failed: {what}")
 
 
-def common_dtype(*arrays) -> np.dtype:
-    """int64 when every array is integral, else float64."""
-    integral = all(a is None or np.asarray(a).dtype.kind in "iub" for a in arrays)
-    return np.dtype(np.int64) if integral else np.dtype(np.float64)
+#: Integer sums and products stay exact in int64 below this bound.
+EXACT_BOUND = 2.0**62
+
+
+def _abs_sum(a) -> float:
+    return 0.0 if a is None or not np.size(a) else float(np.abs(np.asarray(a, dtype=np.float64)).sum())
+
+
+def common_dtype(*arrays, weights=None) -> np.dtype:
+    """int64 when every array is integral and every sum fits, else float64.
+
+    Node balances add up flows and capacities, and a cost is a sum of ``weights``
+    times flows: when those could leave int64 the check runs in float64 (with a
+    tolerance) instead of wrapping round.
+    """
+    integral = all(a is None or np.asarray(a).dtype.kind in "iub" for a in arrays + (weights,))
+    total = sum(_abs_sum(a) for a in arrays)
+    if weights is not None and np.size(weights):
+        total += float(np.abs(np.asarray(weights, dtype=np.float64)).max()) * total
+    return np.dtype(np.int64) if integral and total < EXACT_BOUND else np.dtype(np.float64)
 
 
 def tolerance_for(dtype: np.dtype, *arrays) -> float:
@@ -527,7 +543,7 @@ def verify_min_cost_flow(num_nodes, tail, head, capacity, unlimited, cost, lower
     """
     if cost is None:
         cost = np.zeros(tail.size, dtype=np.int64)
-    dtype = common_dtype(capacity, flows, cost, lower, supply)
+    dtype = common_dtype(capacity, flows, lower, supply, weights=cost)
     capacity, flows, cost, supply = (a.astype(dtype, copy=False) for a in (capacity, flows, cost, supply))
     lower = None if lower is None else lower.astype(dtype, copy=False)
     tol = tolerance_for(dtype, capacity, flows, cost, lower, supply)
