@@ -64,7 +64,7 @@ def _png_size(path: Path) -> tuple[int, int]:
 
 @pytest.mark.browser
 @pytest.mark.server
-def test_explorer_solves_a_scenario_and_draws_the_cut(server, browser, tmp_path):
+def test_explorer_solves_a_scenario_and_draws_the_cut(browser, server, tmp_path):
     from selenium.webdriver.common.by import By
     from selenium.webdriver.support.ui import Select, WebDriverWait
 
@@ -104,7 +104,7 @@ def test_explorer_solves_a_scenario_and_draws_the_cut(server, browser, tmp_path)
 
 @pytest.mark.browser
 @pytest.mark.server
-def test_explorer_shows_problem_pointers(server, browser):
+def test_explorer_shows_problem_pointers(browser, server):
     from selenium.webdriver.common.by import By
     from selenium.webdriver.support.ui import WebDriverWait
 
