@@ -18,6 +18,7 @@ serve: install
 # pytest exits 5 when it collected no test: that is a failure here, not a pass.
 test: install
 	bash .ci/ensure-redis
+	bash .ci/ensure-browser
 	$(BIN)/python -m pytest -q; rc=$$?; \
 	if [ $$rc -eq 5 ]; then echo "make test: pytest collected no tests" >&2; exit 1; fi; exit $$rc
 

@@ -33,6 +33,9 @@ class Settings:
     cache_item_mb: float = 64.0  # larger results are not cached
     network_memo_mb: float = 256.0  # per-worker memo of decoded stored networks
     store_retry: float = 1.0  # seconds between attempts to reach a store that failed
+    max_batch_items: int = 1000  # items in one POST /v1/batch
+    max_diagram_nodes: int = 60  # diagrams are for small networks: 413 above these
+    max_diagram_arcs: int = 200
 
     @classmethod
     def from_env(cls) -> "Settings":
@@ -49,6 +52,9 @@ class Settings:
             cache_item_mb=_float("SLUICE_CACHE_ITEM_MB", 64.0),
             network_memo_mb=_float("SLUICE_NETWORK_MEMO_MB", 256.0),
             store_retry=_float("SLUICE_STORE_RETRY", 1.0),
+            max_batch_items=_int("SLUICE_MAX_BATCH_ITEMS", 1000),
+            max_diagram_nodes=_int("SLUICE_MAX_DIAGRAM_NODES", 60),
+            max_diagram_arcs=_int("SLUICE_MAX_DIAGRAM_ARCS", 200),
         )
 
     @property

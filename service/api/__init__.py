@@ -10,7 +10,7 @@ from flask import Flask, request
 from ..config import Settings
 from ..errors import FieldError, ProblemTooLarge
 from ..kinds import Limits
-from . import cache, networks, ops, problems, solutions, solve
+from . import cache, extras, networks, ops, problems, solutions, solve
 from .jsonio import OrjsonProvider
 
 log = logging.getLogger("sluice")
@@ -55,6 +55,7 @@ def create_app(config: Settings | dict | None = None) -> Flask:
     app.register_blueprint(networks.bp)
     app.register_blueprint(solutions.bp)
     cache.init_app(app, settings)
+    extras.init_app(app)  # plan checks, batches, diagrams, the explorer page
     from .spec import build_spec
 
     app.extensions["sluice"] = SluiceState(settings, limits, build_spec())

@@ -6,7 +6,7 @@ import gc
 from contextlib import contextmanager
 
 import orjson
-from flask import Response, g, request
+from flask import Response, current_app, g, has_request_context, request
 from flask.json.provider import JSONProvider
 
 from ..errors import BadRequest, UnsupportedMediaType
@@ -96,3 +96,77 @@ def read_json_body():
             return orjson.loads(raw)
         except orjson.JSONDecodeError as exc:
             raise BadRequest(f"the body is not valid JSON: {exc}") from None
+
+
+# --- bodies in other formats ------------------------------------------------------
+
+#: Kinds whose solve endpoint also takes a DIMACS text body (the ``p`` line must match).
+DIMACS_KINDS = {"maxflow": "max", "mincostflow": "min"}
+
+
+def _read_text() -> str:
+    raw = raw_body()
+    if not raw:
+        raise BadRequest("the request body is empty; send a DIMACS file")
+    charset = (request.mimetype_params.get("charset") or "utf-8").lower()
+    try:
+        return raw.decode(charset)
+    except (LookupError, UnicodeDecodeError) as exc:
+        raise BadRequest(f"the body is not valid {charset} text: {exc}") from None
+
+
+def decode_body(purpose: str | None = None):
+    """Decode the request body by its media type: JSON, or a DIMACS text file.
+
+    Parameters
+    ----------
+    purpose : str, optional
+        ``"maxflow"`` or ``"mincostflow"`` (a solve endpoint: a DIMACS file must be
+        ``p max`` or ``p min`` respectively), ``"network"`` (a stored network: either
+        format, nodes and arcs only), or another kind name (JSON only).
+
+    Returns
+    -------
+    dict
+        The request dict the JSON endpoint takes. For a DIMACS body, any later
+        :class:`~service.errors.InputError` of this request has its JSON Pointers
+        turned into ``/line/<n>`` pointers by the error handler.
+
+    Raises
+    ------
+    UnsupportedMediaType
+        Neither JSON nor ``text/x-dimacs`` (or DIMACS where the purpose takes JSON only).
+    BadRequest, InputError
+        As :func:`read_json_body`; DIMACS errors name the line.
+    """
+    from ..model.dimacs import MEDIA_TYPE, parse_dimacs
+
+    mimetype = request.mimetype or ""
+    takes_text = purpose in DIMACS_KINDS or purpose == "network"
+    if mimetype == MEDIA_TYPE and takes_text:
+        limits = current_app.extensions["sluice"].limits
+        doc = parse_dimacs(_read_text(), max_arcs=limits.max_arcs, max_nodes=limits.max_nodes)
+        body = doc.request(purpose)
+        g.sluice_translate_errors = doc.translate
+        return body
+    if not _is_json(mimetype) and takes_text:
+        raise UnsupportedMediaType(f"send the problem as application/json or {MEDIA_TYPE} "
+                                   f"(got {mimetype or 'no Content-Type'})")
+    return read_json_body()
+
+
+def translate_errors(exc):
+    """An input error of a text body, with line pointers (unchanged for JSON bodies)."""
+    translate = g.get("sluice_translate_errors") if has_request_context() else None
+    return translate(exc) if translate is not None else exc
+
+
+def dimacs_response(network, fmt: str, *, source=None, sink=None, supply=None, title=None) -> Response:
+    """A network as a DIMACS file (for ``GET /v1/networks/{name}`` with ``Accept: text/x-dimacs``).
+
+    See :func:`service.model.dimacs.to_dimacs`; ``source``/``sink`` are node indices.
+    """
+    from ..model.dimacs import MEDIA_TYPE, to_dimacs
+
+    text = to_dimacs(network, fmt, source=source, sink=sink, supply=supply, title=title)
+    return Response(text, mimetype=MEDIA_TYPE)

@@ -7,8 +7,8 @@ import logging
 from flask import Flask
 from werkzeug.exceptions import HTTPException, RequestEntityTooLarge
 
-from ..errors import PROBLEM_BASE, ProblemTooLarge, FieldError, SluiceError
-from .jsonio import json_response
+from ..errors import PROBLEM_BASE, FieldError, InputError, ProblemTooLarge, SluiceError
+from .jsonio import json_response, translate_errors
 
 log = logging.getLogger("sluice.api")
 
@@ -25,6 +25,8 @@ def problem_response(status: int, slug: str, title: str, detail: str, extra: dic
 
 
 def from_sluice_error(exc: SluiceError):
+    if isinstance(exc, InputError):
+        exc = translate_errors(exc)  # a DIMACS body: pointers become /line/<n>
     if exc.status >= 500:
         log.error("request failed: %s", exc.detail)
     return problem_response(exc.status, exc.slug, exc.title, exc.detail, exc.extra(), exc.headers)

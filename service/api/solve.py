@@ -8,7 +8,7 @@ from flask import Blueprint, current_app
 
 from ..kinds import KINDS, Kind, Limits
 from . import cache
-from .jsonio import read_json_body
+from .jsonio import decode_body
 
 bp = Blueprint("solve", __name__, url_prefix="/v1")
 
@@ -43,7 +43,7 @@ def _make_view(kind: Kind):
         # The decoded body of a large object-form request is millions of Python
         # objects; keep it alive until the response is sent so that freeing it does
         # not delay the answer.
-        keep = [read_json_body()]
+        keep = [decode_body(kind.name)]
         problem = kind.parse(keep[0], limits())
         response = cache.answer(kind, problem, started=started, key=key)
         response.call_on_close(keep.clear)

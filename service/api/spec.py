@@ -18,6 +18,8 @@ from marshmallow import Schema, fields
 
 from .. import __version__
 from ..kinds import KINDS
+from .spec_extras import DESCRIPTION as EXTRAS_DESCRIPTION
+from .spec_extras import add_paths, dimacs_content
 from ..model.schemas import ArcColumnsSchema, ArcSchema, ArcsField, NodeId, NodesField, StrictBoolean, StrictNumber
 
 DESCRIPTION = """Network-flow optimisation over HTTP: max-flow with minimum cuts, certified.
@@ -115,7 +117,7 @@ def build_spec() -> dict:
         version=__version__,
         openapi_version="3.1.0",
         plugins=[plugin],
-        info={"description": DESCRIPTION},
+        info={"description": DESCRIPTION + "\n" + EXTRAS_DESCRIPTION},
     )
     plugin.converter.add_attribute_function(_field_attributes)
     spec.components.schema("Problem", schema=ProblemSchema)
@@ -133,7 +135,7 @@ def build_spec() -> dict:
                 "operationId": f"solve_{kind.name}",
                 "summary": kind.summary,
                 "requestBody": {"required": True, "content": {"application/json": {
-                    "schema": f"{title}Request", "example": _example(kind.example)}}},
+                    "schema": f"{title}Request", "example": _example(kind.example)}, **dimacs_content(kind.name)}},
                 "responses": {"200": {"description": "Solved (status says optimal, infeasible or unbounded).",
                                       "headers": cache_status,
                                       "content": {"application/json": {"schema": f"{title}Response"}}},
@@ -141,6 +143,7 @@ def build_spec() -> dict:
             }},
         )
     _store_paths(spec, cache_status)
+    add_paths(spec)
     health = {"application/json": {"schema": HealthSchema}}
     spec.path(path="/healthz", operations={"get": {"operationId": "healthz", "summary": "The process is up.",
                                                    "responses": {"200": {"description": "Up.", "content": health}}}})

@@ -1,0 +1,141 @@
+"""``POST /v1/batch``: many small problems of any kind in one request.
+
+``{"items": [{"kind": "maxflow", "problem": {...}}, ...]}`` is answered with
+``{"results": [...]}`` in the same order. Each result is either the solve response of
+its item (as ``POST /v1/<kind>`` would give it) or a problem object (RFC 9457 members
+plus ``item``, the item's index) when that item failed; one bad item never fails the
+others. The JSON Pointers in an item's errors are relative to the item: ``/kind`` or
+``/problem/arcs/3/capacity``.
+
+One synchronous time limit covers the whole batch: an item still waiting when it has
+run out gets a 504 problem object without being solved. The request as a whole fails
+only when it is not a batch at all (not JSON, no ``items`` list: 400/415/422) or has
+more items than ``SLUICE_MAX_BATCH_ITEMS`` (413).
+"""
+
+from __future__ import annotations
+
+import logging
+from dataclasses import replace
+from time import monotonic, perf_counter
+
+from flask import Blueprint, current_app
+from marshmallow import RAISE, Schema, fields
+
+from ..errors import PROBLEM_BASE, FieldError, InputError, ProblemTooLarge, SluiceError, SolveTimeout
+from ..kinds import KINDS, Limits
+from ..kinds.nested import under
+from .jsonio import json_response, read_json_body
+
+log = logging.getLogger("sluice.api")
+
+bp = Blueprint("batch", __name__, url_prefix="/v1")
+
+
+class BatchItemSchema(Schema):
+    class Meta:
+        unknown = RAISE
+
+    kind = fields.String(required=True, metadata={"description": "A problem kind: the path segment of its solve "
+                                                                 "endpoint, e.g. maxflow."})
+    problem = fields.Dict(required=True, metadata={"description": "The request body that POST /v1/{kind} takes."})
+
+
+class BatchRequest(Schema):
+    items = fields.List(fields.Nested(BatchItemSchema), required=True)
+
+
+class BatchResponse(Schema):
+    results = fields.List(fields.Dict(), metadata={
+        "description": "One per item, in order: the item's solve response, or a problem object (type, title, "
+                       "status as an integer, detail, errors with pointers relative to the item, item)."})
+
+
+def read_items(body, max_items: int) -> list:
+    """The ``items`` list of a batch body.
+
+    Raises
+    ------
+    InputError
+        The body is not an object with an ``items`` list (and nothing else).
+    ProblemTooLarge
+        More than ``max_items`` items.
+    """
+    if not isinstance(body, dict):
+        raise InputError.at("", "the request body must be a JSON object with an items list")
+    unknown = sorted(set(body) - {"items"})
+    if unknown:
+        raise InputError.at(f"/{unknown[0]}", "unknown field")
+    items = body.get("items")
+    if not isinstance(items, list):
+        raise InputError.at("/items", "is required: a list of {kind, problem} objects")
+    if len(items) > max_items:
+        raise ProblemTooLarge(FieldError("/items", f"has {len(items)} items; the limit is {max_items}"))
+    return items
+
+
+def problem_object(exc: SluiceError, index: int) -> dict:
+    """An item's failure as a problem object (RFC 9457 members plus ``item``)."""
+    out = {"type": PROBLEM_BASE + exc.slug, "title": exc.title, "status": exc.status, "detail": exc.detail}
+    out.update(exc.extra())
+    out["item"] = index
+    return out
+
+
+def _kind_of(item) -> object:
+    if not isinstance(item, dict):
+        raise InputError.at("", "an item must be an object with kind and problem")
+    unknown = sorted(set(item) - {"kind", "problem"})
+    if unknown:
+        raise InputError.at(f"/{unknown[0]}", "unknown field")
+    if "kind" not in item:
+        raise InputError.at("/kind", "is required")
+    kind = KINDS.get(item["kind"]) if isinstance(item["kind"], str) else None
+    if kind is None:
+        raise InputError.at("/kind", f"must be one of {', '.join(sorted(KINDS))}")
+    if "problem" not in item:
+        raise InputError.at("/problem", "is required")
+    return kind
+
+
+def solve_item(item, limits: Limits) -> dict:
+    """Parse and solve one item; errors carry pointers relative to the item."""
+    started = perf_counter()
+    kind = _kind_of(item)
+    with under("/problem"):
+        problem = kind.parse(item["problem"], limits)
+        parsed = perf_counter()
+        result = kind.solve(problem, limits)
+    done = perf_counter()
+    result["timing_ms"] = {"parse": round((parsed - started) * 1000, 3), "solve": round((done - parsed) * 1000, 3),
+                           "total": round((done - started) * 1000, 3)}
+    return result
+
+
+def run_batch(items: list, limits: Limits) -> list:
+    """Solve every item in order within one time limit; each item fails on its own."""
+    deadline = monotonic() + limits.time_limit
+    results = []
+    for index, item in enumerate(items):
+        left = deadline - monotonic()
+        try:
+            if left <= 0:
+                raise SolveTimeout("the batch's time limit ran out before this item was solved")
+            results.append(solve_item(item, replace(limits, time_limit=left)))
+        except SluiceError as exc:
+            if exc.status >= 500:
+                log.error("batch item %d failed: %s", index, exc.detail)
+            results.append(problem_object(exc, index))
+        except Exception:  # noqa: BLE001 - one broken item must not fail the others
+            log.exception("batch item %d failed", index)
+            results.append(problem_object(SluiceError("the server failed to solve this item; the error was "
+                                                      "logged"), index))
+    return results
+
+
+@bp.post("/batch")
+def batch():
+    """Solve many small problems of any kind in one request."""
+    state = current_app.extensions["sluice"]
+    items = read_items(read_json_body(), state.settings.max_batch_items)
+    return json_response({"results": run_batch(items, state.limits)})

@@ -1,0 +1,108 @@
+"""The explorer page at ``/`` and the example scenarios it offers.
+
+``GET /`` serves ``service/static/explorer.html`` (plain HTML with a little
+JavaScript, no build step); ``GET /explorer/{name}`` its script and style sheet.
+``GET /v1/scenarios`` lists the invented example files of ``service/scenarios/`` and
+``GET /v1/scenarios/{name}`` returns one of them.
+
+A scenario's kind comes from its file name: the stem's first ``-``-separated word
+that names a kind (``depots-maxflow-columns`` is a max-flow request); its endpoint is
+given only when that kind is registered.
+A stem starting with ``verify-`` is a body for ``POST /v1/verify/{kind}``, one
+starting with ``batch-`` a body for ``POST /v1/batch``.
+"""
+
+from __future__ import annotations
+
+import json
+from importlib import resources
+
+from flask import Blueprint, Response
+from marshmallow import Schema, fields
+
+from ..errors import NotFound
+from ..kinds import KINDS
+from ..kinds.verify import VERIFY_KINDS
+from .jsonio import json_response
+
+bp = Blueprint("explorer", __name__)
+
+STATIC = {"explorer.js": "text/javascript", "explorer.css": "text/css"}
+
+
+class ScenarioSchema(Schema):
+    name = fields.String(metadata={"description": "The JSON file's stem, or the DIMACS file's name; GET "
+                                                 "/v1/scenarios/{name} returns the body."})
+    kind = fields.String(allow_none=True, metadata={"description": "The problem kind, from the file name."})
+    endpoint = fields.String(allow_none=True, metadata={"description": "Where the body is meant to be POSTed."})
+    title = fields.String(metadata={"description": "A one-line description."})
+    media_type = fields.String(metadata={"description": "application/json, or text/x-dimacs for DIMACS files."})
+
+
+class ScenarioListSchema(Schema):
+    scenarios = fields.List(fields.Nested(ScenarioSchema))
+
+
+def _folder():
+    return resources.files("service").joinpath("scenarios")
+
+
+def _describe(name: str, suffix: str) -> dict:
+    words = name.removesuffix(".dimacs").split("-")
+    kind = next((w for w in words if w in KINDS or w in VERIFY_KINDS), None)
+    if words[0] == "verify":
+        endpoint = f"/v1/verify/{kind}" if kind else None
+    elif words[0] == "batch":
+        endpoint, kind = "/v1/batch", None
+    else:
+        endpoint = f"/v1/{kind}" if kind in KINDS else None
+    title = " ".join(w for w in words if w != kind and w not in ("verify", "batch"))
+    return {"name": name, "kind": kind, "endpoint": endpoint, "title": title or name,
+            "media_type": "text/x-dimacs" if suffix == ".dimacs" else "application/json"}
+
+
+def scenario_files() -> dict:
+    """name -> (file, suffix) of every scenario file: a JSON file is named by its stem,
+    a DIMACS file by its whole file name (``depots-maxflow.dimacs``)."""
+    out = {}
+    for entry in sorted(_folder().iterdir(), key=lambda e: e.name):
+        if entry.name.endswith(".json"):
+            out[entry.name[: -len(".json")]] = (entry, ".json")
+        elif entry.name.endswith(".dimacs"):
+            out[entry.name] = (entry, ".dimacs")
+    return out
+
+
+@bp.get("/")
+def explorer():
+    """The explorer page: pick or paste a problem, solve it, see the diagram."""
+    html = resources.files("service").joinpath("static", "explorer.html").read_text()
+    return Response(html, mimetype="text/html")
+
+
+@bp.get("/explorer/<name>")
+def explorer_asset(name: str):
+    """The explorer page's script and style sheet."""
+    if name not in STATIC:
+        raise NotFound(f"no explorer file {name!r}")
+    text = resources.files("service").joinpath("static", name).read_text()
+    return Response(text, mimetype=STATIC[name], headers={"Cache-Control": "no-cache"})
+
+
+@bp.get("/v1/scenarios")
+def scenarios():
+    """The example scenarios (invented data), with the kind and endpoint of each."""
+    return json_response({"scenarios": [_describe(name, suffix) for name, (_, suffix) in scenario_files().items()]})
+
+
+@bp.get("/v1/scenarios/<name>")
+def scenario(name: str):
+    """One example scenario's request body."""
+    files = scenario_files()
+    if name not in files:
+        raise NotFound(f"no scenario {name!r}; GET /v1/scenarios lists them")
+    entry, suffix = files[name]
+    text = entry.read_text()
+    if suffix == ".dimacs":
+        return Response(text, mimetype="text/x-dimacs")
+    return json_response(json.loads(text))

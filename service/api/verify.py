@@ -1,0 +1,30 @@
+"""``POST /v1/verify/maxflow`` and ``POST /v1/verify/mincostflow``: check a client's plan."""
+
+from __future__ import annotations
+
+from time import perf_counter
+
+from flask import Blueprint
+
+from ..errors import NotFound
+from ..kinds import KINDS
+from ..kinds import verify as verify_kind
+from .jsonio import json_response, read_json_body
+from .solve import limits
+
+bp = Blueprint("verify", __name__, url_prefix="/v1/verify")
+
+
+@bp.post("/<kind>")
+def verify(kind: str):
+    """Check a client's flows for a problem: feasibility, value or cost, optimality."""
+    if kind not in verify_kind.VERIFY_KINDS:
+        raise NotFound(f"plans can be verified for {', '.join(verify_kind.VERIFY_KINDS)}; not for {kind!r}")
+    started = perf_counter()
+    problem = verify_kind.parse(kind, read_json_body(), limits(), KINDS)
+    parsed = perf_counter()
+    out = verify_kind.check(problem, limits())
+    done = perf_counter()
+    out["timing_ms"] = {"parse": round((parsed - started) * 1000, 3), "solve": round((done - parsed) * 1000, 3),
+                        "total": round((done - started) * 1000, 3)}
+    return json_response(out)

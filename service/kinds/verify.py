@@ -1,0 +1,268 @@
+"""Checking a client's own plan: ``POST /v1/verify/{kind}`` for maxflow and mincostflow.
+
+The request is ``{"problem": <a solve request body>, "flows": [...]}``. The problem is
+read exactly as the solve endpoint reads it (errors point under ``/problem``); the
+flows must be one finite number per arc (errors point under ``/flows``). The checks
+themselves are :mod:`service.solvers.verify`.
+
+The min-cost flow problem is read here from the model's arrays (``nodes`` with
+``supply``, ``arcs`` with ``capacity``, ``cost`` and ``lower``) so that the check does
+not depend on the min-cost solver; when the ``mincostflow`` kind is registered its own
+``parse`` runs first, so verify accepts exactly what ``POST /v1/mincostflow`` accepts.
+"""
+
+from __future__ import annotations
+
+import time
+from dataclasses import dataclass
+
+import numpy as np
+from marshmallow import EXCLUDE, RAISE, Schema, fields, validate
+
+from ..errors import FieldError, InputError, ProblemTooLarge
+from ..model.arcs import Network, build_network, read_arcs
+from ..model.columns import number_column
+from ..model.nodes import read_nodes
+from ..model.schemas import ArcsField, NodeId, NodesField, load_envelope
+from ..solvers.verify import FORWARD, Verdict, verify_max_flow, verify_min_cost_flow
+from .base import Limits, ids_of, time_limit
+from .nested import under
+
+#: Kinds whose plans can be checked, i.e. the ``{kind}`` of ``/v1/verify/{kind}``.
+VERIFY_KINDS = ("maxflow", "mincostflow")
+
+
+class VerifyRequest(Schema):
+    class Meta:
+        unknown = RAISE
+
+    problem = fields.Dict(required=True, metadata={
+        "description": "The problem, exactly as the solve endpoint of this kind takes it."})
+    flows = fields.List(fields.Float(), required=True, metadata={
+        "description": "The client's flow on every arc, aligned with the problem's arcs."})
+
+
+class PathStepSchema(Schema):
+    arc = fields.Integer(metadata={"description": "Index of the arc in the problem's arcs."})
+    direction = fields.String(validate=validate.OneOf(["forward", "backward"]), metadata={
+        "description": "forward: push more flow along the arc; backward: take flow off it."})
+    from_ = fields.Raw(data_key="from", metadata={"description": "Node the step leaves (in the step's direction)."})
+    to = fields.Raw(metadata={"description": "Node the step reaches."})
+
+
+class ViolationSchema(Schema):
+    arc = fields.Integer(metadata={"description": "Arc index (capacity and lower-bound violations)."})
+    node = fields.Raw(metadata={"description": "Node id (conservation violations)."})
+    kind = fields.String(validate=validate.OneOf(["capacity", "lower", "conservation"]))
+    excess = fields.Float(metadata={"description": "capacity: flow minus capacity; lower: lower bound minus "
+                                                   "flow (the lower bound is 0 unless given). Always > 0."})
+    imbalance = fields.Float(metadata={"description": "supply + inflow - outflow at the node (supply is 0 for "
+                                                      "inner max-flow nodes): > 0 means flow is left over at the "
+                                                      "node, < 0 that more leaves than arrives."})
+    key = fields.String(metadata={"description": "The arc's key, when it has one."})
+
+
+class VerifyCutSchema(Schema):
+    source_side = fields.List(fields.Raw())
+    arcs = fields.List(fields.Integer())
+    capacity = fields.Float()
+
+
+class VerifyCertificate(Schema):
+    checked = fields.Boolean()
+    proof = fields.String(validate=validate.OneOf(["cut", "augmenting-path", "potentials", "negative-cycle"]),
+                          metadata={"description": "What the verdict rests on (checked again before answering)."})
+    tolerance = fields.Float(metadata={"description": "0 for integer data and flows."})
+
+
+class VerifyResponse(Schema):
+    feasible = fields.Boolean(metadata={"description": "No bound or conservation violation."})
+    optimal = fields.Boolean(metadata={"description": "Feasible and no better plan exists."})
+    value = fields.Float(metadata={"description": "max-flow: the plan's net flow out of the source."})
+    cost = fields.Float(metadata={"description": "min-cost flow: the plan's total cost."})
+    violations = fields.List(fields.Nested(ViolationSchema), metadata={
+        "description": "Every violation: arcs first by index, then nodes in node order (at most 10,000 listed)."})
+    violation_count = fields.Integer(metadata={"description": "Total number of violations."})
+    improving_path = fields.List(fields.Nested(PathStepSchema), metadata={
+        "description": "max-flow, feasible but not maximum: an augmenting path with the fewest arcs, from the "
+                       "source to the sink in the residual network of the plan."})
+    improving_cycle = fields.List(fields.Nested(PathStepSchema), metadata={
+        "description": "min-cost flow, feasible but not cheapest: a negative-cost cycle in the residual network "
+                       "of the plan, in walking order."})
+    gain = fields.Float(allow_none=True, metadata={
+        "description": "max-flow: the value the path adds (its smallest residual capacity); min-cost flow: the "
+                       "cost saved by pushing `amount` round the cycle. null when the path or cycle has no limit "
+                       "(the problem is unbounded)."})
+    amount = fields.Float(allow_none=True, metadata={"description": "Flow to push along the path or round the cycle."})
+    unit_cost = fields.Float(metadata={"description": "min-cost flow: cost per unit pushed round the cycle (< 0)."})
+    unbounded = fields.Boolean(metadata={"description": "Present and true when the improving path or cycle has no "
+                                                        "limit: the problem itself is unbounded."})
+    cut = fields.Nested(VerifyCutSchema, metadata={
+        "description": "max-flow, optimal plan: a minimum cut whose capacity equals the plan's value."})
+    node_ids = fields.List(fields.Raw(), metadata={"description": "Node order of `potentials`."})
+    potentials = fields.List(fields.Float(), metadata={
+        "description": "min-cost flow, optimal plan: potentials p with cost + p[from] - p[to] >= 0 on every arc "
+                       "that can carry more and <= 0 on every arc that can carry less (the proof of optimality)."})
+    certificate = fields.Nested(VerifyCertificate)
+
+
+@dataclass
+class VerifyProblem:
+    kind: str
+    network: Network
+    flows: np.ndarray
+    source: int | None = None
+    sink: int | None = None
+    supply: np.ndarray | None = None
+
+
+def parse(kind: str, body, limits: Limits, kinds: dict) -> VerifyProblem:
+    """Validate a verify request for ``kind``.
+
+    Raises
+    ------
+    InputError
+        Pointers under ``/problem`` or ``/flows``; flows not aligned with the arcs are
+        a 422 at ``/flows``.
+    """
+    envelope = load_envelope(_ENVELOPE, body)
+    problem = envelope["problem"]
+    with under("/problem"):
+        if kind == "maxflow":
+            parsed = kinds["maxflow"].parse(problem, limits)
+            out = VerifyProblem(kind, parsed.network, None, source=parsed.source, sink=parsed.sink)
+        else:
+            if "mincostflow" in kinds:
+                kinds["mincostflow"].parse(problem, limits)  # same acceptance as the solve endpoint
+            network, supply = read_min_cost(problem, limits)
+            out = VerifyProblem(kind, network, None, supply=supply)
+    out.flows = read_flows(envelope["flows"], out.network.num_arcs)
+    return out
+
+
+class _Envelope(Schema):
+    class Meta:
+        unknown = RAISE
+
+    problem = fields.Raw(required=True)
+    flows = fields.Raw(required=True)
+
+
+_ENVELOPE = _Envelope()
+
+
+def read_flows(raw, num_arcs: int) -> np.ndarray:
+    """The client's flows as a numpy array, one finite number per arc."""
+    if not isinstance(raw, list):
+        raise InputError.at("/flows", "must be a list of numbers, one per arc")
+    if len(raw) != num_arcs:
+        raise InputError.at("/flows", f"has {len(raw)} entries; the problem has {num_arcs} arcs")
+    return number_column(raw, lambda i: f"/flows/{i}").values
+
+
+class _MinCostOptions(Schema):
+    class Meta:
+        unknown = EXCLUDE  # engine, detail, time_limit, cache: they do not change the check
+
+    shortage = fields.String(load_default="reject", validate=validate.OneOf(["reject", "max-flow"]))
+
+
+class _MinCostEnvelope(Schema):
+    class Meta:
+        unknown = RAISE
+
+    nodes = NodesField(load_default=None)
+    arcs = ArcsField(required=True)
+    options = fields.Nested(_MinCostOptions, load_default=lambda: {"shortage": "reject"})
+
+
+def read_min_cost(body, limits: Limits) -> tuple[Network, np.ndarray]:
+    """A min-cost flow request as a Network and a supply per node (demand negative).
+
+    Only ``options.shortage = "reject"`` (the default: every supply must ship) is
+    checked; a plan for ``"max-flow"`` gets a 422 at ``/options/shortage``.
+    """
+    envelope = load_envelope(_MinCostEnvelope(), body)
+    if envelope["options"]["shortage"] != "reject":
+        raise InputError.at("/options/shortage", "verify checks plans under the default shortage 'reject' only")
+    arcs = read_arcs(envelope["arcs"], max_arcs=limits.max_arcs)
+    nodes = read_nodes(envelope["nodes"], extra_fields=("supply",))
+    network = build_network(arcs, nodes.ids, allow_lower=True)
+    if network.num_nodes > limits.max_nodes:
+        raise ProblemTooLarge(FieldError("/nodes", f"has {network.num_nodes} nodes; the limit is {limits.max_nodes}"))
+    supply = np.zeros(network.num_nodes, dtype=np.int64)
+    column = nodes.fields.get("supply")
+    if column is not None:
+        values = number_column(column.values, column.where).values
+        if values.dtype.kind == "f":
+            supply = supply.astype(np.float64)
+        supply[: values.size] = values  # declared nodes come first in node order
+    return network, supply
+
+
+def check(problem: VerifyProblem, limits: Limits) -> dict:
+    """Run the plan check and build the response document."""
+    net = problem.network
+    if problem.kind == "maxflow":
+        verdict = verify_max_flow(net.num_nodes, net.tail, net.head, net.capacity, net.unlimited,
+                                  problem.source, problem.sink, problem.flows)
+    else:
+        deadline = time.monotonic() + time_limit({}, limits)
+        verdict = verify_min_cost_flow(net.num_nodes, net.tail, net.head, net.capacity, net.unlimited, net.cost,
+                                       net.lower, problem.supply, problem.flows, deadline=deadline)
+    return respond(problem, verdict)
+
+
+def _direction(d: int) -> str:
+    return "forward" if d == FORWARD else "backward"
+
+
+def _steps(net: Network, steps: list) -> list:
+    out = []
+    for arc, d in steps:
+        a, b = net.tail[arc], net.head[arc]
+        if d != FORWARD:
+            a, b = b, a
+        out.append({"arc": arc, "direction": _direction(d), "from": net.nodes.ids[a], "to": net.nodes.ids[b]})
+    return out
+
+
+def _violations(net: Network, verdict: Verdict) -> list:
+    out = []
+    for arc, kind, excess in verdict.arc_violations:
+        item = {"arc": arc, "kind": kind, "excess": excess}
+        if net.keys is not None and net.keys[arc] is not None:
+            item["key"] = net.keys[arc]
+        out.append(item)
+    for node, imbalance in verdict.node_violations:
+        out.append({"node": net.nodes.ids[node], "kind": "conservation", "imbalance": imbalance})
+    return out
+
+
+def respond(problem: VerifyProblem, verdict: Verdict) -> dict:
+    net = problem.network
+    maxflow = problem.kind == "maxflow"
+    out: dict = {"feasible": verdict.feasible, "optimal": verdict.optimal,
+                 ("value" if maxflow else "cost"): verdict.objective,
+                 "violations": _violations(net, verdict), "violation_count": verdict.violation_count}
+    proof = None
+    if verdict.steps is not None:
+        out["improving_path" if maxflow else "improving_cycle"] = _steps(net, verdict.steps)
+        out["gain"] = verdict.gain
+        out["amount"] = verdict.amount
+        if not maxflow:
+            out["unit_cost"] = verdict.unit_cost
+        if verdict.amount is None:
+            out["unbounded"] = True
+        proof = "augmenting-path" if maxflow else "negative-cycle"
+    elif verdict.optimal and maxflow:
+        out["cut"] = {"source_side": ids_of(net.nodes, np.flatnonzero(verdict.source_side)),
+                      "arcs": verdict.cut_arcs, "capacity": verdict.cut_capacity}
+        proof = "cut"
+    elif verdict.optimal:
+        out["node_ids"] = net.nodes.ids
+        out["potentials"] = verdict.potentials
+        proof = "potentials"
+    if proof:
+        out["certificate"] = {"checked": True, "proof": proof, "tolerance": verdict.tolerance}
+    return out

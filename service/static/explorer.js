@@ -1,0 +1,190 @@
+// The Sluice explorer: plain JavaScript, no build step.
+// Lists the example scenarios, solves the payload on this service, draws the answer
+// with POST /v1/diagram.svg and shows the equivalent curl command.
+"use strict";
+
+const DRAWN = ["maxflow", "mincostflow"];  // kinds the diagram endpoint draws
+const $ = (id) => document.getElementById(id);
+
+function headers() {
+  const h = { "Content-Type": "application/json" };
+  const key = $("apikey").value.trim();
+  if (key) h["Authorization"] = "Bearer " + key;
+  return h;
+}
+
+function shellQuote(text) {
+  return "'" + text.replace(/'/g, "'\\''") + "'";
+}
+
+function compactPayload() {
+  try { return JSON.stringify(JSON.parse($("payload").value)); } catch (e) { return null; }
+}
+
+function updateCurl() {
+  const kind = $("kind").value;
+  const body = compactPayload();
+  if (!kind || body === null) { $("curl").textContent = "(the payload is not valid JSON yet)"; return; }
+  const auth = $("apikey").value.trim() ? " -H 'Authorization: Bearer $SLUICE_KEY'" : "";
+  const base = window.location.origin;
+  let text = `curl -s ${base}/v1/${kind} -H 'Content-Type: application/json'${auth} \\\n     -d ${shellQuote(body)}`;
+  if (DRAWN.includes(kind)) {
+    const wrapped = JSON.stringify({ kind: kind, problem: JSON.parse(body) });
+    text += `\n\n# the diagram, as SVG\ncurl -s ${base}/v1/diagram.svg -H 'Content-Type: application/json'${auth} \\\n` +
+            `     -d ${shellQuote(wrapped)} -o answer.svg`;
+  }
+  $("curl").textContent = text;
+}
+
+function showProblem(doc, where) {
+  const box = $("error");
+  box.replaceChildren();
+  const head = document.createElement("div");
+  head.textContent = `${where}: ${doc.status || ""} ${doc.title || "error"} — ${doc.detail || ""}`;
+  box.appendChild(head);
+  if (Array.isArray(doc.errors) && doc.errors.length) {
+    const list = document.createElement("ul");
+    for (const e of doc.errors) {
+      const item = document.createElement("li");
+      const code = document.createElement("code");
+      code.textContent = e.pointer || "/";
+      item.appendChild(code);
+      item.appendChild(document.createTextNode(" " + e.detail));
+      list.appendChild(item);
+    }
+    box.appendChild(list);
+  }
+  box.hidden = false;
+}
+
+function clearAnswer() {
+  $("error").hidden = true;
+  $("summary").replaceChildren();
+  $("response").textContent = "";
+}
+
+function fact(name, value) {
+  if (value === undefined || value === null) return;
+  const dt = document.createElement("dt");
+  dt.textContent = name;
+  const dd = document.createElement("dd");
+  dd.textContent = typeof value === "object" ? JSON.stringify(value) : String(value);
+  $("summary").append(dt, dd);
+}
+
+function showSummary(kind, doc) {
+  fact("status", doc.status);
+  for (const name of ["value", "cost", "total_cost", "objective", "shipped"]) fact(name, doc[name]);
+  if (doc.cut) fact("minimum cut", `${doc.cut.arcs.length} arcs, capacity ${doc.cut.capacity}`);
+  if (doc.certificate) fact("certificate", doc.certificate.checked ? "checked ✓" : "NOT checked");
+  if (doc.engine) fact("engine", `${doc.engine.kind} · ${doc.engine.solver || ""} ${doc.engine.version || ""}`);
+  if (doc.timing_ms) fact("time (ms)", `parse ${doc.timing_ms.parse} · solve ${doc.timing_ms.solve} · total ${doc.timing_ms.total}`);
+  if (doc.digest) fact("digest", doc.digest.slice(0, 23) + "…");
+}
+
+async function drawDiagram(kind, problem) {
+  const box = $("diagram");
+  if (!DRAWN.includes(kind)) {
+    box.innerHTML = '<p class="hint">Diagrams are drawn for max-flow and min-cost flow problems.</p>';
+    return;
+  }
+  const r = await fetch("/v1/diagram.svg", { method: "POST", headers: headers(),
+                                              body: JSON.stringify({ kind: kind, problem: problem }) });
+  if (!r.ok) {
+    const doc = await r.json();
+    box.innerHTML = '<p class="hint"></p>';
+    box.firstChild.textContent = r.status === 413 ? "Too large to draw: " + doc.detail : "No diagram: " + doc.detail;
+    return;
+  }
+  const svg = new DOMParser().parseFromString(await r.text(), "image/svg+xml").documentElement;
+  box.replaceChildren(document.importNode(svg, true));
+}
+
+async function solve() {
+  const kind = $("kind").value;
+  clearAnswer();
+  let problem;
+  try {
+    problem = JSON.parse($("payload").value);
+  } catch (e) {
+    showProblem({ title: "not JSON", detail: e.message }, "payload");
+    return;
+  }
+  updateCurl();
+  document.body.dataset.state = "solving";
+  $("solve").disabled = true;
+  try {
+    const r = await fetch(`/v1/${kind}`, { method: "POST", headers: headers(), body: JSON.stringify(problem) });
+    const doc = await r.json();
+    $("response").textContent = JSON.stringify(doc, null, 2);
+    if (!r.ok) {
+      showProblem(doc, `POST /v1/${kind}`);
+      $("diagram").innerHTML = '<p class="hint">No answer to draw.</p>';
+      document.body.dataset.state = "failed";
+      return;
+    }
+    showSummary(kind, doc);
+    await drawDiagram(kind, problem);
+    document.body.dataset.state = "solved";
+  } catch (e) {
+    showProblem({ title: "request failed", detail: String(e) }, "network");
+    document.body.dataset.state = "failed";
+  } finally {
+    $("solve").disabled = false;
+  }
+}
+
+async function pickScenario() {
+  const option = $("scenario").selectedOptions[0];
+  if (!option || !option.value) return;
+  const r = await fetch(`/v1/scenarios/${encodeURIComponent(option.value)}`, { headers: headers() });
+  const doc = await r.json();
+  $("payload").value = JSON.stringify(doc, null, 2);
+  if (option.dataset.kind) $("kind").value = option.dataset.kind;
+  updateCurl();
+}
+
+async function copyCurl() {
+  const text = $("curl").textContent;
+  try {
+    await navigator.clipboard.writeText(text);
+  } catch (e) {  // not a secure context: fall back to a selection
+    const area = document.createElement("textarea");
+    area.value = text;
+    document.body.appendChild(area);
+    area.select();
+    document.execCommand("copy");
+    area.remove();
+  }
+  $("copy-curl").textContent = "Copied";
+  setTimeout(() => { $("copy-curl").textContent = "Copy"; }, 1500);
+}
+
+async function start() {
+  const spec = await (await fetch("/openapi.json")).json();
+  const kinds = Object.values(spec.paths).map((p) => p.post && p.post.operationId)
+    .filter((id) => id && id.startsWith("solve_")).map((id) => id.slice(6));
+  for (const kind of kinds) $("kind").add(new Option(kind, kind));
+  const listed = await fetch("/v1/scenarios", { headers: headers() });
+  if (listed.ok) {
+    for (const s of (await listed.json()).scenarios) {
+      if (!s.endpoint || s.endpoint !== `/v1/${s.kind}` || s.media_type !== "application/json") continue;
+      const option = new Option(`${s.kind}: ${s.title}`, s.name);
+      option.dataset.kind = s.kind;
+      $("scenario").add(option);
+    }
+  }
+  $("scenario").addEventListener("change", pickScenario);
+  $("kind").addEventListener("change", updateCurl);
+  $("payload").addEventListener("input", updateCurl);
+  $("apikey").addEventListener("input", updateCurl);
+  $("solve").addEventListener("click", solve);
+  $("copy-curl").addEventListener("click", copyCurl);
+  $("tidy").addEventListener("click", () => {
+    try { $("payload").value = JSON.stringify(JSON.parse($("payload").value), null, 2); } catch (e) { /* leave it */ }
+  });
+  updateCurl();
+  document.body.dataset.state = "ready";
+}
+
+start();
