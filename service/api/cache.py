@@ -163,11 +163,22 @@ def answer(kind: Kind, problem, *, started: float, key: str | None = None, extra
     elif mode != "bypass" and available:
         try:
             stored = store.put_result(who, problem.digest, payload, key if mode == "use" else None)
+            if stored:
+                _keep_drawing(store, who, kind, problem)
             status = (STORED if mode == "use" else REFRESHED) if stored else TOO_LARGE
         except StoreUnavailable as exc:
             log.debug("result not cached for %s: %s", problem.digest, exc.detail)
             status = UNAVAILABLE
     return respond(payload, status, _timing(started, t0, solved - t0), extra)
+
+
+def _keep_drawing(store: Store, who: str, kind: Kind, problem) -> None:
+    """Keep a small problem beside its answer so the answer can be drawn by digest."""
+    from .diagram import DRAWING_SUFFIX, drawing_record
+
+    record = drawing_record(kind.name, problem)
+    if record is not None:
+        _quietly(store.put_result, who, problem.digest + DRAWING_SUFFIX, record, None)
 
 
 def _quietly(fn, *args) -> None:

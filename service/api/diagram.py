@@ -506,6 +506,50 @@ def solution_diagram(kind: str, problem_body: dict, result: dict) -> Response:
                                        max_arcs=settings.max_diagram_arcs))
 
 
+# --- diagrams of cached solutions -----------------------------------------------------
+
+#: Suffix of the cache entry that keeps a small solved problem drawable by digest.
+DRAWING_SUFFIX = ":drawing"
+
+
+def drawing_record(kind_name: str, problem) -> bytes | None:
+    """What ``GET /v1/solutions/{digest}/diagram.svg`` needs to draw a cached answer later.
+
+    The result cache keeps answers, not problems; for the kinds that are drawn, a
+    small record with the problem's request body (as columns) is kept beside the
+    answer. Problems above the diagram limits keep only their size, so the route can
+    answer 413 rather than 404. ``None`` for kinds that are not drawn.
+    """
+    network = getattr(problem, "network", None)
+    if kind_name not in DIAGRAM_KINDS or network is None:
+        return None
+    settings = current_app.extensions["sluice"].settings
+    if network.num_nodes > settings.max_diagram_nodes or network.num_arcs > settings.max_diagram_arcs:
+        return orjson.dumps({"kind": kind_name, "too_large": {"nodes": network.num_nodes, "arcs": network.num_arcs}})
+    from .networks import export_network
+
+    body = export_network(network)
+    ids = network.nodes.ids
+    if kind_name == "maxflow":
+        body["source"], body["sink"] = ids[problem.source], ids[problem.sink]
+    supply = getattr(problem, "supply", None)
+    if supply is not None:
+        body["nodes"] = {"id": list(ids), "supply": np.asarray(supply).tolist()}
+    return orjson.dumps({"kind": kind_name, "body": body}, option=orjson.OPT_SERIALIZE_NUMPY)
+
+
+def cached_diagram(record: bytes, result: bytes) -> Response:
+    """The SVG of a cached answer from its drawing record (see :func:`drawing_record`)."""
+    doc = orjson.loads(record)
+    if "too_large" in doc:
+        size = doc["too_large"]
+        settings = current_app.extensions["sluice"].settings
+        raise ProblemTooLarge(FieldError("", f"the problem has {size['nodes']} nodes and {size['arcs']} arcs; "
+                                             f"diagrams are drawn for at most {settings.max_diagram_nodes} nodes "
+                                             f"and {settings.max_diagram_arcs} arcs"))
+    return solution_diagram(doc["kind"], doc["body"], orjson.loads(result))
+
+
 @bp.post("/diagram.svg")
 def diagram():
     """Solve a small problem and draw the answer as SVG."""

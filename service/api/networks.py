@@ -23,7 +23,8 @@ from ..model.nodes import read_nodes
 from ..model.schemas import ArcsField, NodesField, load_envelope
 from ..store import InvalidParameter, NetworkMeta, Preconditions, check_name, network_digest
 from . import cache
-from .jsonio import json_response, read_json_body
+from ..model.dimacs import MEDIA_TYPE as DIMACS_MEDIA_TYPE
+from .jsonio import decode_body, dimacs_response, json_response, read_json_body
 
 bp = Blueprint("networks", __name__, url_prefix="/v1/networks")
 
@@ -105,7 +106,9 @@ def read_network(body, limits: Limits) -> Network:
     """
     envelope = load_envelope(NetworkRequest(), body)
     arcs = read_arcs(envelope["arcs"], max_arcs=limits.max_arcs)
-    nodes = read_nodes(envelope["nodes"])
+    # Supplies belong to the question (POST .../mincostflow), not to the stored
+    # network; a node's supply here (e.g. from a DIMACS min file) is not stored.
+    nodes = read_nodes(envelope["nodes"], extra_fields=("supply",))
     network = build_network(arcs, nodes.ids, allow_lower=True)
     if network.num_nodes > limits.max_nodes:
         raise ProblemTooLarge(FieldError("/nodes", f"has {network.num_nodes} nodes; the limit is {limits.max_nodes}"))
@@ -125,7 +128,7 @@ def put_network(name: str):
         except NotFound:
             current = None
         pre.check(current, name)
-    network = read_network(read_json_body(), _limits())
+    network = read_network(decode_body("network"), _limits())
     meta, created = store.put_network(cache.tenant(), name, network, network_digest(network), pre)
     headers = {"ETag": _etag(meta)}
     if created:
@@ -142,6 +145,13 @@ def get_network(name: str):
     meta = store.network_meta(cache.tenant(), name)
     if request.if_none_match.contains_weak(meta.etag):
         return Response(status=304, headers={"ETag": _etag(meta)})
+    if request.accept_mimetypes.best_match(["application/json", DIMACS_MEDIA_TYPE]) == DIMACS_MEDIA_TYPE:
+        # A stored network has no source, sink or supplies: it is written as a min-cost
+        # flow file (which carries lower bounds and costs) with zero supplies.
+        loaded = store.load_network(cache.tenant(), name)
+        response = dimacs_response(loaded.network, "min", title=f"stored network {name} v{loaded.meta.version}")
+        response.headers["ETag"] = _etag(loaded.meta)
+        return response
     if not include:
         return json_response(meta.as_dict(), headers={"ETag": _etag(meta)})
     loaded = store.load_network(cache.tenant(), name)

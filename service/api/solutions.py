@@ -29,3 +29,18 @@ def get_solution(digest: str):
     if request.if_none_match.contains_weak(etag):
         return Response(status=304, headers=headers)
     return Response(value, mimetype="application/json", headers=headers)
+
+
+@bp.get("/<digest>/diagram.svg")
+def get_solution_diagram(digest: str):
+    """An SVG drawing of a cached answer: flows, the cut or binding arcs, potentials."""
+    from .diagram import DRAWING_SUFFIX, cached_diagram
+
+    check_digest(digest)
+    store = cache.get_store()
+    value = store.get_result(cache.tenant(), digest)
+    record = store.get_result(cache.tenant(), digest + DRAWING_SUFFIX) if value is not None else None
+    if value is None or record is None:
+        raise NotFound(f"no drawable cached solution for {digest}: solve the problem again "
+                       "(diagrams are kept for max-flow and min-cost flow answers)")
+    return cached_diagram(record, value)

@@ -213,7 +213,10 @@ def _store_paths(spec: APISpec, cache_status: dict) -> None:
             "operationId": "put_network", "summary": "Store a network (a new version when it exists).",
             "parameters": [if_match, {"name": "If-None-Match", "in": "header", "schema": {"type": "string"},
                                       "description": "* : only create, never replace."}],
-            "requestBody": {"required": True, "content": {"application/json": {"schema": "NetworkRequest"}}},
+            "requestBody": {"required": True, "content": {
+                "application/json": {"schema": "NetworkRequest"},
+                "text/x-dimacs": {"schema": {"type": "string"}, "description": "A DIMACS max-flow or min-cost "
+                                  "flow file; its s/t designations and supplies are not stored."}}},
             "responses": {"201": {"description": "Created.", "headers": etag, "content": meta},
                           "200": {"description": "Replaced by a new version.", "headers": etag, "content": meta},
                           **_problem_responses(), "412": stale, "503": unavailable}},
@@ -221,8 +224,11 @@ def _store_paths(spec: APISpec, cache_status: dict) -> None:
             "operationId": "get_network", "summary": "A stored network's metadata (and arcs with ?include=arcs).",
             "parameters": [{"name": "include", "in": "query", "schema": {"type": "string", "enum": ["arcs"]}},
                            {"name": "If-None-Match", "in": "header", "schema": {"type": "string"}}],
-            "responses": {"200": {"description": "The current version.", "headers": etag,
-                                  "content": {"application/json": {"schema": "NetworkBody"}}},
+            "responses": {"200": {"description": "The current version. With `Accept: text/x-dimacs` the arcs "
+                                                 "as a DIMACS min-cost flow file (zero supplies).",
+                                  "headers": etag,
+                                  "content": {"application/json": {"schema": "NetworkBody"},
+                                              "text/x-dimacs": {"schema": {"type": "string"}}}},
                           "304": {"description": "Not modified (If-None-Match holds the current ETag)."},
                           "400": bad_name, "404": not_found, "503": unavailable}},
         "delete": {

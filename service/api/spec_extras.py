@@ -68,7 +68,8 @@ solves the problem and draws the answer as SVG: a layered left-to-right layout f
 source to sink, flows, the minimum cut (max-flow) or the arcs at capacity (min-cost
 flow), node potentials when the answer has them. Diagrams are for small networks:
 above `SLUICE_MAX_DIAGRAM_NODES` nodes or `SLUICE_MAX_DIAGRAM_ARCS` arcs the answer is
-413. `GET /` is an explorer page for trying the service in a browser;
+413. `GET /v1/solutions/{digest}/diagram.svg` draws a cached answer the same way.
+`GET /` is an explorer page for trying the service in a browser;
 `GET /v1/scenarios` lists the invented example problems it offers.
 """
 
@@ -136,6 +137,17 @@ def add_paths(spec: APISpec) -> None:
         "responses": {"200": {"description": "The drawing.",
                               "content": {SVG_MEDIA_TYPE: {"schema": {"type": "string"}}}},
                       **_problems("400", "413", "415", "422", "500", "504")},
+    }})
+    spec.path(path="/v1/solutions/{digest}/diagram.svg", operations={"get": {
+        "operationId": "draw_cached_solution",
+        "summary": "Draw a cached max-flow or min-cost flow answer as SVG",
+        "description": "Small solved problems are kept beside their cached answers so they can be drawn by "
+                       "digest; a problem above the diagram limits answers 413, an unknown or evicted one 404.",
+        "parameters": [{"name": "digest", "in": "path", "required": True,
+                        "schema": {"type": "string", "pattern": "^sha256:[0-9a-f]{64}$"}}],
+        "responses": {"200": {"description": "The drawing.",
+                              "content": {SVG_MEDIA_TYPE: {"schema": {"type": "string"}}}},
+                      **_problems("404", "413")},
     }})
     spec.path(path="/v1/scenarios", operations={"get": {
         "operationId": "list_scenarios", "summary": "The invented example problems",
