@@ -215,8 +215,8 @@ def _store_paths(spec: APISpec, cache_status: dict) -> None:
                                       "description": "* : only create, never replace."}],
             "requestBody": {"required": True, "content": {
                 "application/json": {"schema": "NetworkRequest"},
-                "text/x-dimacs": {"schema": {"type": "string"}, "description": "A DIMACS max-flow or min-cost "
-                                  "flow file; its s/t designations and supplies are not stored."}}},
+                "text/x-dimacs": {"schema": {"type": "string", "description": "A DIMACS max-flow or min-cost "
+                                  "flow file; its s/t designations and supplies are not stored."}}}},
             "responses": {"201": {"description": "Created.", "headers": etag, "content": meta},
                           "200": {"description": "Replaced by a new version.", "headers": etag, "content": meta},
                           **_problem_responses(), "412": stale, "503": unavailable}},
