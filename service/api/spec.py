@@ -51,7 +51,7 @@ def _field_attributes(self, field, ret, **kwargs):
     if isinstance(field, NodeId):
         return {"oneOf": [{"type": "string", "minLength": 1, "maxLength": 200}, {"type": "integer", "minimum": 0}]}
     if isinstance(field, StrictNumber):
-        out = {"type": "number"}
+        out = {"type": ["number", "null"] if field.allow_none else "number"}  # load_default=None allows null
         if field.minimum is not None:
             out["exclusiveMinimum" if field.exclusive else "minimum"] = field.minimum
         return out
@@ -121,7 +121,17 @@ def build_spec() -> dict:
         "operationId": "openapi", "summary": "This document.",
         "responses": {"200": {"description": "The OpenAPI document.",
                               "content": {"application/json": {"schema": {"type": "object"}}}}}}})
-    return spec.to_dict()
+    return _drop_null_defaults(spec.to_dict())
+
+
+def _drop_null_defaults(node):
+    """Remove ``default: null`` (from ``load_default=None``, meaning "absent"): a default
+    must validate against its schema, and null does not for most of these fields."""
+    if isinstance(node, dict):
+        return {k: _drop_null_defaults(v) for k, v in node.items() if not (k == "default" and v is None)}
+    if isinstance(node, list):
+        return [_drop_null_defaults(v) for v in node]
+    return node
 
 
 def spec_yaml() -> str:

@@ -79,15 +79,16 @@ class MultiCommodityCertificate(Schema):
     dual_bound = fields.Float(metadata={"description": "Dual objective of the cost model (equals cost)."})
     gap = fields.Float()
     delivered_total = fields.Float(metadata={"description": "max-throughput: total delivered."})
-    delivery_bound = fields.Float(metadata={"description": "max-throughput: proven upper bound on any plan's "
-                                                           "delivery (dual objective of the delivery model)."})
+    delivery_bound = fields.Float(metadata={"description": "max-throughput, and infeasible min-cost: proven "
+                                                           "upper bound on any plan's total delivery (dual "
+                                                           "objective of the delivery model); below "
+                                                           "total_demand when infeasible."})
     delivery_gap = fields.Float()
     duals_unique = fields.Boolean()
     prices_unique = fields.Boolean(metadata={"description": "max-throughput: whether the capacity prices are "
                                                             "provably unique."})
     degenerate = fields.Boolean()
-    least_total_violation = fields.Float(metadata={"description": "Infeasible: proven lower bound on the "
-                                                                  "total violation of the constraints."})
+    total_demand = fields.Float(metadata={"description": "Infeasible: the demand to meet."})
     tolerance = fields.Raw(metadata={"type": ["object", "number"]})
     reason = fields.String()
 
@@ -105,7 +106,6 @@ class MultiCommodityInfeasibility(Schema):
     cannot_meet_alone = fields.List(NodeId(), metadata={"description": "Commodities whose demand exceeds the "
                                                                        "maximum flow from their source to their "
                                                                        "sink even with the arcs to themselves."})
-    least_total_violation = fields.Float()
 
 
 class MultiCommodityUnbounded(Schema):
@@ -214,12 +214,13 @@ def solve(problem: MultiCommodityProblem, limits: Limits) -> dict:
         out["bottlenecks"] = solution.bottlenecks
     elif solution.status == "infeasible":
         info = solution.infeasibility
-        report = {"cannot_meet_alone": [ids[k] for k in info["alone"].tolist()],
-                  "least_total_violation": info["least_total_violation"]}
-        if "short" in info:
-            report.update(commodities=[ids[k] for k in info["short"].tolist()], shortfall=info["shortfall"],
-                          max_delivered=info["max_delivered"], arcs=info["binding"])
-        out["infeasibility"] = report
+        out["infeasibility"] = {
+            "commodities": [ids[k] for k in info["short"].tolist()],
+            "shortfall": info["shortfall"],
+            "max_delivered": info["max_delivered"],
+            "arcs": info["binding"],
+            "cannot_meet_alone": [ids[k] for k in info["alone"].tolist()],
+        }
     elif solution.status == "unbounded":
         out["unbounded"] = {"commodity": ids[solution.unbounded["commodity"]], "arcs": solution.unbounded["arcs"]}
     out["certificate"] = solution.certificate

@@ -27,6 +27,18 @@ _ABSENT = object()
 _NO_TERMS: dict = {}
 
 
+def _numbers(values: list, where, *, allow_null: bool = False):
+    """:func:`number_column` plus a NaN guard (JSON cannot carry NaN, but a body decoded
+    elsewhere can, and NaN passes every comparison)."""
+    col = number_column(values, where, allow_null=allow_null)
+    if col.values.dtype.kind == "f":
+        nan = np.isnan(col.values)
+        if nan.any():
+            idx = np.flatnonzero(nan)[:MAX_REPORTED_ERRORS]
+            raise InputError([FieldError(where(int(i)), "must be a finite number") for i in idx])
+    return col
+
+
 @dataclass
 class LinearModel:
     """A normalised LP: ``opt c.x + constant`` s.t. ``row_lower <= A x <= row_upper`` and bounds."""
@@ -128,7 +140,7 @@ def _bound(records: _Records, name: str, absent: float, null: float) -> np.ndarr
     if name not in records.columns:
         return np.full(records.count, absent)
     values, where = records.columns[name]
-    col = number_column(values, where, allow_null=True)
+    col = _numbers(values, where, allow_null=True)
     out = col.values.astype(np.float64)
     if col.null is not None:
         out[col.null] = null
@@ -248,7 +260,7 @@ def _terms(records: _Records, lookup: dict, base: str) -> _Entries:
 
     values = list(chain.from_iterable(map(dict.values, terms)))
     cols = _columns_of(keys, lookup, at)
-    coef = number_column(values, at).values.astype(np.float64)
+    coef = _numbers(values, at).values.astype(np.float64)
     return _Entries(rows, cols, coef, at)
 
 
@@ -278,7 +290,7 @@ def read_matrix(raw, num_rows: int, num_cols: int, *, max_count: int, base: str 
     rows = _index_column(records, "row", num_rows, "constraints")
     cols = _index_column(records, "column", num_cols, "variables")
     values, at = records.columns["value"]
-    coef = number_column(values, at).values.astype(np.float64)
+    coef = _numbers(values, at).values.astype(np.float64)
     return _Entries(rows, cols, coef, at)
 
 
@@ -313,7 +325,7 @@ def read_objective(objective: dict, lookup: dict, num_cols: int, base: str = "/o
             raise InputError.at(f"{base}/coefficients", "must be a list of numbers aligned with variables")
         if len(dense) != num_cols:
             raise InputError.at(f"{base}/coefficients", f"has {len(dense)} entries; there are {num_cols} variables")
-        return number_column(dense, lambda i: f"{base}/coefficients/{i}").values.astype(np.float64)
+        return _numbers(dense, lambda i: f"{base}/coefficients/{i}").values.astype(np.float64)
     if terms is None:
         raise InputError.at(f"{base}/terms", "is required (or coefficients): the objective is empty")
     if not isinstance(terms, dict):
@@ -326,7 +338,7 @@ def read_objective(objective: dict, lookup: dict, num_cols: int, base: str = "/o
         return pointer(base[1:], "terms", keys[k])
 
     cols = _columns_of(keys, lookup, at)
-    coef = number_column(list(terms.values()), at).values.astype(np.float64)
+    coef = _numbers(list(terms.values()), at).values.astype(np.float64)
     c = np.zeros(num_cols)
     c[cols] = coef
     return c

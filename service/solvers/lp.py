@@ -246,12 +246,13 @@ def tidy(model: LPModel, x: np.ndarray) -> np.ndarray:
     return x
 
 
-def _timed_out() -> LPResult:
+def timed_out() -> LPResult:
     return LPResult("time_limit", certificate={"checked": False, "reason": "the time limit stopped the solver "
                                                                            "before it had an answer to check"})
 
 
-def solve_certified(model: LPModel, *, time_limit: float | None = None, dual_simplex: bool = False) -> LPResult:
+def solve_certified(model: LPModel, *, time_limit: float | None = None, dual_simplex: bool = False,
+                    prove: bool = True) -> LPResult:
     """Solve an LP and certify the answer, whatever its status.
 
     ``optimal`` is certified by primal and dual residuals, the duality gap and
@@ -267,6 +268,10 @@ def solve_certified(model: LPModel, *, time_limit: float | None = None, dual_sim
         Seconds for all solves together; when it runs out the status is ``time_limit``.
     dual_simplex : bool
         See :func:`solve_lp`.
+    prove : bool
+        With False, an ``infeasible`` or ``unbounded`` status is GLOP's word only
+        (``certificate["checked"]`` is False) and the caller must prove it, e.g. with
+        a model-specific bound and :func:`improving_direction`.
 
     Returns
     -------
@@ -279,22 +284,28 @@ def solve_certified(model: LPModel, *, time_limit: float | None = None, dual_sim
     SolverFailure
         GLOP and the proofs disagree in a way no re-solve settles.
     """
-    deadline = None if time_limit is None else time.monotonic() + float(time_limit)
+    deadline = deadline_after(time_limit)
     sol = _solve(model, deadline, dual_simplex=dual_simplex)
     if sol.status == "optimal":
         return _optimal(model, sol)
     if sol.status == "time_limit":
-        return _timed_out()
-    said = sol.status
-    phase1 = _least_violation(model, deadline)
+        return timed_out()
+    if not prove:
+        return LPResult(sol.status, certificate={"checked": False, "reason": "GLOP's status, not yet proved"})
+    phase1 = least_violation(model, deadline)
     if phase1 is None:
-        return _timed_out()
+        return timed_out()
     if phase1.status == "infeasible":
         return phase1
-    start = phase1.x
-    ray = _improving_direction(model, deadline)
+    return settle_feasible(model, phase1.x, deadline, said=sol.status, dual_simplex=dual_simplex)
+
+
+def settle_feasible(model: LPModel, start: np.ndarray, deadline, *, said: str, dual_simplex: bool) -> LPResult:
+    """Finish a model GLOP called infeasible or unbounded that has the feasible point
+    ``start``: unbounded when an improving direction exists, else solved again."""
+    ray = improving_direction(model, deadline)
     if ray is None:
-        return _timed_out()
+        return timed_out()
     if ray is not False:
         certificate = lp_checks.check_unbounded(model, start, ray)
         return LPResult("unbounded", x=start, ray=ray, certificate=certificate)
@@ -303,11 +314,19 @@ def solve_certified(model: LPModel, *, time_limit: float | None = None, dual_sim
     if retry.status == "optimal":
         return _optimal(model, retry)
     if retry.status == "time_limit":
-        return _timed_out()
+        return timed_out()
     raise SolverFailure(f"GLOP reported the model {said}, but it has a feasible point and no improving direction")
 
 
-def _least_violation(model: LPModel, deadline) -> LPResult | None:
+def deadline_after(time_limit: float | None) -> float | None:
+    return None if time_limit is None else time.monotonic() + float(time_limit)
+
+
+def time_left(deadline: float | None) -> float | None:
+    return None if deadline is None else max(0.0, deadline - time.monotonic())
+
+
+def least_violation(model: LPModel, deadline) -> LPResult | None:
     """Minimise the total violation of the rows (columns keep their bounds).
 
     Returns an ``infeasible`` result when the certified least violation exceeds the
@@ -347,7 +366,7 @@ def _least_violation(model: LPModel, deadline) -> LPResult | None:
     return LPResult("optimal", x=x)
 
 
-def _improving_direction(model: LPModel, deadline):
+def improving_direction(model: LPModel, deadline):
     """An improving direction of the recession cone, ``False`` when none, None on time out.
 
     The direction model keeps only the homogeneous part of every finite bound and
