@@ -27,6 +27,11 @@ Every answer carries a `certificate`: the service's own check of the solution
 fields. Node ids are strings (1-200 characters) or non-negative integers, one kind per
 payload. A capacity of `null` (or an absent capacity) means no limit.
 
+Linear programs (`/v1/lp`) and multi-commodity flow (`/v1/multicommodity`) run on
+GLOP. One sign convention for every dual and reduced cost: the change of the
+objective per unit increase of the active bound (right-hand side), the same for `min`
+and `max`. A capacity price is what one more unit of a lane's capacity is worth (>= 0).
+
 Deviation from the draft contract: a request whose Content-Type is not JSON gets
 415 Unsupported Media Type (RFC 9110), not 400.
 
