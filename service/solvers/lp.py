@@ -25,7 +25,7 @@ import numpy as np
 import scipy.sparse as sp
 from ortools.linear_solver.python import model_builder_helper as mbh
 
-from ..errors import SolverFailure
+from ..errors import SelfCheckFailed, SolverFailure
 from . import lp_checks
 from .versions import ORTOOLS_VERSION
 
@@ -227,22 +227,27 @@ def _solve(model: LPModel, deadline, **kwargs) -> LPSolution:
 
 def _optimal(model: LPModel, sol: LPSolution) -> LPResult:
     x = tidy(model, sol.x)
-    certificate = lp_checks.check_optimal(model, x, sol.row_duals, sol.reduced_costs, sol.objective)
-    return LPResult("optimal", certificate["primal_objective"], x, sol.row_duals, sol.reduced_costs,
-                    certificate=certificate)
+    y, d = _near_integers(sol.row_duals), _near_integers(sol.reduced_costs)
+    try:
+        certificate = lp_checks.check_optimal(model, x, y, d, sol.objective)
+    except SelfCheckFailed:  # the tidied duals must never be what fails: check GLOP's own
+        y, d = sol.row_duals, sol.reduced_costs
+        certificate = lp_checks.check_optimal(model, x, y, d, sol.objective)
+    return LPResult("optimal", certificate["primal_objective"], x, y, d, certificate=certificate)
+
+
+def _near_integers(v: np.ndarray) -> np.ndarray:
+    near = np.rint(v)
+    return np.where(np.abs(v - near) <= TIDY * (1.0 + np.abs(v)), near, v) + 0.0
 
 
 def tidy(model: LPModel, x: np.ndarray) -> np.ndarray:
     """Round values within 1e-9 (relative) of an integer to it, e.g. 49.99999999999999
     to 50, unless that makes the solution less feasible. The certificate then checks
     the tidied values, so nothing unchecked is returned."""
-    near = np.rint(x)
-    snap = np.abs(x - near) <= TIDY * (1.0 + np.abs(x))
-    if not snap.any():
-        return x
-    tidied = np.where(snap, near, x)
+    tidied = _near_integers(x)
     if lp_checks.primal_residual(model, tidied) <= lp_checks.primal_residual(model, x):
-        return tidied + 0.0  # + 0.0 turns -0.0 into 0.0
+        return tidied
     return x
 
 

@@ -33,7 +33,7 @@ from ..errors import SelfCheckFailed
 #: Relative tolerance of every LP check.
 REL = 1e-6
 #: Largest dense block (entries) used to prove full rank when the active system is not square.
-DENSE_RANK_LIMIT = 4_000_000
+DENSE_RANK_LIMIT = 250_000
 
 
 def _fail(what: str) -> None:
