@@ -53,9 +53,16 @@ def linprog_solve(model: dict):
     sign = -1.0 if model["maximize"] else 1.0
     bounds = [(None if not np.isfinite(l) else l, None if not np.isfinite(u) else u)
               for l, u in zip(model["col_lower"], model["col_upper"])]
-    res = linprog(sign * model["c"], A_ub=a_ub if a_ub.size else None, b_ub=b_ub if a_ub.size else None,
-                  A_eq=A[eq] if eq.any() else None, b_eq=rl[eq] if eq.any() else None, bounds=bounds,
-                  method="highs")
+    def run(options):
+        return linprog(sign * model["c"], A_ub=a_ub if a_ub.size else None, b_ub=b_ub if a_ub.size else None,
+                       A_eq=A[eq] if eq.any() else None, b_eq=rl[eq] if eq.any() else None, bounds=bounds,
+                       method="highs", options=options)
+
+    res = run({})
+    if res.status in (2, 3):
+        # HiGHS's presolve, like GLOP's, can call an unbounded model infeasible (seen in
+        # test_lp_solver.py); without presolve the simplex tells them apart.
+        res = run({"presolve": False})
     objective = sign * res.fun if res.status == 0 else None
     return res, objective
 

@@ -89,5 +89,5 @@ def test_uniqueness_needs_full_rank():
                     np.ones(2), np.zeros(2), np.full(2, INF), maximize=True)
     x = np.array([0.5, 0.5])
     act = model.matrix @ x
-    unique, degenerate = lp_checks.duals_uniqueness(model, x, np.array([0.5, 0.5]), act, 1e-9, 1e-9)
+    unique, degenerate = lp_checks.duals_uniqueness(model, x, np.array([0.5, 0.5]), act, 1e-9, 1e-9, 1e-9)
     assert unique is False and degenerate is False

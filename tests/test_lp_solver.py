@@ -237,7 +237,8 @@ def test_primal_and_dual_infeasible_model_is_infeasible():
     assert linprog_solve(model)[0].status == 2
     result = solve_certified(lp_model(model))
     assert result.status == "infeasible"
-    assert result.certificate["least_total_violation"] == pytest.approx(2)
+    # the rows cannot both hold: 2 units short in total, each relative to 1 + |1|
+    assert result.certificate["least_total_violation"] == pytest.approx(2 / 2)
     assert sorted(result.conflict_rows.tolist()) == [0, 1]
 
 
@@ -272,3 +273,37 @@ def test_time_limit_status():
     result = solve_certified(model, time_limit=0.01)  # the full solve takes about 2 s here
     assert result.status == "time_limit"
     assert result.certificate["checked"] is False
+
+
+def test_infeasibility_in_small_units_next_to_a_big_row():
+    """x >= 3 and x <= 2 written in thousandths (0.001 x >= 0.003, 0.001 x <= 0.002) next
+    to a row with bound 1e5: the violation, 0.001 in absolute terms, is large for its own
+    row. A tolerance taken from the biggest row (1e-6 x 1e5 = 0.1) would call it feasible."""
+    model = model_of([1, 1], [[1000, 0], [0, 0.001], [0, 0.001]], [-INF, 0.003, -INF], [1e5, INF, 0.002],
+                     [0, 0], [INF, INF], True)
+    assert linprog_solve(model)[0].status == 2
+    result = solve_certified(lp_model(model))
+    assert result.status == "infeasible"
+    assert sorted(result.conflict_rows.tolist()) == [1, 2]
+
+
+@pytest.mark.parametrize("seed", range(30))
+def test_badly_scaled_models_against_scipy_highs(seed):
+    """Rows scaled by 1e-3..1e3 and variables by 1e-2..1e2 (the same models in other
+    units): same status and objective as scipy HiGHS wherever HiGHS answers."""
+    rng = np.random.default_rng(2000 + seed)
+    n, m = int(rng.integers(2, 30)), int(rng.integers(1, 30))
+    model = random_model(rng, n, m, maximize=bool(seed % 2), feasible=seed % 5 != 0)
+    rows = 10.0 ** rng.integers(-3, 4, size=model["A"].shape[0])
+    cols = 10.0 ** rng.integers(-2, 3, size=n)
+    model["A"] = model["A"] * rows[:, None] / cols
+    model["row_lower"], model["row_upper"] = model["row_lower"] * rows, model["row_upper"] * rows
+    model["c"] = model["c"] * 10.0 ** rng.integers(-3, 5) / cols
+    model["col_lower"], model["col_upper"] = model["col_lower"] * cols, model["col_upper"] * cols
+    res, objective = linprog_solve(model)
+    if res.status == 4:
+        pytest.skip("HiGHS reports numerical difficulties: no reference answer")
+    result = solve_certified(lp_model(model))
+    assert result.status == {0: "optimal", 2: "infeasible", 3: "unbounded"}[res.status]
+    if res.status == 0:
+        assert result.objective == pytest.approx(objective, rel=1e-6, abs=1e-6)

@@ -95,13 +95,6 @@ class LPRequest(Schema):
     options = fields.Nested(LPOptions, load_default=lambda: LPOptions().load({}))
 
 
-class LPTolerance(Schema):
-    primal = fields.Float()
-    dual = fields.Float()
-    gap = fields.Float()
-    direction = fields.Float()
-
-
 class LPCertificate(Schema):
     checked = StrictBoolean(metadata={"description": "True when the service verified the answer below."})
     primal_residual = fields.Float(metadata={"description": "Largest violation of a constraint or bound, "
@@ -121,13 +114,22 @@ class LPCertificate(Schema):
     degenerate = fields.Boolean(metadata={"description": "The solution has fewer variables strictly inside "
                                                          "their bounds than active constraints."})
     least_total_violation = fields.Float(metadata={"description": "Infeasible: a proven lower bound on the "
-                                                                  "total violation of the constraints."})
+                                                                  "total violation of the constraints, each "
+                                                                  "relative to 1 + |its bound| (the dual "
+                                                                  "objective of a least-violation model)."})
     direction_residual = fields.Float()
     improvement_per_step = fields.Float(metadata={"description": "Unbounded: objective gain per unit step "
                                                                  "along the ray."})
-    tolerance = fields.Raw(metadata={"type": ["object", "number"],
-                                     "description": "Absolute tolerances the checks used (1e-6 relative to "
-                                                    "the scale of the figures)."})
+    primal_residual_relative = fields.Float(metadata={"description": "Largest violation relative to 1 + the "
+                                                                     "row's bound + the magnitude of its terms "
+                                                                     "(checked <= tolerance.relative)."})
+    dual_residual_relative = fields.Float(metadata={"description": "Largest dual infeasibility relative to the "
+                                                                   "magnitude of its terms (checked <= "
+                                                                   "tolerance.relative)."})
+    tolerance = fields.Raw(metadata={"type": "object",
+                                     "description": "relative: the bound on the relative residuals (1e-6); gap: "
+                                                    "the absolute bound on the gap and on each complementarity "
+                                                    "product; dual: the size below which a dual is noise."})
     reason = fields.String()
 
 

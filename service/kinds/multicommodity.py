@@ -89,7 +89,8 @@ class MultiCommodityCertificate(Schema):
                                                             "provably unique."})
     degenerate = fields.Boolean()
     total_demand = fields.Float(metadata={"description": "Infeasible: the demand to meet."})
-    tolerance = fields.Raw(metadata={"type": ["object", "number"]})
+    tolerance = fields.Float(metadata={"description": "Absolute tolerance of the flow checks (1e-6 relative to "
+                                                      "the largest capacity or demand)."})
     reason = fields.String()
 
 

@@ -332,18 +332,25 @@ def time_left(deadline: float | None) -> float | None:
 
 
 def least_violation(model: LPModel, deadline) -> LPResult | None:
-    """Minimise the total violation of the rows (columns keep their bounds).
+    """Minimise the total violation of the rows, each relative to its bound: the sum
+    of ``|violation_i| / (1 + |bound_i|)`` (variables keep their bounds).
 
-    Returns an ``infeasible`` result when the certified least violation exceeds the
-    primal tolerance, an ``optimal`` one whose ``x`` is a feasible point otherwise,
-    or None on time out.
+    Returns an ``optimal`` result whose ``x`` is feasible within the checks'
+    tolerance, an ``infeasible`` one when no such point was found and the model's
+    certified dual bound proves the least violation positive, or None on time out.
+
+    Raises
+    ------
+    SolverFailure
+        Neither: the model sits on the edge of feasibility, too close to call.
     """
     m, n = model.num_rows, model.num_cols
     bounded = np.flatnonzero(np.isfinite(model.row_lower) | np.isfinite(model.row_upper))
     k = bounded.size
+    weight = 1.0 / (1.0 + lp_checks._bound_scale(model.row_lower, model.row_upper)[bounded])
     eye = sp.csr_matrix((np.ones(k), (bounded, np.arange(k))), shape=(m, k))
     elastic = LPModel(
-        c=np.concatenate([np.zeros(n), np.ones(2 * k)]),
+        c=np.concatenate([np.zeros(n), weight, weight]),
         matrix=sp.hstack([model.matrix, eye, -eye], format="csr"),
         row_lower=model.row_lower, row_upper=model.row_upper,
         col_lower=np.concatenate([model.col_lower, np.zeros(2 * k)]),
@@ -356,19 +363,20 @@ def least_violation(model: LPModel, deadline) -> LPResult | None:
         raise SolverFailure(f"GLOP reported the least-violation model {sol.status}; it is always feasible and bounded")
     inner = lp_checks.check_optimal(elastic, sol.x, sol.row_duals, sol.reduced_costs, sol.objective)
     x = sol.x[:n]
-    tol = lp_checks.primal_tolerance(model, x)
+    if lp_checks.relative_primal_residual(model, x) <= lp_checks.REL:
+        return LPResult("optimal", x=x)
     bound = inner["dual_objective"]
-    if bound > tol:
-        d_tol = inner["tolerance"]["dual"]
-        rows = np.flatnonzero(np.abs(sol.row_duals) > d_tol)
-        cols = np.flatnonzero(np.abs(sol.reduced_costs[:n]) > d_tol)
-        certificate = {"checked": True, "least_total_violation": bound, "tolerance": tol,
-                       "primal_residual": inner["primal_residual"], "dual_residual": inner["dual_residual"],
-                       "gap": inner["gap"]}
-        return LPResult("infeasible", conflict_rows=rows, conflict_cols=cols, certificate=certificate)
-    if lp_checks.primal_residual(model, x) > tol:
-        raise SolverFailure("the least-violation point is not feasible although its violation is within tolerance")
-    return LPResult("optimal", x=x)
+    if bound <= inner["tolerance"]["gap"]:
+        raise SolverFailure("the model is on the edge of feasibility: no point within tolerance was found, "
+                            "yet no positive least violation could be proved")
+    d_tol = inner["tolerance"]["dual"]
+    rows = np.flatnonzero(np.abs(sol.row_duals) > d_tol)
+    cols = np.flatnonzero(np.abs(sol.reduced_costs[:n]) > d_tol)
+    certificate = {"checked": True, "least_total_violation": bound, "tolerance": {"relative": lp_checks.REL,
+                                                                                  "gap": inner["tolerance"]["gap"]},
+                   "primal_residual": inner["primal_residual"], "dual_residual": inner["dual_residual"],
+                   "gap": inner["gap"]}
+    return LPResult("infeasible", conflict_rows=rows, conflict_cols=cols, certificate=certificate)
 
 
 def improving_direction(model: LPModel, deadline):

@@ -18,8 +18,12 @@ where ``D = constant + y.beta + d.lambda`` is the dual objective, ``beta`` and
 sums has the sign of ``s``: that is weak duality, and at an optimum each is zero
 (complementary slackness), so the gap is zero too.
 
-Tolerances are relative (``REL``) to the scale of the figures they bound, and every
-certificate reports the absolute tolerances it used.
+Tolerances are relative: each row's violation is measured against 1 + its bound +
+the magnitude of its terms, each variable's against 1 + its bound + its value, each
+reduced cost against 1 + |c_j| + the magnitude of its column's dual terms, and must
+stay within ``REL``; the gap and complementarity products against the magnitude of
+the objective's terms. Certificates report the absolute figures and the relative
+ones that were checked.
 """
 
 from __future__ import annotations
@@ -63,24 +67,47 @@ def bound_violation(values: np.ndarray, lower: np.ndarray, upper: np.ndarray) ->
     return np.nan_to_num(v, nan=0.0)
 
 
-def primal_residual(model, x: np.ndarray) -> float:
-    """Largest violation of any row or variable bound by ``x``."""
+def _bound_scale(lower: np.ndarray, upper: np.ndarray) -> np.ndarray:
+    """Per entry, the larger magnitude of its finite bounds (0 when it has none)."""
+    lo = np.where(np.isfinite(lower), np.abs(lower), 0.0)
+    up = np.where(np.isfinite(upper), np.abs(upper), 0.0)
+    return np.maximum(lo, up)
+
+
+def primal_violations(model, x: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Per row and per variable, how far ``x`` lies outside the bounds (0 inside)."""
     act = model.matrix @ x
-    return max(_max(bound_violation(act, model.row_lower, model.row_upper)),
-               _max(bound_violation(x, model.col_lower, model.col_upper)))
+    return (bound_violation(act, model.row_lower, model.row_upper),
+            bound_violation(x, model.col_lower, model.col_upper))
 
 
-def primal_tolerance(model, x: np.ndarray) -> float:
-    """``REL`` times the scale of the bounds and of the row activities' terms."""
-    terms = abs(model.matrix) @ np.abs(x)
-    scale = max(_finite_max(model.row_lower, model.row_upper, model.col_lower, model.col_upper),
-                _max(terms), _max(np.abs(x)))
-    return REL * (1.0 + scale)
+def primal_scales(model, x: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """What each violation is measured against: 1 + the row's bound + sum |a_ij x_j|
+    (per row), 1 + the variable's bound + |x_j| (per variable). A tolerance relative to
+    each row's own magnitudes, so a row written in small units is held as tightly as
+    any other."""
+    rows = 1.0 + _bound_scale(model.row_lower, model.row_upper) + abs(model.matrix) @ np.abs(x)
+    cols = 1.0 + _bound_scale(model.col_lower, model.col_upper) + np.abs(x)
+    return rows, cols
+
+
+def primal_residual(model, x: np.ndarray) -> float:
+    """Largest violation of any row or variable bound by ``x`` (absolute)."""
+    rows, cols = primal_violations(model, x)
+    return max(_max(rows), _max(cols))
+
+
+def relative_primal_residual(model, x: np.ndarray) -> float:
+    """Largest violation relative to its scale (see :func:`primal_scales`)."""
+    rows, cols = primal_violations(model, x)
+    s_rows, s_cols = primal_scales(model, x)
+    return max(_max(rows / s_rows), _max(cols / s_cols))
 
 
 def dual_tolerance(model, y: np.ndarray) -> float:
+    """An absolute figure below which a dual or reduced cost is noise."""
     terms = abs(model.matrix).T @ np.abs(y)
-    return REL * (1.0 + max(_max(np.abs(model.c)), _max(terms)))
+    return REL * (1.0 + max(_max(np.abs(model.c)), _max(terms), _max(np.abs(y))))
 
 
 def _pointed(duals: np.ndarray, lower: np.ndarray, upper: np.ndarray, s: float):
@@ -108,26 +135,35 @@ def check_optimal(model, x, y, d_solver, objective_solver) -> dict:
     Returns
     -------
     dict
-        ``checked``, ``primal_residual``, ``dual_residual``, ``gap``,
-        ``complementarity``, ``primal_objective``, ``dual_objective``,
-        ``duals_unique``, ``degenerate``, ``tolerance`` {primal, dual, gap}.
+        ``checked``, ``primal_residual`` and ``dual_residual`` (absolute, largest),
+        their relative forms, ``gap``, ``complementarity``, ``primal_objective``,
+        ``dual_objective``, ``duals_unique``, ``degenerate``, ``tolerance``.
 
     Raises
     ------
     SelfCheckFailed
-        A residual, the gap or a complementarity product exceeds its tolerance.
+        A relative residual exceeds ``REL``, or the gap or a complementarity product
+        exceeds the gap tolerance.
     """
+    if not np.all(np.isfinite(x)) or not np.all(np.isfinite(y)):
+        _fail("the LP answer holds a non-finite number")
     s = sense(model)
     A = model.matrix
     act = A @ x
-    p_res = primal_residual(model, x)
-    tp = primal_tolerance(model, x)
+    v_rows, v_cols = primal_violations(model, x)
+    s_rows, s_cols = primal_scales(model, x)
+    p_abs = max(_max(v_rows), _max(v_cols))
+    p_rel = max(_max(v_rows / s_rows), _max(v_cols / s_cols))
     d = model.c - A.T @ y
     beta, bad_rows = _pointed(y, model.row_lower, model.row_upper, s)
     lam, bad_cols = _pointed(d, model.col_lower, model.col_upper, s)
-    d_res = max(_max(np.abs(y[bad_rows])), _max(np.abs(d[bad_cols])),
-                _max(np.abs(d - d_solver)) if d_solver is not None else 0.0)
-    td = dual_tolerance(model, y)
+    # Per variable, dual figures are measured against 1 + |c_j| + sum_i |a_ij y_i|;
+    # a row dual pointing at a missing bound against 1 + the largest dual.
+    t_cols = 1.0 + np.abs(model.c) + abs(A).T @ np.abs(y)
+    t_rows = 1.0 + _max(np.abs(y))
+    mismatch = np.abs(d - d_solver) if d_solver is not None else np.zeros_like(d)
+    d_abs = max(_max(np.abs(y[bad_rows])), _max(np.abs(d[bad_cols])), _max(mismatch))
+    d_rel = max(_max(np.abs(y[bad_rows])) / t_rows, _max((np.abs(d) * bad_cols) / t_cols), _max(mismatch / t_cols))
     primal = float(model.c @ x) + model.constant
     dual = float(y @ beta + d @ lam) + model.constant
     gap = abs(primal - dual)
@@ -135,34 +171,34 @@ def check_optimal(model, x, y, d_solver, objective_solver) -> dict:
                 + float(np.abs(d) @ np.abs(lam)))
     comp = max(_max(np.abs(y) * np.abs(act - beta) * ~bad_rows * (y != 0)),
                _max(np.abs(d) * np.abs(x - lam) * ~bad_cols * (d != 0)))
-    if not np.all(np.isfinite(x)) or not np.all(np.isfinite(y)):
-        _fail("the LP answer holds a non-finite number")
-    if p_res > tp:
-        _fail(f"the LP solution violates a constraint or bound by {p_res:g} (tolerance {tp:g})")
-    if d_res > td:
-        _fail(f"the LP duals are infeasible by {d_res:g} (tolerance {td:g})")
+    if p_rel > REL:
+        _fail(f"the LP solution violates a constraint or bound by {p_abs:g} ({p_rel:g} relative)")
+    if d_rel > REL:
+        _fail(f"the LP duals are infeasible by {d_abs:g} ({d_rel:g} relative)")
     if gap > tg:
         _fail(f"the LP duality gap is {gap:g} (tolerance {tg:g})")
     if comp > tg:
         _fail(f"complementary slackness fails by {comp:g} (tolerance {tg:g})")
     if objective_solver is not None and abs(objective_solver + model.constant - primal) > tg:
         _fail(f"the solver's objective {objective_solver:g} differs from c.x = {primal - model.constant:g}")
-    unique, degenerate = duals_uniqueness(model, x, y, act, tp, td)
+    unique, degenerate = duals_uniqueness(model, x, y, act, REL * s_rows, REL * s_cols, dual_tolerance(model, y))
     return {
         "checked": True,
-        "primal_residual": p_res,
-        "dual_residual": d_res,
+        "primal_residual": p_abs,
+        "primal_residual_relative": p_rel,
+        "dual_residual": d_abs,
+        "dual_residual_relative": d_rel,
         "gap": gap,
         "complementarity": comp,
         "primal_objective": primal,
         "dual_objective": dual,
         "duals_unique": unique,
         "degenerate": degenerate,
-        "tolerance": {"primal": tp, "dual": td, "gap": tg},
+        "tolerance": {"relative": REL, "gap": tg, "dual": dual_tolerance(model, y)},
     }
 
 
-def duals_uniqueness(model, x, y, act, tp, td) -> tuple[bool, bool]:
+def duals_uniqueness(model, x, y, act, tp_rows, tp_cols, td) -> tuple[bool, bool]:
     """Whether the duals are provably the only optimal ones, and whether ``x`` is degenerate.
 
     Every optimal dual must vanish on rows strictly inside their bounds and give a
@@ -172,13 +208,20 @@ def duals_uniqueness(model, x, y, act, tp, td) -> tuple[bool, bool]:
     fewer interior variables than active rows is degenerate: some basic variable
     sits at a bound, and other duals may be equally optimal.
 
+    Parameters
+    ----------
+    tp_rows, tp_cols : ndarray or float
+        How far inside its bounds a row activity or variable must be to count as inside.
+    td : float
+        Agreement asked of the duals recomputed from the active system.
+
     Returns
     -------
     (duals_unique, degenerate)
     """
     with np.errstate(invalid="ignore"):
-        inactive = (act - model.row_lower > tp) & (model.row_upper - act > tp)
-        interior = (x - model.col_lower > tp) & (model.col_upper - x > tp)
+        inactive = (act - model.row_lower > tp_rows) & (model.row_upper - act > tp_rows)
+        interior = (x - model.col_lower > tp_cols) & (model.col_upper - x > tp_cols)
     rows = np.flatnonzero(~inactive)
     cols = np.flatnonzero(interior)
     if rows.size == 0:
@@ -221,8 +264,8 @@ def check_unbounded(model, start: np.ndarray, direction: np.ndarray) -> dict:
         does not improve.
     """
     p_res = primal_residual(model, start)
-    tp = primal_tolerance(model, start)
-    if p_res > tp:
+    p_rel = relative_primal_residual(model, start)
+    if p_rel > REL:
         _fail(f"the unbounded model's start point violates a constraint by {p_res:g}")
     finite = np.isfinite
     zero_l = np.where(finite(model.row_lower), 0.0, -np.inf)
@@ -230,12 +273,14 @@ def check_unbounded(model, start: np.ndarray, direction: np.ndarray) -> dict:
     col_l = np.where(finite(model.col_lower), 0.0, -np.inf)
     col_u = np.where(finite(model.col_upper), 0.0, np.inf)
     move = model.matrix @ direction
-    r_res = max(_max(bound_violation(move, zero_l, zero_u)), _max(bound_violation(direction, col_l, col_u)))
-    tr = REL * (1.0 + _max(abs(model.matrix) @ np.abs(direction)))
-    if r_res > tr:
+    v_rows = bound_violation(move, zero_l, zero_u)
+    v_cols = bound_violation(direction, col_l, col_u)
+    r_res = max(_max(v_rows), _max(v_cols))
+    r_rel = max(_max(v_rows / (1.0 + abs(model.matrix) @ np.abs(direction))), _max(v_cols))
+    if r_rel > REL:
         _fail(f"the improving direction leaves a finite bound by {r_res:g} per unit step")
     rate = improvement_rate(model, direction)
     if rate <= rate_tolerance(model):
         _fail("the direction does not improve the objective")
-    return {"checked": True, "primal_residual": p_res, "direction_residual": r_res,
-            "improvement_per_step": rate, "tolerance": {"primal": tp, "direction": tr}}
+    return {"checked": True, "primal_residual": p_res, "primal_residual_relative": p_rel,
+            "direction_residual": r_res, "improvement_per_step": rate, "tolerance": {"relative": REL}}
