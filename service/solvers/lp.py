@@ -12,7 +12,7 @@ of the objective per unit increase of the row's active bound, and a variable's
 reduced cost is the change of the objective per unit increase of the variable's
 active bound; the same for ``min`` and ``max``. Measured on OR-Tools 9.15: the duals
 and reduced costs GLOP returns through ``model_builder_helper`` already follow it in
-both senses and on both bound sides (``tests/test_lp_signs.py`` pins this, against
+both senses and on both bound sides (``tests/test_lp_solver.py`` pins this, against
 finite differences and scipy's marginals), so no sign is flipped here.
 """
 
