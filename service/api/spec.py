@@ -30,6 +30,11 @@ Every answer carries a `certificate`: the service's own check of the solution
 fields. Node ids are strings (1-200 characters) or non-negative integers, one kind per
 payload. A capacity of `null` (or an absent capacity) means no limit.
 
+Linear programs (`/v1/lp`) and multi-commodity flow (`/v1/multicommodity`) run on
+GLOP. One sign convention for every dual and reduced cost: the change of the
+objective per unit increase of the active bound (right-hand side), the same for `min`
+and `max`. A capacity price is what one more unit of a lane's capacity is worth (>= 0).
+
 Results are cached by problem digest (the normalised problem, the answer-changing
 options and the solver version). `options.cache`: `use` (default: answer from the cache
 when possible), `refresh` (solve again and overwrite), `bypass` (neither read nor
@@ -155,7 +160,17 @@ def build_spec() -> dict:
         "operationId": "openapi", "summary": "This document.",
         "responses": {"200": {"description": "The OpenAPI document.",
                               "content": {"application/json": {"schema": {"type": "object"}}}}}}})
-    return spec.to_dict()
+    return _drop_null_defaults(spec.to_dict())
+
+
+def _drop_null_defaults(node):
+    """Remove ``default: null`` (from ``load_default=None``, meaning "absent"): a default
+    must validate against its schema, and null does not for most of these fields."""
+    if isinstance(node, dict):
+        return {k: _drop_null_defaults(v) for k, v in node.items() if not (k == "default" and v is None)}
+    if isinstance(node, list):
+        return [_drop_null_defaults(v) for v in node]
+    return node
 
 
 @lru_cache(maxsize=None)

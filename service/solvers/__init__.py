@@ -10,11 +10,19 @@ maximum_flow
     Max-flow with a minimum cut, on the graph engine (exact integers, or exact
     decimal scaling) or the LP engine (GLOP, stated tolerance).
 MaxFlowSolution
+solve_certified, LPModel, LPResult
+    A linear program on GLOP, certified whatever its status (optimal: residuals, gap,
+    complementary slackness; infeasible and unbounded: proofs of their own).
+multicommodity_flow
+    Commodities sharing arc capacities: min-cost or max-throughput, capacity prices.
 """
 
 from __future__ import annotations
 
 from .front import EngineChoice, maximum_flow
+from .lp import LPModel, LPResult, solve_certified
 from .maxflow_graph import MaxFlowSolution
+from .multicommodity import multicommodity_flow
 
 __all__ = ["EngineChoice", "MaxFlowSolution", "maximum_flow"]
+__all__ += ["LPModel", "LPResult", "multicommodity_flow", "solve_certified"]

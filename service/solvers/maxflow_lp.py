@@ -12,7 +12,7 @@ from scipy.sparse.csgraph import breadth_first_order
 
 from .lp import incidence_matrix, solve_lp
 from .maxflow_graph import MaxFlowSolution, graph_engine, unlimited_path
-from ..errors import SolverFailure
+from ..errors import SolverFailure, SolveTimeout
 
 LP_TOLERANCE = 1e-6
 
@@ -44,6 +44,8 @@ def max_flow_lp(num_nodes, tail, head, capacity, unlimited, source, sink, *, tim
     c[m] = 1.0
     lp = solve_lp(c, matrix, zeros, zeros, np.zeros(m + 1), np.append(upper, np.inf), maximize=True,
                   time_limit=time_limit)
+    if lp.status == "time_limit":
+        raise SolveTimeout("the LP engine reached the time limit before the maximum flow")
     if lp.status != "optimal":
         raise SolverFailure(f"GLOP returned {lp.status} for a bounded max-flow model")
     scale = max(1.0, float(cap.max()) if m else 1.0)
