@@ -47,7 +47,11 @@ class RunningServer:
             [sys.executable, "-m", "service.cli", "serve", "--port", str(self.port), "--workers", str(workers)],
             cwd=ROOT, env=full_env, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE,
         )
-        self._wait_ready()
+        try:
+            self._wait_ready()
+        except BaseException:
+            self.stop()  # never leave an orphan server behind a failed start
+            raise
 
     def _wait_ready(self, timeout: float = 30.0) -> None:
         deadline = time.monotonic() + timeout
@@ -57,7 +61,8 @@ class RunningServer:
             try:
                 if requests.get(self.url + "/healthz", timeout=1).status_code == 200:
                     return
-            except requests.ConnectionError:
+            except (requests.ConnectionError, requests.Timeout):
+                # A booting worker leaves the connection accepted but unanswered.
                 time.sleep(0.1)
         self.stop()
         raise RuntimeError("sluice serve did not become healthy in time")

@@ -24,13 +24,31 @@ def _tiny_solve_ok() -> bool:
     return solution.value == 1
 
 
+def _job_checks() -> dict:
+    jobs = current_app.extensions.get("sluice.jobs")
+    if jobs is None:
+        return {}
+    name = "redis" if current_app.extensions["sluice"].settings.redis_url else "jobs_store"
+    return {name: jobs.health()}
+
+
 @bp.get("/readyz")
 def readyz():
-    """The solvers answer a tiny problem correctly."""
-    checks = {"solver": "ok" if _tiny_solve_ok() else "failed"}
-    ready = all(v == "ok" for v in checks.values())
-    return json_response({"status": "ready" if ready else "not ready", "checks": checks},
-                         200 if ready else 503, headers=None if ready else {"Retry-After": "5"})
+    """The solvers answer a tiny problem correctly; the job store (or Redis) answers.
+
+    Only a failed solver makes the instance unready (503). A job store or Redis that
+    does not answer makes it ``degraded`` (200): synchronous solves still answer, so the
+    instance stays in rotation, while job requests answer 503 until it is back.
+    """
+    checks = {"solver": "ok" if _tiny_solve_ok() else "failed", **_job_checks()}
+    if checks["solver"] != "ok":
+        status, code = "not ready", 503
+    elif any(v != "ok" for v in checks.values()):
+        status, code = "degraded", 200
+    else:
+        status, code = "ready", 200
+    return json_response({"status": status, "checks": checks},
+                         code, headers=None if code == 200 else {"Retry-After": "5"})
 
 
 @bp.get("/openapi.json")

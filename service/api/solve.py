@@ -7,6 +7,8 @@ from time import perf_counter
 from flask import Blueprint, current_app
 
 from ..kinds import KINDS, Kind, Limits
+from . import jobs
+from .bounded import bounded_solve
 from .jsonio import json_response, read_json_body
 
 bp = Blueprint("solve", __name__, url_prefix="/v1")
@@ -21,12 +23,14 @@ def solve_request(kind: Kind, body) -> tuple[dict, float, float]:
     started = perf_counter()
     problem = kind.parse(body, limits())
     parsed = perf_counter()
-    result = kind.solve(problem, limits())
+    result = bounded_solve(kind, problem, limits())
     return result, parsed - started, perf_counter() - parsed
 
 
 def _make_view(kind: Kind):
     def view():
+        if jobs.prefers_async():  # Prefer: respond-async (RFC 7240): 202 and a job
+            return jobs.submit(kind, read_json_body())
         started = perf_counter()
         body = read_json_body()
         result, parse_s, solve_s = solve_request(kind, body)
