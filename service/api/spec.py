@@ -16,6 +16,7 @@ from apispec.ext.marshmallow import MarshmallowPlugin
 from marshmallow import Schema, fields
 
 from .. import __version__
+from .spec_ops import OPS_DESCRIPTION, register as register_ops, solve_extras
 from ..kinds import KINDS
 from ..model.schemas import ArcColumnsSchema, ArcSchema, ArcsField, NodeId, NodesField, StrictBoolean, StrictNumber
 
@@ -88,12 +89,14 @@ def build_spec() -> dict:
         version=__version__,
         openapi_version="3.1.0",
         plugins=[plugin],
-        info={"description": DESCRIPTION},
+        info={"description": DESCRIPTION + "\n" + OPS_DESCRIPTION},
     )
     plugin.converter.add_attribute_function(_field_attributes)
     spec.components.schema("Problem", schema=ProblemSchema)
     spec.components.schema("Arc", schema=ArcSchema)
     spec.components.schema("ArcColumns", schema=ArcColumnsSchema)
+    register_ops(spec)
+    extras = solve_extras()
     for kind in KINDS.values():
         title = kind.name.capitalize() if kind.name.islower() else kind.name
         spec.components.schema(f"{title}Request", schema=kind.request_schema)
@@ -103,11 +106,13 @@ def build_spec() -> dict:
             operations={"post": {
                 "operationId": f"solve_{kind.name}",
                 "summary": kind.summary,
+                "security": [{"bearer": []}, {}],
+                "parameters": extras["parameters"],
                 "requestBody": {"required": True, "content": {"application/json": {
                     "schema": f"{title}Request", "example": _example(kind.example)}}},
                 "responses": {"200": {"description": "Solved (status says optimal, infeasible or unbounded).",
                                       "content": {"application/json": {"schema": f"{title}Response"}}},
-                              **_problem_responses()},
+                              **_problem_responses(), **extras["responses"]},
             }},
         )
     health = {"application/json": {"schema": HealthSchema}}
