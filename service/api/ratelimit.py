@@ -27,7 +27,7 @@ def _exempt() -> bool:
 
 
 def _breach(limit: RequestLimit):
-    wait = max(1, math.ceil(limit.reset_at - time.time()))
+    wait = max(1, math.ceil(limit.window[0] - time.time()))  # reset_at adds a second
     return problem_response(
         429, "rate-limited", "Too many requests",
         f"the limit of {limit.limit} for this tenant is used up; retry in {wait} s",
