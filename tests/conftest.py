@@ -82,3 +82,35 @@ def server(tmp_path_factory):
     srv = RunningServer(data_dir=str(tmp_path_factory.mktemp("server-data")))
     yield srv
     srv.stop()
+
+
+# -- Redis -------------------------------------------------------------------------
+# The Redis tests use the real server on 127.0.0.1:6379 (no fake in its place). When it
+# does not answer they skip with the reason, except under CI=true, where a missing
+# Redis fails the run (.ci/run starts one first).
+
+REDIS_URL = os.environ.get("SLUICE_TEST_REDIS_URL") or "redis://127.0.0.1:6379/0"
+
+
+def redis_problem(url: str) -> str | None:
+    """None when Redis answers PING at ``url``, else why not."""
+    import redis
+
+    try:
+        client = redis.Redis.from_url(url, socket_connect_timeout=1, socket_timeout=2)
+        client.ping()
+        client.close()
+    except redis.RedisError as exc:
+        return f"{exc.__class__.__name__}: {exc}"
+    return None
+
+
+@pytest.fixture(scope="session")
+def redis_url() -> str:
+    problem = redis_problem(REDIS_URL)
+    if problem:
+        message = f"Redis does not answer at {REDIS_URL} ({problem}); run .ci/ensure-redis to start it"
+        if os.environ.get("CI") == "true":
+            pytest.fail(f"{message}. CI=true: the Redis tests must run, not skip", pytrace=False)
+        pytest.skip(message)
+    return REDIS_URL

@@ -3,7 +3,9 @@
 from __future__ import annotations
 
 import logging
+import threading
 import time
+from contextlib import contextmanager
 from dataclasses import replace
 
 import orjson
@@ -46,3 +48,32 @@ def execute(run, kind: str, body: bytes, limits: Limits, time_limit: float, on_t
     except RemoteError as exc:
         return FAILED, None, problem_doc(exc.status, exc.slug, exc.title, exc.detail, exc.extra())
     return DONE, orjson.dumps(result, option=DUMP_OPTIONS), None
+
+
+@contextmanager
+def lease_keeper(renew, every: float):
+    """Call ``renew()`` every ``every`` seconds on a thread until the block ends.
+
+    A thread, not the wait loop, so the lease is also renewed while a solver process
+    starts (a second or more on a loaded host). The solve itself runs in another
+    process, so this thread never waits for the GIL. Yields a :class:`threading.Event`
+    set when ``renew`` returns false (the lease was taken away).
+    """
+    stop, lost = threading.Event(), threading.Event()
+
+    def loop():
+        while not stop.wait(every):
+            try:
+                if not renew():
+                    lost.set()
+                    return
+            except Exception as exc:  # noqa: BLE001 - a missed renewal is retried next time
+                log.warning("lease renewal failed: %s", exc)
+
+    thread = threading.Thread(target=loop, name="sluice-lease", daemon=True)
+    thread.start()
+    try:
+        yield lost
+    finally:
+        stop.set()
+        thread.join(5)

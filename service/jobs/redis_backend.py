@@ -21,7 +21,7 @@ import orjson
 import redis
 
 from ..kinds import Limits
-from .execute import execute
+from .execute import execute, lease_keeper
 from .model import CANCELLED, FAILED, FINAL, QUEUED, RUNNING, JobRecord, JobsDown, new_job_id, worker_lost
 from .runner import SolverProcess
 
@@ -196,20 +196,21 @@ class RedisJobs:
         h = self.redis.hmget(self._key(job_id), "kind", "time_limit")
         kind, time_limit = h[0].decode(), float(h[1])
         body = self.redis.get(self._key(job_id, ":body"))
-        renewed = [time.monotonic()]
+
+        def renew() -> bool:
+            self.redis.set(lease_key, 1, px=int(self.lease * 1000))
+            return True
 
         def tick() -> bool:
-            if time.monotonic() - renewed[0] >= self.lease / 3:
-                renewed[0] = time.monotonic()
-                self.redis.set(lease_key, 1, px=int(self.lease * 1000))
             return self.redis.hget(self._key(job_id), "cancel") == b"1"
 
         started = time.monotonic()
-        proc = SolverProcess()
-        try:
-            state, result, error = execute(proc.run, kind, body, self.limits, time_limit, tick)
-        finally:
-            proc.kill()
+        with lease_keeper(renew, self.lease / 3):
+            proc = SolverProcess()
+            try:
+                state, result, error = execute(proc.run, kind, body, self.limits, time_limit, tick)
+            finally:
+                proc.kill()
         if result is not None:
             self.redis.set(self._key(job_id, ":result"), result)
         fields = {"finished": time.time(), **({"error": orjson.dumps(error).decode()} if error else {})}

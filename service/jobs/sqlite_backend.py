@@ -20,7 +20,7 @@ import time
 import orjson
 
 from ..kinds import Limits
-from .execute import execute
+from .execute import execute, lease_keeper
 from .model import CANCELLED, FAILED, FINAL, QUEUED, RUNNING, JobRecord, new_job_id, worker_lost
 from .runner import SolverPool
 
@@ -173,20 +173,19 @@ class SqliteJobs:
 
     def _run(self, owner: str, job_id: str, kind: str, body: bytes, time_limit: float) -> None:
         started = time.monotonic()
-        renew = {"at": started}
 
-        def tick() -> bool:
-            db = self._db()
-            if time.monotonic() - renew["at"] >= self.lease / 3:
-                renew["at"] = time.monotonic()
-                held = db.execute("UPDATE jobs SET lease_until = ? WHERE id = ? AND owner = ? AND state = ?",
-                                  (time.time() + self.lease, job_id, owner, RUNNING)).rowcount
-                if not held:
-                    return True  # taken back (we were too slow): stop, someone else runs it
-            row = db.execute("SELECT cancel FROM jobs WHERE id = ?", (job_id,)).fetchone()
-            return bool(row and row[0])
+        def renew() -> bool:
+            return bool(self._db().execute(
+                "UPDATE jobs SET lease_until = ? WHERE id = ? AND owner = ? AND state = ?",
+                (time.time() + self.lease, job_id, owner, RUNNING)).rowcount)
 
-        state, result, error = execute(self._pool.run, kind, body, self.limits, time_limit, tick)
+        with lease_keeper(renew, self.lease / 3) as lost:
+            def tick() -> bool:
+                # Stop when cancelled, or when the lease was taken back (someone else runs it).
+                row = self._db().execute("SELECT cancel FROM jobs WHERE id = ?", (job_id,)).fetchone()
+                return lost.is_set() or bool(row and row[0])
+
+            state, result, error = execute(self._pool.run, kind, body, self.limits, time_limit, tick)
         self._db().execute(
             "UPDATE jobs SET state = ?, result = ?, error = ?, finished = ?, body = NULL, lease_until = NULL "
             "WHERE id = ? AND owner = ? AND state = ?",
