@@ -14,8 +14,8 @@ import orjson
 from flask import Blueprint, Flask, current_app, request
 
 from ..config import Settings
-from ..errors import Conflict, FieldError, InputError, NotFound, SluiceError, Unavailable
-from ..jobs import FINAL, QUEUED, JobsDown, open_jobs
+from ..errors import Conflict, FieldError, InputError, NotFound, Unavailable
+from ..jobs import FINAL, JobsDown, open_jobs
 from ..jobs.model import DUMP_OPTIONS, JOB_ID
 from ..kinds import KINDS, Kind, Limits
 from ..kinds.base import time_limit
@@ -42,8 +42,7 @@ def _job_time_limit() -> float:
 
 def _under(prefix: str, exc: InputError) -> InputError:
     """The same error with every pointer moved under ``prefix`` (the job envelope)."""
-    moved = type(exc)([FieldError(prefix + e.pointer, e.detail) for e in exc.errors])
-    return moved
+    return type(exc)([FieldError(prefix + e.pointer, e.detail) for e in exc.errors])
 
 
 def prefers_async() -> bool:
