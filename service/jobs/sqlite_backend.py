@@ -70,18 +70,23 @@ class SqliteJobs:
         self._threads: list[threading.Thread] = []
         self._pool: SolverPool | None = None
         self._owners: set[str] = set()
+        self._lease_db: dict[str, sqlite3.Connection] = {}
         self._last_reap = 0.0
         self.on_finish = None  # callable(kind, state, seconds): metrics hook of the API layer
         with self._db() as db:
             db.executescript(SCHEMA)
 
     # -- storage ----------------------------------------------------------------------
+    def _connect(self) -> sqlite3.Connection:
+        db = sqlite3.connect(self.path, timeout=10.0, isolation_level=None, check_same_thread=False)
+        db.execute("PRAGMA journal_mode=WAL")
+        db.execute("PRAGMA synchronous=NORMAL")
+        return db
+
     def _db(self) -> sqlite3.Connection:
         db = getattr(self._local, "db", None)
         if db is None or getattr(self._local, "pid", None) != os.getpid():
-            db = sqlite3.connect(self.path, timeout=10.0, isolation_level=None, check_same_thread=False)
-            db.execute("PRAGMA journal_mode=WAL")
-            db.execute("PRAGMA synchronous=NORMAL")
+            db = self._connect()
             self._local.db, self._local.pid = db, os.getpid()
         return db
 
@@ -158,6 +163,9 @@ class SqliteJobs:
             (RUNNING, owner, now, now + self.lease, QUEUED, QUEUED)).fetchone()
 
     def _dispatch(self, owner: str) -> None:
+        # The lease thread of each job uses this one connection (one lease thread at a time
+        # per dispatcher), instead of opening a connection per job.
+        self._lease_db[owner] = self._connect()
         while not self._stop.is_set():
             try:
                 self._reap()
@@ -175,7 +183,7 @@ class SqliteJobs:
         started = time.monotonic()
 
         def renew() -> bool:
-            return bool(self._db().execute(
+            return bool(self._lease_db[owner].execute(
                 "UPDATE jobs SET lease_until = ? WHERE id = ? AND owner = ? AND state = ?",
                 (time.time() + self.lease, job_id, owner, RUNNING)).rowcount)
 
