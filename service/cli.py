@@ -1,4 +1,5 @@
-"""The ``sluice`` command: ``sluice serve`` runs the service under gunicorn."""
+"""The ``sluice`` command: ``sluice serve`` runs the service under gunicorn,
+``sluice worker`` runs background jobs from Redis, ``sluice spec`` prints the OpenAPI document."""
 
 from __future__ import annotations
 
@@ -17,7 +18,8 @@ class _Server(BaseApplication):
 
     def load_config(self):
         for key, value in self.options.items():
-            self.cfg.set(key, value)
+            if key in self.cfg.settings:  # older gunicorn lacks some settings (control socket)
+                self.cfg.set(key, value)
 
     def load(self):
         from .api import create_app
@@ -25,8 +27,41 @@ class _Server(BaseApplication):
         return create_app()
 
 
+def _settings_or_exit():
+    from .config import Settings
+
+    try:
+        return Settings.from_env()
+    except (ValueError, OSError) as exc:
+        print(f"sluice: bad configuration: {exc}", file=sys.stderr)
+        sys.exit(2)
+
+
 def _serve(args) -> int:
+    _settings_or_exit()
     _Server(gunicorn_defaults(args.host, args.port, args.workers)).run()
+    return 0
+
+
+def _worker(args) -> int:
+    """Run an RQ worker on the job queue (needs SLUICE_REDIS_URL)."""
+    from . import logs
+
+    settings = _settings_or_exit()
+    if not settings.redis_url:
+        print("sluice worker: set SLUICE_REDIS_URL (jobs run in the API process without Redis)", file=sys.stderr)
+        return 2
+    logs.configure()
+    from rq import Queue, Worker
+
+    from .jobs.redis_backend import connect
+
+    connection = connect(settings.redis_url)
+    queue = Queue(args.queue or settings.job_queue, connection=connection)
+    # The work horse renews each job's own lease (SLUICE_JOB_LEASE); RQ's monitoring
+    # interval only bounds how late RQ itself notices a lost horse.
+    worker = Worker([queue], connection=connection, job_monitoring_interval=max(1, int(settings.job_lease // 3)))
+    worker.work(burst=args.burst, logging_level=(args.log_level or "INFO").upper(), with_scheduler=False)
     return 0
 
 
@@ -45,6 +80,11 @@ def main(argv: list[str] | None = None) -> int:
     serve.add_argument("--port", type=int, default=8000)
     serve.add_argument("--workers", type=int, default=None, help="default: one per core")
     serve.set_defaults(func=_serve)
+    worker = sub.add_parser("worker", help="run queued jobs from Redis (SLUICE_REDIS_URL)")
+    worker.add_argument("--queue", default=None, help="RQ queue name (default SLUICE_JOB_QUEUE or 'sluice')")
+    worker.add_argument("--burst", action="store_true", help="exit when the queue is empty")
+    worker.add_argument("--log-level", default=None)
+    worker.set_defaults(func=_worker)
     spec = sub.add_parser("spec", help="print the OpenAPI document as YAML")
     spec.set_defaults(func=_spec)
     args = parser.parse_args(argv)

@@ -17,23 +17,76 @@ def _float(name: str, default: float) -> float:
 
 
 @dataclass(frozen=True)
+class ApiKey:
+    """One configured key: the tenant it belongs to and its scope (``full`` or ``read``)."""
+
+    tenant: str
+    key: str = field(repr=False)  # never shown in logs or reprs
+    scope: str = "full"
+
+
+def parse_api_keys(text: str, source: str = "SLUICE_API_KEYS") -> tuple[ApiKey, ...]:
+    """Parse ``tenant:key[:scope]`` entries separated by commas or new lines.
+
+    Blank lines and lines starting with ``#`` are skipped. ``scope`` is ``full``
+    (default) or ``read`` (GET only). A malformed entry raises ``ValueError`` naming its
+    position, never its text (it may hold a key).
+    """
+    keys = []
+    entries = [e.strip() for line in text.splitlines() for e in line.split(",")]
+    for number, entry in enumerate(entries, start=1):
+        if not entry or entry.startswith("#"):
+            continue
+        parts = entry.split(":")
+        if len(parts) not in (2, 3) or not parts[0] or len(parts[1]) < 8:
+            raise ValueError(f"{source}: entry {number} is not tenant:key[:scope] with a key of 8+ characters")
+        scope = parts[2] if len(parts) == 3 else "full"
+        if scope not in ("full", "read"):
+            raise ValueError(f"{source}: entry {number} has scope {scope!r}; use full or read")
+        keys.append(ApiKey(parts[0], parts[1], scope))
+    return tuple(keys)
+
+
+def _api_keys_from_env() -> tuple[ApiKey, ...]:
+    keys = parse_api_keys(os.environ.get("SLUICE_API_KEYS") or "")
+    path = os.environ.get("SLUICE_API_KEYS_FILE")
+    if path:
+        with open(path, encoding="utf-8") as f:
+            keys += parse_api_keys(f.read(), "SLUICE_API_KEYS_FILE")
+    return keys
+
+
+@dataclass(frozen=True)
 class Settings:
     """Everything configurable. ``from_env`` reads the ``SLUICE_*`` variables."""
 
     data_dir: str = ".sluice"
     redis_url: str | None = None
+    redis_prefix: str = "sluice:"  # every Redis key starts with it
     max_body_mb: float = 128.0  # a 1M-arc object-form body is about 65 MB
     max_arcs: int = 5_000_000
     max_nodes: int = 5_000_000
-    time_limit: float = 30.0
-    api_keys: dict = field(default_factory=dict)
-    redis_prefix: str = "sluice:"  # every Redis key starts with it
+    max_commodities: int = 1_000
+    max_batch_items: int = 1000  # items in one POST /v1/batch
+    time_limit: float = 30.0  # seconds, a synchronous solve (hard: the solving process is killed)
+    api_keys: tuple = ()  # of ApiKey
+    rate_limit: str = "600/minute"  # per tenant; "off" disables
+    # Synchronous solves of problems larger than this many arcs run in a killable
+    # solver process under the hard time limit; smaller ones inline (milliseconds).
+    inline_max_arcs: int = 20_000
+    solver_processes: int = 2  # per API worker process, for synchronous solves
+    job_time_limit: float = 600.0  # seconds, one job
+    job_workers: int = 1  # embedded backend: jobs run at once per API worker process
+    job_lease: float = 15.0  # seconds without a heartbeat before a running job is taken back
+    job_attempts: int = 2  # a job whose worker died is retried until it ran this many times
+    job_ttl: int = 7 * 86400  # seconds a finished job's record (and result) is kept
+    job_queue: str = "sluice"  # RQ queue name (Redis backend)
+    log_format: str = "json"  # or "text"
     cache_mb: float = 512.0  # embedded result cache budget (LRU beyond it)
     cache_ttl: int = 86400  # seconds a Redis result lives after its last use
     cache_item_mb: float = 64.0  # larger results are not cached
     network_memo_mb: float = 256.0  # per-worker memo of decoded stored networks
     store_retry: float = 1.0  # seconds between attempts to reach a store that failed
-    max_batch_items: int = 1000  # items in one POST /v1/batch
     max_diagram_nodes: int = 60  # diagrams are for small networks: 413 above these
     max_diagram_arcs: int = 200
 
@@ -42,17 +95,29 @@ class Settings:
         return cls(
             data_dir=os.environ.get("SLUICE_DATA_DIR") or ".sluice",
             redis_url=os.environ.get("SLUICE_REDIS_URL") or None,
+            redis_prefix=os.environ.get("SLUICE_REDIS_PREFIX") or "sluice:",
             max_body_mb=_float("SLUICE_MAX_BODY_MB", 128.0),
             max_arcs=_int("SLUICE_MAX_ARCS", 5_000_000),
             max_nodes=_int("SLUICE_MAX_NODES", 5_000_000),
+            max_commodities=_int("SLUICE_MAX_COMMODITIES", 1_000),
+            max_batch_items=_int("SLUICE_MAX_BATCH_ITEMS", 1000),
             time_limit=_float("SLUICE_TIME_LIMIT", 30.0),
-            redis_prefix=os.environ.get("SLUICE_REDIS_PREFIX") or "sluice:",
+            api_keys=_api_keys_from_env(),
+            rate_limit=os.environ.get("SLUICE_RATE_LIMIT") or "600/minute",
+            inline_max_arcs=_int("SLUICE_INLINE_MAX_ARCS", 20_000),
+            solver_processes=_int("SLUICE_SOLVER_PROCESSES", 2),
+            job_time_limit=_float("SLUICE_JOB_TIME_LIMIT", 600.0),
+            job_workers=_int("SLUICE_JOB_WORKERS", 1),
+            job_lease=_float("SLUICE_JOB_LEASE", 15.0),
+            job_attempts=_int("SLUICE_JOB_ATTEMPTS", 2),
+            job_ttl=_int("SLUICE_JOB_TTL", 7 * 86400),
+            job_queue=os.environ.get("SLUICE_JOB_QUEUE") or "sluice",
+            log_format=os.environ.get("SLUICE_LOG_FORMAT") or "json",
             cache_mb=_float("SLUICE_CACHE_MB", 512.0),
             cache_ttl=_int("SLUICE_CACHE_TTL", 86400),
             cache_item_mb=_float("SLUICE_CACHE_ITEM_MB", 64.0),
             network_memo_mb=_float("SLUICE_NETWORK_MEMO_MB", 256.0),
             store_retry=_float("SLUICE_STORE_RETRY", 1.0),
-            max_batch_items=_int("SLUICE_MAX_BATCH_ITEMS", 1000),
             max_diagram_nodes=_int("SLUICE_MAX_DIAGRAM_NODES", 60),
             max_diagram_arcs=_int("SLUICE_MAX_DIAGRAM_ARCS", 200),
         )

@@ -17,6 +17,9 @@ Tree::
     ├── PreconditionFailed           412  precondition-failed
     ├── Conflict                     409  conflict
     ├── SolveTimeout                 504  time-limit
+    ├── Unauthorized                 401  unauthorized (WWW-Authenticate: Bearer)
+    ├── Forbidden                    403  forbidden (a read-only key asked to write)
+    ├── Unavailable                  503  unavailable (with Retry-After)
     └── SolverFailure                500  solver-failure
         └── SelfCheckFailed          500  self-check-failed (a certificate did not hold)
 
@@ -146,3 +149,28 @@ class SelfCheckFailed(SolverFailure):
 
     slug = "self-check-failed"
     title = "The solution failed its self-check"
+
+
+class Unauthorized(SluiceError):
+    """No valid bearer token (RFC 6750); carries the WWW-Authenticate challenge."""
+
+    status = 401
+    slug = "unauthorized"
+    title = "Authentication required"
+
+
+class Forbidden(SluiceError):
+    status = 403
+    slug = "forbidden"
+    title = "Not allowed with this key"
+
+
+class Unavailable(SluiceError):
+    """A part the request needs (job queue, solver processes) cannot answer now."""
+
+    status = 503
+    slug = "unavailable"
+    title = "Temporarily unavailable"
+
+    def __init__(self, detail: str | None = None, *, retry_after: int = 5):
+        super().__init__(detail, headers={"Retry-After": str(retry_after)})

@@ -2,12 +2,20 @@
 
 gthread workers: each worker process runs a few threads, so a slow or stalled client
 holds one thread, not the whole worker. One worker per core: solves are CPU-bound.
+Large solves run in killable solver processes (see :mod:`service.api.bounded`), so a
+worker thread never waits past the synchronous time limit.
 """
 
 from __future__ import annotations
 
 import gc
 import os
+import shutil
+import tempfile
+
+from .logs import logging_config
+
+_METRICS_DIR_OWNED = "SLUICE_METRICS_DIR_OWNED"
 
 
 def default_workers() -> int:
@@ -16,26 +24,54 @@ def default_workers() -> int:
 
 def gunicorn_defaults(host: str = "127.0.0.1", port: int = 8000, workers: int | None = None) -> dict:
     time_limit = float(os.environ.get("SLUICE_TIME_LIMIT") or 30)
+    level = os.environ.get("SLUICE_LOG_LEVEL", "info")
     return {
         "bind": f"{host}:{port}",
         "workers": workers or default_workers(),
         "worker_class": "gthread",
         "threads": 4,
         # A worker that stops heart-beating for this long is replaced; solves run on
-        # worker threads while the main thread keeps beating, so this only catches
-        # truly stuck workers. Leave room above the synchronous solve limit.
+        # worker threads (or in solver processes) while the main thread keeps beating,
+        # so this only catches truly stuck workers. Leave room above the solve limit.
         "timeout": int(max(60, 3 * time_limit)),
+        # SIGTERM: requests in flight get this long to finish before the worker exits.
         "graceful_timeout": int(max(30, time_limit + 5)),
         "keepalive": 5,
         # Large bodies arrive over loopback or a LAN in seconds; headers must be small.
         "limit_request_line": 8190,
         "limit_request_fields": 100,
-        "accesslog": "-",
+        # The app writes one JSON access line per request (with the request id); gunicorn's
+        # own access log would repeat it without the id.
+        "accesslog": None,
         "errorlog": "-",
-        "loglevel": os.environ.get("SLUICE_LOG_LEVEL", "info"),
+        "loglevel": level,
+        # gunicorn >= 24 opens a control socket in $HOME by default: one path for every
+        # instance on the host. Sluice does not use it.
+        "control_socket_disable": True,
+        "logconfig_dict": logging_config(level, os.environ.get("SLUICE_LOG_FORMAT") or "json"),
+        "on_starting": on_starting,
         "post_fork": post_fork,
+        "post_worker_init": post_worker_init,
+        "worker_exit": worker_exit,
+        "child_exit": child_exit,
+        "on_exit": on_exit,
         "when_ready": when_ready,
     }
+
+
+def on_starting(server) -> None:
+    """Before any worker exists: a clean folder for the metrics of all workers."""
+    folder = os.environ.get("PROMETHEUS_MULTIPROC_DIR")
+    if folder:
+        os.makedirs(folder, exist_ok=True)
+        for name in os.listdir(folder):  # samples of an earlier run would be added in
+            if name.endswith(".db"):
+                os.unlink(os.path.join(folder, name))
+    else:
+        folder = tempfile.mkdtemp(prefix="sluice-metrics-")
+        os.environ["PROMETHEUS_MULTIPROC_DIR"] = folder
+        os.environ[_METRICS_DIR_OWNED] = folder
+    server.log.info("sluice: metrics of all workers in %s", folder)
 
 
 def post_fork(server, worker) -> None:
@@ -44,11 +80,54 @@ def post_fork(server, worker) -> None:
     gc.set_threshold(50_000, 20, 20)
 
 
+def post_worker_init(worker) -> None:
+    """The app is loaded in this worker: warm a solver process, start the job dispatchers."""
+    app = worker.wsgi
+    solver = app.extensions.get("sluice.solver")
+    if solver is not None:
+        solver.pool.warm(1)
+    jobs = app.extensions.get("sluice.jobs")
+    if jobs is not None:
+        jobs.start()
+
+
+def worker_exit(server, worker) -> None:
+    """A worker leaves (SIGTERM, max requests): hand its running jobs back to the queue."""
+    app = getattr(worker, "wsgi", None)
+    jobs = app.extensions.get("sluice.jobs") if app is not None and hasattr(app, "extensions") else None
+    if jobs is not None:
+        try:
+            jobs.release()
+        except Exception as exc:  # noqa: BLE001 - the lease takes the jobs back anyway
+            server.log.warning("sluice: could not release jobs: %s", exc)
+    solver = app.extensions.get("sluice.solver") if app is not None and hasattr(app, "extensions") else None
+    if solver is not None:
+        solver.pool.close()
+
+
+def child_exit(server, worker) -> None:
+    """In the master, after a worker died (even by SIGKILL): drop its live gauge files."""
+    if os.environ.get("PROMETHEUS_MULTIPROC_DIR"):
+        from prometheus_client import multiprocess
+
+        multiprocess.mark_process_dead(worker.pid)
+
+
+def on_exit(server) -> None:
+    owned = os.environ.get(_METRICS_DIR_OWNED)
+    if owned and owned == os.environ.get("PROMETHEUS_MULTIPROC_DIR"):
+        shutil.rmtree(owned, ignore_errors=True)
+
+
 def when_ready(server) -> None:
     from .config import Settings
 
     settings = Settings.from_env()
     if not settings.api_keys:
-        server.log.warning("sluice: no API keys configured; the service runs open")
-    server.log.info("sluice: ready; data dir %s, redis %s", settings.data_dir,
-                    "configured" if settings.redis_url else "not configured")
+        server.log.warning("sluice: no API keys configured; the service runs open (every request is tenant public)")
+    else:
+        tenants = sorted({k.tenant for k in settings.api_keys})
+        server.log.info("sluice: %d API key(s) for %d tenant(s)", len(settings.api_keys), len(tenants))
+    server.log.info("sluice: ready; data dir %s, redis %s, synchronous time limit %g s, job time limit %g s",
+                    settings.data_dir, "configured" if settings.redis_url else "not configured",
+                    settings.time_limit, settings.job_time_limit)

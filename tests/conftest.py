@@ -6,6 +6,7 @@ import os
 import socket
 import subprocess
 import sys
+import tempfile
 import time
 from pathlib import Path
 
@@ -43,9 +44,12 @@ class RunningServer:
         full_env = {**os.environ, **(env or {})}
         if data_dir:
             full_env["SLUICE_DATA_DIR"] = data_dir
+        # The log goes to a file, not a pipe: nobody reads a pipe while tests run, and a
+        # full pipe (64 KB of JSON access lines) would block the server's workers.
+        self.log = tempfile.TemporaryFile()
         self.proc = subprocess.Popen(
             [sys.executable, "-m", "service.cli", "serve", "--port", str(self.port), "--workers", str(workers)],
-            cwd=ROOT, env=full_env, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE,
+            cwd=ROOT, env=full_env, stdout=subprocess.DEVNULL, stderr=self.log,
         )
         try:
             self._wait_ready()
@@ -57,7 +61,7 @@ class RunningServer:
         deadline = time.monotonic() + timeout
         while time.monotonic() < deadline:
             if self.proc.poll() is not None:
-                raise RuntimeError(f"sluice serve exited: {self.proc.stderr.read().decode()[-2000:]}")
+                raise RuntimeError(f"sluice serve exited: {self.log_tail()}")
             try:
                 if requests.get(self.url + "/healthz", timeout=5).status_code == 200:
                     return
@@ -66,6 +70,10 @@ class RunningServer:
                 time.sleep(0.1)
         self.stop()
         raise RuntimeError("sluice serve did not become healthy in time")
+
+    def log_tail(self, size: int = 2000) -> str:
+        self.log.seek(0)
+        return self.log.read().decode(errors="replace")[-size:]
 
     def stop(self) -> None:
         if self.proc.poll() is None:

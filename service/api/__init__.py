@@ -10,7 +10,7 @@ from flask import Flask, request
 from ..config import Settings
 from ..errors import FieldError, ProblemTooLarge
 from ..kinds import Limits
-from . import cache, extras, networks, ops, problems, solutions, solve
+from . import auth, bounded, cache, extras, jobs, metrics, networks, ops, problems, ratelimit, requestlog, solutions, solve
 from .jsonio import OrjsonProvider
 
 log = logging.getLogger("sluice")
@@ -47,8 +47,15 @@ def create_app(config: Settings | dict | None = None) -> Flask:
     app.json = OrjsonProvider(app)
     app.config["MAX_CONTENT_LENGTH"] = settings.max_body_bytes
     app.url_map.strict_slashes = False
-    limits = Limits(max_arcs=settings.max_arcs, max_nodes=settings.max_nodes, time_limit=settings.time_limit)
+    limits = Limits(max_arcs=settings.max_arcs, max_nodes=settings.max_nodes, time_limit=settings.time_limit,
+                    max_commodities=settings.max_commodities, max_batch_items=settings.max_batch_items)
     problems.init_app(app)
+    # Order matters: request id and clock first (so every answer is counted and logged),
+    # then authentication (the tenant), then the rate limit (per tenant), then the body limit.
+    requestlog.init_app(app)
+    metrics.init_app(app)
+    auth.init_app(app, settings.api_keys)
+    ratelimit.init_app(app, settings, keyed=bool(settings.api_keys))
     app.before_request(_enforce_body_limit)
     app.register_blueprint(ops.bp)
     app.register_blueprint(solve.bp)
@@ -56,6 +63,8 @@ def create_app(config: Settings | dict | None = None) -> Flask:
     app.register_blueprint(solutions.bp)
     cache.init_app(app, settings)
     extras.init_app(app)  # plan checks, batches, diagrams, the explorer page
+    jobs.init_app(app, settings, limits)
+    bounded.init_app(app, settings)
     from .spec import build_spec
 
     app.extensions["sluice"] = SluiceState(settings, limits, build_spec())

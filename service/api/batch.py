@@ -20,11 +20,12 @@ from dataclasses import replace
 from time import monotonic, perf_counter
 
 from flask import Blueprint, current_app
-from marshmallow import RAISE, Schema, fields
+from marshmallow import INCLUDE, RAISE, Schema, fields
 
 from ..errors import PROBLEM_BASE, FieldError, InputError, ProblemTooLarge, SluiceError, SolveTimeout
 from ..kinds import KINDS, Limits
 from ..kinds.nested import under
+from .bounded import bounded_solve
 from .jsonio import json_response, read_json_body
 
 log = logging.getLogger("sluice.api")
@@ -33,16 +34,26 @@ bp = Blueprint("batch", __name__, url_prefix="/v1")
 
 
 class BatchItemSchema(Schema):
-    class Meta:
-        unknown = RAISE
+    """One item. Items are checked one by one: a malformed item (an unknown member, a
+    missing kind) gets a problem object in its place in ``results``, not a 422 for the
+    whole batch, so the schema leaves items open."""
 
-    kind = fields.String(required=True, metadata={"description": "A problem kind: the path segment of its solve "
-                                                                 "endpoint, e.g. maxflow."})
-    problem = fields.Dict(required=True, metadata={"description": "The request body that POST /v1/{kind} takes."})
+    class Meta:
+        unknown = INCLUDE
+
+    # Required, but checked per item: a missing one gives that item a problem object.
+    kind = fields.Raw(metadata={"description": "Required: a problem kind (string), the path segment of its "
+                                               "solve endpoint, e.g. maxflow."})
+    problem = fields.Raw(metadata={"description": "Required: the request body (object) that POST /v1/{kind} "
+                                                  "takes."})
 
 
 class BatchRequest(Schema):
-    items = fields.List(fields.Nested(BatchItemSchema), required=True)
+    # Items are checked one by one (a bad item answers with its own problem object),
+    # so the document accepts any item and describes the expected one.
+    items = fields.List(fields.Raw(metadata={
+        "description": "An object with kind and problem (see BatchItem); anything else answers with a problem "
+                       "object in its place."}), required=True)
 
 
 class BatchResponse(Schema):
@@ -105,7 +116,7 @@ def solve_item(item, limits: Limits) -> dict:
     with under("/problem"):
         problem = kind.parse(item["problem"], limits)
         parsed = perf_counter()
-        result = kind.solve(problem, limits)
+        result = bounded_solve(kind, problem, limits)
     done = perf_counter()
     result["timing_ms"] = {"parse": round((parsed - started) * 1000, 3), "solve": round((done - parsed) * 1000, 3),
                            "total": round((done - started) * 1000, 3)}

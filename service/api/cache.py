@@ -44,7 +44,9 @@ from flask import Flask, Response, current_app, g, request
 from ..config import Settings
 from ..kinds import Kind, Limits
 from ..store import DEFAULT_TENANT, Store, StoreUnavailable, open_store
+from .bounded import bounded_solve
 from .jsonio import DUMP_OPTIONS, _is_json, raw_body
+from .metrics import CACHE_EVENTS
 
 log = logging.getLogger("sluice.cache")
 
@@ -57,6 +59,10 @@ BYPASSED = "sluice; fwd=request; detail=bypass"
 TOO_LARGE = "sluice; fwd=miss; detail=too-large"
 UNAVAILABLE = "sluice; fwd=bypass; detail=store-unavailable"
 NOT_FINAL = "sluice; fwd=miss; detail=not-final"
+
+#: The metrics label of each Cache-Status.
+_EVENT = {HIT: "hit", STORED: "stored", REFRESHED: "stored", BYPASSED: "bypass", TOO_LARGE: "miss",
+          UNAVAILABLE: "unavailable", NOT_FINAL: "miss"}
 
 #: Only answers that another solve would repeat are cached; an answer cut short by a
 #: time limit would be wrong to serve to a request that allows more time.
@@ -154,7 +160,7 @@ def answer(kind: Kind, problem, *, started: float, key: str | None = None, extra
                 _quietly(store.put_alias, who, key, problem.digest)
             return respond(cached, HIT, _timing(started, perf_counter(), 0.0), extra)
     t0 = perf_counter()
-    result = kind.solve(problem, _limits())
+    result = bounded_solve(kind, problem, _limits())
     solved = perf_counter()
     payload = orjson.dumps(result, option=DUMP_OPTIONS)
     status = BYPASSED if mode == "bypass" else UNAVAILABLE
@@ -207,5 +213,6 @@ def respond(payload: bytes, cache_status: str, timing: dict, extra: dict | None 
                     for name, value in {**(extra or {}), "timing_ms": timing}.items())
     if payload == b"{}":
         tail = tail[1:]
+    CACHE_EVENTS.labels(_EVENT.get(cache_status, "miss")).inc()
     return Response(payload[:-1] + tail + b"}", mimetype="application/json",
                     headers={"Cache-Status": cache_status})

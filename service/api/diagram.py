@@ -38,6 +38,7 @@ from ..model.arcs import Network, build_network, read_arcs
 from ..model.columns import number_column
 from ..model.nodes import read_nodes
 from ..model.schemas import load_envelope
+from .bounded import bounded_solve
 from .jsonio import read_json_body
 
 bp = Blueprint("diagram", __name__, url_prefix="/v1")
@@ -564,7 +565,7 @@ def diagram():
     started = perf_counter()
     with under("/problem"):
         read_network(body, state.settings.max_diagram_nodes, state.settings.max_diagram_arcs)  # 413 before solving
-        result = kind.solve(kind.parse(body, state.limits), state.limits)
+        result = bounded_solve(kind, kind.parse(body, state.limits), state.limits)
     response = solution_diagram(kind_name, body, result)
     response.headers["Server-Timing"] = f"total;dur={(perf_counter() - started) * 1000:.1f}"
     return response

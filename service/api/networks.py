@@ -14,7 +14,7 @@ import numpy as np
 from flask import Blueprint, Response, current_app, request, url_for
 from marshmallow import RAISE, Schema, fields
 
-from ..errors import FieldError, InputError, NotFound, ProblemTooLarge
+from ..errors import FieldError, InputError, ProblemTooLarge
 from ..kinds import KINDS, Limits
 from ..kinds.base import ids_of
 from ..model.arcs import Network, build_network, read_arcs
@@ -121,13 +121,8 @@ def put_network(name: str):
     check_name(name)
     pre = _preconditions()
     store = cache.get_store()
-    if pre.if_match is not None or pre.if_none_match is not None:
-        # Refuse a stale write before reading a large body; the store checks again atomically.
-        try:
-            current = store.network_meta(cache.tenant(), name)
-        except NotFound:
-            current = None
-        pre.check(current, name)
+    # The body is checked before the preconditions, so a malformed request is a 4xx
+    # for its body whatever the ETags say; the store checks If-Match atomically.
     network = read_network(decode_body("network"), _limits())
     meta, created = store.put_network(cache.tenant(), name, network, network_digest(network), pre)
     headers = {"ETag": _etag(meta)}

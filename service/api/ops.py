@@ -25,19 +25,28 @@ def _tiny_solve_ok() -> bool:
     return solution.value == 1
 
 
+def _job_checks() -> dict:
+    jobs = current_app.extensions.get("sluice.jobs")
+    if jobs is None:
+        return {}
+    name = "redis" if current_app.extensions["sluice"].settings.redis_url else "jobs_store"
+    return {name: jobs.health()}
+
+
 @bp.get("/readyz")
 def readyz():
-    """The solvers answer a tiny problem correctly and the store answers.
+    """The solvers answer a tiny problem correctly; the store and the job store answer.
 
-    A store that does not answer makes the service ``degraded``, not unready: solves
-    still answer (without the cache), so the instance stays in rotation (200); stored
-    networks and cached solutions answer 503 until the store is back.
+    Only a failed solver makes the instance unready (503). A store, job store or Redis
+    that does not answer makes it ``degraded`` (200): synchronous solves still answer
+    (without the cache), so the instance stays in rotation, while stored networks,
+    cached solutions and jobs answer 503 until it is back.
     """
     store = get_store().health()
-    checks = {"solver": "ok" if _tiny_solve_ok() else "failed", "store": store["status"]}
+    checks = {"solver": "ok" if _tiny_solve_ok() else "failed", "store": store["status"], **_job_checks()}
     if checks["solver"] != "ok":
         status, code = "not ready", 503
-    elif store["status"] != "ok":
+    elif any(v != "ok" for v in checks.values()):
         status, code = "degraded", 200
     else:
         status, code = "ready", 200

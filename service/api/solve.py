@@ -7,7 +7,8 @@ from time import perf_counter
 from flask import Blueprint, current_app
 
 from ..kinds import KINDS, Kind, Limits
-from . import cache
+from . import cache, jobs
+from .bounded import bounded_solve
 from .jsonio import decode_body
 
 bp = Blueprint("solve", __name__, url_prefix="/v1")
@@ -22,7 +23,7 @@ def solve_request(kind: Kind, body) -> tuple[dict, float, float]:
     started = perf_counter()
     problem = kind.parse(body, limits())
     parsed = perf_counter()
-    result = kind.solve(problem, limits())
+    result = bounded_solve(kind, problem, limits())
     return result, parsed - started, perf_counter() - parsed
 
 
@@ -34,6 +35,8 @@ def timing(started: float, solve_s: float) -> dict:
 
 def _make_view(kind: Kind):
     def view():
+        if jobs.prefers_async():  # Prefer: respond-async (RFC 7240): 202 and a job
+            return jobs.submit(kind, decode_body(kind.name))
         started = perf_counter()
         # A byte-identical body seen before is answered before it is even decoded.
         key = cache.body_key(kind)

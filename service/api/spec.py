@@ -17,6 +17,7 @@ from apispec.ext.marshmallow import MarshmallowPlugin
 from marshmallow import Schema, fields
 
 from .. import __version__
+from .spec_ops import OPS_DESCRIPTION, register as register_ops, solve_extras
 from ..kinds import KINDS
 from .spec_extras import DESCRIPTION as EXTRAS_DESCRIPTION
 from .spec_extras import add_paths, dimacs_content
@@ -77,8 +78,9 @@ class ProblemSchema(Schema):
 
 
 class HealthSchema(Schema):
-    status = fields.String()
-    checks = fields.Dict()
+    status = fields.String(metadata={"description": "ok (healthz); ready, degraded or not ready (readyz)."})
+    checks = fields.Dict(metadata={"description": "Each dependency: ok, or why not."})
+    store = fields.Dict(metadata={"description": "readyz: the result store's backend and usage."})
 
 
 def _field_attributes(self, field, ret, **kwargs):
@@ -122,7 +124,7 @@ def build_spec() -> dict:
         version=__version__,
         openapi_version="3.1.0",
         plugins=[plugin],
-        info={"description": DESCRIPTION + "\n" + EXTRAS_DESCRIPTION},
+        info={"description": DESCRIPTION + "\n" + EXTRAS_DESCRIPTION + "\n" + OPS_DESCRIPTION},
     )
     plugin.converter.add_attribute_function(_field_attributes)
     spec.components.schema("Problem", schema=ProblemSchema)
@@ -130,6 +132,8 @@ def build_spec() -> dict:
     spec.components.schema("ArcColumns", schema=ArcColumnsSchema)
     cache_status = {"Cache-Status": {"description": "RFC 9211: how the result cache took part (see above).",
                                      "schema": {"type": "string"}}}
+    register_ops(spec)
+    extras = solve_extras()
     for kind in KINDS.values():
         title = kind.name.capitalize() if kind.name.islower() else kind.name
         spec.components.schema(f"{title}Request", schema=kind.request_schema)
@@ -139,12 +143,14 @@ def build_spec() -> dict:
             operations={"post": {
                 "operationId": f"solve_{kind.name}",
                 "summary": kind.summary,
+                "security": [{"bearer": []}, {}],
+                "parameters": extras["parameters"],
                 "requestBody": {"required": True, "content": {"application/json": {
                     "schema": f"{title}Request", "example": _example(kind.example)}, **dimacs_content(kind.name)}},
                 "responses": {"200": {"description": "Solved (status says optimal, infeasible or unbounded).",
                                       "headers": cache_status,
                                       "content": {"application/json": {"schema": f"{title}Response"}}},
-                              **_problem_responses()},
+                              **_problem_responses(), **extras["responses"]},
             }},
         )
     _store_paths(spec, cache_status)

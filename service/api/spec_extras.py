@@ -10,7 +10,7 @@ from apispec import APISpec
 from ..kinds import KINDS
 from ..kinds.verify import VERIFY_KINDS, VerifyRequest, VerifyResponse
 from ..model.dimacs import MEDIA_TYPE as DIMACS_MEDIA_TYPE
-from .batch import BatchRequest, BatchResponse
+from .batch import BatchItemSchema, BatchRequest, BatchResponse
 from .diagram import DIAGRAM_KINDS, SVG_MEDIA_TYPE, DiagramRequest
 from .explorer import ScenarioListSchema
 from .jsonio import DIMACS_KINDS
@@ -80,7 +80,7 @@ def _scenario_text(name: str) -> str:
 
 def _problems(*codes: str) -> dict:
     ref = {"application/problem+json": {"schema": "Problem"}}
-    text = {"400": "The body is not valid JSON.", "404": "Not found.",
+    text = {"400": "The body is not valid JSON, or a path parameter is malformed.", "404": "Not found.",
             "413": "The body or problem exceeds a size limit.", "415": "The Content-Type is not supported.",
             "422": "The body is not a valid request.", "500": "Internal error (including a failed self-check).",
             "504": "The check exceeded its time limit."}
@@ -102,6 +102,7 @@ def add_paths(spec: APISpec) -> None:
     """Add the plan-check, batch, diagram, scenario and explorer paths to ``spec``."""
     spec.components.schema("VerifyRequest", schema=VerifyRequest)
     spec.components.schema("VerifyResponse", schema=VerifyResponse)
+    spec.components.schema("BatchItem", schema=BatchItemSchema)
     spec.components.schema("BatchRequest", schema=BatchRequest)
     spec.components.schema("BatchResponse", schema=BatchResponse)
     spec.components.schema("DiagramRequest", schema=DiagramRequest)
@@ -147,7 +148,7 @@ def add_paths(spec: APISpec) -> None:
                         "schema": {"type": "string", "pattern": "^sha256:[0-9a-f]{64}$"}}],
         "responses": {"200": {"description": "The drawing.",
                               "content": {SVG_MEDIA_TYPE: {"schema": {"type": "string"}}}},
-                      **_problems("404", "413")},
+                      **_problems("400", "404", "413")},
     }})
     spec.path(path="/v1/scenarios", operations={"get": {
         "operationId": "list_scenarios", "summary": "The invented example problems",

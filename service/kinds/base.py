@@ -25,6 +25,8 @@ class Limits:
     max_arcs: int = 5_000_000
     max_nodes: int = 5_000_000
     time_limit: float = 30.0
+    max_commodities: int = 1_000
+    max_batch_items: int = 100
 
 
 class Problem(Protocol):

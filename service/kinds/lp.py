@@ -81,8 +81,8 @@ class LPRequest(Schema):
         "oneOf": [{"type": "array", "items": _VARIABLE}, _columns_of(_VARIABLE, "variable")],
         "description": "Every variable a term names, with its bounds (default 0 and no limit)."})
     constraints = fields.Raw(load_default=None, metadata={
-        "oneOf": [{"type": "array", "items": _CONSTRAINT}, _columns_of(_CONSTRAINT, "constraint")],
-        "description": "Linear constraints, each with lower and/or upper, or equals. In columnar form the "
+        "oneOf": [{"type": "array", "items": _CONSTRAINT}, _columns_of(_CONSTRAINT, "constraint"), {"type": "null"}],
+        "description": "Linear constraints (absent or null: none), each with lower and/or upper, or equals. In columnar form the "
                        "coefficients come from matrix."})
     matrix = fields.Raw(load_default=None, metadata={
         "type": "object", "required": ["row", "column", "value"], "additionalProperties": False,
@@ -240,6 +240,8 @@ def solve(problem: LPProblem, limits: Limits) -> dict:
 
 class LPKind:
     name = "lp"
+    #: GLOP stops itself at options.time_limit and answers status "time_limit".
+    honours_time_limit = True
     summary = "Linear program (min or max) with shadow prices and reduced costs, certified"
     request_schema = LPRequest
     response_schema = LPResponse

@@ -232,6 +232,8 @@ def solve(problem: MultiCommodityProblem, limits: Limits) -> dict:
 
 class MultiCommodityKind:
     name = "multicommodity"
+    #: GLOP stops itself at options.time_limit and answers status "time_limit".
+    honours_time_limit = True
     summary = "Multi-commodity flow: shared capacities, min-cost or max-throughput, with capacity prices"
     request_schema = MultiCommodityRequest
     response_schema = MultiCommodityResponse

@@ -75,7 +75,14 @@ class VerifyCertificate(Schema):
     tolerance = fields.Float(metadata={"description": "0 for integer data and flows."})
 
 
+class VerifyTiming(Schema):
+    parse = fields.Float()
+    solve = fields.Float()
+    total = fields.Float()
+
+
 class VerifyResponse(Schema):
+    timing_ms = fields.Nested(VerifyTiming, metadata={"description": "Milliseconds spent reading and checking."})
     feasible = fields.Boolean(metadata={"description": "No bound or conservation violation."})
     optimal = fields.Boolean(metadata={"description": "Feasible and no better plan exists."})
     value = fields.Float(metadata={"description": "max-flow: the plan's net flow out of the source."})

@@ -67,7 +67,7 @@ def _read_objects(raw: list, base: str) -> RawArcs:
         if name not in REQUIRED and unaccounted == 0:
             break
         values, present = _object_column(raw, name, base)
-        if present:
+        if present or name in REQUIRED:  # an empty arc list still has its (empty) columns
             columns[name] = IdColumn(values, _object_where(base, name))
             unaccounted -= present
     if unaccounted:

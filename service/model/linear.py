@@ -211,6 +211,8 @@ def read_constraints(raw, lookup: dict, *, max_count: int, base: str = "/constra
                            {"terms": _NO_TERMS, "lower": None, "upper": None, "equals": None}, "constraint")
     if records.count > max_count:
         raise ProblemTooLarge(FieldError(base, f"has {records.count} constraints; the limit is {max_count}"))
+    if records.form == "columns" and "name" not in records.columns:
+        raise InputError.at(f"{base}/name", "is required")
     if records.count == 0:
         return [], np.empty(0), np.empty(0), _empty_entries()
     names, _ = _names(records, base, "constraint")

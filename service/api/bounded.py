@@ -1,0 +1,96 @@
+"""Synchronous solves under a hard time limit.
+
+Policy: a problem of at most ``SLUICE_INLINE_MAX_ARCS`` arcs (default 20,000) is solved
+inline on the request thread: such solves take milliseconds, and the IPC of a solver
+process would cost more than the solve. A larger problem (or one whose size a kind does
+not report) goes to this worker's pool of warm solver processes with a deadline of
+``min(options.time_limit, SLUICE_TIME_LIMIT)`` (plus a short grace for the GLOP kinds,
+which stop themselves at the limit and answer ``time_limit``); past it the process is killed (the
+OR-Tools solvers cannot be interrupted), the client gets 504 ``time-limit`` with a hint
+to submit a job instead, and a fresh process takes its place. The gunicorn worker
+itself never blocks past the deadline, so it stays healthy.
+"""
+
+from __future__ import annotations
+
+import logging
+import time
+from time import perf_counter
+
+from flask import Flask, current_app
+
+from ..config import Settings
+from ..errors import SolveTimeout, Unavailable
+from ..kinds import Kind, Limits
+from ..kinds.base import time_limit
+from ..jobs.runner import Cancelled, ChildLost, DeadlineExceeded, SolverPool, unpack
+from .metrics import SOLVE_SECONDS, SOLVE_TIMEOUTS
+
+log = logging.getLogger("sluice.solve")
+EXTENSION = "sluice.solver"
+
+
+def problem_size(problem) -> int | None:
+    """Arcs (or the kind's own ``size``) of a parsed problem; None when unknown."""
+    size = getattr(problem, "size", None)
+    if isinstance(size, int):
+        return size
+    network = getattr(problem, "network", None)
+    tail = getattr(network, "tail", None)
+    return None if tail is None else int(tail.size)
+
+
+class BoundedSolver:
+    """Per API process: inline small solves, pooled killable solves for the rest."""
+
+    def __init__(self, settings: Settings):
+        self.inline_max_arcs = settings.inline_max_arcs
+        self.job_time_limit = settings.job_time_limit
+        self.pool = SolverPool(settings.solver_processes)
+
+    def solve(self, kind: Kind, problem, limits: Limits) -> dict:
+        size = problem_size(problem)
+        if size is not None and size <= self.inline_max_arcs:
+            started = perf_counter()
+            result = kind.solve(problem, limits)
+            self._observe(kind, result, perf_counter() - started)
+            return result
+        seconds = time_limit(problem.options, limits)
+        # Kinds whose solver honours a time limit itself (GLOP) get a grace period to
+        # return their own time_limit answer; the uninterruptible ones are killed at it.
+        grace = min(5.0, max(0.5, 0.25 * seconds)) if getattr(kind, "honours_time_limit", False) else 0.0
+        hard = seconds + grace
+        try:
+            reply = self.pool.run(("solve", kind.name, problem, limits), deadline=time.monotonic() + hard,
+                                  wait=hard)
+        except DeadlineExceeded:
+            SOLVE_TIMEOUTS.labels(kind.name).inc()
+            raise SolveTimeout(
+                f"the solve did not finish within its time limit of {seconds:g} s and was stopped; submit it as "
+                f"a job (POST /v1/jobs, or this request with the header Prefer: respond-async), whose limit is "
+                f"{self.job_time_limit:g} s") from None
+        except TimeoutError:
+            raise Unavailable("every solver process of this worker is busy; retry, or submit a job",
+                              retry_after=max(1, int(seconds))) from None
+        except (ChildLost, Cancelled) as exc:
+            log.error("solver process lost: %s", exc)
+            raise Unavailable("the solver process stopped unexpectedly; retry", retry_after=1) from None
+        result, solve_seconds = unpack(reply)
+        self._observe(kind, result, solve_seconds)
+        return result
+
+    @staticmethod
+    def _observe(kind: Kind, result: dict, seconds: float) -> None:
+        engine = result.get("engine") if isinstance(result, dict) else None
+        SOLVE_SECONDS.labels(kind.name, (engine or {}).get("kind", "none")).observe(seconds)
+
+
+def init_app(app: Flask, settings: Settings) -> BoundedSolver:
+    solver = BoundedSolver(settings)
+    app.extensions[EXTENSION] = solver
+    return solver
+
+
+def bounded_solve(kind: Kind, problem, limits: Limits) -> dict:
+    """Solve within the hard limit (see the module doc); use it wherever a request solves."""
+    return current_app.extensions[EXTENSION].solve(kind, problem, limits)

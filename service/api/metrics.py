@@ -1,0 +1,102 @@
+"""Prometheus metrics, correct across gunicorn workers.
+
+``sluice serve`` (the gunicorn ``on_starting`` hook in :mod:`service.serving`) points
+``PROMETHEUS_MULTIPROC_DIR`` at a fresh folder before any worker starts, so every
+worker writes its samples to its own files there and ``/metrics`` adds them up
+(prometheus-client's multiprocess mode); ``child_exit`` tidies the files of a dead
+worker. Without that variable (tests, a bare ``create_app()``) the process registry is
+used.
+
+Other parts of the service increment these directly, e.g.
+``CACHE_EVENTS.labels("hit").inc()`` in the result cache.
+"""
+
+from __future__ import annotations
+
+import os
+from time import perf_counter
+
+from flask import Blueprint, Flask, Response, current_app, g, request
+from prometheus_client import CONTENT_TYPE_LATEST, REGISTRY, CollectorRegistry, Counter, Histogram, generate_latest
+from prometheus_client.core import GaugeMetricFamily
+
+LATENCY_BUCKETS = (0.001, 0.0025, 0.005, 0.01, 0.025, 0.05, 0.1, 0.25, 0.5, 1, 2.5, 5, 10, 30, 60, 120)
+
+REQUESTS = Counter("sluice_http_requests_total", "HTTP requests by route template, method and status.",
+                   ["route", "method", "status"])
+LATENCY = Histogram("sluice_http_request_duration_seconds", "Time to answer an HTTP request, by route template.",
+                    ["route", "method"], buckets=LATENCY_BUCKETS)
+SOLVE_SECONDS = Histogram("sluice_solve_seconds", "Solver time of synchronous solves, by kind and engine.",
+                          ["kind", "engine"], buckets=LATENCY_BUCKETS)
+SOLVE_TIMEOUTS = Counter("sluice_solve_timeouts_total",
+                         "Synchronous solves stopped at the hard time limit (their process killed).", ["kind"])
+CACHE_EVENTS = Counter("sluice_cache_events_total", "Result cache lookups and writes by result "
+                       "(hit, miss, stored, bypass, unavailable).", ["result"])
+JOB_EVENTS = Counter("sluice_jobs_total", "Jobs by kind and event (submitted, done, failed, cancelled).",
+                     ["kind", "event"])
+
+bp = Blueprint("metrics", __name__)
+
+
+class _QueueDepth:
+    """Reads the queue depth from the job backend at scrape time (one value per host or cluster)."""
+
+    def __init__(self, jobs):
+        self.jobs = jobs
+
+    def collect(self):
+        depth = GaugeMetricFamily("sluice_job_queue_depth", "Jobs waiting for a worker (queued state).")
+        try:
+            value = self.jobs.queue_depth()
+        except Exception:  # noqa: BLE001 - a broken backend shows as -1, never a failed scrape
+            value = -1
+        depth.add_metric([], value)
+        yield depth
+
+
+def _registry() -> CollectorRegistry:
+    if os.environ.get("PROMETHEUS_MULTIPROC_DIR"):
+        from prometheus_client import multiprocess
+
+        registry = CollectorRegistry()
+        multiprocess.MultiProcessCollector(registry)
+        return registry
+    return REGISTRY
+
+
+@bp.get("/metrics")
+def metrics():
+    """Prometheus text exposition of this service's counters and histograms."""
+    text = generate_latest(_registry())
+    jobs = current_app.extensions.get("sluice.jobs")
+    if jobs is not None:
+        extra = CollectorRegistry()
+        extra.register(_QueueDepth(jobs))
+        text += generate_latest(extra)
+    return Response(text, mimetype=CONTENT_TYPE_LATEST.split(";")[0], headers={"Content-Type": CONTENT_TYPE_LATEST})
+
+
+def route_label() -> str:
+    # The URL rule, not the path: ids in paths would make one series per job.
+    return request.url_rule.rule if request.url_rule is not None else "unmatched"
+
+
+def init_app(app: Flask) -> None:
+    @app.before_request
+    def _start_clock():
+        g.started = perf_counter()
+
+    @app.after_request
+    def _count(response):
+        route = route_label()
+        REQUESTS.labels(route, request.method, str(response.status_code)).inc()
+        started = g.get("started")
+        if started is not None:
+            LATENCY.labels(route, request.method).observe(perf_counter() - started)
+        return response
+
+    app.register_blueprint(bp)
+
+
+def job_finished(kind: str, state: str, seconds: float) -> None:
+    JOB_EVENTS.labels(kind, state).inc()

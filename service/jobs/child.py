@@ -1,0 +1,47 @@
+"""A solver process: ``python -m service.jobs.child PARENT_PID``.
+
+Reads work from stdin and answers on stdout, one length-prefixed pickle per message
+(see :mod:`service.jobs.runner`). It dies with its parent (``PR_SET_PDEATHSIG``), so an
+API worker killed with SIGKILL never leaves a solve running behind it.
+"""
+
+from __future__ import annotations
+
+import ctypes
+import os
+import signal
+import sys
+
+PR_SET_PDEATHSIG = 1
+
+
+def _die_with_parent(parent: int) -> None:
+    try:
+        ctypes.CDLL("libc.so.6", use_errno=True).prctl(PR_SET_PDEATHSIG, signal.SIGKILL)
+    except (OSError, AttributeError):  # not Linux: the parent still kills us on every timeout
+        pass
+    if os.getppid() != parent:  # the parent died before prctl took effect
+        os._exit(1)
+
+
+def main() -> None:
+    _die_with_parent(int(sys.argv[1]))
+    # Ctrl-C in a terminal reaches the whole process group; the parent decides our fate.
+    signal.signal(signal.SIGINT, signal.SIG_IGN)
+    # The protocol owns the original stdout; stray prints from libraries go to stderr.
+    out = os.fdopen(os.dup(1), "wb")
+    os.dup2(2, 1)
+    inp = sys.stdin.buffer
+    from .frames import read_frame, write_frame
+    from .work import handle  # imports numpy, OR-Tools and the kinds once, before "ready"
+
+    write_frame(out, ("ready", os.getpid()))
+    while True:
+        message = read_frame(inp)
+        if message is None:
+            return
+        write_frame(out, handle(message))
+
+
+if __name__ == "__main__":
+    main()

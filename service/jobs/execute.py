@@ -1,0 +1,79 @@
+"""Run one job in a killable solver process and turn the outcome into a final state."""
+
+from __future__ import annotations
+
+import logging
+import threading
+import time
+from contextlib import contextmanager
+from dataclasses import replace
+
+import orjson
+
+from ..kinds import Limits
+from .model import CANCELLED, DONE, DUMP_OPTIONS, FAILED, problem_doc, time_limit_error
+from .runner import Cancelled, ChildLost, DeadlineExceeded, RemoteError, unpack
+
+log = logging.getLogger("sluice.jobs")
+
+
+def execute(run, kind: str, body: bytes, limits: Limits, time_limit: float, on_tick=None):
+    """Run a job through ``run`` (a :meth:`SolverPool.run` or :meth:`SolverProcess.run`).
+
+    Parameters
+    ----------
+    run : callable
+        ``run(message, deadline=..., on_tick=...) -> reply``.
+    time_limit : float
+        Seconds for the whole job (parse and solve); the process is killed after.
+    on_tick : callable, optional
+        Heartbeat, called every quarter second; returning true cancels the job.
+
+    Returns
+    -------
+    (state, result_json or None, error document or None)
+    """
+    job_limits = replace(limits, time_limit=time_limit)
+    deadline = time.monotonic() + time_limit
+    try:
+        result, _ = unpack(run(("job", kind, body, job_limits), deadline=deadline, on_tick=on_tick))
+    except DeadlineExceeded:
+        return FAILED, None, time_limit_error(time_limit)
+    except Cancelled:
+        return CANCELLED, None, None
+    except ChildLost as exc:
+        log.error("job solver process lost: %s", exc)
+        return FAILED, None, problem_doc(500, "solver-failure", "The solver failed",
+                                         "the solver process ended without an answer; the error was logged")
+    except RemoteError as exc:
+        return FAILED, None, problem_doc(exc.status, exc.slug, exc.title, exc.detail, exc.extra())
+    return DONE, orjson.dumps(result, option=DUMP_OPTIONS), None
+
+
+@contextmanager
+def lease_keeper(renew, every: float):
+    """Call ``renew()`` every ``every`` seconds on a thread until the block ends.
+
+    A thread, not the wait loop, so the lease is also renewed while a solver process
+    starts (a second or more on a loaded host). The solve itself runs in another
+    process, so this thread never waits for the GIL. Yields a :class:`threading.Event`
+    set when ``renew`` returns false (the lease was taken away).
+    """
+    stop, lost = threading.Event(), threading.Event()
+
+    def loop():
+        while not stop.wait(every):
+            try:
+                if not renew():
+                    lost.set()
+                    return
+            except Exception as exc:  # noqa: BLE001 - a missed renewal is retried next time
+                log.warning("lease renewal failed: %s", exc)
+
+    thread = threading.Thread(target=loop, name="sluice-lease", daemon=True)
+    thread.start()
+    try:
+        yield lost
+    finally:
+        stop.set()
+        thread.join(5)

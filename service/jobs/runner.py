@@ -1,0 +1,247 @@
+"""Killable solver processes: the only way to put a hard limit on an OR-Tools solve.
+
+The OR-Tools graph solvers hold the GIL and cannot be interrupted, so a solve that must
+stop at a deadline (or on cancel) runs in a child process that is killed with SIGKILL
+when it overruns. :class:`SolverPool` keeps a few such children warm per API process
+(start-up costs about a second: numpy and OR-Tools are imported once per child).
+
+Children are started with ``subprocess`` (fork + exec, safe in a threaded server) from
+one long-lived spawner thread: ``PR_SET_PDEATHSIG`` fires when the *thread* that
+forked a child ends, so that thread must outlive every child.
+"""
+
+from __future__ import annotations
+
+import logging
+import os
+import select
+import subprocess
+import sys
+import threading
+import time
+from concurrent.futures import Future
+from queue import Queue
+
+from ..errors import SluiceError
+from .frames import read_frame, write_frame
+
+log = logging.getLogger("sluice.runner")
+
+START_TIMEOUT = 120.0  # seconds for a child to import its libraries (slow on a loaded host)
+
+
+class DeadlineExceeded(Exception):
+    """The child did not answer in time and was killed."""
+
+
+class Cancelled(Exception):
+    """The caller asked to stop; the child was killed."""
+
+
+class ChildLost(Exception):
+    """The child died (killed from outside, out of memory) before it answered."""
+
+
+class RemoteError(SluiceError):
+    """A :class:`SluiceError` raised in a solver process, rebuilt from its fields."""
+
+    def __init__(self, fields: dict):
+        super().__init__(fields["detail"], headers=fields.get("headers"))
+        self.status, self.slug, self.title = fields["status"], fields["slug"], fields["title"]
+        self._extra = fields.get("extra") or {}
+
+    def extra(self) -> dict:
+        return self._extra
+
+
+def _child_env() -> dict:
+    env = dict(os.environ)
+    env.pop("PROMETHEUS_MULTIPROC_DIR", None)  # children never write metrics
+    return env
+
+
+class SolverProcess:
+    """One child running :mod:`service.jobs.child`."""
+
+    def __init__(self):
+        self.proc = subprocess.Popen(
+            [sys.executable, "-m", "service.jobs.child", str(os.getpid())],
+            stdin=subprocess.PIPE, stdout=subprocess.PIPE, env=_child_env(), close_fds=True,
+        )
+        self.pid = self.proc.pid
+        ready = self._wait(time.monotonic() + START_TIMEOUT, None, 0.5)
+        if not (isinstance(ready, tuple) and ready[0] == "ready"):
+            self.kill()
+            raise ChildLost(f"solver process {self.pid} did not start")
+
+    @property
+    def alive(self) -> bool:
+        return self.proc.poll() is None
+
+    def kill(self) -> None:
+        if self.proc.poll() is None:
+            self.proc.kill()
+        self.proc.wait()
+        for stream in (self.proc.stdin, self.proc.stdout):
+            try:
+                stream.close()
+            except OSError:
+                pass
+
+    def _wait(self, deadline: float | None, on_tick, tick: float):
+        fd = self.proc.stdout.fileno()
+        while True:
+            left = None if deadline is None else deadline - time.monotonic()
+            if left is not None and left <= 0:
+                self.kill()
+                raise DeadlineExceeded()
+            ready, _, _ = select.select([fd], [], [], tick if left is None else min(tick, left))
+            if ready:
+                reply = read_frame(self.proc.stdout)
+                if reply is None:
+                    self.kill()
+                    raise ChildLost(f"solver process {self.pid} exited with {self.proc.returncode}")
+                return reply
+            if on_tick is not None and on_tick():
+                self.kill()
+                raise Cancelled()
+
+    def run(self, message: tuple, *, deadline: float | None = None, on_tick=None, tick: float = 0.25):
+        """Send one message and wait for the reply.
+
+        Parameters
+        ----------
+        message : tuple
+            See :mod:`service.jobs.work`.
+        deadline : float, optional
+            ``time.monotonic()`` value after which the child is killed.
+        on_tick : callable, optional
+            Called every ``tick`` seconds while waiting (heartbeats); a true return
+            value cancels: the child is killed.
+
+        Returns
+        -------
+        tuple
+            The child's reply.
+
+        Raises
+        ------
+        DeadlineExceeded, Cancelled, ChildLost
+            In each case the child is dead afterwards.
+        """
+        try:
+            write_frame(self.proc.stdin, message)
+        except (BrokenPipeError, OSError):
+            self.kill()
+            raise ChildLost(f"solver process {self.pid} exited with {self.proc.returncode}") from None
+        return self._wait(deadline, on_tick, tick)
+
+
+class _Spawner:
+    """One daemon thread that starts every child of this process (see module doc)."""
+
+    _instance: "_Spawner | None" = None
+    _lock = threading.Lock()
+
+    def __init__(self):
+        self.pid = os.getpid()
+        self.requests: Queue = Queue()
+        threading.Thread(target=self._loop, name="sluice-spawner", daemon=True).start()
+
+    @classmethod
+    def get(cls) -> "_Spawner":
+        with cls._lock:
+            if cls._instance is None or cls._instance.pid != os.getpid():  # new after a fork
+                cls._instance = cls()
+            return cls._instance
+
+    def _loop(self) -> None:
+        while True:
+            future = self.requests.get()
+            try:
+                future.set_result(SolverProcess())
+            except BaseException as exc:  # noqa: BLE001 - handed to the waiting caller
+                future.set_exception(exc)
+
+    def spawn(self) -> Future:
+        future: Future = Future()
+        self.requests.put(future)
+        return future
+
+
+class SolverPool:
+    """Up to ``size`` warm solver processes shared by the threads of one API process."""
+
+    def __init__(self, size: int):
+        self.size = max(1, size)
+        self._slots = threading.BoundedSemaphore(self.size)
+        self._idle: list[SolverProcess] = []
+        self._starting: list[Future] = []
+        self._lock = threading.Lock()
+        self._closed = False
+
+    def warm(self, count: int = 1) -> None:
+        """Start children in the background so the first request does not wait."""
+        with self._lock:
+            for _ in range(max(0, min(count, self.size) - len(self._idle) - len(self._starting))):
+                self._starting.append(_Spawner.get().spawn())
+
+    def _take(self) -> SolverProcess:
+        with self._lock:
+            while self._idle:
+                proc = self._idle.pop()
+                if proc.alive:
+                    return proc
+            future = self._starting.pop(0) if self._starting else None
+        if future is None:
+            future = _Spawner.get().spawn()
+        return future.result(timeout=START_TIMEOUT)
+
+    def _give(self, proc: SolverProcess) -> None:
+        with self._lock:
+            if self._closed:
+                proc.kill()
+            else:
+                self._idle.append(proc)
+
+    def run(self, message: tuple, *, deadline: float | None = None, on_tick=None, wait: float = 30.0):
+        """Run one message on a pooled child (see :meth:`SolverProcess.run`).
+
+        Raises
+        ------
+        TimeoutError
+            No child became free within ``wait`` seconds.
+        """
+        if not self._slots.acquire(timeout=wait):
+            raise TimeoutError("every solver process is busy")
+        try:
+            proc = self._take()
+            try:
+                reply = proc.run(message, deadline=deadline, on_tick=on_tick)
+            except (DeadlineExceeded, Cancelled, ChildLost):
+                self.warm(1)  # a fresh child replaces the killed one, off the request path
+                raise
+            self._give(proc)
+            return reply
+        finally:
+            self._slots.release()
+
+    def pids(self) -> list[int]:
+        with self._lock:
+            return [p.pid for p in self._idle]
+
+    def close(self) -> None:
+        with self._lock:
+            self._closed = True
+            idle, self._idle = self._idle, []
+        for proc in idle:
+            proc.kill()
+
+
+def unpack(reply: tuple):
+    """``(result, solve_seconds)`` from a reply; raises what the child raised."""
+    if reply[0] == "ok":
+        return reply[1], reply[2]
+    if reply[0] == "error":
+        raise RemoteError(reply[1])
+    raise ChildLost(f"the solver process failed ({reply[1]})")

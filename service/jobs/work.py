@@ -1,0 +1,43 @@
+"""What a solver process does with one message: run a kind, report the outcome.
+
+Messages: ``("solve", kind, problem, limits)`` for a problem parsed by the caller, or
+``("job", kind, body_json, limits)`` for a job whose body is parsed here again (it was
+validated at submission; the stored JSON outlives any in-memory object). Replies:
+``("ok", result, solve_seconds)``, ``("error", problem_fields)`` for a
+:class:`~service.errors.SluiceError`, or ``("crash", summary)`` for anything else.
+"""
+
+from __future__ import annotations
+
+import logging
+import sys
+import traceback
+from time import perf_counter
+
+import orjson
+
+from ..errors import SluiceError
+from ..kinds import KINDS
+
+log = logging.getLogger("sluice.solver")
+
+
+def describe(exc: SluiceError) -> dict:
+    """The fields of an error's problem document (picklable, no exception object)."""
+    return {"status": exc.status, "slug": exc.slug, "title": exc.title, "detail": exc.detail,
+            "extra": exc.extra(), "headers": dict(exc.headers)}
+
+
+def handle(message: tuple) -> tuple:
+    op, kind_name, payload, limits = message
+    try:
+        kind = KINDS[kind_name]
+        problem = kind.parse(orjson.loads(payload), limits) if op == "job" else payload
+        started = perf_counter()
+        result = kind.solve(problem, limits)
+        return ("ok", result, perf_counter() - started)
+    except SluiceError as exc:
+        return ("error", describe(exc))
+    except Exception as exc:  # noqa: BLE001 - reported as a crash; the trace stays in our log
+        traceback.print_exc(file=sys.stderr)
+        return ("crash", type(exc).__name__)
