@@ -6,7 +6,8 @@ object. See :mod:`service.kinds.base` for the interface.
 
 from .base import Kind, Limits
 from .maxflow import KIND as MAXFLOW
+from .mincostflow import KIND as MINCOSTFLOW
 
-KINDS: dict[str, Kind] = {MAXFLOW.name: MAXFLOW}
+KINDS: dict[str, Kind] = {MAXFLOW.name: MAXFLOW, MINCOSTFLOW.name: MINCOSTFLOW}
 
 __all__ = ["KINDS", "Kind", "Limits"]
