@@ -57,7 +57,7 @@ class RunningServer:
             try:
                 if requests.get(self.url + "/healthz", timeout=1).status_code == 200:
                     return
-            except requests.ConnectionError:
+            except (requests.ConnectionError, requests.Timeout):  # a worker may take over 1 s to boot
                 time.sleep(0.1)
         self.stop()
         raise RuntimeError("sluice serve did not become healthy in time")

@@ -37,7 +37,7 @@ import numpy as np
 import scipy.sparse as sp
 from scipy.sparse.csgraph import breadth_first_order
 
-from ..errors import FieldError, InputError, SolverFailure, SolveTimeout
+from ..errors import FieldError, InputError, SelfCheckFailed, SolverFailure, SolveTimeout
 from . import mincost_checks as checks
 from .lp import incidence_matrix, solve_lp
 from .maxflow_lp import LP_TOLERANCE, max_flow_lp
@@ -146,11 +146,21 @@ def min_cost_flow(num_nodes: int, tail: np.ndarray, head: np.ndarray, capacity: 
                unlimited if unlimited is not None and unlimited.any() else None,
                np.zeros(tail.size, dtype=np.int64) if cost is None else cost,
                lower if lower is not None and lower.any() else None, supply)
+    refused = None
     if engine != "lp":
         answer = _graph_route(net, shortage, forced=engine == "graph")
-        if answer is not None:
+        if not isinstance(answer, str):
             return answer
-    return _lp_route(net, shortage, time_limit)
+        refused = answer
+    try:
+        return _lp_route(net, shortage, time_limit)
+    except SelfCheckFailed:
+        raise
+    except SolverFailure as exc:
+        if refused is None:
+            raise
+        # Out of the graph engine's range and too extreme for the LP engine: the data's fault.
+        raise InputError(FieldError("/arcs", f"{refused}; the LP engine failed on it too ({exc.detail})")) from None
 
 
 # ----------------------------------------------------------------------------- graph
@@ -167,7 +177,7 @@ def _graph_route(net: _Net, shortage: str, *, forced: bool):
     if quantities is None or costs is None:
         if forced:
             raise _graph_refused("the data have more than 6 decimal places or are too large once scaled")
-        return None
+        return "the data have more than 6 decimal places or are too large once scaled"
     dq, (cap, low, sup) = quantities
     dc, (cost,) = costs
     scaled = _Net(net.n, net.tail, net.head, cap, net.unl, cost, low, sup)
@@ -179,7 +189,7 @@ def _graph_route(net: _Net, shortage: str, *, forced: bool):
     except GraphRangeError as exc:
         if forced:
             raise _graph_refused(str(exc)) from None
-        return None
+        return str(exc)
     if dq or dc:
         _unscale(solution, certificate, 10**dq, 10**dc)
     return solution, certificate

@@ -83,6 +83,9 @@ def node_potentials(num_nodes: int, tail: np.ndarray, head: np.ndarray, cost: np
     forward, backward = residual_masks(flows, capacity, unlimited)
     free = forward & backward
     labels, offset, k = free_components(num_nodes, tail[free], head[free], cost[free])
+    if not np.array_equal(offset[head[free]] - offset[tail[free]], cost[free]):
+        # A cycle of arcs strictly inside their bounds has nonzero cost: cancelling it improves the flow.
+        raise SelfCheckFailed("self-check failed: the residual network has a negative cycle (flow not optimal)")
     one_f = forward & ~free
     one_b = backward & ~free
     ct = np.concatenate([labels[tail[one_f]], labels[head[one_b]]])
