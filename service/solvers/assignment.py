@@ -212,6 +212,12 @@ def _by_flow(n_agents, n_tasks, rows, cols, cost, c, maximize, need_agents, need
         tail.append(np.full(k, extra, dtype=np.int32))
         head.append(np.arange(k, dtype=np.int32))
     tail, head = np.concatenate(tail), np.concatenate(head)
+    # Scale decimals here, so that the duality check below is exact on integers.
+    scaled = common_scale(c) if engine != "lp" else None
+    factor = 1
+    if scaled is not None:
+        d, (c,) = scaled
+        factor = 10**d
     side_arcs = tail.size - m
     capacity = np.concatenate([np.zeros(m, dtype=np.int64), np.ones(side_arcs, dtype=np.int64)])
     unlimited = np.concatenate([np.ones(m, dtype=bool), np.zeros(side_arcs, dtype=bool)])
@@ -230,7 +236,7 @@ def _by_flow(n_agents, n_tasks, rows, cols, cost, c, maximize, need_agents, need
     chosen = np.flatnonzero(flow.flows[:m] > 0.5)
     tol = flow.tolerance * max(1, k + t)
     certificate = checks.check_assignment(k, t, rows, cols, c, chosen, u, v, need_agents, need_tasks, tol)
-    return _solution(flow.engine, rows, cols, cost, chosen, u, v, certificate, 1, maximize, tol)
+    return _solution(flow.engine, rows, cols, cost, chosen, u, v, certificate, factor, maximize, tol)
 
 
 def _coverable(k, t, rows, cols, need_agents, need_tasks) -> bool:
