@@ -87,7 +87,14 @@ class CertificateSchema(Schema):
     outgoing_capacity = fields.Float()
     cycle_cost = fields.Float()
     tolerance = fields.Float(metadata={"description": "0 for exact arithmetic."})
-    decimal_scale = fields.Dict(metadata={"description": "Present when decimals were solved exactly as integers."})
+    decimal_scale = fields.Integer(metadata={"description": "Present when decimals were solved exactly as integers: "
+                                                            "the factor applied to capacities, lower bounds and "
+                                                            "supplies."})
+    cost_scale = fields.Integer(metadata={"description": "Likewise, the factor applied to costs."})
+
+
+class MinCostEngineSchema(EngineSchema):
+    cost_scale = fields.Integer(metadata={"description": "Factor applied to costs for exact scaling."})
 
 
 class InfeasibilitySchema(Schema):
@@ -127,7 +134,7 @@ class MinCostFlowResponse(Schema):
     negative_cycle = fields.Nested(NegativeCycleSchema)
     certificate = fields.Nested(CertificateSchema)
     digest = fields.String()
-    engine = fields.Nested(EngineSchema)
+    engine = fields.Nested(MinCostEngineSchema)
     timing_ms = fields.Nested(TimingSchema)
 
 

@@ -404,8 +404,9 @@ def _unscale(solution: MinCostSolution, certificate: dict, fq: int, fc: int) -> 
             certificate[name] = certificate[name] / fq
     if "cycle_cost" in certificate:
         certificate["cycle_cost"] = certificate["cycle_cost"] / fc
-    certificate["decimal_scale"] = {"quantities": fq, "costs": fc}
-    solution.engine = dict(solution.engine, decimal_scale={"quantities": fq, "costs": fc})
+    certificate["decimal_scale"] = fq
+    certificate["cost_scale"] = fc
+    solution.engine = dict(solution.engine, decimal_scale=fq, cost_scale=fc)
 
 
 # -------------------------------------------------------------------------------- lp
