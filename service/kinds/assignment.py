@@ -13,7 +13,7 @@ from ..errors import FieldError, InputError, ProblemTooLarge
 from ..model.columns import MAX_REPORTED_ERRORS, number_column
 from ..model.digest import problem_digest
 from ..model.ids import MAX_ID_LENGTH
-from ..model.schemas import NodeId, OptionsSchema, StrictBoolean, load_envelope
+from ..model.schemas import NODE_ID_MESSAGE, NodeId, OptionsSchema, StrictBoolean, load_envelope
 from ..solvers.assignment import solve_assignment
 from ..solvers.versions import ORTOOLS_VERSION
 from .base import Limits
@@ -42,10 +42,15 @@ class AssignmentRequest(Schema):
     class Meta:
         unknown = RAISE
 
-    agents = fields.List(NodeId(), required=True, validate=validate.Length(min=1),
-                         metadata={"description": "Agent ids (strings or non-negative integers), unique."})
-    tasks = fields.List(NodeId(), required=True, validate=validate.Length(min=1),
-                        metadata={"description": "Task ids, unique."})
+    # Checked in parse() as whole lists (a per-element field costs more than the solve at 10 x 10).
+    agents = fields.Raw(required=True, metadata={
+        "description": "Agent ids (strings of 1-200 characters or non-negative integers), unique, at least one.",
+        "type": "array", "minItems": 1, "items": {"oneOf": [{"type": "string", "minLength": 1, "maxLength": 200},
+                                                            {"type": "integer", "minimum": 0}]}})
+    tasks = fields.Raw(required=True, metadata={
+        "description": "Task ids, unique, at least one.",
+        "type": "array", "minItems": 1, "items": {"oneOf": [{"type": "string", "minLength": 1, "maxLength": 200},
+                                                            {"type": "integer", "minimum": 0}]}})
     costs = fields.Raw(load_default=None, metadata={
         "description": "Cost matrix: one row per agent, one entry per task; null = pair not allowed.",
         "type": "array", "items": {"type": "array", "items": {"type": ["number", "null"]}}})
@@ -55,7 +60,12 @@ class AssignmentRequest(Schema):
             "agent": {"oneOf": [{"type": "string"}, {"type": "integer", "minimum": 0}]},
             "task": {"oneOf": [{"type": "string"}, {"type": "integer", "minimum": 0}]},
             "cost": {"type": "number"}}}})
-    options = fields.Nested(AssignmentOptions, load_default=lambda: AssignmentOptions().load({}))
+    options = fields.Nested(AssignmentOptions, load_default=lambda: dict(_DEFAULT_OPTIONS))
+
+
+_DEFAULT_OPTIONS = AssignmentOptions().load({})
+#: One schema instance for every request: building one deep-copies its fields.
+_REQUEST = AssignmentRequest()
 
 
 class AssignedSchema(Schema):
@@ -134,7 +144,7 @@ def parse(body, limits: Limits) -> AssignmentProblem:
     InputError
         Naming the offending field by JSON Pointer (ragged rows: ``/costs/3``).
     """
-    envelope = load_envelope(AssignmentRequest(), body)
+    envelope = load_envelope(_REQUEST, body)
     agents, tasks = envelope["agents"], envelope["tasks"]
     _check_ids(agents, "/agents")
     _check_ids(tasks, "/tasks")
@@ -157,8 +167,21 @@ def parse(body, limits: Limits) -> AssignmentProblem:
     return AssignmentProblem(agents, tasks, rows, cols, cost, dense, options, digest)
 
 
-def _check_ids(ids: list, ptr: str) -> None:
+def _check_ids(ids, ptr: str) -> None:
+    if type(ids) is not list:
+        raise InputError.at(ptr, "must be a list of ids")
+    if not ids:
+        raise InputError.at(ptr, "must not be empty")
     kinds = set(map(type, ids))
+    if not kinds <= {str, int}:
+        i = next(i for i, v in enumerate(ids) if type(v) not in (str, int))
+        raise InputError.at(f"{ptr}/{i}", NODE_ID_MESSAGE)
+    if str in kinds:
+        bad = [i for i, v in enumerate(ids) if type(v) is str and not 1 <= len(v) <= MAX_ID_LENGTH]
+        if bad:
+            raise InputError.at(f"{ptr}/{bad[0]}", "must be 1-200 characters long")
+    elif min(ids) < 0:
+        raise InputError.at(f"{ptr}/{ids.index(min(ids))}", NODE_ID_MESSAGE)
     if len(kinds) > 1:
         first = type(ids[0])
         i = next(i for i, v in enumerate(ids) if type(v) is not first)

@@ -71,6 +71,11 @@ class MinCostFlowQuery(Schema):
     options = fields.Nested(MinCostFlowOptions, load_default=lambda: MinCostFlowOptions().load({}))
 
 
+#: Reused across requests: building a schema deep-copies its fields.
+_REQUEST = MinCostFlowRequest()
+_QUERY = MinCostFlowQuery()
+
+
 class CertificateSchema(Schema):
     checked = fields.Boolean()
     primal_cost = fields.Float(metadata={"description": "Cost of the returned flows, recomputed."})
@@ -154,7 +159,7 @@ def parse(body, limits: Limits) -> MinCostFlowProblem:
     InputError
         Naming the offending field by JSON Pointer (unbalanced supplies: ``/nodes``).
     """
-    envelope = load_envelope(MinCostFlowRequest(), body)
+    envelope = load_envelope(_REQUEST, body)
     arcs = read_arcs(envelope["arcs"], max_arcs=limits.max_arcs)
     nodes = read_nodes(envelope["nodes"], extra_fields=("supply",))
     network = build_network(arcs, nodes.ids, allow_lower=True)
@@ -180,7 +185,7 @@ def from_network(network: Network, query, limits: Limits) -> MinCostFlowProblem:
         errors are relative to the query body (``/supplies/3/id``).
     limits : Limits
     """
-    envelope = load_envelope(MinCostFlowQuery(), query)
+    envelope = load_envelope(_QUERY, query)
     _check_size(network, limits)
     supply = np.zeros(network.num_nodes, dtype=np.int64)
     raw = read_nodes(envelope["supplies"], extra_fields=("supply",), base="/supplies")

@@ -100,7 +100,7 @@ def solve_assignment(n_agents: int, n_tasks: int, rows: np.ndarray, cols: np.nda
         scaled = common_scale(c)
         if scaled is not None:
             d, (ints,) = scaled
-            answer = _square(n_agents, ints.reshape(n_agents, n_tasks))
+            answer = _square(n_agents, ints.reshape(n_agents, n_tasks), rows, cols)
             if answer is not None:
                 return _finish(answer, rows, cols, cost, ints, 10**d, maximize, True, True)
         elif engine == "graph":
@@ -109,7 +109,7 @@ def solve_assignment(n_agents: int, n_tasks: int, rows: np.ndarray, cols: np.nda
     return _by_flow(n_agents, n_tasks, rows, cols, cost, c, maximize, need_agents, need_tasks, engine)
 
 
-def _square(n: int, matrix: np.ndarray):
+def _square(n: int, matrix: np.ndarray, left: np.ndarray, right: np.ndarray):
     """Perfect assignment of a complete square integer matrix, with duals; None if out of range."""
     top = float(np.abs(matrix).max()) if matrix.size else 0.0
     if top * 4 * (n + 1) ** 2 >= 2.0**62:
@@ -123,9 +123,7 @@ def _square(n: int, matrix: np.ndarray):
         except SelfCheckFailed:
             pass  # fall through to OR-Tools
     solver = ortools_lsa.SimpleLinearSumAssignment()
-    left = np.repeat(np.arange(n, dtype=np.int32), n)
-    right = np.tile(np.arange(n, dtype=np.int32), n)
-    solver.add_arcs_with_cost(left, right, matrix.ravel().astype(np.int64))
+    solver.add_arcs_with_cost(left, right, matrix.ravel().astype(np.int64, copy=False))
     status = solver.solve()
     if status == solver.POSSIBLE_OVERFLOW:
         return None
@@ -154,10 +152,10 @@ def _square_duals(matrix: np.ndarray, mate: np.ndarray):
     lengths = matrix[:, mate] - matched[None, :]
     dist = np.minimum(lengths.min(axis=0), 0)
     for _ in range(n + 1):
-        nxt = np.minimum(dist, (dist[:, None] + lengths).min(axis=0))
-        if np.array_equal(nxt, dist):
+        nxt = (dist[:, None] + lengths).min(axis=0)
+        if not (nxt < dist).any():
             break
-        dist = nxt
+        dist = np.minimum(dist, nxt)
     else:
         raise SelfCheckFailed("self-check failed: the assignment has an improving cycle (not optimal)")
     u = -dist
