@@ -41,7 +41,7 @@ def exact_dot(a: np.ndarray, b: np.ndarray):
         return float(a.astype(np.float64) @ b.astype(np.float64))
     if not a.size:
         return 0
-    if float(np.abs(a).astype(np.float64) @ np.abs(b).astype(np.float64)) < _INT_SAFE:
+    if float(np.abs(a).max()) * float(np.abs(b).max()) * a.size < _INT_SAFE:
         return int(a.astype(np.int64) @ b.astype(np.int64))
     return sum(x * y for x, y in zip(a.tolist(), b.tolist()))
 
