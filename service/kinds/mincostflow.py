@@ -231,9 +231,9 @@ def _problem(network: Network, supply: np.ndarray, options: dict) -> MinCostFlow
     if options["shortage"] == "reject":
         excess = imbalance(supply)
         if excess != 0:
-            more, amount = ("supply", excess) if excess > 0 else ("demand", -excess)
+            more, less, amount = ("supply", "demand", excess) if excess > 0 else ("demand", "supply", -excess)
             raise InputError(FieldError(
-                "/nodes", f"supplies and demands do not balance: total {more} exceeds the other by {amount:g} "
+                "/nodes", f"supplies and demands do not balance: total {more} exceeds total {less} by {amount:g} "
                           "(fix the supplies, or set options.shortage to 'max-flow')"))
     return MinCostFlowProblem(network, supply, options, digest_of(network, supply, options))
 
