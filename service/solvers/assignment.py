@@ -151,10 +151,12 @@ def _square_duals(matrix: np.ndarray, mate: np.ndarray):
     matched = matrix[np.arange(n), mate]
     lengths = matrix[:, mate] - matched[None, :]
     dist = np.minimum(lengths.min(axis=0), 0)
+    active = np.flatnonzero(dist < 0)  # only rows whose distance just fell can lower others
     for _ in range(n + 1):
-        nxt = (dist[:, None] + lengths).min(axis=0)
-        if not (nxt < dist).any():
+        if not active.size:
             break
+        nxt = (dist[active, None] + lengths[active]).min(axis=0)
+        active = np.flatnonzero(nxt < dist)
         dist = np.minimum(dist, nxt)
     else:
         raise SelfCheckFailed("self-check failed: the assignment has an improving cycle (not optimal)")
