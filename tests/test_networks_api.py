@@ -211,7 +211,7 @@ def test_max_flow_refuses_a_stored_network_with_lower_bounds(store_client):
 @pytest.mark.skipif("mincostflow" not in KINDS,
                     reason="the mincostflow kind (issue 3) is not registered on this branch yet")
 def test_min_cost_what_if_matches_networkx(store_client):
-    """Assumes the mincostflow query takes supplies as {node id: supply} (issue 3 defines it)."""
+    """The mincostflow query takes supplies as a list of {id, supply} (integer ids cannot be JSON keys)."""
     import networkx as nx
 
     arcs = [{"from": "depot-n", "to": "xdock-m", "capacity": 30, "cost": 2, "key": "lane-1"},
@@ -221,7 +221,8 @@ def test_min_cost_what_if_matches_networkx(store_client):
     send(store_client, "PUT", "/v1/networks/costed", {"arcs": arcs})
     supplies = {"depot-n": 25, "store-s": -25}
     changes = [{"key": "lane-3", "capacity": 10}]
-    r = send(store_client, "POST", "/v1/networks/costed/mincostflow", {"supplies": supplies, "changes": changes})
+    query = {"supplies": [{"id": k, "supply": v} for k, v in supplies.items()], "changes": changes}
+    r = send(store_client, "POST", "/v1/networks/costed/mincostflow", query)
     assert r.status_code == 200, r.get_json()
     g = nx.DiGraph()
     for a in with_changes(arcs, changes):

@@ -188,7 +188,7 @@ def _what_if_schemas(kind_name: str) -> tuple[type, type]:
     title = kind_name.capitalize()
     query = getattr(kind, "query_schema", None) or Schema
     request_schema = type(f"{title}WhatIfRequest", (query,), {
-        "changes": fields.List(fields.Nested(ChangeSchema), metadata={
+        "changes": fields.List(fields.Nested(ChangeSchema), allow_none=True, metadata={
             "description": "Changes to apply for this question only; each arc at most once."}),
     })
     response_schema = type(f"{title}WhatIfResponse", (kind.response_schema,), {

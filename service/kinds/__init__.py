@@ -5,12 +5,12 @@ object. See :mod:`service.kinds.base` for the interface.
 """
 
 from .base import Kind, Limits
+from .assignment import KIND as ASSIGNMENT
 from .lp import KIND as LP
 from .maxflow import KIND as MAXFLOW
+from .mincostflow import KIND as MINCOSTFLOW
 from .multicommodity import KIND as MULTICOMMODITY
 
-KINDS: dict[str, Kind] = {MAXFLOW.name: MAXFLOW}
-KINDS[LP.name] = LP
-KINDS[MULTICOMMODITY.name] = MULTICOMMODITY
+KINDS: dict[str, Kind] = {kind.name: kind for kind in (MAXFLOW, MINCOSTFLOW, ASSIGNMENT, LP, MULTICOMMODITY)}
 
 __all__ = ["KINDS", "Kind", "Limits"]

@@ -174,6 +174,11 @@ class LPProblem:
     options: dict
     digest: str
 
+    @property
+    def size(self) -> int:
+        """Nonzeros plus variables: small models solve inline (see api/bounded)."""
+        return int(self.model.matrix.nnz + self.model.c.size)
+
 
 def parse(body, limits: Limits) -> LPProblem:
     """Validate and normalise an LP request.

@@ -15,6 +15,12 @@ solve_certified, LPModel, LPResult
     complementary slackness; infeasible and unbounded: proofs of their own).
 multicommodity_flow
     Commodities sharing arc capacities: min-cost or max-throughput, capacity prices.
+min_cost_flow
+    Min-cost flow with lower bounds, shortage modes, potentials, infeasibility proof
+    sets and negative unlimited cycles (graph engine, exact scaling, or LP).
+solve_assignment
+    Assignment (rectangular, forbidden pairs, maximize, required side) with duals.
+MinCostSolution, AssignmentSolution
 """
 
 from __future__ import annotations
@@ -23,6 +29,8 @@ from .front import EngineChoice, maximum_flow
 from .lp import LPModel, LPResult, solve_certified
 from .maxflow_graph import MaxFlowSolution
 from .multicommodity import multicommodity_flow
+from .mincost import MinCostSolution, min_cost_flow
+from .assignment import AssignmentSolution, solve_assignment
 
-__all__ = ["EngineChoice", "MaxFlowSolution", "maximum_flow"]
-__all__ += ["LPModel", "LPResult", "multicommodity_flow", "solve_certified"]
+__all__ = ["AssignmentSolution", "EngineChoice", "LPModel", "LPResult", "MaxFlowSolution", "MinCostSolution",
+           "maximum_flow", "min_cost_flow", "multicommodity_flow", "solve_assignment", "solve_certified"]

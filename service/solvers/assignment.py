@@ -1,0 +1,290 @@
+"""Assignment: each agent to at most one task and each task to at most one agent.
+
+Minimise (or maximise) the total cost over the allowed pairs, with every member of
+the required side assigned. The routes, all certified by LP duality
+(:func:`service.solvers.mincost_checks.check_assignment`):
+
+* Square, complete, integer matrix (the live dispatch path): OR-Tools'
+  SimpleLinearSumAssignment for small matrices; for large dense ones SciPy's
+  ``linear_sum_assignment`` (measured several times faster there; its float
+  arithmetic is safe because the integer duality check below is exact, and the
+  OR-Tools answer is used should that check ever fail). Duals come from shortest
+  paths over the matched pairs in dense numpy: no min-cost flow, no LP.
+* Anything else (rectangular, forbidden pairs, sparse pairs, fractions): a min-cost
+  flow with a super source or sink for the side that may stay unassigned, which has
+  exactly the optimum of the assignment, through :func:`service.solvers.mincost.
+  min_cost_flow` (graph or LP engine, with its own certificate).
+* When the required side cannot be fully assigned: a Hall-violating set from a
+  minimum cut of the bipartite matching network.
+
+Dual sign convention (minimisation): ``u[agent] + v[task] <= cost`` on every allowed
+pair, with equality on assigned pairs; duals of a side that need not be fully
+assigned are ``<= 0``; ``sum(u) + sum(v)`` equals the total cost. For ``maximize``
+every inequality flips (``u + v >= cost``, optional-side duals ``>= 0``).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+from ortools.graph.python import linear_sum_assignment as ortools_lsa
+from ortools.graph.python import max_flow as ortools_max_flow
+
+from ..errors import FieldError, InputError, SelfCheckFailed, SolverFailure
+from . import mincost_checks as checks
+from .maxflow_graph import graph_engine
+from .mincost import min_cost_flow
+from .scaling import common_scale
+
+#: From this size on a dense square matrix goes to SciPy's solver.
+SCIPY_FROM = 64
+#: Largest |cost| * n for which SciPy's float arithmetic is exact on integers.
+SCIPY_EXACT = 2.0**50
+
+
+@dataclass
+class AssignmentSolution:
+    """``agent``, ``task``, ``cost``: the assigned pairs (indices, caller's costs).
+
+    ``hall`` (when infeasible): ``side`` (``agents`` or ``tasks``), ``members`` and
+    ``allowed`` (indices), with ``allowed`` fewer than ``members``.
+    """
+
+    status: str
+    engine: dict
+    total: object = None
+    agent: np.ndarray | None = None
+    task: np.ndarray | None = None
+    cost: np.ndarray | None = None
+    u: np.ndarray | None = None
+    v: np.ndarray | None = None
+    hall: dict | None = None
+    tolerance: float = 0.0
+
+
+def required_sides(n_agents: int, n_tasks: int, require: str) -> tuple[bool, bool]:
+    """Which sides must be fully assigned. A square problem that requires one side requires both."""
+    if require == "min-side":
+        return n_agents <= n_tasks, n_tasks <= n_agents
+    if require == "agents":
+        return True, n_tasks <= n_agents
+    return n_agents <= n_tasks, True
+
+
+def solve_assignment(n_agents: int, n_tasks: int, rows: np.ndarray, cols: np.ndarray, cost: np.ndarray, *,
+                     dense: bool = False, maximize: bool = False, require: str = "min-side",
+                     engine: str = "auto") -> tuple[AssignmentSolution, dict]:
+    """Solve and certify an assignment problem.
+
+    Parameters
+    ----------
+    n_agents, n_tasks : int
+    rows, cols : ndarray of int32
+        Agent and task index of each allowed pair.
+    cost : ndarray of int64 or float64
+        Cost of each pair.
+    dense : bool
+        The pairs are the complete matrix in row-major order (enables the fast path).
+    maximize : bool
+    require : {"agents", "tasks", "min-side"}
+    engine : {"auto", "graph", "lp"}
+
+    Returns
+    -------
+    (AssignmentSolution, certificate)
+    """
+    need_agents, need_tasks = required_sides(n_agents, n_tasks, require)
+    c = -cost if maximize else cost
+    if dense and need_agents and need_tasks and engine != "lp":
+        scaled = common_scale(c)
+        if scaled is not None:
+            d, (ints,) = scaled
+            answer = _square(n_agents, ints.reshape(n_agents, n_tasks), rows, cols)
+            if answer is not None:
+                return _finish(answer, rows, cols, cost, ints, 10**d, maximize, True, True)
+        elif engine == "graph":
+            raise InputError(FieldError("/costs", "costs with more than 6 decimal places cannot be solved exactly "
+                                                  "by the graph engine (use options.engine 'lp' or 'auto')"))
+    return _by_flow(n_agents, n_tasks, rows, cols, cost, c, maximize, need_agents, need_tasks, engine)
+
+
+def _square(n: int, matrix: np.ndarray, left: np.ndarray, right: np.ndarray):
+    """Perfect assignment of a complete square integer matrix, with duals; None if out of range."""
+    top = float(np.abs(matrix).max()) if matrix.size else 0.0
+    if top * 4 * (n + 1) ** 2 >= 2.0**62:
+        return None
+    if n >= SCIPY_FROM and top * n < SCIPY_EXACT:
+        from scipy.optimize import linear_sum_assignment  # only large problems pay for the import
+
+        _, mate = linear_sum_assignment(matrix)
+        try:
+            return mate, *_square_duals(matrix, mate), _scipy_engine()
+        except SelfCheckFailed:
+            pass  # fall through to OR-Tools
+    solver = ortools_lsa.SimpleLinearSumAssignment()
+    solver.add_arcs_with_cost(left, right, matrix.ravel().astype(np.int64, copy=False))
+    status = solver.solve()
+    if status == solver.POSSIBLE_OVERFLOW:
+        return None
+    if status != solver.OPTIMAL:
+        raise SolverFailure(f"OR-Tools assignment returned status {status.name}")
+    mate = np.fromiter(map(solver.right_mate, range(n)), dtype=np.int64, count=n)
+    return mate, *_square_duals(matrix, mate), graph_engine("SimpleLinearSumAssignment")
+
+
+def _scipy_engine() -> dict:
+    import scipy
+
+    return {"kind": "graph", "solver": "SciPy linear_sum_assignment", "version": scipy.__version__}
+
+
+def _square_duals(matrix: np.ndarray, mate: np.ndarray):
+    """Duals of a perfect assignment by shortest paths over its matched pairs.
+
+    Contract each matched pair (agent i, task mate[i]) into one node; an unmatched
+    pair (i, mate[j]) becomes an arc i -> j of length ``C[i, mate[j]] - C[j, mate[j]]``.
+    Distances ``d`` from a virtual root give ``u = -d`` and ``v[mate] = d + C[i, mate[i]]``;
+    they exist exactly when the assignment is optimal (no negative cycle).
+    """
+    n = mate.size
+    matched = matrix[np.arange(n), mate]
+    lengths = matrix[:, mate] - matched[None, :]
+    dist = np.minimum(lengths.min(axis=0), 0)
+    active = np.flatnonzero(dist < 0)  # only rows whose distance just fell can lower others
+    for _ in range(n + 1):
+        if not active.size:
+            break
+        nxt = (dist[active, None] + lengths[active]).min(axis=0)
+        active = np.flatnonzero(nxt < dist)
+        dist = np.minimum(dist, nxt)
+    else:
+        raise SelfCheckFailed("self-check failed: the assignment has an improving cycle (not optimal)")
+    u = -dist
+    v = np.empty(n, dtype=dist.dtype)
+    v[mate] = dist + matched
+    return u, v
+
+
+def _finish(answer, rows, cols, cost, ints, factor, maximize, need_agents, need_tasks):
+    mate, u, v, engine = answer
+    n = mate.size
+    chosen = np.arange(n, dtype=np.int64) * n + mate  # row-major position of (i, mate[i])
+    certificate = checks.check_assignment(n, n, rows, cols, ints, chosen, u, v, need_agents, need_tasks)
+    return _solution(engine, rows, cols, cost, chosen, u, v, certificate, factor, maximize, 0.0)
+
+
+def _solution(engine, rows, cols, cost, chosen, u, v, certificate, factor, maximize, tolerance):
+    sign = -1 if maximize else 1
+    if factor != 1:
+        u, v = u / factor, v / factor
+        for name in ("primal_cost", "dual_bound", "gap"):
+            certificate[name] = certificate[name] / factor
+        certificate["decimal_scale"] = factor
+        engine = dict(engine, decimal_scale=factor)
+    total = sign * certificate["primal_cost"]
+    if maximize:  # the certificate in the caller's terms
+        for name in ("primal_cost", "dual_bound", "gap"):
+            certificate[name] = -certificate[name]
+    return AssignmentSolution("optimal", engine, total=total, agent=rows[chosen], task=cols[chosen],
+                              cost=cost[chosen], u=sign * u, v=sign * v, tolerance=tolerance), certificate
+
+
+def _by_flow(n_agents, n_tasks, rows, cols, cost, c, maximize, need_agents, need_tasks, engine):
+    """Any assignment as a min-cost flow; unassignable required sides give a Hall set."""
+    if (need_agents and n_agents > n_tasks) or (need_tasks and n_tasks > n_agents) or not _coverable(
+            n_agents, n_tasks, rows, cols, need_agents, need_tasks):
+        return _hall(n_agents, n_tasks, rows, cols, need_agents)
+    k, t, m = n_agents, n_tasks, rows.size
+    tasks0 = k
+    extra = k + t
+    tail = [rows.astype(np.int32)]
+    head = [(cols + tasks0).astype(np.int32)]
+    supply = np.zeros(k + t + 1, dtype=np.int64)
+    if need_agents and need_tasks:
+        supply[:k], supply[tasks0:extra] = 1, -1
+    elif need_agents:  # tasks may stay free: each task drains into a sink with capacity 1
+        supply[:k], supply[extra] = 1, -k
+        tail.append(np.arange(tasks0, extra, dtype=np.int32))
+        head.append(np.full(t, extra, dtype=np.int32))
+    else:  # agents may stay free: a source feeds each agent with capacity 1
+        supply[extra], supply[tasks0:extra] = t, -1
+        tail.append(np.full(k, extra, dtype=np.int32))
+        head.append(np.arange(k, dtype=np.int32))
+    tail, head = np.concatenate(tail), np.concatenate(head)
+    # Scale decimals here, so that the duality check below is exact on integers.
+    scaled = common_scale(c) if engine != "lp" else None
+    factor = 1
+    if scaled is not None:
+        d, (c,) = scaled
+        factor = 10**d
+    side_arcs = tail.size - m
+    capacity = np.concatenate([np.zeros(m, dtype=np.int64), np.ones(side_arcs, dtype=np.int64)])
+    unlimited = np.concatenate([np.ones(m, dtype=bool), np.zeros(side_arcs, dtype=bool)])
+    flow_cost = np.concatenate([c, np.zeros(side_arcs, dtype=c.dtype)])
+    flow, _ = min_cost_flow(k + t + 1, tail, head, capacity, unlimited, flow_cost, None, supply, engine=engine)
+    if flow.status != "optimal":
+        raise SolverFailure(f"the assignment's min-cost flow is {flow.status} although the side can be covered")
+    p = flow.potentials
+    pa, pt, px = p[:k], p[tasks0:extra], p[extra]
+    if need_agents and need_tasks:
+        u, v = -pa, pt
+    elif need_agents:
+        u, v = px - pa, np.minimum(pt - px, 0)
+    else:
+        u, v = np.minimum(px - pa, 0), pt - px
+    chosen = np.flatnonzero(flow.flows[:m] > 0.5)
+    tol = flow.tolerance * max(1, k + t)
+    certificate = checks.check_assignment(k, t, rows, cols, c, chosen, u, v, need_agents, need_tasks, tol)
+    return _solution(flow.engine, rows, cols, cost, chosen, u, v, certificate, factor, maximize, tol)
+
+
+def _coverable(k, t, rows, cols, need_agents, need_tasks) -> bool:
+    """Cheap necessary condition: every required member has at least one allowed pair."""
+    if need_agents and np.unique(rows).size < k:
+        return False
+    if need_tasks and np.unique(cols).size < t:
+        return False
+    return _matching_size(k, t, rows, cols, need_agents)[0] == (k if need_agents else t)
+
+
+def _matching_size(k, t, rows, cols, by_agents):
+    s, z = k + t, k + t + 1
+    solver = ortools_max_flow.SimpleMaxFlow()
+    solver.add_arc_with_capacity(z, z, 0)
+    solver.add_arcs_with_capacity(np.full(k, s, np.int32), np.arange(k, dtype=np.int32), np.ones(k, np.int64))
+    # Pair arcs never bind a minimum cut: their capacity exceeds any matching.
+    solver.add_arcs_with_capacity(rows.astype(np.int32), (cols + k).astype(np.int32),
+                                  np.full(rows.size, k + t + 1, np.int64))
+    solver.add_arcs_with_capacity(np.arange(k, k + t, dtype=np.int32), np.full(t, z, np.int32),
+                                  np.ones(t, np.int64))
+    if solver.solve(s, z) != solver.OPTIMAL:
+        raise SolverFailure("OR-Tools max-flow failed on the matching network")
+    if by_agents:
+        side = np.asarray(solver.get_source_side_min_cut(), dtype=np.int64)
+    else:
+        side = np.asarray(solver.get_sink_side_min_cut(), dtype=np.int64)
+    return int(solver.optimal_flow()), side
+
+
+def _hall(k, t, rows, cols, by_agents):
+    """A Hall-violating set of the required side, from a minimum cut (Kőnig's theorem).
+
+    With agents required: the agents on the source side of a minimum cut have all
+    their allowed tasks on the source side too (pair arcs cannot be cut), and the cut
+    capacity = (agents off the source side) + (tasks on it) < k, so those tasks are
+    fewer than those agents. Mirrored (sink side) for tasks.
+    """
+    size, side = _matching_size(k, t, rows, cols, by_agents)
+    if by_agents:
+        members = side[side < k]
+        allowed = side[(side >= k) & (side < k + t)] - k
+    else:
+        members = side[(side >= k) & (side < k + t)] - k
+        allowed = side[side < k]
+    members, allowed = np.sort(members), np.sort(allowed)
+    checks.check_hall_violation(rows, cols, members, allowed, by_agents)
+    certificate = {"checked": True, "members": int(members.size), "allowed": int(allowed.size),
+                   "largest_assignment": size}
+    hall = {"side": "agents" if by_agents else "tasks", "members": members, "allowed": allowed}
+    return AssignmentSolution("infeasible", graph_engine("SimpleMaxFlow"), hall=hall), certificate
