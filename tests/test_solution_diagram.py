@@ -43,3 +43,15 @@ def test_stored_network_from_a_dimacs_file_round_trips(client):
     assert r.status_code == 200 and r.get_json()["value"] == 11
     bad = client.put("/v1/networks/dimacs-bad", data="p max 2 1\na 1 2 x\n", content_type="text/x-dimacs")
     assert bad.status_code == 422 and bad.get_json()["errors"][0]["pointer"].startswith("/line/")
+
+
+def test_a_cached_min_cost_answer_is_drawn_with_its_potentials(client):
+    body = json.loads((SCENARIOS / "depots-mincostflow.json").read_text())
+    doc = client.post("/v1/mincostflow", json=body).get_json()
+    assert doc["status"] == "optimal"
+    r = client.get(f"/v1/solutions/{doc['digest']}/diagram.svg")
+    assert r.status_code == 200
+    ET.fromstring(r.data)
+    fresh = client.post("/v1/diagram.svg", json={"kind": "mincostflow", "problem": body})
+    assert r.data == fresh.data
+    assert "π" in r.data.decode()  # potentials are drawn
