@@ -35,7 +35,8 @@ def median_of(fn, repeat: int = 5) -> float:
 
 @contextmanager
 def served(workers: int = 1, env: dict | None = None, data_dir: str | None = None):
-    server = RunningServer(env=env, workers=workers, data_dir=data_dir)
+    # Benchmarks measure the service, not its rate limiter (600/minute by default).
+    server = RunningServer(env={"SLUICE_RATE_LIMIT": "off", **(env or {})}, workers=workers, data_dir=data_dir)
     try:
         yield server
     finally:
