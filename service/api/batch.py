@@ -20,7 +20,7 @@ from dataclasses import replace
 from time import monotonic, perf_counter
 
 from flask import Blueprint, current_app
-from marshmallow import INCLUDE, RAISE, Schema, fields
+from marshmallow import INCLUDE, Schema, fields
 
 from ..errors import PROBLEM_BASE, FieldError, InputError, ProblemTooLarge, SluiceError, SolveTimeout
 from ..kinds import KINDS, Limits

@@ -58,7 +58,7 @@ class BoundedSolver:
         seconds = time_limit(problem.options, limits)
         # Kinds whose solver honours a time limit itself (GLOP) get a grace period to
         # return their own time_limit answer; the uninterruptible ones are killed at it.
-        grace = min(5.0, max(0.5, 0.25 * seconds)) if getattr(kind, "honours_time_limit", False) else 0.0
+        grace = min(10.0, max(2.0, 0.5 * seconds)) if getattr(kind, "honours_time_limit", False) else 0.0
         hard = seconds + grace
         try:
             reply = self.pool.run(("solve", kind.name, problem, limits), deadline=time.monotonic() + hard,

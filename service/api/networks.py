@@ -14,12 +14,12 @@ import numpy as np
 from flask import Blueprint, Response, current_app, request, url_for
 from marshmallow import RAISE, Schema, fields
 
-from ..errors import FieldError, InputError, ProblemTooLarge
+from ..errors import InputError
 from ..kinds import KINDS, Limits
 from ..kinds.base import ids_of
-from ..model.arcs import Network, build_network, read_arcs
+from ..model.arcs import Network
+from ..model.arcs import read_network as normalise_network
 from ..model.changes import apply_changes
-from ..model.nodes import read_nodes
 from ..model.schemas import ArcsField, NodesField, load_envelope
 from ..store import InvalidParameter, NetworkMeta, Preconditions, check_name, network_digest
 from . import cache
@@ -105,13 +105,10 @@ def read_network(body, limits: Limits) -> Network:
         Naming the field by JSON Pointer.
     """
     envelope = load_envelope(NetworkRequest(), body)
-    arcs = read_arcs(envelope["arcs"], max_arcs=limits.max_arcs)
     # Supplies belong to the question (POST .../mincostflow), not to the stored
     # network; a node's supply here (e.g. from a DIMACS min file) is not stored.
-    nodes = read_nodes(envelope["nodes"], extra_fields=("supply",))
-    network = build_network(arcs, nodes.ids, allow_lower=True)
-    if network.num_nodes > limits.max_nodes:
-        raise ProblemTooLarge(FieldError("/nodes", f"has {network.num_nodes} nodes; the limit is {limits.max_nodes}"))
+    network, _ = normalise_network(envelope["arcs"], envelope["nodes"], max_arcs=limits.max_arcs,
+                                   max_nodes=limits.max_nodes)
     return network
 
 

@@ -7,9 +7,8 @@ from dataclasses import dataclass
 import numpy as np
 from marshmallow import RAISE, Schema, fields, validate
 
-from ..model.arcs import Network, build_network, read_arcs
+from ..model.arcs import Network, read_network
 from ..model.digest import problem_digest
-from ..model.nodes import read_nodes
 from ..model.schemas import (
     ArcsField,
     NodeId,
@@ -119,11 +118,8 @@ def parse(body, limits: Limits) -> MaxFlowProblem:
         Naming the offending field by JSON Pointer.
     """
     envelope = load_envelope(MaxFlowRequest(), body)
-    arcs = read_arcs(envelope["arcs"], max_arcs=limits.max_arcs)
-    nodes = read_nodes(envelope["nodes"], extra_fields=("supply",))
-    network = build_network(arcs, nodes.ids, allow_lower=False)
-    if network.num_nodes > limits.max_nodes:
-        raise ProblemTooLarge(FieldError("/nodes", f"has {network.num_nodes} nodes; the limit is {limits.max_nodes}"))
+    network, _ = read_network(envelope["arcs"], envelope["nodes"], max_arcs=limits.max_arcs,
+                              max_nodes=limits.max_nodes, allow_lower=False)
     return _problem(network, envelope)
 
 

@@ -8,7 +8,7 @@ import numpy as np
 from marshmallow import RAISE, Schema, fields, validate
 
 from ..errors import FieldError, InputError, ProblemTooLarge
-from ..model.arcs import Network, build_network, read_arcs
+from ..model.arcs import Network, read_network
 from ..model.columns import number_column
 from ..model.digest import problem_digest
 from ..model.ids import IdColumn
@@ -160,10 +160,8 @@ def parse(body, limits: Limits) -> MinCostFlowProblem:
         Naming the offending field by JSON Pointer (unbalanced supplies: ``/nodes``).
     """
     envelope = load_envelope(_REQUEST, body)
-    arcs = read_arcs(envelope["arcs"], max_arcs=limits.max_arcs)
-    nodes = read_nodes(envelope["nodes"], extra_fields=("supply",))
-    network = build_network(arcs, nodes.ids, allow_lower=True)
-    _check_size(network, limits)
+    network, nodes = read_network(envelope["arcs"], envelope["nodes"], max_arcs=limits.max_arcs,
+                                  max_nodes=limits.max_nodes)
     supply = np.zeros(network.num_nodes, dtype=np.int64)
     column = nodes.fields.get("supply")
     if column is not None and column.values:

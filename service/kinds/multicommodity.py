@@ -8,9 +8,8 @@ import numpy as np
 from marshmallow import RAISE, Schema, fields, validate
 
 from ..errors import FieldError, InputError, ProblemTooLarge
-from ..model.arcs import Network, build_network, read_arcs
+from ..model.arcs import Network, read_network
 from ..model.digest import problem_digest
-from ..model.nodes import read_nodes
 from ..model.schemas import (
     ArcsField,
     NodeId,
@@ -160,11 +159,8 @@ def parse(body, limits: Limits) -> MultiCommodityProblem:
         Arcs x commodities above ``limits.max_arcs``.
     """
     envelope = load_envelope(MultiCommodityRequest(), body)
-    arcs = read_arcs(envelope["arcs"], max_arcs=limits.max_arcs)
-    nodes = read_nodes(envelope["nodes"])
-    network = build_network(arcs, nodes.ids, allow_lower=False)
-    if network.num_nodes > limits.max_nodes:
-        raise ProblemTooLarge(FieldError("/nodes", f"has {network.num_nodes} nodes; the limit is {limits.max_nodes}"))
+    network, _ = read_network(envelope["arcs"], envelope["nodes"], max_arcs=limits.max_arcs,
+                              max_nodes=limits.max_nodes, allow_lower=False, node_fields=())
     listed = envelope["commodities"]
     if len(listed) > MAX_COMMODITIES:
         raise ProblemTooLarge(FieldError("/commodities", f"has {len(listed)} commodities; the limit is "

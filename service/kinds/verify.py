@@ -19,11 +19,10 @@ from dataclasses import dataclass
 import numpy as np
 from marshmallow import EXCLUDE, RAISE, Schema, fields, validate
 
-from ..errors import FieldError, InputError, ProblemTooLarge
-from ..model.arcs import Network, build_network, read_arcs
+from ..errors import InputError
+from ..model.arcs import Network, read_network
 from ..model.columns import number_column
-from ..model.nodes import read_nodes
-from ..model.schemas import ArcsField, NodeId, NodesField, load_envelope
+from ..model.schemas import ArcsField, NodesField, load_envelope
 from ..solvers.verify import FORWARD, Verdict, verify_max_flow, verify_min_cost_flow
 from .base import Limits, ids_of, time_limit
 from .nested import under
@@ -192,11 +191,8 @@ def read_min_cost(body, limits: Limits) -> tuple[Network, np.ndarray]:
     envelope = load_envelope(_MinCostEnvelope(), body)
     if envelope["options"]["shortage"] != "reject":
         raise InputError.at("/options/shortage", "verify checks plans under the default shortage 'reject' only")
-    arcs = read_arcs(envelope["arcs"], max_arcs=limits.max_arcs)
-    nodes = read_nodes(envelope["nodes"], extra_fields=("supply",))
-    network = build_network(arcs, nodes.ids, allow_lower=True)
-    if network.num_nodes > limits.max_nodes:
-        raise ProblemTooLarge(FieldError("/nodes", f"has {network.num_nodes} nodes; the limit is {limits.max_nodes}"))
+    network, nodes = read_network(envelope["arcs"], envelope["nodes"], max_arcs=limits.max_arcs,
+                                  max_nodes=limits.max_nodes)
     supply = np.zeros(network.num_nodes, dtype=np.int64)
     column = nodes.fields.get("supply")
     if column is not None:

@@ -189,6 +189,30 @@ def build_network(raw: RawArcs, declared: IdColumn, *, allow_lower: bool = True)
     return Network(nodes, tail, head, capacity, unlimited, cost, lower, keys)
 
 
+def read_network(arcs_raw, nodes_raw, *, max_arcs: int, max_nodes: int, allow_lower: bool = True,
+                 node_fields: tuple[str, ...] = ("supply",)):
+    """Read, check and normalise the ``arcs`` and ``nodes`` members of a request.
+
+    Returns
+    -------
+    (Network, RawNodes)
+        The network, and the nodes as read (for per-node fields such as ``supply``).
+
+    Raises
+    ------
+    InputError, ProblemTooLarge
+        Naming the offending field by JSON Pointer.
+    """
+    from .nodes import read_nodes
+
+    arcs = read_arcs(arcs_raw, max_arcs=max_arcs)
+    nodes = read_nodes(nodes_raw, extra_fields=node_fields)
+    network = build_network(arcs, nodes.ids, allow_lower=allow_lower)
+    if network.num_nodes > max_nodes:
+        raise ProblemTooLarge(FieldError("/nodes", f"has {network.num_nodes} nodes; the limit is {max_nodes}"))
+    return network, nodes
+
+
 def _capacity(col: IdColumn | None, count: int):
     if col is None:
         return np.zeros(count, dtype=np.int64), np.ones(count, dtype=bool)
