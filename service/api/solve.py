@@ -8,7 +8,6 @@ from flask import Blueprint, current_app
 
 from ..kinds import KINDS, Kind, Limits
 from . import cache, jobs
-from .bounded import bounded_solve
 from .jsonio import decode_body
 
 bp = Blueprint("solve", __name__, url_prefix="/v1")
@@ -16,21 +15,6 @@ bp = Blueprint("solve", __name__, url_prefix="/v1")
 
 def limits() -> Limits:
     return current_app.extensions["sluice"].limits
-
-
-def solve_request(kind: Kind, body) -> tuple[dict, float, float]:
-    """Parse and solve one request body; returns (response, parse seconds, solve seconds)."""
-    started = perf_counter()
-    problem = kind.parse(body, limits())
-    parsed = perf_counter()
-    result = bounded_solve(kind, problem, limits())
-    return result, parsed - started, perf_counter() - parsed
-
-
-def timing(started: float, solve_s: float) -> dict:
-    total = perf_counter() - started
-    return {"parse": round((total - solve_s) * 1000, 3), "solve": round(solve_s * 1000, 3),
-            "total": round(total * 1000, 3)}
 
 
 def _make_view(kind: Kind):

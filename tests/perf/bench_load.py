@@ -16,6 +16,7 @@ Memory: RSS of every gunicorn worker after a warm-up and at the end.
 from __future__ import annotations
 
 import json
+import os
 import random
 import statistics
 import threading
@@ -45,7 +46,7 @@ def medium_body(arcs: int = 30_000) -> bytes:
 
 
 def run(args) -> None:
-    seconds = 15 if getattr(args, "quick", False) else 60
+    seconds = 15 if getattr(args, "quick", False) else int(os.environ.get("SLUICE_BENCH_SECONDS", "60"))
     medium = medium_body()
     bad = json.dumps({"source": "a", "sink": "a", "arcs": [{"from": "a", "to": "b", "capacity": -1}]}).encode()
     job = json.dumps({"kind": "maxflow", "problem": json.loads(DEPOTS)}).encode()
@@ -112,6 +113,14 @@ def run(args) -> None:
         until = time.monotonic() + seconds
         started = time.monotonic()
         threads = [threading.Thread(target=client_loop, args=(100 + i, until)) for i in range(8)]
+        series = {w: [] for w in workers}  # RSS every 10 s: growth that levels off vs keeps going
+
+        def sample():
+            while time.monotonic() < until:
+                for w in workers:
+                    series[w].append(rss_mb(w))
+                time.sleep(10)
+        threads.append(threading.Thread(target=sample))
         [t.start() for t in threads]
         [t.join() for t in threads]
         elapsed = time.monotonic() - started
@@ -133,5 +142,7 @@ def run(args) -> None:
           f"{statistics.median(floor) * 1000:.2f} ms ({small_p50 / statistics.median(floor):.1f}x)")
     for w in workers:
         print(f"worker {w}: RSS {rss_start[w]:.0f} MB after warm-up -> {rss_end.get(w, float('nan')):.0f} MB at end")
+    for w, values in series.items():
+        print(f"worker {w}: RSS every 10 s: {' '.join(f'{v:.0f}' for v in values)} MB")
     print("workers replaced during the run:", replaced)
     print("targets: zero 5xx; worker RSS growth small (< 10%) over the run")

@@ -7,7 +7,6 @@ Run: `python -m tests.perf maxflow` (add --quick for 100k arcs only).
 
 from __future__ import annotations
 
-import time
 from pathlib import Path
 
 import networkx as nx
