@@ -13,15 +13,19 @@ from __future__ import annotations
 import numpy as np
 import simdjson
 
-_HINTS = (b'"arcs":{', b'"arcs": {')
-
-
 def looks_columnar(raw: bytes) -> bool:
-    """Cheap pre-check (a few byte searches) that a body has numeric columnar arcs."""
-    if not any(h in raw for h in _HINTS):
+    """Cheap pre-check that a body has numeric columnar arcs.
+
+    Looks only near the first ``"arcs"`` key (usually close to the start), so an
+    object-form body is not scanned end to end; a wrong guess either way only costs
+    speed, never correctness (see :func:`decode_columnar`).
+    """
+    at = raw.find(b'"arcs"')
+    if at < 0 or raw[at + 6: at + 16].lstrip(b" \t\r\n:")[:1] != b"{":
         return False
-    at = raw.find(b'"from":[')
-    return at >= 0 and raw[at + 8: at + 9] in b"0123456789-"
+    at = raw.find(b'"from"', at)
+    return at >= 0 and raw[at + 6: at + 16].lstrip(b" \t\r\n:[")[:1] in b"0123456789-" and \
+        b"[" in raw[at + 6: at + 16]
 
 
 def _numeric(array) -> np.ndarray | list:
