@@ -361,3 +361,16 @@ def test_bad_input(client, what, patch, pointer):
     assert r.status_code == 422, r.get_json()
     assert r.headers["Content-Type"].startswith("application/problem+json")
     assert pointer in [e["pointer"] for e in r.get_json()["errors"]]
+
+
+def test_commodity_limit_is_the_configured_one(tmp_path):
+    """SLUICE_MAX_COMMODITIES (Settings.max_commodities) bounds a request: 413 with a pointer."""
+    from service.api import create_app
+
+    body = {"arcs": [{"from": "a", "to": "b", "capacity": 5}],
+            "commodities": [{"id": f"c{i}", "source": "a", "sink": "b", "demand": 1} for i in range(3)]}
+    small = create_app({"data_dir": str(tmp_path), "max_commodities": 2}).test_client()
+    r = small.post("/v1/multicommodity", json=body)
+    assert r.status_code == 413 and r.get_json()["errors"][0]["pointer"] == "/commodities"
+    roomy = create_app({"data_dir": str(tmp_path / "b"), "max_commodities": 3}).test_client()
+    assert roomy.post("/v1/multicommodity", json=body).status_code == 200

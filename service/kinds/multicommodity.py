@@ -26,8 +26,6 @@ from .base import Limits, node_position, time_limit, wants
 from .maxflow import EngineSchema, TimingSchema
 
 DETAIL = ["flows", "capacity_prices"]
-#: Commodities per request; each is one block of the model and one entry of the envelope.
-MAX_COMMODITIES = 10_000
 
 
 class CommoditySchema(Schema):
@@ -162,9 +160,10 @@ def parse(body, limits: Limits) -> MultiCommodityProblem:
     network, _ = read_network(envelope["arcs"], envelope["nodes"], max_arcs=limits.max_arcs,
                               max_nodes=limits.max_nodes, allow_lower=False, node_fields=())
     listed = envelope["commodities"]
-    if len(listed) > MAX_COMMODITIES:
+    # Each commodity is one block of the model (SLUICE_MAX_COMMODITIES, default 1,000).
+    if len(listed) > limits.max_commodities:
         raise ProblemTooLarge(FieldError("/commodities", f"has {len(listed)} commodities; the limit is "
-                                                         f"{MAX_COMMODITIES}"))
+                                                         f"{limits.max_commodities}"))
     if len(listed) * network.num_arcs > limits.max_arcs:
         raise ProblemTooLarge(FieldError("/commodities", f"{len(listed)} commodities x {network.num_arcs} arcs "
                                                          f"exceed the limit of {limits.max_arcs} flow variables"))
