@@ -193,15 +193,21 @@ def test_capacity_prices_are_subgradients(client, seed):
     assert min(prices) >= 0
 
 
-def test_scenario_prices_and_bottlenecks(client):
-    body = json.loads((SCENARIOS / "depots-multicommodity.json").read_text())
-    out = client.post("/v1/multicommodity", json=body).get_json()
-    names = {}
+def indexed(body: dict):
+    """A request body as the reference model takes it: node indices, arc and commodity tuples."""
+    names: dict = {}
     for arc in body["arcs"]:
         names.setdefault(arc["from"], len(names))
         names.setdefault(arc["to"], len(names))
     arcs = [(names[a["from"]], names[a["to"]], a["capacity"], a["cost"]) for a in body["arcs"]]
     commodities = [(names[c["source"]], names[c["sink"]], c["demand"]) for c in body["commodities"]]
+    return names, arcs, commodities
+
+
+def test_scenario_prices_and_bottlenecks(client):
+    body = json.loads((SCENARIOS / "depots-multicommodity.json").read_text())
+    out = client.post("/v1/multicommodity", json=body).get_json()
+    names, arcs, commodities = indexed(body)
     status, cost, _ = reference(len(names), arcs, commodities)
     assert out["status"] == status == "optimal"
     assert out["cost"] == pytest.approx(cost)
@@ -220,12 +226,7 @@ def test_max_throughput_prices_bound_the_extra_delivery(client):
     for c in body["commodities"]:
         c["demand"] *= 2
     out = client.post("/v1/multicommodity", json=body).get_json()
-    names = {}
-    for arc in body["arcs"]:
-        names.setdefault(arc["from"], len(names))
-        names.setdefault(arc["to"], len(names))
-    arcs = [(names[a["from"]], names[a["to"]], a["capacity"], a["cost"]) for a in body["arcs"]]
-    commodities = [(names[c["source"]], names[c["sink"]], c["demand"]) for c in body["commodities"]]
+    names, arcs, commodities = indexed(body)
     total = sum(out["delivered"])
     assert total == pytest.approx(sum(reference(len(names), arcs, commodities, "max-throughput")[2]))
     assert out["bottlenecks"]
@@ -255,12 +256,7 @@ def test_infeasible_min_cost_names_commodities_and_binding_arcs(client):
              if nx.maximum_flow_value(simple, c["source"], c["sink"]) < c["demand"]]
     assert info["cannot_meet_alone"] == alone and alone
     assert set(alone) <= set(info["commodities"])
-    names = {}
-    for arc in body["arcs"]:
-        names.setdefault(arc["from"], len(names))
-        names.setdefault(arc["to"], len(names))
-    arcs = [(names[a["from"]], names[a["to"]], a["capacity"], a["cost"]) for a in body["arcs"]]
-    commodities = [(names[c["source"]], names[c["sink"]], c["demand"]) for c in body["commodities"]]
+    names, arcs, commodities = indexed(body)
     best = sum(reference(len(names), arcs, commodities, "max-throughput")[2])
     assert info["max_delivered"] == pytest.approx(best)
     assert sum(info["shortfall"]) == pytest.approx(sum(c[2] for c in commodities) - best)

@@ -453,6 +453,19 @@ def _lp(net: _Net, supply, c, time_limit, extra_cols=None):
     return lp, low, upper
 
 
+def _lp_certified(net: _Net, lp, low, upper, tol):
+    """Flows and potentials of an optimal LP answer, with their certificate.
+
+    GLOP's duals of the conservation rows, negated, are the potentials of the
+    reduced-cost convention (cost + p[from] - p[to]).
+    """
+    flows = np.clip(lp.x, low, upper)
+    p = -lp.row_duals
+    certificate = checks.check_min_cost_flow(net.n, net.tail, net.head, net.cap, net.unl, net.low, net.cost,
+                                             net.sup, flows, p, tol)
+    return flows, p, certificate
+
+
 def _lp_reject(net: _Net, tol, time_limit):
     cycle = _float_negative_cycle(net, tol)
     if cycle is not None:
@@ -469,10 +482,7 @@ def _lp_reject(net: _Net, tol, time_limit):
         return _lp_infeasible(net, _lp_auxiliary(net)[0], tol)
     if lp.status != "optimal":
         raise SolverFailure(f"GLOP returned {lp.status} for a model without a negative unlimited cycle")
-    flows = np.clip(lp.x, low, upper)
-    p = -lp.row_duals
-    certificate = checks.check_min_cost_flow(net.n, net.tail, net.head, net.cap, net.unl, net.low, net.cost,
-                                             net.sup, flows, p, tol)
+    flows, p, certificate = _lp_certified(net, lp, low, upper, tol)
     solution = MinCostSolution("optimal", _lp_engine(tol), cost=certificate["primal_cost"],
                                shipped=float(net.sup[net.sup > 0].sum()), flows=flows, potentials=p,
                                reduced_costs=checks.reduced_costs(net.cost, p, net.tail, net.head), tolerance=tol)
@@ -544,10 +554,7 @@ def _lp_max_flow(net: _Net, tol, time_limit):
     lp, low, upper = _lp(aug, aug.sup, aug.cost, time_limit)
     if lp.status != "optimal":
         raise SolverFailure(f"GLOP returned {lp.status} for the min-cost largest shipment")
-    flows = np.clip(lp.x, low, upper)
-    p = -lp.row_duals
-    certificate = checks.check_min_cost_flow(aug.n, aug.tail, aug.head, aug.cap, aug.unl, aug.low, aug.cost,
-                                             aug.sup, flows, p, tol)
+    flows, p, certificate = _lp_certified(aug, lp, low, upper, tol)
     side = _residual_reach(aug.n, aug.tail, aug.head, flows - low, aug.cap - low, aug.unl, s, tol)
     certificate["shipped_bound"] = checks.check_shipped_cut(aug.tail, aug.head, aug.cap, aug.unl, aug.low, side,
                                                             s, t, shipped, tol)
