@@ -153,6 +153,22 @@ def test_overflowing_sums_route_to_lp_or_are_refused():
         solve(3, arcs, 0, 2, "graph")
 
 
+def test_huge_integer_capacities_on_the_lp_route_agree_with_networkx():
+    # Found by the object-form decoder's HTTP test: capacities near 10**18 whose sums
+    # overflow int64 went to GLOP unscaled, and GLOP stopped ABNORMAL (a 500).
+    # networkx computes with Python integers, exactly.
+    rng = np.random.default_rng(11)
+    arcs = [(int(a), int(b), int(c)) for a, b, c in
+            zip(rng.integers(0, 30, 400), rng.integers(0, 30, 400), rng.integers(1, 10**18, 400)) if a != b]
+    solution, certificate = solve(30, arcs, 0, 29)
+    g = nx.DiGraph()
+    for a, b, c in arcs:
+        g.add_edge(a, b, capacity=g.get_edge_data(a, b, {}).get("capacity", 0) + c)
+    exact = nx.maximum_flow_value(g, 0, 29)
+    assert solution.engine["kind"] == "lp" and certificate["checked"]
+    assert abs(solution.value - exact) <= solution.tolerance
+
+
 def test_unlimited_arcs_off_every_path_give_a_finite_answer():
     arcs = [(0, 1, None), (1, 2, 5), (0, 2, 1), (2, 0, None)]
     solution, certificate = solve(3, arcs, 0, 2)

@@ -11,6 +11,7 @@ from flask.json.provider import JSONProvider
 
 from ..errors import BadRequest, UnsupportedMediaType
 from .fastjson import decode_columnar, looks_columnar
+from .fastobjects import decode_objects, looks_like_objects
 
 DUMP_OPTIONS = orjson.OPT_SERIALIZE_NUMPY | orjson.OPT_NON_STR_KEYS
 
@@ -70,8 +71,17 @@ def raw_body() -> bytes:
     return raw
 
 
-def read_json_body():
+def read_json_body(arc_columns: bool = False):
     """Decode the request body as JSON.
+
+    Parameters
+    ----------
+    arc_columns : bool
+        Whether a large object-form ``arcs`` array may arrive as an
+        :class:`~service.model.arcs.ObjectArcs` (columns decoded straight from the
+        bytes) instead of a list of dicts. Only callers that hand ``arcs`` to
+        :func:`~service.model.arcs.read_network` and never re-serialise the body ask
+        for it.
 
     Raises
     ------
@@ -89,6 +99,10 @@ def read_json_body():
         raise BadRequest("the request body is empty; send a JSON object")
     if looks_columnar(raw):
         decoded = decode_columnar(raw)
+        if decoded is not None:
+            return decoded
+    elif arc_columns and looks_like_objects(raw):
+        decoded = decode_objects(raw)
         if decoded is not None:
             return decoded
     with no_gc():
@@ -115,7 +129,7 @@ def _read_text() -> str:
         raise BadRequest(f"the body is not valid {charset} text: {exc}") from None
 
 
-def decode_body(purpose: str | None = None):
+def decode_body(purpose: str | None = None, arc_columns: bool = False):
     """Decode the request body by its media type: JSON, or a DIMACS text file.
 
     Parameters
@@ -152,7 +166,7 @@ def decode_body(purpose: str | None = None):
     if not _is_json(mimetype) and takes_text:
         raise UnsupportedMediaType(f"send the problem as application/json or {MEDIA_TYPE} "
                                    f"(got {mimetype or 'no Content-Type'})")
-    return read_json_body()
+    return read_json_body(arc_columns)
 
 
 def translate_errors(exc):

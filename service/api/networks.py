@@ -120,7 +120,7 @@ def put_network(name: str):
     store = cache.get_store()
     # The body is checked before the preconditions, so a malformed request is a 4xx
     # for its body whatever the ETags say; the store checks If-Match atomically.
-    network = read_network(decode_body("network"), _limits())
+    network = read_network(decode_body("network", arc_columns=True), _limits())
     meta, created = store.put_network(cache.tenant(), name, network, network_digest(network), pre)
     headers = {"ETag": _etag(meta)}
     if created:

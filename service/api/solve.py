@@ -30,7 +30,7 @@ def _make_view(kind: Kind):
         # The decoded body of a large object-form request is millions of Python
         # objects; keep it alive until the response is sent so that freeing it does
         # not delay the answer.
-        keep = [decode_body(kind.name)]
+        keep = [decode_body(kind.name, arc_columns=True)]
         problem = kind.parse(keep[0], limits())
         response = cache.answer(kind, problem, started=started, key=key)
         response.call_on_close(keep.clear)

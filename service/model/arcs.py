@@ -31,6 +31,16 @@ class RawArcs:
     form: str  # "objects" or "columns"
 
 
+@dataclass(frozen=True)
+class ObjectArcs:
+    """Object-form arcs already split into columns (numpy arrays, :class:`NullableInts`
+    or :class:`~service.model.ids.Utf8Ids`) by the API's fast decoder. Pointers still
+    name ``/arcs/<i>/<field>``, as for the list of objects they came from."""
+
+    columns: dict
+    count: int
+
+
 def read_arcs(raw: object, *, base: str = "/arcs", max_arcs: int | None = None) -> RawArcs:
     """Split the ``arcs`` member into columns, checking its shape.
 
@@ -41,7 +51,10 @@ def read_arcs(raw: object, *, base: str = "/arcs", max_arcs: int | None = None) 
     ProblemTooLarge
         More than ``max_arcs`` arcs.
     """
-    if isinstance(raw, list):
+    if isinstance(raw, ObjectArcs):
+        arcs = RawArcs({name: IdColumn(values, _object_where(base, name)) for name, values in raw.columns.items()},
+                       raw.count, "objects")
+    elif isinstance(raw, list):
         arcs = _read_objects(raw, base)
     elif isinstance(raw, dict):
         arcs = _read_columns(raw, base)

@@ -26,6 +26,18 @@ MAX_REPORTED_ERRORS = 20
 
 
 @dataclass(frozen=True)
+class NullableInts:
+    """An int64 column with JSON nulls marked (their value slot is 0), as the
+    object-form fast decoder hands it over."""
+
+    values: np.ndarray
+    null: np.ndarray
+
+    def __len__(self) -> int:
+        return int(self.values.size)
+
+
+@dataclass(frozen=True)
 class NumberColumn:
     """A checked numeric column.
 
@@ -93,6 +105,10 @@ def number_column(
     """
     if isinstance(col, np.ndarray):
         return _typed_column(col, where, minimum)
+    if isinstance(col, NullableInts):
+        if not allow_null and col.null.any():
+            raise _mask_errors(col.null, where, "must be a number")
+        return NumberColumn(_typed_column(col.values, where, minimum).values, col.null if col.null.any() else None)
     kinds = set(map(type, col))
     allowed = {int, float, type(None)} if allow_null else {int, float}
     if not kinds <= allowed:

@@ -42,16 +42,19 @@ def max_flow_lp(num_nodes, tail, head, capacity, unlimited, source, sink, *, tim
     zeros = np.zeros(num_nodes)
     c = np.zeros(m + 1)
     c[m] = 1.0
-    lp = solve_lp(c, matrix, zeros, zeros, np.zeros(m + 1), np.append(upper, np.inf), maximize=True,
+    # GLOP's tolerances are absolute: the model is solved on capacities scaled to at
+    # most 1, so that huge ones (integer data whose sums overflow int64 comes here)
+    # stay well conditioned. Answers are scaled back and hold to LP_TOLERANCE * scale.
+    scale = max(1.0, float(cap.max()) if m else 1.0)
+    lp = solve_lp(c, matrix, zeros, zeros, np.zeros(m + 1), np.append(upper / scale, np.inf), maximize=True,
                   time_limit=time_limit)
     if lp.status == "time_limit":
         raise SolveTimeout("the LP engine reached the time limit before the maximum flow")
     if lp.status != "optimal":
         raise SolverFailure(f"GLOP returned {lp.status} for a bounded max-flow model")
-    scale = max(1.0, float(cap.max()) if m else 1.0)
     tol = LP_TOLERANCE * scale
-    flows = np.clip(lp.x[:m], 0.0, upper)
-    value = float(lp.x[m])
+    flows = np.clip(lp.x[:m] * scale, 0.0, upper)
+    value = float(lp.x[m]) * scale
     source_side = residual_reachable(num_nodes, tail, head, flows, upper, source, tol)
     engine = dict(lp.engine, tolerance=tol)
     return MaxFlowSolution("optimal", value, flows, source_side, engine, tolerance=tol)
