@@ -137,14 +137,16 @@ def _arc_columns(raw: bytes, count: int) -> ObjectArcs:
     buf = np.frombuffer(raw + bytes(PAD), dtype=np.uint8)
     pos, code = _events(raw, buf)
     pos, code = _arcs_events(raw, pos, code)
-    if int(np.count_nonzero(code == LBRACE)) != count:  # every element an object
+    opening = np.flatnonzero(code == LBRACE)
+    if opening.size != count:  # every element an object
         raise _Refuse
     colon = np.flatnonzero(code == COLON)
     if colon.size == 0:
         raise _Refuse
     words = np.ndarray((buf.size - 7,), dtype="<u8", buffer=buf, strides=(1,))  # a word at every byte
     field = _field_of(words, pos[colon - 2] + 1, pos[colon - 1])
-    arc = (np.cumsum(code == LBRACE, dtype=np.int32) - 1)[colon]
+    members = np.diff(np.searchsorted(colon, opening), append=colon.size)
+    arc = np.repeat(np.arange(count, dtype=np.int32), members)  # the arc of each member
     present = _presence(arc, field, count)
     string = code[colon + 1] == QUOTE
     scalar = ~string
@@ -179,13 +181,16 @@ def _events(raw: bytes, buf: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     # With no backslash in the body every quote delimits a string, so quotes pair up
     # in order. Usually no structural byte sits inside a string (ids seldom hold
     # commas or braces): then no event needs dropping.
-    quotes = np.flatnonzero(code == QUOTE)
-    if quotes.size % 2:
+    quote = code == QUOTE
+    quotes = int(np.count_nonzero(quote))
+    if quotes % 2:
         raise _Refuse
-    if not (quotes[1::2] - quotes[0::2] > 1).any():
+    # In valid JSON a structural byte always separates two strings, so adjacent
+    # quote events are the two ends of one string with nothing inside to drop.
+    if int(np.count_nonzero(quote[:-1] & quote[1:])) == quotes // 2:
         return pos, code
-    odd = (np.cumsum(code == QUOTE, dtype=np.uint8) & 1).astype(bool)
-    keep = (code == QUOTE) | ~odd  # an event is inside a string after an odd count of quotes
+    odd = (np.cumsum(quote, dtype=np.uint8) & 1).astype(bool)
+    keep = quote | ~odd  # an event is inside a string after an odd count of quotes
     return pos[keep], code[keep]
 
 

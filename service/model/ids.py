@@ -214,18 +214,25 @@ def _intern_strings(declared: list, tails: list, heads: list):
 
 
 def _intern_ints(declared: np.ndarray, tails: np.ndarray, heads: np.ndarray):
-    seq = np.concatenate([declared, _interleave(tails, heads)])
-    if seq.size == 0:
+    size = declared.size + tails.size + heads.size
+    if size == 0:
         return [], tails.astype(np.int32), heads.astype(np.int32)
-    top = int(seq.max())
-    if top <= DENSE_FACTOR * seq.size + 1_000_000:
-        first = np.full(top + 1, seq.size, dtype=np.int64)
-        np.minimum.at(first, seq, np.arange(seq.size, dtype=np.int64))
-        present = np.flatnonzero(first < seq.size)
+    top = max(int(a.max()) for a in (declared, tails, heads) if a.size)
+    if top <= DENSE_FACTOR * size + 1_000_000:
+        # The position of each id's first mention in the order declared, from, to,
+        # from, to, ...: without building that interleaved sequence.
+        first = np.full(top + 1, size, dtype=np.int64)
+        np.minimum.at(first, declared, np.arange(declared.size, dtype=np.int64))
+        mentions = declared.size + 2 * np.arange(tails.size, dtype=np.int64)
+        np.minimum.at(first, tails, mentions)
+        mentions += 1
+        np.minimum.at(first, heads, mentions)
+        present = np.flatnonzero(first < size)
         ids = present[np.argsort(first[present], kind="stable")]
         rank = np.empty(top + 1, dtype=np.int32)
         rank[ids] = np.arange(ids.size, dtype=np.int32)
         return ids.tolist(), rank[tails], rank[heads]
+    seq = np.concatenate([declared, _interleave(tails, heads)])
     uniq, first, inverse = np.unique(seq, return_index=True, return_inverse=True)
     order = np.argsort(first, kind="stable")
     rank = np.empty(uniq.size, dtype=np.int32)
@@ -256,7 +263,8 @@ def _intern_utf8(declared: list, tails: Utf8Ids, heads: Utf8Ids):
     ends[0::2, : tails.words.shape[1]] = tails.words
     ends[1::2, : heads.words.shape[1]] = heads.words
     first, codes = _group_rows(rows)
-    ids = [_decode_row(rows[i]) for i in first.tolist()]
+    # One bytes object per node, not per arc end; numpy strips the zero padding.
+    ids = [b.decode("utf-8") for b in rows[first].view(f"S{8 * width}").ravel().tolist()]
     lookup = dict(zip(ids, range(len(ids))))
     n_decl = len(encoded)
     codes = codes.astype(np.int32)
