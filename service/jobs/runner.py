@@ -66,7 +66,7 @@ class SolverProcess:
     def __init__(self):
         self.proc = subprocess.Popen(
             [sys.executable, "-m", "service.jobs.child", str(os.getpid())],
-            stdin=subprocess.PIPE, stdout=subprocess.PIPE, env=_child_env(), close_fds=True,
+            stdin=subprocess.PIPE, stdout=subprocess.PIPE, env=_child_env(), close_fds=True, bufsize=0,
         )
         self.pid = self.proc.pid
         ready = self._wait(time.monotonic() + START_TIMEOUT, None, 0.5)
@@ -89,6 +89,8 @@ class SolverProcess:
                 pass
 
     def _wait(self, deadline: float | None, on_tick, tick: float):
+        # Frames go through the descriptors (see frames); the unbuffered file objects
+        # only own them, and fileno() refuses once kill() has closed them.
         fd = self.proc.stdout.fileno()
         while True:
             left = None if deadline is None else deadline - time.monotonic()
@@ -97,7 +99,7 @@ class SolverProcess:
                 raise DeadlineExceeded()
             ready, _, _ = select.select([fd], [], [], tick if left is None else min(tick, left))
             if ready:
-                reply = read_frame(self.proc.stdout)
+                reply = read_frame(fd)
                 if reply is None:
                     self.kill()
                     raise ChildLost(f"solver process {self.pid} exited with {self.proc.returncode}")
@@ -130,8 +132,8 @@ class SolverProcess:
             In each case the child is dead afterwards.
         """
         try:
-            write_frame(self.proc.stdin, message)
-        except (BrokenPipeError, OSError):
+            write_frame(self.proc.stdin.fileno(), message)
+        except (OSError, ValueError):  # the child has gone (ValueError: it was killed here before)
             self.kill()
             raise ChildLost(f"solver process {self.pid} exited with {self.proc.returncode}") from None
         return self._wait(deadline, on_tick, tick)
