@@ -12,6 +12,7 @@ forked a child ends, so that thread must outlive every child.
 
 from __future__ import annotations
 
+import fcntl
 import logging
 import os
 import select
@@ -28,6 +29,11 @@ from .frames import read_frame, write_frame
 log = logging.getLogger("sluice.runner")
 
 START_TIMEOUT = 120.0  # seconds for a child to import its libraries (slow on a loaded host)
+#: Bytes a pipe to or from a child holds. With the Linux default (64 KB) a 16 MB
+#: problem costs each side hundreds of wake-ups; 1 MB (the default ceiling for an
+#: unprivileged process, /proc/sys/fs/pipe-max-size) about halved the time of a
+#: 16 MB + 8 MB round trip on a 2-CPU host (33-52 ms -> 16-22 ms).
+PIPE_SIZE = 1 << 20
 
 
 class DeadlineExceeded(Exception):
@@ -54,6 +60,13 @@ class RemoteError(SluiceError):
         return self._extra
 
 
+def _grow_pipe(fd: int) -> None:
+    try:
+        fcntl.fcntl(fd, fcntl.F_SETPIPE_SZ, PIPE_SIZE)
+    except (AttributeError, OSError) as exc:  # not Linux, or over the user's pipe quota: slower, still correct
+        log.debug("pipe size stays at the default: %s", exc)
+
+
 def _child_env() -> dict:
     env = dict(os.environ)
     env.pop("PROMETHEUS_MULTIPROC_DIR", None)  # children never write metrics
@@ -69,6 +82,8 @@ class SolverProcess:
             stdin=subprocess.PIPE, stdout=subprocess.PIPE, env=_child_env(), close_fds=True, bufsize=0,
         )
         self.pid = self.proc.pid
+        _grow_pipe(self.proc.stdin.fileno())
+        _grow_pipe(self.proc.stdout.fileno())
         ready = self._wait(time.monotonic() + START_TIMEOUT, None, 0.5)
         if not (isinstance(ready, tuple) and ready[0] == "ready"):
             self.kill()
