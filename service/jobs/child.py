@@ -29,9 +29,9 @@ def main() -> None:
     # Ctrl-C in a terminal reaches the whole process group; the parent decides our fate.
     signal.signal(signal.SIGINT, signal.SIG_IGN)
     # The protocol owns the original stdout; stray prints from libraries go to stderr.
-    out = os.fdopen(os.dup(1), "wb")
+    out = os.dup(1)
     os.dup2(2, 1)
-    inp = sys.stdin.buffer
+    inp = sys.stdin.fileno()
     from .frames import read_frame, write_frame
     from .work import handle  # imports numpy, OR-Tools and the kinds once, before "ready"
 
@@ -40,7 +40,11 @@ def main() -> None:
         message = read_frame(inp)
         if message is None:
             return
-        write_frame(out, handle(message))
+        reply = handle(message)
+        # Free the last problem before the next one is read, so its memory is reused.
+        del message
+        write_frame(out, reply)
+        del reply
 
 
 if __name__ == "__main__":
