@@ -14,6 +14,7 @@ import shutil
 import tempfile
 
 from .logs import logging_config
+from .memory import retain_freed_memory
 
 _METRICS_DIR_OWNED = "SLUICE_METRICS_DIR_OWNED"
 
@@ -78,6 +79,8 @@ def post_fork(server, worker) -> None:
     # Large problems allocate millions of short-lived acyclic objects; fewer
     # cyclic-GC passes keep the decode fast. Reference counting frees them as usual.
     gc.set_threshold(50_000, 20, 20)
+    # Before the worker starts its threads (see service.memory).
+    retain_freed_memory()
 
 
 def post_worker_init(worker) -> None:

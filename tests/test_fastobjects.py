@@ -16,6 +16,7 @@ import numpy as np
 import orjson
 import pytest
 
+from service.api import fastobjects
 from service.api.fastobjects import MIN_BYTES, decode_objects, looks_like_objects
 from service.errors import InputError
 from service.model.arcs import ObjectArcs, read_network
@@ -56,7 +57,8 @@ DUMPERS = {
 }
 
 
-def random_body(seed: int, names, *, nulls=True, missing=True, cost=True, lower=True, declared=True):
+def random_body(seed: int, names, *, nulls=True, missing=True, cost=True, lower=True, declared=True,
+                shuffle=True):
     rng = random.Random(seed)
     n, m = rng.randint(2, 40), rng.randint(1, 300)
     ids = [names(i) for i in range(n)] if names else [rng.choice([i, i + 10**17]) for i in range(n)]
@@ -70,12 +72,13 @@ def random_body(seed: int, names, *, nulls=True, missing=True, cost=True, lower=
             arc["capacity"] = None
         else:
             arc["capacity"] = cap
-        if cost and rng.random() < 0.7:
+        if cost and (not shuffle or rng.random() < 0.7):
             arc["cost"] = rng.randint(-10**6, 10**6)
-        if lower and rng.random() < 0.3:
+        if lower and (not shuffle or rng.random() < 0.3):
             arc["lower"] = 0 if arc.get("capacity") is None else rng.randint(0, arc["capacity"])
         items = list(arc.items())
-        rng.shuffle(items)
+        if shuffle:
+            rng.shuffle(items)
         arcs.append(dict(items))
     body = {"source": ids[0], "sink": ids[-1], "arcs": arcs, "options": {"cache": "bypass"}}
     if declared and rng.random() < 0.5:
@@ -88,6 +91,48 @@ def random_body(seed: int, names, *, nulls=True, missing=True, cost=True, lower=
 def test_generated_bodies_decode_as_the_ordinary_path_does(dump, names):
     for seed in range(12):
         assert_same_as_ordinary(dump(random_body(seed, names)))
+
+
+def columns_both_ways(raw: bytes):
+    """The arcs' columns from the uniform-layout reader and from the general one."""
+    buf = np.frombuffer(raw + bytes(fastobjects.PAD), dtype=np.uint8)
+    words = np.ndarray((buf.size - 7,), dtype="<u8", buffer=buf, strides=(1,))
+    pos, code = fastobjects._arcs_events(raw, *fastobjects._events(raw, buf))
+    count = len(orjson.loads(raw)["arcs"])
+    return (fastobjects._uniform_columns(buf, words, pos, code, count),
+            fastobjects._mixed_columns(buf, words, pos, code, count))
+
+
+def as_lists(columns: dict) -> dict:
+    out = {}
+    for name, col in columns.items():
+        if hasattr(col, "words"):
+            out[name] = list(col)
+        elif hasattr(col, "null"):
+            out[name] = (col.values.tolist(), col.null.tolist())
+        else:
+            out[name] = col.tolist()
+    return out
+
+
+@pytest.mark.parametrize("dump", DUMPERS.values(), ids=DUMPERS.keys())
+@pytest.mark.parametrize("names", [None, *NAME_STYLES.values()], ids=["integer ids", *NAME_STYLES])
+def test_arcs_written_alike_take_the_grid_reader_and_agree_with_the_general_one(dump, names):
+    for seed in range(6):
+        raw = dump(random_body(seed, names, missing=False, shuffle=False))
+        uniform, mixed = columns_both_ways(raw)
+        assert uniform is not None
+        assert as_lists(uniform) == as_lists(mixed)
+        assert_same_as_ordinary(raw)
+
+
+def test_a_layout_that_repeats_with_keys_in_another_order_is_read_by_the_general_reader():
+    arcs = [{"from": 1, "to": 2, "capacity": 3}, {"to": 4, "from": 5, "capacity": 6}] * 3
+    raw = orjson.dumps({"source": 1, "sink": 4, "arcs": arcs})
+    uniform, mixed = columns_both_ways(raw)
+    assert uniform is None and mixed is not None
+    fast = assert_same_as_ordinary(raw)
+    assert fast["arcs"].columns["from"].tolist() == [1, 5] * 3
 
 
 def test_every_optional_field_absent_or_present_everywhere():

@@ -13,7 +13,7 @@ ALLOWED = {
     "solvers": {"errors"},
     "kinds": {"errors", "model", "solvers"},
     "store": {"errors", "model"},
-    "jobs": {"errors", "config", "kinds"},
+    "jobs": {"errors", "config", "kinds", "memory"},
 }
 
 

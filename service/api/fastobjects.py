@@ -71,6 +71,7 @@ _LOW_BYTES = np.array([(1 << (8 * n)) - 1 for n in range(9)], dtype=np.uint64)
 _BAD = np.ones(256, dtype=bool)
 _BAD[list(b"0123456789- \t\r\nnul")] = False
 _SPACE, _ZERO, _MINUS, _N = (np.uint8(ord(c)) for c in " 0-n")
+_SPACE_WORD = np.uint64(ord(" "))
 _WHITE = np.zeros(256, dtype=bool)
 _WHITE[list(b" \t\r\n")] = True
 # Words for reading eight ASCII digits at once.
@@ -137,13 +138,81 @@ def _arc_columns(raw: bytes, count: int) -> ObjectArcs:
     buf = np.frombuffer(raw + bytes(PAD), dtype=np.uint8)
     pos, code = _events(raw, buf)
     pos, code = _arcs_events(raw, pos, code)
+    words = np.ndarray((buf.size - 7,), dtype="<u8", buffer=buf, strides=(1,))  # a word at every byte
+    columns = _uniform_columns(buf, words, pos, code, count)
+    if columns is None:
+        columns = _mixed_columns(buf, words, pos, code, count)
+    return ObjectArcs(columns, count)
+
+
+def _uniform_columns(buf, words, pos, code, count: int) -> dict | None:
+    """The columns when every arc has the same members in the same order, as
+    serialisers write them; None otherwise (then :func:`_mixed_columns` reads them).
+
+    The events of such an array repeat with one period, so each member is a column of
+    a (count, period) grid of byte positions: no search, no per-field sorting.
+    """
+    # "[", then each arc's events and a comma, except that "]" ends the last arc.
+    if count == 0 or (code.size - 1) % count:
+        return None
+    period = (code.size - 1) // count  # events per arc, with the comma after it
+    row = code[1: 1 + period]
+    if not (period >= 4 and row[0] == LBRACE and row[-2] == RBRACE and row[-1] == COMMA
+            and _FOLLOWS[row[:-1] * np.uint8(8) + row[1:]].all()):
+        return None
+    grid = code[1:].copy()
+    grid[-1] = COMMA  # the closing "]" stands in for the last arc's comma
+    if not (grid.reshape(count, period) == row).all():
+        return None
+    at = pos[1:].reshape(count, period)  # at[i, j]: byte of the j-th event of arc i
+    members = np.flatnonzero(row == COLON).tolist()
+    fields = [_uniform_field(words, at[:, c - 2] + 1, at[:, c - 1]) for c in members]
+    if None in fields or len(set(fields)) < len(fields) or not {0, 1} <= set(fields):
+        return None
+    columns = {}
+    for c, f in zip(members, fields):
+        name = FIELDS[f]
+        if row[c + 1] == QUOTE:  # a string: only ids may be one
+            if f > 1:
+                return None
+            columns[name] = _strings(buf, at[:, c + 1] + 1, at[:, c + 2])
+            continue
+        values, null = _numbers(buf, words, at[:, c] + 1, at[:, c + 1])
+        if null.any():
+            if name != "capacity":
+                return None
+            columns[name] = NullableInts(values, null)
+        else:
+            columns[name] = values
+    if type(columns["from"]) is not type(columns["to"]):
+        return None
+    return columns
+
+
+def _uniform_field(words, start, stop) -> int | None:
+    """The field every one of these keys names, or None when they differ."""
+    try:
+        first = int(_field_of(words, start[:1], stop[:1])[0])
+    except _Refuse:
+        return None
+    length = stop - start
+    if (length != len(FIELDS[first])).any():
+        return None
+    same = (words[start] & _LOW_BYTES[len(FIELDS[first])]) == _FIELD_WORDS[first]
+    return first if same.all() else None
+
+
+def _mixed_columns(buf, words, pos, code, count: int) -> dict:
+    """The columns of any array of flat arc objects (members in any order, optional
+    ones absent in some arcs)."""
+    if not _FOLLOWS[code[:-1] * np.uint8(8) + code[1:]].all():
+        raise _Refuse
     opening = np.flatnonzero(code == LBRACE)
     if opening.size != count:  # every element an object
         raise _Refuse
     colon = np.flatnonzero(code == COLON)
     if colon.size == 0:
         raise _Refuse
-    words = np.ndarray((buf.size - 7,), dtype="<u8", buffer=buf, strides=(1,))  # a word at every byte
     field = _field_of(words, pos[colon - 2] + 1, pos[colon - 1])
     members = np.diff(np.searchsorted(colon, opening), append=colon.size)
     arc = np.repeat(np.arange(count, dtype=np.int32), members)  # the arc of each member
@@ -171,7 +240,7 @@ def _arc_columns(raw: bytes, count: int) -> ObjectArcs:
         columns["from"], columns["to"] = value_of[ends[0]], value_of[ends[1]]
     else:
         raise _Refuse
-    return ObjectArcs(columns, count)
+    return columns
 
 
 def _events(raw: bytes, buf: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -195,8 +264,7 @@ def _events(raw: bytes, buf: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
 
 
 def _arcs_events(raw: bytes, pos: np.ndarray, code: np.ndarray):
-    """The events from the ``[`` of the top-level ``arcs`` member to its ``]``, checked
-    to hold flat objects only (see _FOLLOWS)."""
+    """The events from the ``[`` of the top-level ``arcs`` member to its ``]``."""
     step = np.zeros(8, dtype=np.int64)
     step[[LBRACE, LBRACKET]], step[[RBRACE, RBRACKET]] = 1, -1
     found, at, tries = [], raw.find(b'"arcs"'), 0
@@ -212,10 +280,9 @@ def _arcs_events(raw: bytes, pos: np.ndarray, code: np.ndarray):
         raise _Refuse
     start = found[0]
     end = start + int(np.argmax(code[start:] == RBRACKET))
-    code = code[start: end + 1]
-    if code[-1] != RBRACKET or not _FOLLOWS[code[:-1] * np.uint8(8) + code[1:]].all():
+    if code[end] != RBRACKET:
         raise _Refuse
-    return pos[start: end + 1], code
+    return pos[start: end + 1], code[start: end + 1]
 
 
 def _field_of(words: np.ndarray, start: np.ndarray, stop: np.ndarray) -> np.ndarray:
@@ -246,22 +313,27 @@ def _presence(arc: np.ndarray, field: np.ndarray, count: int) -> np.ndarray:
 def _numbers(buf, words, start, stop) -> tuple[np.ndarray, np.ndarray]:
     """Integer tokens (or ``null``) between each ``start`` and ``stop``, white space around.
 
-    Tokens of 1-8 plain digits (nearly all of them) are read eight bytes at a time;
-    the rest (signs, nulls, longer numbers) one byte column at a time.
+    Tokens of 1-8 plain digits, after at most one space (nearly all of them), are read
+    eight bytes at a time; the rest (signs, nulls, longer numbers, more white space)
+    one byte column at a time.
     """
-    start, stop = _strip(buf, start, stop)
     length = stop - start
-    plain = (length >= 1) & (length <= 8)
-    token = words[start] & _LOW_BYTES[np.where(plain, length, 0)]
-    # Left-pad each token with "0" digits to eight bytes (the first byte is the low one).
+    word = words[start]
+    # In valid JSON a byte <= 0x20 outside strings is white space (Python's ": ").
+    lead = ((word & _LOW_BYTES[1]) <= _SPACE_WORD) & (length > 0)
+    word = np.where(lead, word >> _EIGHT, word)
+    length = length - lead
+    plain = (length >= 1) & (length <= 8 - lead)
+    # Left-pad each token with "0" digits to eight bytes (the first byte is the low
+    # one): the shift drops whatever followed the token in the word.
     pad = np.where(plain, 8 - length, 0).astype(np.uint64)
-    x = (token << (pad * _EIGHT)) | _ZERO_BYTES[pad]
+    x = (word << (pad * _EIGHT)) | _ZERO_BYTES[pad]
     plain &= ((x & _HIGH_NIBBLES) | (((x + _SIXES) & _HIGH_NIBBLES) >> _FOUR)) == _THREES
     values = _eight_digits(x - _ZERO_WORD).astype(np.int64)
     null = np.zeros(start.size, dtype=bool)
     rest = np.flatnonzero(~plain)
     if rest.size:
-        values[rest], null[rest] = _digit_columns(buf, start[rest], stop[rest])
+        values[rest], null[rest] = _digit_columns(buf, *_strip(buf, start[rest], stop[rest]))
     return values, null
 
 

@@ -26,6 +26,9 @@ def _die_with_parent(parent: int) -> None:
 
 def main() -> None:
     _die_with_parent(int(sys.argv[1]))
+    from ..memory import retain_freed_memory
+
+    retain_freed_memory()
     # Ctrl-C in a terminal reaches the whole process group; the parent decides our fate.
     signal.signal(signal.SIGINT, signal.SIG_IGN)
     # The protocol owns the original stdout; stray prints from libraries go to stderr.

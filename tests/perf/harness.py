@@ -10,7 +10,13 @@ from contextlib import contextmanager
 import orjson
 import requests
 
+from service.memory import retain_freed_memory
 from tests.conftest import RunningServer
+
+# The in-process baselines run under the same allocator settings as the service's
+# processes (service/memory.py), so that neither side's ratio gains from page faults
+# the other one pays.
+retain_freed_memory()
 
 
 def best_of(fn, repeat: int = 3) -> float:
