@@ -46,21 +46,25 @@ PAD = 72
 #: At most this many ``"arcs"`` strings are looked at to find the top-level member.
 MAX_ARCS_KEYS = 16
 
-# Event classes: the bytes that matter to the shape of the arcs array.
-QUOTE, LBRACE, RBRACE, COLON, COMMA, LBRACKET, RBRACKET = range(1, 8)
-_CLASS = np.zeros(256, dtype=np.uint8)
-for _code, _char in zip(range(1, 8), b'"{}:,[]'):
-    _CLASS[_char] = _code
+# Events are the bytes that give the arcs array its shape; each is its own code.
+QUOTE, LBRACE, RBRACE, COLON, COMMA, LBRACKET, RBRACKET = b'"{}:,[]'
 #: bytes.translate table: 1 for those bytes, 0 otherwise (read as numpy booleans).
-_SPECIAL_TABLE = bytes((_CLASS > 0).astype(np.uint8).tolist())
+_SPECIAL_TABLE = bytes(1 if b in b'"{}:,[]' else 0 for b in range(256))
 
-#: Which event may follow which inside an array of flat objects with scalar values.
-#: simdjson has already accepted the body as JSON; this only rules out nesting.
-_FOLLOWS = np.zeros(64, dtype=bool)
+#: Which event may follow which inside an array of flat objects with scalar values,
+#: indexed by ``first << 8 | second``. simdjson has already accepted the body as
+#: JSON; this only rules out nesting.
+_FOLLOWS = np.zeros(1 << 16, dtype=bool)
 for _a, _b in [(LBRACKET, LBRACE), (LBRACKET, RBRACKET), (LBRACE, QUOTE), (LBRACE, RBRACE), (QUOTE, QUOTE),
                (QUOTE, COLON), (QUOTE, COMMA), (QUOTE, RBRACE), (COLON, QUOTE), (COLON, COMMA), (COLON, RBRACE),
                (COMMA, QUOTE), (COMMA, LBRACE), (RBRACE, COMMA), (RBRACE, RBRACKET)]:
-    _FOLLOWS[_a * 8 + _b] = True
+    _FOLLOWS[_a << 8 | _b] = True
+
+
+def _follows(code: np.ndarray) -> bool:
+    """Whether every event in ``code`` may follow the one before it."""
+    return bool(_FOLLOWS[(code[:-1].astype(np.uint16) << 8) | code[1:]].all())
+
 
 FIELDS = ("from", "to", "capacity", "cost", "lower")
 #: Each field name as the little-endian word of its bytes.
@@ -158,15 +162,16 @@ def _uniform_columns(buf, words, pos, code, count: int) -> dict | None:
     period = (code.size - 1) // count  # events per arc, with the comma after it
     row = code[1: 1 + period]
     if not (period >= 4 and row[0] == LBRACE and row[-2] == RBRACE and row[-1] == COMMA
-            and _FOLLOWS[row[:-1] * np.uint8(8) + row[1:]].all()):
+            and _follows(row)):
         return None
     grid = code[1:].copy()
     grid[-1] = COMMA  # the closing "]" stands in for the last arc's comma
     if not (grid.reshape(count, period) == row).all():
         return None
-    at = pos[1:].reshape(count, period)  # at[i, j]: byte of the j-th event of arc i
+    # at[j, i]: the byte of the j-th event of arc i (one contiguous row per event).
+    at = np.ascontiguousarray(pos[1:].reshape(count, period).T)
     members = np.flatnonzero(row == COLON).tolist()
-    fields = [_uniform_field(words, at[:, c - 2] + 1, at[:, c - 1]) for c in members]
+    fields = [_uniform_field(words, at[c - 2] + 1, at[c - 1]) for c in members]
     if None in fields or len(set(fields)) < len(fields) or not {0, 1} <= set(fields):
         return None
     columns = {}
@@ -175,9 +180,9 @@ def _uniform_columns(buf, words, pos, code, count: int) -> dict | None:
         if row[c + 1] == QUOTE:  # a string: only ids may be one
             if f > 1:
                 return None
-            columns[name] = _strings(buf, at[:, c + 1] + 1, at[:, c + 2])
+            columns[name] = _strings(buf, at[c + 1] + 1, at[c + 2])
             continue
-        values, null = _numbers(buf, words, at[:, c] + 1, at[:, c + 1])
+        values, null = _numbers(buf, words, at[c] + 1, at[c + 1])
         if null.any():
             if name != "capacity":
                 return None
@@ -205,7 +210,7 @@ def _uniform_field(words, start, stop) -> int | None:
 def _mixed_columns(buf, words, pos, code, count: int) -> dict:
     """The columns of any array of flat arc objects (members in any order, optional
     ones absent in some arcs)."""
-    if not _FOLLOWS[code[:-1] * np.uint8(8) + code[1:]].all():
+    if not _follows(code):
         raise _Refuse
     opening = np.flatnonzero(code == LBRACE)
     if opening.size != count:  # every element an object
@@ -246,7 +251,7 @@ def _mixed_columns(buf, words, pos, code, count: int) -> dict:
 def _events(raw: bytes, buf: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Positions and classes of the quotes and of the structural bytes outside strings."""
     pos = np.flatnonzero(np.frombuffer(raw.translate(_SPECIAL_TABLE), dtype=bool))
-    code = _CLASS[buf[pos]]
+    code = buf[pos]
     # With no backslash in the body every quote delimits a string, so quotes pair up
     # in order. Usually no structural byte sits inside a string (ids seldom hold
     # commas or braces): then no event needs dropping.
@@ -265,7 +270,7 @@ def _events(raw: bytes, buf: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
 
 def _arcs_events(raw: bytes, pos: np.ndarray, code: np.ndarray):
     """The events from the ``[`` of the top-level ``arcs`` member to its ``]``."""
-    step = np.zeros(8, dtype=np.int64)
+    step = np.zeros(256, dtype=np.int64)
     step[[LBRACE, LBRACKET]], step[[RBRACE, RBRACKET]] = 1, -1
     found, at, tries = [], raw.find(b'"arcs"'), 0
     while at >= 0 and tries < MAX_ARCS_KEYS:
