@@ -168,8 +168,7 @@ def _uniform_columns(buf, words, pos, code, count: int) -> dict | None:
     grid[-1] = COMMA  # the closing "]" stands in for the last arc's comma
     if not (grid.reshape(count, period) == row).all():
         return None
-    # at[j, i]: the byte of the j-th event of arc i (one contiguous row per event).
-    at = np.ascontiguousarray(pos[1:].reshape(count, period).T)
+    at = _EventColumns(pos, period, count)
     members = np.flatnonzero(row == COLON).tolist()
     fields = [_uniform_field(words, at[c - 2] + 1, at[c - 1]) for c in members]
     if None in fields or len(set(fields)) < len(fields) or not {0, 1} <= set(fields):
@@ -192,6 +191,19 @@ def _uniform_columns(buf, words, pos, code, count: int) -> dict | None:
     if type(columns["from"]) is not type(columns["to"]):
         return None
     return columns
+
+
+class _EventColumns:
+    """``at[j][i]``: the byte of the j-th event of arc i, as contiguous copies of the
+    event columns that are asked for (a member uses four of its arc's events)."""
+
+    def __init__(self, pos: np.ndarray, period: int, count: int):
+        self.pos, self.period, self.count, self.cache = pos, period, count, {}
+
+    def __getitem__(self, j: int) -> np.ndarray:
+        if j not in self.cache:
+            self.cache[j] = np.ascontiguousarray(self.pos[1 + j:: self.period][: self.count])
+        return self.cache[j]
 
 
 def _uniform_field(words, start, stop) -> int | None:

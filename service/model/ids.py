@@ -268,8 +268,10 @@ def _intern_utf8(declared: list, tails: Utf8Ids, heads: Utf8Ids):
     ends[0::2, : tails.words.shape[1]] = tails.words
     ends[1::2, : heads.words.shape[1]] = heads.words
     first, codes = _group_rows(rows)
-    # One bytes object per node, not per arc end; numpy strips the zero padding.
-    ids = [b.decode("utf-8") for b in rows[first].view(f"S{8 * width}").ravel().tolist()]
+    # One bytes object per node, not per arc end (numpy strips the zero padding), and
+    # one decode for all of them: ids cannot hold a NUL byte, so it separates them.
+    names = rows[first].view(f"S{8 * width}").ravel().tolist()
+    ids = b"\0".join(names).decode("utf-8").split("\0") if names else []
     lookup = dict(zip(ids, range(len(ids))))
     n_decl = len(encoded)
     codes = codes.astype(np.int32)
@@ -309,7 +311,10 @@ def _group_rows(rows: np.ndarray, mix: np.uint64 = _MIX, rounds: int = 3) -> tup
         table = np.full(1 << bits, n, dtype=np.int64)
         np.minimum.at(table, slot, np.arange(n, dtype=np.int64))
         rep = table[slot]  # the earliest row in each row's slot
-        rest = np.flatnonzero((rows != rows[rep]).any(axis=1))
+        differs = rows[:, 0] != rows[rep, 0]
+        for j in range(1, rows.shape[1]):
+            differs |= rows[:, j] != rows[rep, j]
+        rest = np.flatnonzero(differs)
         if rest.size:
             sub_first, sub_group = _group_rows(rows[rest], mix, rounds - 1)
             rep[rest] = rest[sub_first[sub_group]]
