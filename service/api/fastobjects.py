@@ -194,16 +194,13 @@ def _uniform_columns(buf, words, pos, code, count: int) -> dict | None:
 
 
 class _EventColumns:
-    """``at[j][i]``: the byte of the j-th event of arc i, as contiguous copies of the
-    event columns that are asked for (a member uses four of its arc's events)."""
+    """``at[j][i]``: the byte of the j-th event of arc i (a strided view)."""
 
     def __init__(self, pos: np.ndarray, period: int, count: int):
-        self.pos, self.period, self.count, self.cache = pos, period, count, {}
+        self.pos, self.period, self.count = pos, period, count
 
     def __getitem__(self, j: int) -> np.ndarray:
-        if j not in self.cache:
-            self.cache[j] = np.ascontiguousarray(self.pos[1 + j:: self.period][: self.count])
-        return self.cache[j]
+        return self.pos[1 + j:: self.period][: self.count]
 
 
 def _uniform_field(words, start, stop) -> int | None:
