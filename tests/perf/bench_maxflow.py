@@ -72,9 +72,13 @@ def networkx_time(n, tail, head, cap) -> float:
     return best_of(run, repeat=1)
 
 
+def _workers(master_pid: int) -> list[str]:
+    return Path(f"/proc/{master_pid}/task/{master_pid}/children").read_text().split()
+
+
 def worker_peak_rss_mb(master_pid: int) -> float:
     peaks = []
-    for child in Path(f"/proc/{master_pid}/task/{master_pid}/children").read_text().split():
+    for child in _workers(master_pid):
         for line in Path(f"/proc/{child}/status").read_text().splitlines():
             if line.startswith("VmHWM:"):
                 peaks.append(int(line.split()[1]) / 1024)
@@ -119,7 +123,14 @@ def run(args) -> None:
                          f"{http_s * 1000:.0f}", f"{http_s / floor_s:.2f}x", doc["timing_ms"]["parse"],
                          doc["timing_ms"]["solve"]))
     table(rows, ("arcs", "form", "body MB", "floor ms", "HTTP ms", "HTTP / floor", "parse ms", "solve ms"))
-    print(f"peak RSS of the worker after these requests: {peak:.0f} MB")
+    print(f"peak RSS of the worker over all these requests: {peak:.0f} MB")
+    if not args.quick:
+        print("peak RSS of a fresh worker after one 1M-arc request (its solver process not included):")
+        net = random_network(1_000_000)
+        for form, body in bodies(*net).items():
+            with served(workers=1) as server, requests.Session() as session:
+                post_json(session, server.url + "/v1/maxflow", body)
+                print(f"  {form}: {worker_peak_rss_mb(server.proc.pid):.0f} MB", flush=True)
     print("targets: columns 1M <= 2.0x floor; objects 100k <= 5x floor; >= 10x faster than networkx at 100k")
 
 
