@@ -3,9 +3,12 @@
 An object-form body of 100k arcs holds 100k JSON objects and 300k values. Decoding
 it into dicts and then reading the fields back out costs several times the solve,
 all of it Python object traffic. This module reads the ``arcs`` array of such a body
-with numpy instead: one pass classifies every byte, and the quotes, braces, colons
-and commas found that way give each arc's keys and values without building a
-Python object per arc.
+with numpy instead: one pass finds every quote, brace, colon and comma, and the
+arcs' keys and values are read off those positions without building a Python object
+per arc. When every arc is written with the same members in the same order (as
+serialisers write them), the positions repeat with one period and each member is a
+column of that grid (:func:`_uniform_columns`); otherwise a general reader matches
+each member to its arc (:func:`_mixed_columns`). Tests check that both agree.
 
 It takes only a conservative subset of bodies, and only when the answer provably
 equals the ordinary decode:
