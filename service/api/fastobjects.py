@@ -428,3 +428,59 @@ def _strings(buf: np.ndarray, start: np.ndarray, stop: np.ndarray) -> Utf8Ids:
     for k in range(width // 8):
         words[:, k] &= _LOW_BYTES[np.clip(length - 8 * k, 0, 8)]
     return Utf8Ids(words)
+
+
+def string_columns(raw: bytes):
+    """A reader of the string columns of a columnar body, for
+    :func:`~service.api.fastjson.decode_columnar`.
+
+    Returns
+    -------
+    callable
+        ``column(key, count)``: the node ids ``arcs.from`` or ``arcs.to`` (``count``
+        strings) as :class:`Utf8Ids`, read straight from the bytes, or None when that
+        is not a flat array of strings of 1-64 bytes, or the body holds a backslash
+        (then the caller keeps simdjson's list). The body's events are found once, on
+        first use.
+    """
+    found: dict = {}
+
+    def column(key: str, count: int) -> Utf8Ids | None:
+        if key not in ("from", "to") or len(raw) < MIN_BYTES or b"\\" in raw:
+            return None
+        try:
+            if "events" not in found:
+                buf = np.frombuffer(raw + bytes(PAD), dtype=np.uint8)
+                found["events"] = (buf, *_events(raw, buf))
+            return _string_column(raw, *found["events"], key.encode(), count)
+        except _Refuse:
+            return None
+
+    return column
+
+
+def _string_column(raw: bytes, buf, pos, code, key: bytes, count: int) -> Utf8Ids:
+    step = np.zeros(256, dtype=np.int64)
+    step[[LBRACE, LBRACKET]], step[[RBRACE, RBRACKET]] = 1, -1
+    depth = np.cumsum(step[code])  # after each event
+    # The member: a key of two quotes, a colon, "[" inside the top-level "arcs" object.
+    colons = np.flatnonzero((code == COLON) & (depth == 2))
+    colons = colons[(colons >= 2) & (colons + 1 < code.size)]
+    hits = [int(c) for c in colons if code[c + 1] == LBRACKET and raw[pos[c - 2] + 1: pos[c - 1]] == key
+            and _inside_arcs(raw, pos, code, depth, c)]
+    if len(hits) != 1:
+        raise _Refuse
+    start = hits[0] + 1  # the "["
+    inner = code[start + 1: start + 3 * count]  # '"', '"', ',' per string, then the "]"
+    if (inner.size != 3 * count - 1 or code[start + 3 * count] != RBRACKET or (inner[0::3] != QUOTE).any()
+            or (inner[1::3] != QUOTE).any() or (inner[2::3] != COMMA).any()):
+        raise _Refuse
+    return _strings(buf, pos[start + 1: start + 3 * count: 3] + 1, pos[start + 2: start + 3 * count: 3])
+
+
+def _inside_arcs(raw: bytes, pos, code, depth, colon: int) -> bool:
+    """Whether the member at ``colon`` (depth 2) belongs to the top-level ``arcs``."""
+    opening = int(np.flatnonzero((code[:colon] == LBRACE) & (depth[:colon] == 2))[-1])
+    key_colon = opening - 1  # the top-level key's colon sits right before its "{"
+    return (key_colon >= 2 and code[key_colon] == COLON and depth[key_colon] == 1
+            and raw[pos[key_colon - 2] + 1: pos[key_colon - 1]] == b"arcs")

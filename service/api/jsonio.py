@@ -11,7 +11,7 @@ from flask.json.provider import JSONProvider
 
 from ..errors import BadRequest, UnsupportedMediaType
 from .fastjson import decode_columnar, looks_columnar
-from .fastobjects import decode_objects, looks_like_objects
+from .fastobjects import decode_objects, looks_like_objects, string_columns
 
 DUMP_OPTIONS = orjson.OPT_SERIALIZE_NUMPY | orjson.OPT_NON_STR_KEYS
 
@@ -97,8 +97,8 @@ def read_json_body(arc_columns: bool = False):
     raw = raw_body()
     if not raw:
         raise BadRequest("the request body is empty; send a JSON object")
-    if looks_columnar(raw):
-        decoded = decode_columnar(raw)
+    if looks_columnar(raw, strings=arc_columns):
+        decoded = decode_columnar(raw, string_columns(raw) if arc_columns else None)
         if decoded is not None:
             return decoded
     elif arc_columns and looks_like_objects(raw):

@@ -14,7 +14,7 @@ import numpy as np
 
 from ..errors import FieldError, InputError, ProblemTooLarge
 from .columns import MAX_REPORTED_ERRORS, NumberColumn, number_column
-from .ids import MAX_ID_LENGTH, IdColumn, NodeIndex, intern_ids
+from .ids import MAX_ID_LENGTH, IdColumn, NodeIndex, Utf8Ids, intern_ids
 
 ARC_FIELDS = ("from", "to", "capacity", "cost", "lower", "key")
 REQUIRED = ("from", "to")
@@ -117,7 +117,7 @@ def _read_columns(raw: dict, base: str) -> RawArcs:
         if name not in raw:
             continue
         values = raw[name]
-        if not isinstance(values, (list, np.ndarray)):
+        if not isinstance(values, (list, np.ndarray, Utf8Ids)):
             raise InputError.at(f"{base}/{name}", "must be a list")
         if count is None:
             count = len(values)

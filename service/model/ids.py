@@ -186,8 +186,11 @@ def intern_ids(declared: IdColumn, tails: IdColumn, heads: IdColumn) -> tuple[No
     if len(set(declared.values)) < len(declared.values):
         _raise_duplicates(declared)
     if kind is str:
-        intern = _intern_utf8 if isinstance(tails.values, Utf8Ids) else _intern_strings
-        lookup, tail, head = intern(declared.values, tails.values, heads.values)
+        t, h = tails.values, heads.values
+        if isinstance(t, Utf8Ids) and isinstance(h, Utf8Ids):
+            lookup, tail, head = _intern_utf8(declared.values, t, h)
+        else:  # at most one column arrived as UTF-8 rows
+            lookup, tail, head = _intern_strings(declared.values, list(t), list(h))
         # Lengths are checked once per distinct id, not once per arc end.
         if _bad_length(lookup):
             _check_strings(columns)
