@@ -28,6 +28,8 @@ generated bodies both ways and compare (``tests/test_fastobjects.py``).
 
 from __future__ import annotations
 
+import logging
+
 import numpy as np
 import simdjson
 from numpy.lib.stride_tricks import sliding_window_view
@@ -36,6 +38,8 @@ from ..model.arcs import ObjectArcs
 from ..model.columns import NullableInts
 from ..model.ids import Utf8Ids
 from .fastjson import _python
+
+log = logging.getLogger("sluice.api")
 
 #: Bodies smaller than this decode faster with orjson than with a dozen numpy passes.
 MIN_BYTES = 64 * 1024
@@ -62,6 +66,11 @@ for _a, _b in [(LBRACKET, LBRACE), (LBRACKET, RBRACKET), (LBRACE, QUOTE), (LBRAC
                (QUOTE, COLON), (QUOTE, COMMA), (QUOTE, RBRACE), (COLON, QUOTE), (COLON, COMMA), (COLON, RBRACE),
                (COMMA, QUOTE), (COMMA, LBRACE), (RBRACE, COMMA), (RBRACE, RBRACKET)]:
     _FOLLOWS[_a << 8 | _b] = True
+
+
+#: The change of nesting depth at each event.
+_STEP = np.zeros(256, dtype=np.int64)
+_STEP[[LBRACE, LBRACKET]], _STEP[[RBRACE, RBRACKET]] = 1, -1
 
 
 def _follows(code: np.ndarray) -> bool:
@@ -135,6 +144,9 @@ def decode_objects(raw: bytes, min_bytes: int = MIN_BYTES) -> dict | None:
     try:
         columns = _arc_columns(raw, len(arcs))
     except _Refuse:
+        return None
+    except Exception:  # noqa: BLE001 - a bug here must cost speed, not the request
+        log.exception("object-form fast decode failed; decoding this body the ordinary way")
         return None
     out = {key: _python(doc[key]) for key in keys if key != "arcs"}
     out["arcs"] = columns
@@ -282,14 +294,12 @@ def _events(raw: bytes, buf: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
 
 def _arcs_events(raw: bytes, pos: np.ndarray, code: np.ndarray):
     """The events from the ``[`` of the top-level ``arcs`` member to its ``]``."""
-    step = np.zeros(256, dtype=np.int64)
-    step[[LBRACE, LBRACKET]], step[[RBRACE, RBRACKET]] = 1, -1
     found, at, tries = [], raw.find(b'"arcs"'), 0
     while at >= 0 and tries < MAX_ARCS_KEYS:
         tries += 1
         i = int(np.searchsorted(pos, at))
         if (i + 3 < code.size and pos[i] == at and code[i] == QUOTE and pos[i + 1] == at + 5
-                and code[i + 2] == COLON and code[i + 3] == LBRACKET and step[code[:i]].sum() == 1):
+                and code[i + 2] == COLON and code[i + 3] == LBRACKET and _STEP[code[:i]].sum() == 1):
             found.append(i + 3)
             break  # simdjson saw no duplicate top-level keys: this is the one
         at = raw.find(b'"arcs"', at + 1)
@@ -451,18 +461,20 @@ def string_columns(raw: bytes):
         try:
             if "events" not in found:
                 buf = np.frombuffer(raw + bytes(PAD), dtype=np.uint8)
-                found["events"] = (buf, *_events(raw, buf))
+                pos, code = _events(raw, buf)
+                found["events"] = (buf, pos, code, np.cumsum(_STEP[code]))
             return _string_column(raw, *found["events"], key.encode(), count)
         except _Refuse:
+            return None
+        except Exception:  # noqa: BLE001 - a bug here must cost speed, not the request
+            log.exception("columnar string fast decode failed; keeping simdjson's list")
             return None
 
     return column
 
 
-def _string_column(raw: bytes, buf, pos, code, key: bytes, count: int) -> Utf8Ids:
-    step = np.zeros(256, dtype=np.int64)
-    step[[LBRACE, LBRACKET]], step[[RBRACE, RBRACKET]] = 1, -1
-    depth = np.cumsum(step[code])  # after each event
+def _string_column(raw: bytes, buf, pos, code, depth, key: bytes, count: int) -> Utf8Ids:
+    """The member ``arcs.<key>`` as UTF-8 rows (``depth[i]``: the nesting after event i)."""
     # The member: a key of two quotes, a colon, "[" inside the top-level "arcs" object.
     colons = np.flatnonzero((code == COLON) & (depth == 2))
     colons = colons[(colons >= 2) & (colons + 1 < code.size)]
@@ -471,6 +483,8 @@ def _string_column(raw: bytes, buf, pos, code, key: bytes, count: int) -> Utf8Id
     if len(hits) != 1:
         raise _Refuse
     start = hits[0] + 1  # the "["
+    if start + 3 * count >= code.size:
+        raise _Refuse
     inner = code[start + 1: start + 3 * count]  # '"', '"', ',' per string, then the "]"
     if (inner.size != 3 * count - 1 or code[start + 3 * count] != RBRACKET or (inner[0::3] != QUOTE).any()
             or (inner[1::3] != QUOTE).any() or (inner[2::3] != COMMA).any()):
@@ -480,7 +494,9 @@ def _string_column(raw: bytes, buf, pos, code, key: bytes, count: int) -> Utf8Id
 
 def _inside_arcs(raw: bytes, pos, code, depth, colon: int) -> bool:
     """Whether the member at ``colon`` (depth 2) belongs to the top-level ``arcs``."""
-    opening = int(np.flatnonzero((code[:colon] == LBRACE) & (depth[:colon] == 2))[-1])
-    key_colon = opening - 1  # the top-level key's colon sits right before its "{"
+    openings = np.flatnonzero((code[:colon] == LBRACE) & (depth[:colon] == 2))
+    if openings.size == 0:
+        return False
+    key_colon = int(openings[-1]) - 1  # the top-level key's colon sits right before its "{"
     return (key_colon >= 2 and code[key_colon] == COLON and depth[key_colon] == 1
             and raw[pos[key_colon - 2] + 1: pos[key_colon - 1]] == b"arcs")
