@@ -35,7 +35,10 @@ def test_no_5xx_and_no_response_breaks_the_spec(tmp_path):
             [str(exe if exe.exists() else "schemathesis"), "run", server.url + "/openapi.json",
              "--max-examples", "20", "--seed", "20261201", "--checks", "all",
              "--exclude-checks", "ignored_auth,positive_data_acceptance,use_after_free",
-             "--generation-database", "none", "--workers", "2", "--request-timeout", "30", "--no-color"],
+             # One worker: with two threads schemathesis sometimes crashed inside CPython 3.11.7
+             # ("SystemError: AST constructor recursion depth mismatch" while parsing its own
+             # source, a tool error, not a finding), which turned CI red at random.
+             "--generation-database", "none", "--workers", "1", "--request-timeout", "30", "--no-color"],
             cwd=tmp_path, stdin=subprocess.DEVNULL, capture_output=True, text=True, timeout=240)
     finally:
         server.stop()
