@@ -67,6 +67,22 @@ def _python(value):
     return value
 
 
+def parse_envelope(raw: bytes, arcs_type):
+    """simdjson's parse of a body that is an object with distinct top-level keys and an
+    ``arcs`` member of ``arcs_type``: ``(doc, keys, arcs)``, or None (any doubt)."""
+    try:
+        doc = simdjson.Parser().parse(raw)
+    except Exception:  # noqa: BLE001 - any refusal just means "use the ordinary decoder"
+        return None
+    if not isinstance(doc, simdjson.Object):
+        return None
+    keys = list(doc.keys())
+    arcs = doc.get("arcs")
+    if len(set(keys)) != len(keys) or not isinstance(arcs, arcs_type):
+        return None
+    return doc, keys, arcs
+
+
 def decode_columnar(raw: bytes, strings=None):
     """Decode a columnar body, with numeric arc columns as numpy arrays.
 
@@ -80,16 +96,10 @@ def decode_columnar(raw: bytes, strings=None):
     array we decoded: a bracket inside a string, a nested array inside a column or a
     duplicate key all make the counts differ and send the body down the ordinary path.
     """
-    try:
-        doc = simdjson.Parser().parse(raw)
-    except Exception:  # noqa: BLE001 - any refusal just means "use the ordinary decoder"
+    parsed = parse_envelope(raw, simdjson.Object)
+    if parsed is None:
         return None
-    if not isinstance(doc, simdjson.Object):
-        return None
-    keys = list(doc.keys())
-    arcs = doc.get("arcs")
-    if len(set(keys)) != len(keys) or not isinstance(arcs, simdjson.Object):
-        return None
+    doc, keys, arcs = parsed
     out, arrays = {}, 0
     for key in keys:
         if key != "arcs":

@@ -37,7 +37,7 @@ from numpy.lib.stride_tricks import sliding_window_view
 from ..model.arcs import ObjectArcs
 from ..model.columns import NullableInts
 from ..model.ids import Utf8Ids
-from .fastjson import _python
+from .fastjson import _python, parse_envelope
 
 log = logging.getLogger("sluice.api")
 
@@ -131,16 +131,10 @@ def decode_objects(raw: bytes, min_bytes: int = MIN_BYTES) -> dict | None:
     """
     if len(raw) < min_bytes or b"\\" in raw:
         return None
-    try:
-        doc = simdjson.Parser().parse(raw)
-    except Exception:  # noqa: BLE001 - any refusal just means "use the ordinary decoder"
+    parsed = parse_envelope(raw, simdjson.Array)
+    if parsed is None:
         return None
-    if not isinstance(doc, simdjson.Object):
-        return None
-    keys = list(doc.keys())
-    arcs = doc.get("arcs")
-    if len(set(keys)) != len(keys) or not isinstance(arcs, simdjson.Array):
-        return None
+    doc, keys, arcs = parsed
     try:
         columns = _arc_columns(raw, len(arcs))
     except _Refuse:
