@@ -104,8 +104,11 @@ class OptionsSchema(Schema):
                                  "scaling). lp: force GLOP (fractional data, stated tolerance)."},
     )
     time_limit = StrictNumber(
-        minimum=0, exclusive=True, load_default=None, allow_none=True,
-        metadata={"description": "Seconds; capped by the server's synchronous limit.", "type": "number"},
+        # A limit below 10 ms cannot cover even the dispatch to the solver process; with
+        # 5e-324 GLOP stopped at once and a valid body got a 504.
+        minimum=0.01, exclusive=False, load_default=None, allow_none=True,
+        metadata={"description": "Seconds, at least 0.01; capped by the server's synchronous limit.",
+                  "type": "number"},
     )
     cache = fields.String(load_default="use", validate=validate.OneOf(["use", "refresh", "bypass"]))
 
