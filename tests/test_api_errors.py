@@ -76,6 +76,7 @@ def test_arc_limit_is_413_with_pointer(tmp_path):
     (lambda b: b.update(options={"engine": "quantum"}), "/options/engine"),
     (lambda b: b.update(options={"time_limit": "5"}), "/options/time_limit"),
     (lambda b: b.update(options={"time_limit": -1}), "/options/time_limit"),
+    (lambda b: b.update(options={"time_limit": 0.005}), "/options/time_limit"),  # below 0.01 s
     (lambda b: b.update(options={"detail": ["everything"]}), "/options/detail/0"),
     (lambda b: b.update(options={"speed": 1}), "/options/speed"),
     (lambda b: b["arcs"][3].update(capacity=-5), "/arcs/3/capacity"),
