@@ -1,11 +1,12 @@
-"""A fast decode for columnar payloads of numbers.
+"""A fast decode for columnar payloads of numbers, fractions included.
 
-A columnar body with integer node ids is mostly long JSON arrays of numbers.
-Decoding those into Python lists and then into numpy arrays costs several times the
-solve on large networks; simdjson parses the document once and hands each numeric
-array over as a typed buffer. Only such bodies take this path, and only when the
-result provably equals the ordinary decode (see :func:`decode_columnar`); everything
-else goes through orjson.
+The compiled scanner (:mod:`service.api.fastarcs`) takes most large bodies; this
+path serves the columnar ones it leaves aside (fractional capacities or costs) and
+callers that keep lists (jobs, which re-serialise the body). A columnar body with
+integer node ids is mostly long JSON arrays of numbers; simdjson parses the document
+once and hands each numeric array over as a typed buffer. Only such bodies take this
+path, and only when the result provably equals the ordinary decode (see
+:func:`decode_columnar`); everything else goes through orjson.
 """
 
 from __future__ import annotations
@@ -13,11 +14,9 @@ from __future__ import annotations
 import numpy as np
 import simdjson
 
-from ..model.ids import Utf8Ids
 
-def looks_columnar(raw: bytes, strings: bool = False) -> bool:
-    """Cheap pre-check that a body has numeric columnar arcs (or, with ``strings``,
-    string ids in its columns).
+def looks_columnar(raw: bytes) -> bool:
+    """Cheap pre-check that a body has numeric columnar arcs.
 
     Looks only near the first ``"arcs"`` key (usually close to the start), so an
     object-form body is not scanned end to end; a wrong guess either way only costs
@@ -27,14 +26,12 @@ def looks_columnar(raw: bytes, strings: bool = False) -> bool:
     if at < 0 or raw[at + 6: at + 16].lstrip(b" \t\r\n:")[:1] != b"{":
         return False
     at = raw.find(b'"from"', at)
-    starts = b'0123456789-"' if strings else b"0123456789-"
-    return at >= 0 and raw[at + 6: at + 16].lstrip(b" \t\r\n:[")[:1] in starts and \
+    return at >= 0 and raw[at + 6: at + 16].lstrip(b" \t\r\n:[")[:1] in b"0123456789-" and \
         b"[" in raw[at + 6: at + 16]
 
 
-def _numeric(array, key: str, strings=None) -> np.ndarray | Utf8Ids | list:
-    """A JSON array of numbers as int64 or float64; of strings as :class:`Utf8Ids` when
-    ``strings(key, count)`` can read it from the bytes; else the plain list."""
+def _numeric(array) -> np.ndarray | list:
+    """A JSON array of numbers as int64 or float64; else the plain list."""
     for code, dtype in (("i", np.int64), ("d", np.float64)):
         try:
             values = np.frombuffer(array.as_buffer(of_type=code), dtype=dtype)
@@ -44,10 +41,6 @@ def _numeric(array, key: str, strings=None) -> np.ndarray | Utf8Ids | list:
         if values.size == len(array):
             return values
         break
-    if strings is not None and len(array) and isinstance(array[0], str):
-        column = strings(key, len(array))
-        if column is not None:
-            return column
     return array.as_list()
 
 
@@ -83,12 +76,8 @@ def parse_envelope(raw: bytes, arcs_type):
     return doc, keys, arcs
 
 
-def decode_columnar(raw: bytes, strings=None):
+def decode_columnar(raw: bytes):
     """Decode a columnar body, with numeric arc columns as numpy arrays.
-
-    ``strings``, when given, is asked for each arc column of strings (see
-    :func:`service.api.fastobjects.string_columns`); a column it cannot read stays a
-    list.
 
     Returns ``None`` when the body does not qualify or any doubt remains, so the
     caller decodes it the ordinary way (which also produces the error messages).
@@ -111,8 +100,8 @@ def decode_columnar(raw: bytes, strings=None):
         return None
     for key in column_keys:
         value = arcs[key]
-        columns[key] = _numeric(value, key, strings) if isinstance(value, simdjson.Array) else _python(value)
-        arrays += 1 if isinstance(columns[key], (np.ndarray, Utf8Ids)) else _count_lists(columns[key])
+        columns[key] = _numeric(value) if isinstance(value, simdjson.Array) else _python(value)
+        arrays += 1 if isinstance(columns[key], np.ndarray) else _count_lists(columns[key])
     out["arcs"] = columns
     if raw.count(b"[") != arrays:
         return None

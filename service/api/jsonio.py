@@ -10,8 +10,8 @@ from flask import Response, current_app, g, has_request_context, request
 from flask.json.provider import JSONProvider
 
 from ..errors import BadRequest, UnsupportedMediaType
+from .fastarcs import decode_arcs_body
 from .fastjson import decode_columnar, looks_columnar
-from .fastobjects import decode_objects, looks_like_objects, string_columns
 
 DUMP_OPTIONS = orjson.OPT_SERIALIZE_NUMPY | orjson.OPT_NON_STR_KEYS
 
@@ -77,9 +77,10 @@ def read_json_body(arc_columns: bool = False):
     Parameters
     ----------
     arc_columns : bool
-        Whether a large object-form ``arcs`` array may arrive as an
-        :class:`~service.model.arcs.ObjectArcs` (columns decoded straight from the
-        bytes) instead of a list of dicts. Only callers that hand ``arcs`` to
+        Whether a large ``arcs`` member may arrive as columns decoded straight from
+        the bytes (:func:`~service.api.fastarcs.decode_arcs_body`: an
+        :class:`~service.model.arcs.ObjectArcs`, or columns with interned string ids)
+        instead of lists. Only callers that hand ``arcs`` to
         :func:`~service.model.arcs.read_network` and never re-serialise the body ask
         for it.
 
@@ -97,12 +98,12 @@ def read_json_body(arc_columns: bool = False):
     raw = raw_body()
     if not raw:
         raise BadRequest("the request body is empty; send a JSON object")
-    if looks_columnar(raw, strings=arc_columns):
-        decoded = decode_columnar(raw, string_columns(raw) if arc_columns else None)
+    if arc_columns:
+        decoded = decode_arcs_body(raw)
         if decoded is not None:
             return decoded
-    elif arc_columns and looks_like_objects(raw):
-        decoded = decode_objects(raw)
+    if looks_columnar(raw):  # e.g. fractional capacities, or a caller that keeps lists
+        decoded = decode_columnar(raw)
         if decoded is not None:
             return decoded
     with no_gc():

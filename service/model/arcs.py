@@ -13,8 +13,8 @@ from operator import itemgetter
 import numpy as np
 
 from ..errors import FieldError, InputError, ProblemTooLarge
-from .columns import MAX_REPORTED_ERRORS, NumberColumn, number_column
-from .ids import MAX_ID_LENGTH, IdColumn, NodeIndex, Utf8Ids, intern_ids
+from .columns import MAX_REPORTED_ERRORS, NullableInts, NumberColumn, number_column
+from .ids import MAX_ID_LENGTH, IdColumn, InternedIds, NodeIndex, intern_ids
 
 ARC_FIELDS = ("from", "to", "capacity", "cost", "lower", "key")
 REQUIRED = ("from", "to")
@@ -34,8 +34,9 @@ class RawArcs:
 @dataclass(frozen=True)
 class ObjectArcs:
     """Object-form arcs already split into columns (numpy arrays, :class:`NullableInts`
-    or :class:`~service.model.ids.Utf8Ids`) by the API's fast decoder. Pointers still
-    name ``/arcs/<i>/<field>``, as for the list of objects they came from."""
+    or :class:`~service.model.ids.InternedIds`) by the API's compiled body scanner.
+    Pointers still name ``/arcs/<i>/<field>``, as for the list of objects they came
+    from."""
 
     columns: dict
     count: int
@@ -117,7 +118,7 @@ def _read_columns(raw: dict, base: str) -> RawArcs:
         if name not in raw:
             continue
         values = raw[name]
-        if not isinstance(values, (list, np.ndarray, Utf8Ids)):
+        if not isinstance(values, (list, np.ndarray, InternedIds, NullableInts)):
             raise InputError.at(f"{base}/{name}", "must be a list")
         if count is None:
             count = len(values)

@@ -29,31 +29,27 @@ class IdColumn:
 
 
 @dataclass(frozen=True)
-class Utf8Ids:
-    """String ids as rows of zero-padded UTF-8 bytes, viewed as uint64 words.
-
-    The object-form fast decoder hands ``from``/``to`` over this way, so that
-    interning never builds a Python string per arc end. Iterating (only the error
-    paths do) yields the ids as ``str``.
+class InternedIds:
+    """String ids already interned by the compiled body scanner: element ``i`` is
+    ``names[codes[i]]``, and ``names`` holds the distinct ids in order of first
+    mention (``from`` before ``to`` within an arc). The ``from`` and ``to`` columns of
+    one body share one ``names`` list, so interning never builds a Python string per
+    arc end. Iterating (only the error paths do) yields the ids as ``str``.
     """
 
-    words: np.ndarray  # shape (count, width // 8), dtype uint64
+    codes: np.ndarray  # int32
+    names: list
 
     def __len__(self) -> int:
-        return self.words.shape[0]
+        return int(self.codes.size)
 
     def __getitem__(self, i):
         if isinstance(i, slice):
-            return [_decode_row(row) for row in self.words[i]]
-        return _decode_row(self.words[i])
+            return [self.names[c] for c in self.codes[i].tolist()]
+        return self.names[self.codes[i]]
 
     def __iter__(self):
-        return (_decode_row(row) for row in self.words)
-
-
-def _decode_row(row: np.ndarray) -> str:
-    # JSON strings cannot hold a raw NUL byte, so the zero padding strips exactly.
-    return row.tobytes().rstrip(b"\0").decode("utf-8")
+        return map(self.names.__getitem__, self.codes.tolist())
 
 
 @dataclass
@@ -87,8 +83,8 @@ class NodeIndex:
 def _kinds(col: IdColumn) -> set:
     if isinstance(col.values, np.ndarray):  # typed columns from the fast decoder
         return {int} if col.values.dtype.kind == "i" else {float}
-    if isinstance(col.values, Utf8Ids):
-        return {str}
+    if isinstance(col.values, InternedIds):
+        return {str} if len(col.values) else set()
     return set(map(type, col.values))
 
 
@@ -187,9 +183,9 @@ def intern_ids(declared: IdColumn, tails: IdColumn, heads: IdColumn) -> tuple[No
         _raise_duplicates(declared)
     if kind is str:
         t, h = tails.values, heads.values
-        if isinstance(t, Utf8Ids) and isinstance(h, Utf8Ids):
-            lookup, tail, head = _intern_utf8(declared.values, t, h)
-        else:  # at most one column arrived as UTF-8 rows
+        if isinstance(t, InternedIds) and isinstance(h, InternedIds) and t.names is h.names:
+            lookup, tail, head = _intern_codes(declared.values, t, h)
+        else:
             lookup, tail, head = _intern_strings(declared.values, list(t), list(h))
         # Lengths are checked once per distinct id, not once per arc end.
         if _bad_length(lookup):
@@ -250,77 +246,13 @@ def _intern_ints(declared: np.ndarray, tails: np.ndarray, heads: np.ndarray):
     return uniq[order].tolist(), codes[n_decl::2].copy(), codes[n_decl + 1 :: 2].copy()
 
 
-#: Widest declared id (in bytes) interned as words; wider ones intern as Python strings.
-MAX_WORD_ID_BYTES = 64
-_MIX = np.uint64(0x9E3779B97F4A7C15)
-
-
-def _intern_utf8(declared: list, tails: Utf8Ids, heads: Utf8Ids):
-    """:func:`_intern_strings` for ids that arrived as UTF-8 rows, without a Python
-    string per arc end (see :func:`_group_rows`)."""
-    encoded = [v.encode("utf-8") for v in declared]
-    widest = max(map(len, encoded), default=0)
-    if widest > MAX_WORD_ID_BYTES:
-        return _intern_strings(declared, list(tails), list(heads))
-    width = max(tails.words.shape[1], heads.words.shape[1], -(-widest // 8))
-    rows = np.zeros((len(encoded) + 2 * len(tails), width), dtype=np.uint64)
-    if encoded:
-        padded = b"".join(e.ljust(8 * width, b"\0") for e in encoded)
-        rows[: len(encoded)] = np.frombuffer(padded, dtype="<u8").reshape(len(encoded), width)
-    ends = rows[len(encoded):]
-    ends[0::2, : tails.words.shape[1]] = tails.words
-    ends[1::2, : heads.words.shape[1]] = heads.words
-    first, codes = _group_rows(rows)
-    # One bytes object per node, not per arc end (numpy strips the zero padding), and
-    # one decode for all of them: ids cannot hold a NUL byte, so it separates them.
-    names = rows[first].view(f"S{8 * width}").ravel().tolist()
-    ids = b"\0".join(names).decode("utf-8").split("\0") if names else []
-    lookup = dict(zip(ids, range(len(ids))))
-    n_decl = len(encoded)
-    codes = codes.astype(np.int32)
-    return lookup, codes[n_decl::2].copy(), codes[n_decl + 1 :: 2].copy()
-
-
-def _group_rows(rows: np.ndarray, mix: np.uint64 = _MIX, rounds: int = 3) -> tuple[np.ndarray, np.ndarray]:
-    """Number the distinct rows in order of first appearance.
-
-    Returns
-    -------
-    (first, group)
-        ``first[g]`` is the index of the first row of group ``g`` (ascending), and
-        ``group[i]`` the group of row ``i``.
-
-    Each row hashes to a slot of a table twice the size of the input; the earliest
-    row in a slot owns it. A row equal to its slot's owner belongs to the owner's
-    group, and that owner is the first occurrence of the row (every copy of a row
-    shares its slot). Rows that differ from their slot's owner (a slot shared by
-    different ids) are grouped again, by a different hash, ``rounds`` times, then
-    exactly by sorting. The result never depends on the hash, only the speed does.
-    """
-    n = rows.shape[0]
-    if n == 0:
-        return np.zeros(0, dtype=np.int64), np.zeros(0, dtype=np.int64)
-    if rounds == 0:
-        _, first_of_unique, inverse = np.unique(rows, axis=0, return_index=True, return_inverse=True)
-        rep = first_of_unique[inverse.ravel()]
-    else:
-        h = np.full(n, mix, dtype=np.uint64) * np.uint64(rounds)
-        for j in range(rows.shape[1]):
-            h ^= rows[:, j]
-            h *= mix
-            h ^= h >> np.uint64(29)
-        bits = n.bit_length() + 1
-        slot = (h >> np.uint64(64 - bits)).astype(np.int64)
-        table = np.full(1 << bits, n, dtype=np.int64)
-        np.minimum.at(table, slot, np.arange(n, dtype=np.int64))
-        rep = table[slot]  # the earliest row in each row's slot
-        differs = rows[:, 0] != rows[rep, 0]
-        for j in range(1, rows.shape[1]):
-            differs |= rows[:, j] != rows[rep, j]
-        rest = np.flatnonzero(differs)
-        if rest.size:
-            sub_first, sub_group = _group_rows(rows[rest], mix, rounds - 1)
-            rep[rest] = rest[sub_first[sub_group]]
-    is_first = np.zeros(n, dtype=bool)
-    is_first[rep] = True
-    return np.flatnonzero(is_first), (np.cumsum(is_first) - 1)[rep]
+def _intern_codes(declared: list, tails: InternedIds, heads: InternedIds):
+    """:func:`_intern_strings` for ids the body scanner has already interned: only
+    the declared nodes, which come first, renumber them."""
+    order = dict.fromkeys(declared)
+    order.update(dict.fromkeys(tails.names))
+    lookup = dict(zip(order, range(len(order))))
+    if not declared:  # the scanner's numbering is already the contract's order
+        return lookup, tails.codes, heads.codes
+    rank = np.fromiter(map(lookup.__getitem__, tails.names), dtype=np.int32, count=len(tails.names))
+    return lookup, rank[tails.codes], rank[heads.codes]

@@ -1,0 +1,631 @@
+# cython: language_level=3, boundscheck=False, wraparound=False, initializedcheck=False, cdivision=True
+"""One pass over a JSON request body that reads its ``arcs`` member into columns.
+
+Compiled at install time (Cython). :mod:`service.api.fastarcs` is the only caller
+and documents the subset of bodies taken; everything here either returns the
+columns of exactly that subset or ``None`` ("take the ordinary path").
+
+The scan walks the bytes once, checking the JSON grammar as it goes, and never
+builds a Python object per arc: integers go straight into int64 columns, and string
+node ids are interned on the fly in a hash table of byte spans (one Python string
+per distinct id, made at the end). The top-level members other than ``arcs`` are
+only delimited here; the caller decodes each with orjson, which also checks them.
+
+Memory safety: ``bytes`` objects always end in a NUL byte after their last one, and
+NUL is not allowed anywhere in JSON, so every loop stops at a byte it does not
+expect, at the latest at that terminator; a pointer never passes it.
+"""
+
+from libc.stdint cimport INT64_MIN, int32_t, int64_t, uint64_t
+from libc.stdlib cimport free, malloc, realloc
+from libc.string cimport memcmp, memcpy, memset
+from cpython.bytes cimport PyBytes_AS_STRING, PyBytes_GET_SIZE
+
+ctypedef const unsigned char* cptr
+
+# The arc fields this scan reads, in the order of its columns.
+cdef enum:
+    NFIELDS = 5
+    F_FROM = 0
+    F_TO = 1
+    F_CAPACITY = 2
+    F_COST = 3
+    F_LOWER = 4
+
+FIELDS = ("from", "to", "capacity", "cost", "lower")
+
+# What the node ids of this body are (one kind per payload).
+cdef enum:
+    IDS_UNSEEN = 0
+    IDS_STRING = 1
+    IDS_INT = 2
+
+#: Stands for ``null`` (or an absent capacity) in an int64 column: no integer of at
+#: most 18 digits can be it.
+NULL_VALUE = -(2 ** 63)
+cdef int64_t NULL_SLOT = INT64_MIN
+cdef enum:
+    # Longest integer this scan reads (in digits); longer ones take the ordinary path.
+    MAX_DIGITS = 18
+    # Top-level members of a body at most (a request has a handful).
+    MAX_MEMBERS = 64
+    # Nesting depth at most inside a skipped member (orjson decodes it afterwards).
+    MAX_SKIP_DEPTH = 512
+
+cdef struct Column:
+    int64_t* data
+    Py_ssize_t size
+    Py_ssize_t cap
+
+cdef struct Scan:
+    cptr base
+    int ids
+    int oom
+    Column col[NFIELDS]
+    Py_ssize_t present[NFIELDS]  # object form: arcs carrying the field
+    Py_ssize_t arcs               # object form: number of arcs
+    # Interned string ids: group g's bytes are arena[start[g]:start[g] + length[g]]. A
+    # copy, not a span of the body: the first mention of an id may lie megabytes back,
+    # and comparing against it there would miss the cache on nearly every lookup.
+    int64_t* start
+    int64_t* length
+    uint64_t* hash
+    Py_ssize_t groups
+    Py_ssize_t groups_cap
+    char* arena
+    Py_ssize_t arena_size
+    Py_ssize_t arena_cap
+    # Open addressing; a slot holds (high 32 bits of the hash) << 32 | group + 1, so
+    # most mismatches are told apart without reading the group; 0 is empty.
+    uint64_t* table
+    int table_bits
+    uint64_t seed
+    Py_ssize_t probes
+    Py_ssize_t lookups
+
+
+cdef inline cptr skip_ws(cptr p) noexcept nogil:
+    while p[0] == 32 or p[0] == 10 or p[0] == 13 or p[0] == 9:
+        p += 1
+    return p
+
+
+cdef int push(Scan* s, int field, int64_t value) noexcept nogil:
+    cdef Column* c = &s.col[field]
+    cdef Py_ssize_t cap
+    cdef int64_t* grown
+    if c.size == c.cap:
+        cap = 1024 if c.cap == 0 else 2 * c.cap
+        grown = <int64_t*>realloc(c.data, cap * sizeof(int64_t))
+        if grown == NULL:
+            s.oom = 1
+            return -1
+        c.data, c.cap = grown, cap
+    c.data[c.size] = value
+    c.size += 1
+    return 0
+
+
+cdef cptr read_int(cptr p, int64_t* out) noexcept nogil:
+    """A JSON integer of at most MAX_DIGITS digits; NULL for anything else (a
+    fraction, an exponent, a leading zero, too many digits)."""
+    cdef bint negative = p[0] == 45  # "-"
+    cdef int64_t value = 0
+    cdef int digits = 0
+    if negative:
+        p += 1
+    if p[0] == 48 and 48 <= p[1] <= 57:  # "0" followed by a digit is not JSON
+        return NULL
+    while 48 <= p[0] <= 57:
+        if digits < MAX_DIGITS:  # past that, refused below (and no overflow on the way)
+            value = value * 10 + (p[0] - 48)
+        digits += 1
+        p += 1
+    if digits == 0 or digits > MAX_DIGITS or p[0] == 46 or p[0] == 101 or p[0] == 69:  # ".", "e", "E"
+        return NULL
+    out[0] = -value if negative else value
+    return p
+
+
+cdef cptr read_key(cptr p, cptr* key, Py_ssize_t* length) noexcept nogil:
+    """A string without escapes or control bytes (p at its opening quote); NULL otherwise."""
+    cdef cptr q = p + 1
+    while q[0] != 34:  # '"'
+        if q[0] == 92 or q[0] < 32:  # a backslash, a control byte or the terminator
+            return NULL
+        q += 1
+    key[0] = p + 1
+    length[0] = q - (p + 1)
+    return q + 1
+
+
+cdef inline int field_of(cptr k, Py_ssize_t n) noexcept nogil:
+    if n == 4 and memcmp(k, b"from", 4) == 0:
+        return F_FROM
+    if n == 2 and k[0] == 116 and k[1] == 111:  # "to"
+        return F_TO
+    if n == 8 and memcmp(k, b"capacity", 8) == 0:
+        return F_CAPACITY
+    if n == 4 and memcmp(k, b"cost", 4) == 0:
+        return F_COST
+    if n == 5 and memcmp(k, b"lower", 5) == 0:
+        return F_LOWER
+    return -1
+
+
+cdef inline uint64_t hash_span(cptr k, Py_ssize_t n, uint64_t seed) noexcept nogil:
+    cdef uint64_t h = seed ^ (<uint64_t>n * 0x9E3779B97F4A7C15ULL)
+    cdef uint64_t word
+    while n >= 8:
+        memcpy(&word, k, 8)
+        h = (h ^ word) * 0x9E3779B97F4A7C15ULL
+        h ^= h >> 29
+        k += 8
+        n -= 8
+    if n:
+        word = 0
+        memcpy(&word, k, n)
+        h = (h ^ word) * 0x9E3779B97F4A7C15ULL
+        h ^= h >> 29
+    return h * 0xBF58476D1CE4E5B9ULL
+
+
+cdef int grow_table(Scan* s) noexcept nogil:
+    cdef int bits = s.table_bits + 1
+    cdef Py_ssize_t size = (<Py_ssize_t>1) << bits
+    cdef uint64_t* table = <uint64_t*>malloc(size * sizeof(uint64_t))
+    cdef Py_ssize_t g, i
+    if table == NULL:
+        s.oom = 1
+        return -1
+    memset(table, 0, size * sizeof(uint64_t))
+    for g in range(s.groups):
+        i = <Py_ssize_t>(s.hash[g] >> (64 - bits))
+        while table[i]:
+            i = (i + 1) & (size - 1)
+        table[i] = (s.hash[g] & 0xFFFFFFFF00000000ULL) | <uint64_t>(g + 1)
+    free(s.table)
+    s.table, s.table_bits = table, bits
+    return 0
+
+
+cdef int grow(void** data, Py_ssize_t* cap, Py_ssize_t need, Py_ssize_t item) noexcept nogil:
+    """Make room for ``need`` items (doubling); -1 when memory runs out."""
+    cdef Py_ssize_t size = cap[0] if cap[0] else 1024
+    cdef void* grown
+    while size < need:
+        size *= 2
+    if size == cap[0]:
+        return 0
+    grown = realloc(data[0], size * item)
+    if grown == NULL:
+        return -1
+    data[0], cap[0] = grown, size
+    return 0
+
+
+cdef int grow_groups(Scan* s) noexcept nogil:
+    """Room for one more group in each of the three group arrays."""
+    cdef Py_ssize_t cap = s.groups_cap
+    if grow(<void**>&s.start, &cap, s.groups + 1, sizeof(int64_t)) < 0:
+        return -1
+    cap = s.groups_cap
+    if grow(<void**>&s.length, &cap, s.groups + 1, sizeof(int64_t)) < 0:
+        return -1
+    cap = s.groups_cap
+    if grow(<void**>&s.hash, &cap, s.groups + 1, sizeof(uint64_t)) < 0:
+        return -1
+    s.groups_cap = cap
+    return 0
+
+
+cdef int64_t intern(Scan* s, cptr k, Py_ssize_t n) noexcept nogil:
+    """The group of this id's bytes (a new one for bytes not seen before); -1 to refuse."""
+    cdef uint64_t h = hash_span(k, n, s.seed)
+    cdef uint64_t tag = h & 0xFFFFFFFF00000000ULL
+    cdef Py_ssize_t mask = ((<Py_ssize_t>1) << s.table_bits) - 1
+    cdef Py_ssize_t i = <Py_ssize_t>(h >> (64 - s.table_bits))
+    cdef Py_ssize_t g
+    cdef uint64_t slot
+    s.lookups += 1
+    while True:
+        slot = s.table[i]
+        if slot == 0:
+            break
+        if (slot & 0xFFFFFFFF00000000ULL) == tag:
+            g = <Py_ssize_t>(slot & 0xFFFFFFFFULL) - 1
+            if s.length[g] == n and memcmp(s.arena + s.start[g], k, n) == 0:
+                return g
+        i = (i + 1) & mask
+        s.probes += 1
+    # Colliding ids cost probes; past this budget (a crafted body, or bad luck) the
+    # ordinary path, with Python's own hashing, decodes the body instead.
+    if s.probes > 8 * s.lookups + 100000 or s.groups >= 0x7FFFFFFE:
+        return -1
+    if s.groups == s.groups_cap and grow_groups(s) < 0:
+        s.oom = 1
+        return -1
+    if s.arena_size + n > s.arena_cap and grow(<void**>&s.arena, &s.arena_cap, s.arena_size + n, 1) < 0:
+        s.oom = 1
+        return -1
+    g = s.groups
+    memcpy(s.arena + s.arena_size, k, n)
+    s.start[g], s.length[g], s.hash[g] = s.arena_size, n, h
+    s.arena_size += n
+    s.table[i] = tag | <uint64_t>(g + 1)
+    s.groups += 1
+    if 2 * s.groups > mask + 1 and grow_table(s) < 0:
+        return -1
+    return g
+
+
+cdef cptr read_id(Scan* s, cptr p, int field) noexcept nogil:
+    """A node id (string or integer, one kind per body) into column ``field``."""
+    cdef cptr k
+    cdef Py_ssize_t n
+    cdef int64_t value
+    if p[0] == 34:
+        if s.ids == IDS_INT:
+            return NULL
+        s.ids = IDS_STRING
+        p = read_key(p, &k, &n)
+        if p == NULL:
+            return NULL
+        value = intern(s, k, n)
+        if value < 0:
+            return NULL
+    else:
+        if s.ids == IDS_STRING:
+            return NULL
+        s.ids = IDS_INT
+        p = read_int(p, &value)
+        if p == NULL:
+            return NULL
+    if push(s, field, value) < 0:
+        return NULL
+    return p
+
+
+cdef cptr read_number(Scan* s, cptr p, int field) noexcept nogil:
+    """An integer, or ``null`` where the field allows it (capacity), into ``field``."""
+    cdef int64_t value
+    if p[0] == 110:  # "n"
+        if field != F_CAPACITY or memcmp(p, b"null", 4) != 0:
+            return NULL
+        value = NULL_SLOT
+        p += 4
+    else:
+        p = read_int(p, &value)
+        if p == NULL:
+            return NULL
+    if push(s, field, value) < 0:
+        return NULL
+    return p
+
+
+cdef cptr read_value(Scan* s, cptr p, int field) noexcept nogil:
+    if field <= F_TO:
+        return read_id(s, p, field)
+    return read_number(s, p, field)
+
+
+cdef cptr read_arc(Scan* s, cptr p) noexcept nogil:
+    """One arc object (p at its "{"): each known field at most once, from and to required."""
+    cdef int seen = 0
+    cdef int field
+    cdef cptr k
+    cdef Py_ssize_t n
+    p = skip_ws(p + 1)
+    if p[0] != 34:  # an empty object lacks from and to
+        return NULL
+    while True:
+        p = read_key(p, &k, &n)
+        if p == NULL:
+            return NULL
+        field = field_of(k, n)
+        if field < 0 or seen & (1 << field):
+            return NULL
+        seen |= 1 << field
+        p = skip_ws(p)
+        if p[0] != 58:  # ":"
+            return NULL
+        p = read_value(s, skip_ws(p + 1), field)
+        if p == NULL:
+            return NULL
+        s.present[field] += 1
+        p = skip_ws(p)
+        if p[0] == 125:  # "}"
+            break
+        if p[0] != 44:
+            return NULL
+        p = skip_ws(p + 1)
+        if p[0] != 34:
+            return NULL
+    if (seen & 3) != 3:
+        return NULL
+    # An absent capacity means no limit, as null does; absent cost and lower are 0.
+    if not seen & (1 << F_CAPACITY) and push(s, F_CAPACITY, NULL_SLOT) < 0:
+        return NULL
+    if not seen & (1 << F_COST) and push(s, F_COST, 0) < 0:
+        return NULL
+    if not seen & (1 << F_LOWER) and push(s, F_LOWER, 0) < 0:
+        return NULL
+    return p + 1
+
+
+cdef cptr read_object_arcs(Scan* s, cptr p) noexcept nogil:
+    """An array of arc objects (p at its "[")."""
+    p = skip_ws(p + 1)
+    if p[0] == 93:  # "]"
+        return p + 1
+    while True:
+        if p[0] != 123:  # "{"
+            return NULL
+        p = read_arc(s, p)
+        if p == NULL:
+            return NULL
+        s.arcs += 1
+        p = skip_ws(p)
+        if p[0] == 93:
+            return p + 1
+        if p[0] != 44:
+            return NULL
+        p = skip_ws(p + 1)
+
+
+cdef cptr read_column(Scan* s, cptr p, int field) noexcept nogil:
+    """One column of the columnar form (p at its "[")."""
+    p = skip_ws(p + 1)
+    if p[0] == 93:
+        return p + 1
+    while True:
+        p = read_value(s, p, field)
+        if p == NULL:
+            return NULL
+        p = skip_ws(p)
+        if p[0] == 93:
+            return p + 1
+        if p[0] != 44:
+            return NULL
+        p = skip_ws(p + 1)
+
+
+cdef cptr read_column_arcs(Scan* s, cptr p) noexcept nogil:
+    """An object of columns (p at its "{"): known fields, each at most once."""
+    cdef int seen = 0
+    cdef int field
+    cdef cptr k
+    cdef Py_ssize_t n
+    p = skip_ws(p + 1)
+    if p[0] == 125:
+        return p + 1
+    while True:
+        if p[0] != 34:
+            return NULL
+        p = read_key(p, &k, &n)
+        if p == NULL:
+            return NULL
+        field = field_of(k, n)
+        if field < 0 or seen & (1 << field):
+            return NULL
+        seen |= 1 << field
+        s.present[field] = 1
+        p = skip_ws(p)
+        if p[0] != 58:
+            return NULL
+        p = skip_ws(p + 1)
+        if p[0] != 91:  # "["
+            return NULL
+        p = read_column(s, p, field)
+        if p == NULL:
+            return NULL
+        p = skip_ws(p)
+        if p[0] == 125:
+            return p + 1
+        if p[0] != 44:
+            return NULL
+        p = skip_ws(p + 1)
+
+
+cdef cptr skip_string(cptr p) noexcept nogil:
+    """Past a string (p at its opening quote), escapes included; NULL at the terminator."""
+    p += 1
+    while p[0] != 34:
+        if p[0] == 0:
+            return NULL
+        if p[0] == 92:
+            p += 1
+            if p[0] == 0:
+                return NULL
+        p += 1
+    return p + 1
+
+
+cdef cptr skip_value(cptr p, cptr end) noexcept nogil:
+    """Past one JSON value (its end only: orjson checks the value itself later)."""
+    cdef int depth = 0
+    if p[0] == 34:
+        return skip_string(p)
+    if p[0] != 123 and p[0] != 91:  # a scalar runs to the next delimiter
+        while p < end and p[0] not in b' \t\r\n,}]' and p[0] != 0:
+            p += 1
+        return p
+    while p < end:
+        if p[0] == 34:
+            p = skip_string(p)
+            if p == NULL:
+                return NULL
+            continue
+        if p[0] == 123 or p[0] == 91:
+            depth += 1
+            if depth > MAX_SKIP_DEPTH:
+                return NULL
+        elif p[0] == 125 or p[0] == 93:
+            depth -= 1
+            if depth == 0:
+                return p + 1
+        elif p[0] == 0:
+            return NULL
+        p += 1
+    return NULL
+
+
+cdef void release(Scan* s) noexcept nogil:
+    cdef int f
+    for f in range(NFIELDS):
+        free(s.col[f].data)
+    free(s.start)
+    free(s.length)
+    free(s.hash)
+    free(s.arena)
+    free(s.table)
+
+
+cdef bytearray take(Column* c):
+    """The column as the bytes of an int64 array (native order)."""
+    cdef bytearray out = bytearray(c.size * sizeof(int64_t))
+    if c.size:
+        memcpy(<char*>out, c.data, c.size * sizeof(int64_t))
+    return out
+
+
+cdef list renumber(Scan* s):
+    """Number the string ids in order of first mention (``from`` before ``to`` within
+    an arc, as the contract orders nodes) and make one Python string per id.
+
+    Raises UnicodeDecodeError for an id that is not UTF-8.
+    """
+    cdef Py_ssize_t nf = s.col[F_FROM].size, nt = s.col[F_TO].size
+    cdef Py_ssize_t i, g, nxt = 0, most = nf if nf > nt else nt
+    cdef int64_t* fr = s.col[F_FROM].data
+    cdef int64_t* to = s.col[F_TO].data
+    cdef int64_t* new = <int64_t*>malloc((s.groups + 1) * sizeof(int64_t))
+    cdef int64_t* order = <int64_t*>malloc((s.groups + 1) * sizeof(int64_t))
+    cdef list names
+    if new == NULL or order == NULL:
+        free(new)
+        free(order)
+        raise MemoryError
+    try:
+        with nogil:
+            for g in range(s.groups):
+                new[g] = -1
+            for i in range(most):
+                if i < nf:
+                    g = fr[i]
+                    if new[g] < 0:
+                        new[g] = nxt
+                        order[nxt] = g
+                        nxt += 1
+                    fr[i] = new[g]
+                if i < nt:
+                    g = to[i]
+                    if new[g] < 0:
+                        new[g] = nxt
+                        order[nxt] = g
+                        nxt += 1
+                    to[i] = new[g]
+        names = [None] * nxt
+        for i in range(nxt):
+            g = order[i]
+            names[i] = s.arena[s.start[g]: s.start[g] + s.length[g]].decode("utf-8")
+        return names
+    finally:
+        free(new)
+        free(order)
+
+
+def scan(bytes raw, unsigned long long seed):
+    """Read the ``arcs`` member of a request body.
+
+    Parameters
+    ----------
+    raw : bytes
+        The body.
+    seed : int
+        Seeds the hash of string ids (a per-process random number).
+
+    Returns
+    -------
+    tuple or None
+        ``None`` when the body is outside the subset (see :mod:`service.api.fastarcs`).
+        Otherwise ``(form, members, columns, names)``: ``form`` is ``"objects"`` or
+        ``"columns"``; ``members`` lists ``(key, start, stop)`` byte spans of the other
+        top-level members, in order; ``columns`` maps each field present to the bytes
+        of an int64 array (string ids as indices into ``names``, ``null`` as
+        :data:`NULL_VALUE`); ``names`` is the list of distinct string ids in order of
+        first mention, or None for integer ids.
+    """
+    cdef Scan s
+    cdef cptr p = <cptr>PyBytes_AS_STRING(raw)
+    cdef cptr end = p + PyBytes_GET_SIZE(raw)
+    cdef cptr k
+    cdef cptr value_end
+    cdef Py_ssize_t n
+    cdef int form = 0  # 1 objects, 2 columns
+    cdef int f
+    cdef list members = []
+    memset(&s, 0, sizeof(Scan))
+    s.base, s.seed, s.table_bits = p, seed, 9
+    s.table = <uint64_t*>malloc(((<Py_ssize_t>1) << s.table_bits) * sizeof(uint64_t))
+    if s.table == NULL:
+        raise MemoryError
+    memset(s.table, 0, ((<Py_ssize_t>1) << s.table_bits) * sizeof(uint64_t))
+    try:
+        p = skip_ws(p)
+        if p[0] != 123:
+            return None
+        p = skip_ws(p + 1)
+        while p[0] != 125:
+            if p[0] != 34 or len(members) >= MAX_MEMBERS:
+                return None
+            p = read_key(p, &k, &n)
+            if p == NULL:
+                return None
+            p = skip_ws(p)
+            if p[0] != 58:
+                return None
+            p = skip_ws(p + 1)
+            if n == 4 and memcmp(k, b"arcs", 4) == 0:
+                if form:
+                    return None  # a second arcs member: the ordinary path decides
+                if p[0] == 91:
+                    form = 1
+                    with nogil:
+                        value_end = read_object_arcs(&s, p)
+                elif p[0] == 123:
+                    form = 2
+                    with nogil:
+                        value_end = read_column_arcs(&s, p)
+                else:
+                    return None
+            else:
+                value_end = skip_value(p, end)
+                if value_end != NULL:
+                    members.append((raw[k - s.base: k - s.base + n], p - s.base, value_end - s.base))
+            if s.oom:
+                raise MemoryError
+            if value_end == NULL or value_end > end:
+                return None
+            p = skip_ws(value_end)
+            if p[0] == 44:
+                p = skip_ws(p + 1)
+                if p[0] != 34:
+                    return None
+            elif p[0] != 125:
+                return None
+        if skip_ws(p + 1) != end or not form or s.ids == IDS_UNSEEN:
+            return None
+        names = None
+        if s.ids == IDS_STRING:
+            try:
+                names = renumber(&s)
+            except UnicodeDecodeError:
+                return None
+        columns = {}
+        for f in range(NFIELDS):
+            if s.present[f]:
+                columns[FIELDS[f]] = take(&s.col[f])
+        return ("objects" if form == 1 else "columns"), members, columns, names
+    finally:
+        release(&s)

@@ -1,0 +1,126 @@
+"""A compiled one-pass decode of request bodies, with the arcs as numpy columns.
+
+A body of 100k arcs holds 100k JSON objects (or 300k array elements) and, with
+string node ids, 200k strings. Decoding all of that into Python objects and then
+reading the fields back out costs several times the solve. The compiled scanner
+(:mod:`service.api._arcscan`, Cython, built at install time) walks the bytes once,
+checks the JSON grammar as it goes and writes the arcs straight into int64 columns;
+string ids are interned on the way (one Python string per distinct id). The other
+top-level members (``source``, ``nodes``, ``options``, ...) are decoded by orjson from
+their byte spans, which also checks them.
+
+It takes a conservative subset of bodies, the ones whose answer provably equals the
+ordinary decode (orjson, then the model reading the lists):
+
+* the body is one JSON object, with distinct top-level keys and one ``arcs`` member;
+* ``arcs`` is an array of flat arc objects or an object of flat arrays (columns),
+  whose keys are ``from``, ``to``, ``capacity``, ``cost``, ``lower``, each at most once
+  (and ``from`` and ``to`` in every arc object);
+* ``from``/``to`` are all integers or all strings without escapes;
+* ``capacity``, ``cost`` and ``lower`` are integers of at most 18 digits, and only
+  ``capacity`` may be ``null``.
+
+Anything else returns ``None`` and takes the ordinary path, which also writes the
+error messages: fractions, escapes, arc ``key`` labels, invalid JSON or UTF-8, and
+any failure of this module's own. Tests decode generated and mutated bodies both
+ways and compare everything the model produces (``tests/test_fastarcs.py``).
+"""
+
+from __future__ import annotations
+
+import logging
+import secrets
+
+import numpy as np
+import orjson
+
+from ..model.arcs import ObjectArcs
+from ..model.columns import NullableInts
+from ..model.ids import InternedIds
+
+try:
+    from . import _arcscan
+except ImportError:  # not built (no C compiler at install): every body takes the ordinary path
+    _arcscan = None
+
+log = logging.getLogger("sluice.api")
+
+#: Below this size orjson and lists are as fast, and the ordinary path is the one
+#: small requests have always taken.
+MIN_BYTES = 16 * 1024
+#: Seeds the scanner's hash of string ids, so a body cannot be crafted to collide.
+_SEED = secrets.randbits(64)
+
+
+def available() -> bool:
+    """Whether the compiled scanner is installed."""
+    return _arcscan is not None
+
+
+def decode_arcs_body(raw: bytes, min_bytes: int = MIN_BYTES) -> dict | None:
+    """Decode a request body with its ``arcs`` as columns.
+
+    Parameters
+    ----------
+    raw : bytes
+        The request body.
+    min_bytes : int
+        Smaller bodies are left to the ordinary path.
+
+    Returns
+    -------
+    dict or None
+        The decoded body. Object-form ``arcs`` become an
+        :class:`~service.model.arcs.ObjectArcs`, columnar ones a dict of columns;
+        columns are int64 arrays, :class:`~service.model.columns.NullableInts` where
+        a capacity is ``null`` or absent, and :class:`~service.model.ids.InternedIds`
+        for string node ids. ``None`` when the body is outside the subset (see the
+        module doc) or the scanner is not installed.
+
+    Examples
+    --------
+    >>> body = b'{"source": "a", "sink": "b", "arcs": [{"from": "a", "to": "b", "capacity": 5}]}'
+    >>> decoded = decode_arcs_body(body, min_bytes=0)
+    >>> decoded["arcs"].columns["capacity"].tolist()
+    [5]
+    """
+    if _arcscan is None or len(raw) < min_bytes or type(raw) is not bytes:
+        return None
+    try:
+        scanned = _arcscan.scan(raw, _SEED)
+        return None if scanned is None else _assemble(raw, *scanned)
+    except MemoryError:
+        raise
+    except Exception:  # noqa: BLE001 - a bug here must cost speed, not the request
+        log.exception("compiled body scan failed; decoding this body the ordinary way")
+        return None
+
+
+def _assemble(raw: bytes, form: str, members: list, columns: dict, names: list | None) -> dict | None:
+    out = {}
+    view = memoryview(raw)
+    for key, start, stop in members:
+        try:
+            name = key.decode("utf-8")
+            if name in out:
+                return None  # duplicate top-level keys: the ordinary path decides
+            out[name] = orjson.loads(view[start:stop])
+        except (UnicodeDecodeError, orjson.JSONDecodeError):
+            return None
+    arcs = {field: _column(field, data, names) for field, data in columns.items()}
+    if form == "objects":
+        out["arcs"] = ObjectArcs(arcs, len(arcs["from"]))
+    else:
+        out["arcs"] = arcs
+    return out
+
+
+def _column(field: str, data: bytearray, names: list | None):
+    values = np.frombuffer(data, dtype=np.int64)
+    if field in ("from", "to"):
+        return values if names is None else InternedIds(values.astype(np.int32), names)
+    null = values == _arcscan.NULL_VALUE
+    if null.any():
+        values[null] = 0
+        return NullableInts(values, null)
+    return values
