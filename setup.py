@@ -10,7 +10,7 @@ from setuptools import Extension, setup
 
 setup(
     ext_modules=cythonize(
-        [Extension("service.api._arcscan", ["service/api/_arcscan.pyx"], extra_compile_args=["-O2"],
+        [Extension("service.api._arcscan", ["service/api/_arcscan.pyx"], extra_compile_args=["-O3"],
                    optional=True)],
         compiler_directives={"language_level": 3},
     ),

@@ -23,6 +23,9 @@ from cpython.bytes cimport PyBytes_AS_STRING, PyBytes_GET_SIZE
 
 ctypedef const unsigned char* cptr
 
+cdef extern from *:
+    int __builtin_ctzll(unsigned long long) nogil
+
 # The arc fields this scan reads, in the order of its columns.
 cdef enum:
     NFIELDS = 5
@@ -59,6 +62,7 @@ cdef struct Column:
 
 cdef struct Scan:
     cptr base
+    cptr end  # the terminating NUL: 8-byte loads are whole while they end by it
     int ids
     int oom
     Column col[NFIELDS]
@@ -90,17 +94,26 @@ cdef inline cptr skip_ws(cptr p) noexcept nogil:
     return p
 
 
-cdef int push(Scan* s, int field, int64_t value) noexcept nogil:
+cdef int grow(void** data, Py_ssize_t* cap, Py_ssize_t need, Py_ssize_t item) noexcept nogil:
+    """Make room for ``need`` items (doubling); -1 when memory runs out."""
+    cdef Py_ssize_t size = cap[0] if cap[0] else 1024
+    cdef void* grown
+    while size < need:
+        size *= 2
+    if size == cap[0]:
+        return 0
+    grown = realloc(data[0], size * item)
+    if grown == NULL:
+        return -1
+    data[0], cap[0] = grown, size
+    return 0
+
+
+cdef inline int push(Scan* s, int field, int64_t value) noexcept nogil:
     cdef Column* c = &s.col[field]
-    cdef Py_ssize_t cap
-    cdef int64_t* grown
-    if c.size == c.cap:
-        cap = 1024 if c.cap == 0 else 2 * c.cap
-        grown = <int64_t*>realloc(c.data, cap * sizeof(int64_t))
-        if grown == NULL:
-            s.oom = 1
-            return -1
-        c.data, c.cap = grown, cap
+    if c.size == c.cap and grow(<void**>&c.data, &c.cap, c.size + 1, sizeof(int64_t)) < 0:
+        s.oom = 1
+        return -1
     c.data[c.size] = value
     c.size += 1
     return 0
@@ -127,16 +140,61 @@ cdef cptr read_int(cptr p, int64_t* out) noexcept nogil:
     return p
 
 
-cdef cptr read_key(cptr p, cptr* key, Py_ssize_t* length) noexcept nogil:
+cdef inline uint64_t stops(uint64_t w) noexcept nogil:
+    """The high bit of each byte of ``w`` that ends a plain string: a quote, a
+    backslash or a control byte. Exact for the lowest such byte (borrows only run
+    upwards), which is the one wanted."""
+    cdef uint64_t ones = 0x0101010101010101ULL
+    cdef uint64_t quote = w ^ (ones * 34)
+    cdef uint64_t backslash = w ^ (ones * 92)
+    return (((quote - ones) & ~quote) | ((backslash - ones) & ~backslash)
+            | ((w - ones * 32) & ~w)) & 0x8080808080808080ULL
+
+
+cdef cptr read_key(Scan* s, cptr p, cptr* key, Py_ssize_t* length) noexcept nogil:
     """A string without escapes or control bytes (p at its opening quote); NULL otherwise."""
     cdef cptr q = p + 1
-    while q[0] != 34:  # '"'
-        if q[0] == 92 or q[0] < 32:  # a backslash, a control byte or the terminator
+    cdef uint64_t word, found
+    while q + 8 <= s.end:  # eight bytes at a time
+        memcpy(&word, q, 8)
+        found = stops(word)
+        if found:
+            q += __builtin_ctzll(found) >> 3
+            break
+        q += 8
+    while q[0] != 34:  # the rest one at a time (stops at the terminator)
+        if q[0] == 92 or q[0] < 32:
             return NULL
         q += 1
     key[0] = p + 1
     length[0] = q - (p + 1)
     return q + 1
+
+
+cdef inline cptr known_key(Scan* s, cptr p, int* field) noexcept nogil:
+    """An arc field name read as one word (p at its opening quote), past its closing
+    quote; NULL when it is not one of them as written by serialisers (then
+    :func:`read_key` decides)."""
+    cdef uint64_t w
+    if p + 11 > s.end:
+        return NULL
+    memcpy(&w, p + 1, 8)
+    if (w & 0xFFFFFFFFFFULL) == 0x226D6F7266ULL:  # 'from"'
+        field[0] = F_FROM
+        return p + 6
+    if (w & 0xFFFFFFULL) == 0x226F74ULL:  # 'to"'
+        field[0] = F_TO
+        return p + 4
+    if w == 0x7974696361706163ULL and p[9] == 34:  # 'capacity' '"'
+        field[0] = F_CAPACITY
+        return p + 10
+    if (w & 0xFFFFFFFFFFULL) == 0x2274736F63ULL:  # 'cost"'
+        field[0] = F_COST
+        return p + 6
+    if (w & 0xFFFFFFFFFFFFULL) == 0x227265776F6CULL:  # 'lower"'
+        field[0] = F_LOWER
+        return p + 7
+    return NULL
 
 
 cdef inline int field_of(cptr k, Py_ssize_t n) noexcept nogil:
@@ -153,9 +211,10 @@ cdef inline int field_of(cptr k, Py_ssize_t n) noexcept nogil:
     return -1
 
 
-cdef inline uint64_t hash_span(cptr k, Py_ssize_t n, uint64_t seed) noexcept nogil:
+cdef inline uint64_t hash_span(cptr k, Py_ssize_t n, cptr end, uint64_t seed) noexcept nogil:
     cdef uint64_t h = seed ^ (<uint64_t>n * 0x9E3779B97F4A7C15ULL)
     cdef uint64_t word
+    cdef Py_ssize_t i
     while n >= 8:
         memcpy(&word, k, 8)
         h = (h ^ word) * 0x9E3779B97F4A7C15ULL
@@ -163,11 +222,26 @@ cdef inline uint64_t hash_span(cptr k, Py_ssize_t n, uint64_t seed) noexcept nog
         k += 8
         n -= 8
     if n:
-        word = 0
-        memcpy(&word, k, n)
+        if k + 8 <= end:  # one load, the bytes past the id masked off
+            memcpy(&word, k, 8)
+            word &= (1ULL << (8 * n)) - 1
+        else:
+            word = 0
+            for i in range(n):
+                word |= (<uint64_t>k[i]) << (8 * i)
         h = (h ^ word) * 0x9E3779B97F4A7C15ULL
         h ^= h >> 29
     return h * 0xBF58476D1CE4E5B9ULL
+
+
+cdef inline bint same_bytes(const char* a, cptr b, Py_ssize_t n, cptr end) noexcept nogil:
+    """Whether n bytes at a (in the arena, padded) equal those at b (in the body)."""
+    cdef uint64_t x, y
+    if n > 8 or b + 8 > end:
+        return memcmp(a, b, n) == 0
+    memcpy(&x, a, 8)  # the arena keeps 8 bytes of slack past its last id
+    memcpy(&y, b, 8)
+    return ((x ^ y) & (0xFFFFFFFFFFFFFFFFULL >> (64 - 8 * n))) == 0 if n else True
 
 
 cdef int grow_table(Scan* s) noexcept nogil:
@@ -189,21 +263,6 @@ cdef int grow_table(Scan* s) noexcept nogil:
     return 0
 
 
-cdef int grow(void** data, Py_ssize_t* cap, Py_ssize_t need, Py_ssize_t item) noexcept nogil:
-    """Make room for ``need`` items (doubling); -1 when memory runs out."""
-    cdef Py_ssize_t size = cap[0] if cap[0] else 1024
-    cdef void* grown
-    while size < need:
-        size *= 2
-    if size == cap[0]:
-        return 0
-    grown = realloc(data[0], size * item)
-    if grown == NULL:
-        return -1
-    data[0], cap[0] = grown, size
-    return 0
-
-
 cdef int grow_groups(Scan* s) noexcept nogil:
     """Room for one more group in each of the three group arrays."""
     cdef Py_ssize_t cap = s.groups_cap
@@ -221,7 +280,7 @@ cdef int grow_groups(Scan* s) noexcept nogil:
 
 cdef int64_t intern(Scan* s, cptr k, Py_ssize_t n) noexcept nogil:
     """The group of this id's bytes (a new one for bytes not seen before); -1 to refuse."""
-    cdef uint64_t h = hash_span(k, n, s.seed)
+    cdef uint64_t h = hash_span(k, n, s.end, s.seed)
     cdef uint64_t tag = h & 0xFFFFFFFF00000000ULL
     cdef Py_ssize_t mask = ((<Py_ssize_t>1) << s.table_bits) - 1
     cdef Py_ssize_t i = <Py_ssize_t>(h >> (64 - s.table_bits))
@@ -234,7 +293,7 @@ cdef int64_t intern(Scan* s, cptr k, Py_ssize_t n) noexcept nogil:
             break
         if (slot & 0xFFFFFFFF00000000ULL) == tag:
             g = <Py_ssize_t>(slot & 0xFFFFFFFFULL) - 1
-            if s.length[g] == n and memcmp(s.arena + s.start[g], k, n) == 0:
+            if s.length[g] == n and same_bytes(s.arena + s.start[g], k, n, s.end):
                 return g
         i = (i + 1) & mask
         s.probes += 1
@@ -245,7 +304,7 @@ cdef int64_t intern(Scan* s, cptr k, Py_ssize_t n) noexcept nogil:
     if s.groups == s.groups_cap and grow_groups(s) < 0:
         s.oom = 1
         return -1
-    if s.arena_size + n > s.arena_cap and grow(<void**>&s.arena, &s.arena_cap, s.arena_size + n, 1) < 0:
+    if s.arena_size + n + 8 > s.arena_cap and grow(<void**>&s.arena, &s.arena_cap, s.arena_size + n + 8, 1) < 0:
         s.oom = 1
         return -1
     g = s.groups
@@ -268,7 +327,7 @@ cdef cptr read_id(Scan* s, cptr p, int field) noexcept nogil:
         if s.ids == IDS_INT:
             return NULL
         s.ids = IDS_STRING
-        p = read_key(p, &k, &n)
+        p = read_key(s, p, &k, &n)
         if p == NULL:
             return NULL
         value = intern(s, k, n)
@@ -313,16 +372,20 @@ cdef cptr read_arc(Scan* s, cptr p) noexcept nogil:
     """One arc object (p at its "{"): each known field at most once, from and to required."""
     cdef int seen = 0
     cdef int field
-    cdef cptr k
+    cdef cptr k, q
     cdef Py_ssize_t n
     p = skip_ws(p + 1)
     if p[0] != 34:  # an empty object lacks from and to
         return NULL
     while True:
-        p = read_key(p, &k, &n)
-        if p == NULL:
-            return NULL
-        field = field_of(k, n)
+        q = known_key(s, p, &field)
+        if q == NULL:
+            p = read_key(s, p, &k, &n)
+            if p == NULL:
+                return NULL
+            field = field_of(k, n)
+        else:
+            p = q
         if field < 0 or seen & (1 << field):
             return NULL
         seen |= 1 << field
@@ -402,7 +465,7 @@ cdef cptr read_column_arcs(Scan* s, cptr p) noexcept nogil:
     while True:
         if p[0] != 34:
             return NULL
-        p = read_key(p, &k, &n)
+        p = read_key(s, p, &k, &n)
         if p == NULL:
             return NULL
         field = field_of(k, n)
@@ -566,7 +629,7 @@ def scan(bytes raw, unsigned long long seed):
     cdef int f
     cdef list members = []
     memset(&s, 0, sizeof(Scan))
-    s.base, s.seed, s.table_bits = p, seed, 9
+    s.base, s.end, s.seed, s.table_bits = p, end, seed, 9
     s.table = <uint64_t*>malloc(((<Py_ssize_t>1) << s.table_bits) * sizeof(uint64_t))
     if s.table == NULL:
         raise MemoryError
@@ -579,7 +642,7 @@ def scan(bytes raw, unsigned long long seed):
         while p[0] != 125:
             if p[0] != 34 or len(members) >= MAX_MEMBERS:
                 return None
-            p = read_key(p, &k, &n)
+            p = read_key(&s, p, &k, &n)
             if p == NULL:
                 return None
             p = skip_ws(p)
