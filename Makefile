@@ -9,7 +9,9 @@ $(BIN)/python:
 	$(PYTHON) -m venv $(VENV)
 	$(BIN)/pip install --quiet --upgrade pip
 
+# The request-body scanner is compiled at install (Cython, a C compiler).
 install: $(BIN)/python
+	bash .ci/ensure-compiler $(BIN)/python
 	$(BIN)/pip install --quiet -e ".[test]"
 
 serve: install

@@ -60,6 +60,12 @@ cdef struct Column:
     Py_ssize_t size
     Py_ssize_t cap
 
+cdef struct Group:  # one distinct string id
+    uint64_t head[2]  # its first 16 bytes, zero-padded: most ids compare without the arena
+    int64_t start     # its bytes in the arena
+    int64_t length
+    uint64_t hash
+
 cdef struct Scan:
     cptr base
     cptr end  # the terminating NUL: 8-byte loads are whole while they end by it
@@ -68,12 +74,10 @@ cdef struct Scan:
     Column col[NFIELDS]
     Py_ssize_t present[NFIELDS]  # object form: arcs carrying the field
     Py_ssize_t arcs               # object form: number of arcs
-    # Interned string ids: group g's bytes are arena[start[g]:start[g] + length[g]]. A
-    # copy, not a span of the body: the first mention of an id may lie megabytes back,
-    # and comparing against it there would miss the cache on nearly every lookup.
-    int64_t* start
-    int64_t* length
-    uint64_t* hash
+    # Interned string ids. Their bytes are copied to the arena, not found again in
+    # the body: the first mention of an id may lie megabytes back, and comparing
+    # against it there would miss the cache on nearly every lookup.
+    Group* group
     Py_ssize_t groups
     Py_ssize_t groups_cap
     char* arena
@@ -234,14 +238,20 @@ cdef inline uint64_t hash_span(cptr k, Py_ssize_t n, cptr end, uint64_t seed) no
     return h * 0xBF58476D1CE4E5B9ULL
 
 
-cdef inline bint same_bytes(const char* a, cptr b, Py_ssize_t n, cptr end) noexcept nogil:
-    """Whether n bytes at a (in the arena, padded) equal those at b (in the body)."""
-    cdef uint64_t x, y
-    if n > 8 or b + 8 > end:
-        return memcmp(a, b, n) == 0
-    memcpy(&x, a, 8)  # the arena keeps 8 bytes of slack past its last id
-    memcpy(&y, b, 8)
-    return ((x ^ y) & (0xFFFFFFFFFFFFFFFFULL >> (64 - 8 * n))) == 0 if n else True
+cdef inline void load_head(cptr k, Py_ssize_t n, cptr end, uint64_t* head) noexcept nogil:
+    """The first 16 bytes of an id, zero-padded (only its own bytes are kept)."""
+    cdef Py_ssize_t i
+    head[0] = head[1] = 0
+    if k + 16 <= end:
+        memcpy(head, k, 16)
+        if n < 8:
+            head[0] &= (1ULL << (8 * n)) - 1
+            head[1] = 0
+        elif n < 16:
+            head[1] &= (1ULL << (8 * (n - 8))) - 1
+    else:
+        for i in range(n if n < 16 else 16):
+            head[i >> 3] |= (<uint64_t>k[i]) << (8 * (i & 7))
 
 
 cdef int grow_table(Scan* s) noexcept nogil:
@@ -254,27 +264,12 @@ cdef int grow_table(Scan* s) noexcept nogil:
         return -1
     memset(table, 0, size * sizeof(uint64_t))
     for g in range(s.groups):
-        i = <Py_ssize_t>(s.hash[g] >> (64 - bits))
+        i = <Py_ssize_t>(s.group[g].hash >> (64 - bits))
         while table[i]:
             i = (i + 1) & (size - 1)
-        table[i] = (s.hash[g] & 0xFFFFFFFF00000000ULL) | <uint64_t>(g + 1)
+        table[i] = (s.group[g].hash & 0xFFFFFFFF00000000ULL) | <uint64_t>(g + 1)
     free(s.table)
     s.table, s.table_bits = table, bits
-    return 0
-
-
-cdef int grow_groups(Scan* s) noexcept nogil:
-    """Room for one more group in each of the three group arrays."""
-    cdef Py_ssize_t cap = s.groups_cap
-    if grow(<void**>&s.start, &cap, s.groups + 1, sizeof(int64_t)) < 0:
-        return -1
-    cap = s.groups_cap
-    if grow(<void**>&s.length, &cap, s.groups + 1, sizeof(int64_t)) < 0:
-        return -1
-    cap = s.groups_cap
-    if grow(<void**>&s.hash, &cap, s.groups + 1, sizeof(uint64_t)) < 0:
-        return -1
-    s.groups_cap = cap
     return 0
 
 
@@ -286,30 +281,33 @@ cdef int64_t intern(Scan* s, cptr k, Py_ssize_t n) noexcept nogil:
     cdef Py_ssize_t i = <Py_ssize_t>(h >> (64 - s.table_bits))
     cdef Py_ssize_t g
     cdef uint64_t slot
+    cdef uint64_t head[2]
+    cdef Group* known
+    load_head(k, n, s.end, head)
     s.lookups += 1
     while True:
         slot = s.table[i]
         if slot == 0:
             break
         if (slot & 0xFFFFFFFF00000000ULL) == tag:
-            g = <Py_ssize_t>(slot & 0xFFFFFFFFULL) - 1
-            if s.length[g] == n and same_bytes(s.arena + s.start[g], k, n, s.end):
-                return g
+            known = &s.group[<Py_ssize_t>(slot & 0xFFFFFFFFULL) - 1]
+            if (known.length == n and known.head[0] == head[0] and known.head[1] == head[1]
+                    and (n <= 16 or memcmp(s.arena + known.start + 16, k + 16, n - 16) == 0)):
+                return <Py_ssize_t>(slot & 0xFFFFFFFFULL) - 1
         i = (i + 1) & mask
         s.probes += 1
     # Colliding ids cost probes; past this budget (a crafted body, or bad luck) the
     # ordinary path, with Python's own hashing, decodes the body instead.
     if s.probes > 8 * s.lookups + 100000 or s.groups >= 0x7FFFFFFE:
         return -1
-    if s.groups == s.groups_cap and grow_groups(s) < 0:
-        s.oom = 1
-        return -1
-    if s.arena_size + n + 8 > s.arena_cap and grow(<void**>&s.arena, &s.arena_cap, s.arena_size + n + 8, 1) < 0:
+    if ((s.groups == s.groups_cap and grow(<void**>&s.group, &s.groups_cap, s.groups + 1, sizeof(Group)) < 0)
+            or (s.arena_size + n > s.arena_cap and grow(<void**>&s.arena, &s.arena_cap, s.arena_size + n, 1) < 0)):
         s.oom = 1
         return -1
     g = s.groups
     memcpy(s.arena + s.arena_size, k, n)
-    s.start[g], s.length[g], s.hash[g] = s.arena_size, n, h
+    s.group[g].head[0], s.group[g].head[1] = head[0], head[1]
+    s.group[g].start, s.group[g].length, s.group[g].hash = s.arena_size, n, h
     s.arena_size += n
     s.table[i] = tag | <uint64_t>(g + 1)
     s.groups += 1
@@ -537,9 +535,7 @@ cdef void release(Scan* s) noexcept nogil:
     cdef int f
     for f in range(NFIELDS):
         free(s.col[f].data)
-    free(s.start)
-    free(s.length)
-    free(s.hash)
+    free(s.group)
     free(s.arena)
     free(s.table)
 
@@ -591,7 +587,7 @@ cdef list renumber(Scan* s):
         names = [None] * nxt
         for i in range(nxt):
             g = order[i]
-            names[i] = s.arena[s.start[g]: s.start[g] + s.length[g]].decode("utf-8")
+            names[i] = s.arena[s.group[g].start: s.group[g].start + s.group[g].length].decode("utf-8")
         return names
     finally:
         free(new)
