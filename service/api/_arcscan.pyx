@@ -92,6 +92,14 @@ cdef struct Scan:
     Py_ssize_t lookups
 
 
+cdef bint little_endian():
+    cdef uint64_t one = 1
+    return (<unsigned char*>&one)[0] == 1
+
+# The word-at-a-time reads assume little-endian bytes; elsewhere scan() steps aside.
+cdef bint LITTLE_ENDIAN = little_endian()
+
+
 cdef inline cptr skip_ws(cptr p) noexcept nogil:
     while p[0] == 32 or p[0] == 10 or p[0] == 13 or p[0] == 9:
         p += 1
@@ -296,9 +304,11 @@ cdef int64_t intern(Scan* s, cptr k, Py_ssize_t n) noexcept nogil:
                 return <Py_ssize_t>(slot & 0xFFFFFFFFULL) - 1
         i = (i + 1) & mask
         s.probes += 1
-    # Colliding ids cost probes; past this budget (a crafted body, or bad luck) the
-    # ordinary path, with Python's own hashing, decodes the body instead.
-    if s.probes > 8 * s.lookups + 100000 or s.groups >= 0x7FFFFFFE:
+        # Colliding ids cost probes; past this budget (a crafted body, or bad luck)
+        # the ordinary path, with Python's own hashing, decodes the body instead.
+        if s.probes > 8 * s.lookups + 100000:
+            return -1
+    if s.groups >= 0x7FFFFFFE:
         return -1
     if ((s.groups == s.groups_cap and grow(<void**>&s.group, &s.groups_cap, s.groups + 1, sizeof(Group)) < 0)
             or (s.arena_size + n > s.arena_cap and grow(<void**>&s.arena, &s.arena_cap, s.arena_size + n, 1) < 0)):
@@ -347,7 +357,7 @@ cdef cptr read_number(Scan* s, cptr p, int field) noexcept nogil:
     """An integer, or ``null`` where the field allows it (capacity), into ``field``."""
     cdef int64_t value
     if p[0] == 110:  # "n"
-        if field != F_CAPACITY or memcmp(p, b"null", 4) != 0:
+        if field != F_CAPACITY or p + 4 > s.end or memcmp(p, b"null", 4) != 0:
             return NULL
         value = NULL_SLOT
         p += 4
@@ -624,6 +634,8 @@ def scan(bytes raw, unsigned long long seed):
     cdef int form = 0  # 1 objects, 2 columns
     cdef int f
     cdef list members = []
+    if not LITTLE_ENDIAN:
+        return None
     memset(&s, 0, sizeof(Scan))
     s.base, s.end, s.seed, s.table_bits = p, end, seed, 9
     s.table = <uint64_t*>malloc(((<Py_ssize_t>1) << s.table_bits) * sizeof(uint64_t))
