@@ -314,6 +314,18 @@ def test_mutated_bodies_are_refused_or_decoded_as_orjson_decodes_them(data):
     assert outcome(fast) == outcome(slow)
 
 
+def test_every_proper_prefix_of_a_body_is_refused():
+    # A prefix of a JSON object is never JSON: the scanner must stop at the end of the
+    # bytes wherever they end (mid-key, mid-id, mid-number, mid-null).
+    bodies = [b'{"source":"a","sink":"b","arcs":[{"from":"depot-north-1","to":"b","capacity":null,"cost":-12}]}',
+              b'{"arcs":{"from":[1,2],"to":[2,3],"capacity":[null,1234567]},"options":{"cache":"use"}}',
+              b'{"arcs": [ {"to": "b\xc3\xa9", "lower": 0, "from": "a"} ] }']
+    for body in bodies:
+        assert decode_arcs_body(body, min_bytes=0) is not None
+        for cut in range(len(body)):
+            assert decode_arcs_body(body[:cut], min_bytes=0) is None, body[:cut]
+
+
 # --- over HTTP ---------------------------------------------------------------------
 
 def test_large_bodies_take_the_scanner_over_http_with_the_same_answer(client):
