@@ -73,7 +73,6 @@ cdef struct Scan:
     int oom
     Column col[NFIELDS]
     Py_ssize_t present[NFIELDS]  # object form: arcs carrying the field
-    Py_ssize_t arcs               # object form: number of arcs
     # Interned string ids. Their bytes are copied to the arena, not found again in
     # the body: the first mention of an id may lie megabytes back, and comparing
     # against it there would miss the cache on nearly every lookup.
@@ -341,16 +340,13 @@ cdef cptr read_id(Scan* s, cptr p, int field) noexcept nogil:
         value = intern(s, k, n)
         if value < 0:
             return NULL
-    else:
-        if s.ids == IDS_STRING:
+        if push(s, field, value) < 0:
             return NULL
-        s.ids = IDS_INT
-        p = read_int(p, &value)
-        if p == NULL:
-            return NULL
-    if push(s, field, value) < 0:
+        return p
+    if s.ids == IDS_STRING:
         return NULL
-    return p
+    s.ids = IDS_INT
+    return read_number(s, p, field)  # which takes null for capacity only
 
 
 cdef cptr read_number(Scan* s, cptr p, int field) noexcept nogil:
@@ -424,39 +420,25 @@ cdef cptr read_arc(Scan* s, cptr p) noexcept nogil:
     return p + 1
 
 
-cdef cptr read_object_arcs(Scan* s, cptr p) noexcept nogil:
-    """An array of arc objects (p at its "[")."""
+cdef cptr read_array(Scan* s, cptr p, int field) noexcept nogil:
+    """An array (p at its "["): of arc objects for ``field`` -1 (the object form), else
+    of the values of one column (the columnar form)."""
     p = skip_ws(p + 1)
     if p[0] == 93:  # "]"
         return p + 1
     while True:
-        if p[0] != 123:  # "{"
+        if field >= 0:
+            p = read_value(s, p, field)
+        elif p[0] == 123:  # "{"
+            p = read_arc(s, p)
+        else:
             return NULL
-        p = read_arc(s, p)
-        if p == NULL:
-            return NULL
-        s.arcs += 1
-        p = skip_ws(p)
-        if p[0] == 93:
-            return p + 1
-        if p[0] != 44:
-            return NULL
-        p = skip_ws(p + 1)
-
-
-cdef cptr read_column(Scan* s, cptr p, int field) noexcept nogil:
-    """One column of the columnar form (p at its "[")."""
-    p = skip_ws(p + 1)
-    if p[0] == 93:
-        return p + 1
-    while True:
-        p = read_value(s, p, field)
         if p == NULL:
             return NULL
         p = skip_ws(p)
         if p[0] == 93:
             return p + 1
-        if p[0] != 44:
+        if p[0] != 44:  # ","
             return NULL
         p = skip_ws(p + 1)
 
@@ -487,7 +469,7 @@ cdef cptr read_column_arcs(Scan* s, cptr p) noexcept nogil:
         p = skip_ws(p + 1)
         if p[0] != 91:  # "["
             return NULL
-        p = read_column(s, p, field)
+        p = read_array(s, p, field)
         if p == NULL:
             return NULL
         p = skip_ws(p)
@@ -663,7 +645,7 @@ def scan(bytes raw, unsigned long long seed):
                 if p[0] == 91:
                     form = 1
                     with nogil:
-                        value_end = read_object_arcs(&s, p)
+                        value_end = read_array(&s, p, -1)
                 elif p[0] == 123:
                     form = 2
                     with nogil:

@@ -30,6 +30,23 @@ def best_of(fn, repeat: int = 3) -> float:
     return min(times)
 
 
+def best_of_pair(baseline, measured, repeat: int = 3) -> tuple[float, float]:
+    """Best wall times of two functions run alternately, in seconds.
+
+    Taking turns puts both sides under the same passing load, so a burst on a shared
+    host cannot flatter (or sink) the ratio between them the way two separate series
+    can.
+    """
+    times: tuple[list, list] = ([], [])
+    for _ in range(repeat):
+        for fn, out in ((baseline, times[0]), (measured, times[1])):
+            gc.collect()
+            t0 = time.perf_counter()
+            fn()
+            out.append(time.perf_counter() - t0)
+    return min(times[0]), min(times[1])
+
+
 def median_of(fn, repeat: int = 5) -> float:
     times = []
     for _ in range(repeat):
