@@ -540,6 +540,16 @@ cdef bytearray take(Column* c):
     return out
 
 
+cdef inline void mention(int64_t* code, int64_t* new, int64_t* order, Py_ssize_t* nxt) noexcept nogil:
+    """Renumber one arc end; its id gets the next number at its first mention."""
+    cdef int64_t g = code[0]
+    if new[g] < 0:
+        new[g] = nxt[0]
+        order[nxt[0]] = g
+        nxt[0] += 1
+    code[0] = new[g]
+
+
 cdef list renumber(Scan* s):
     """Number the string ids in order of first mention (``from`` before ``to`` within
     an arc, as the contract orders nodes) and make one Python string per id.
@@ -563,19 +573,9 @@ cdef list renumber(Scan* s):
                 new[g] = -1
             for i in range(most):
                 if i < nf:
-                    g = fr[i]
-                    if new[g] < 0:
-                        new[g] = nxt
-                        order[nxt] = g
-                        nxt += 1
-                    fr[i] = new[g]
+                    mention(&fr[i], new, order, &nxt)
                 if i < nt:
-                    g = to[i]
-                    if new[g] < 0:
-                        new[g] = nxt
-                        order[nxt] = g
-                        nxt += 1
-                    to[i] = new[g]
+                    mention(&to[i], new, order, &nxt)
         names = [None] * nxt
         for i in range(nxt):
             g = order[i]
