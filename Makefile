@@ -3,7 +3,7 @@ PYTHON ?= python3
 VENV   ?= .venv
 BIN     = $(VENV)/bin
 
-.PHONY: install serve test bench spec clean
+.PHONY: install serve test bench spec sanitize clean
 
 $(BIN)/python:
 	$(PYTHON) -m venv $(VENV)
@@ -21,11 +21,16 @@ serve: install
 test: install
 	bash .ci/ensure-redis
 	bash .ci/ensure-browser
+	bash .ci/sanitize-scanner $(BIN)/python 20000
 	$(BIN)/python -m pytest -q; rc=$$?; \
 	if [ $$rc -eq 5 ]; then echo "make test: pytest collected no tests" >&2; exit 1; fi; exit $$rc
 
 bench: install
 	$(BIN)/python -m tests.perf
+
+# The compiled body scanner under AddressSanitizer and UBSan, with its mutation fuzzer.
+sanitize: install
+	bash .ci/sanitize-scanner $(BIN)/python
 
 spec: install
 	$(BIN)/sluice spec > openapi/openapi.yaml

@@ -266,10 +266,12 @@ def test_errors_name_the_same_arc_and_field_on_both_paths(bad, pointer):
 @pytest.mark.parametrize("raw", [
     b'{"source": "a", "sink": "b", "nodes": [1, 2], "arcs": [{"from": "a", "to": "b"}, {"from": "b", "to": "c"}]}',
     b'{"source": "a", "sink": "b", "arcs": [{"from": "a", "to": ""}, {"from": "b", "to": "c"}]}',
+    # The first id empty: once copied to a scanner buffer not yet allocated (UBSan found it).
+    b'{"source": "a", "sink": "b", "arcs": {"from": ["", "a"], "to": ["b", ""]}}',
     b'{"source": "a", "sink": "b", "arcs": {"from": ["a", "b"], "to": ["b"]}}',
     b'{"source": "a", "sink": "b", "arcs": {"to": ["a", "b"]}}',
     b'{"source": "a", "sink": "b", "arcs": {"from": ["a"], "to": ["b"], "capacity": [1], "lower": [2]}}',
-], ids=["declared ints", "empty id", "unequal columns", "no from column", "lower above capacity"])
+], ids=["declared ints", "empty id", "empty first id", "unequal columns", "no from column", "lower above capacity"])
 def test_errors_of_decodable_bodies_are_reported_as_on_the_ordinary_path(raw):
     fast = decode_arcs_body(raw, min_bytes=0)
     assert fast is not None

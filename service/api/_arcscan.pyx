@@ -310,7 +310,9 @@ cdef int64_t intern(Scan* s, cptr k, Py_ssize_t n) noexcept nogil:
     if s.groups >= 0x7FFFFFFE:
         return -1
     if ((s.groups == s.groups_cap and grow(<void**>&s.group, &s.groups_cap, s.groups + 1, sizeof(Group)) < 0)
-            or (s.arena_size + n > s.arena_cap and grow(<void**>&s.arena, &s.arena_cap, s.arena_size + n, 1) < 0)):
+            # (+ 1: the arena exists even when the first id is empty, for memcpy)
+            or (s.arena_size + n + 1 > s.arena_cap
+                and grow(<void**>&s.arena, &s.arena_cap, s.arena_size + n + 1, 1) < 0)):
         s.oom = 1
         return -1
     g = s.groups

@@ -1,0 +1,1 @@
+"""On-demand robustness runs (not collected by pytest): see DEVELOPERS.md, "Sanitizers"."""
