@@ -169,6 +169,27 @@ def test_huge_integer_capacities_on_the_lp_route_agree_with_networkx():
     assert abs(solution.value - exact) <= solution.tolerance
 
 
+@pytest.mark.parametrize("seed", [3, 5, 12, 24, 25, 29, 34, 50])  # each failed before (49 of seeds 0-299 did)
+def test_fractional_capacities_spanning_many_decades_agree_with_networkx(seed):
+    # Found by the compiled scanner's HTTP test: capacities from 0.25 to ~10**18 + 0.25
+    # went to GLOP scaled by the largest, so the smallest fell below its absolute
+    # tolerances and it stopped ABNORMAL (a 500), or, without presolve, answered a flow
+    # its own cut contradicted. networkx computes on the same floats.
+    rng = np.random.default_rng(seed)
+    n, m = 40, 50
+    magnitude = 10.0 ** rng.integers(0, 19, m)
+    arcs = [(int(a), int(b), float(c)) for a, b, c in
+            zip(rng.integers(0, n, m), rng.integers(0, n, m), np.floor(rng.random(m) * magnitude) + 0.25) if a != b]
+    solution, certificate = solve(n, arcs, 0, n - 1)
+    g = nx.DiGraph()
+    g.add_nodes_from(range(n))
+    for a, b, c in arcs:
+        g.add_edge(a, b, capacity=g.get_edge_data(a, b, {}).get("capacity", 0) + c)
+    exact = nx.maximum_flow_value(g, 0, n - 1)
+    assert solution.engine["kind"] == "lp" and certificate["checked"]
+    assert abs(solution.value - exact) <= solution.tolerance
+
+
 def test_unlimited_arcs_off_every_path_give_a_finite_answer():
     arcs = [(0, 1, None), (1, 2, 5), (0, 2, 1), (2, 0, None)]
     solution, certificate = solve(3, arcs, 0, 2)

@@ -42,22 +42,47 @@ def max_flow_lp(num_nodes, tail, head, capacity, unlimited, source, sink, *, tim
     zeros = np.zeros(num_nodes)
     c = np.zeros(m + 1)
     c[m] = 1.0
-    # GLOP's tolerances are absolute: the model is solved on capacities scaled to at
-    # most 1, so that huge ones (integer data whose sums overflow int64 comes here)
-    # stay well conditioned. Answers are scaled back and hold to LP_TOLERANCE * scale.
-    scale = max(1.0, float(cap.max()) if m else 1.0)
-    lp = solve_lp(c, matrix, zeros, zeros, np.zeros(m + 1), np.append(upper / scale, np.inf), maximize=True,
-                  time_limit=time_limit)
-    if lp.status == "time_limit":
-        raise SolveTimeout("the LP engine reached the time limit before the maximum flow")
-    if lp.status != "optimal":
-        raise SolverFailure(f"GLOP returned {lp.status} for a bounded max-flow model")
-    tol = LP_TOLERANCE * scale
-    flows = np.clip(lp.x[:m] * scale, 0.0, upper)
-    value = float(lp.x[m]) * scale
-    source_side = residual_reachable(num_nodes, tail, head, flows, upper, source, tol)
-    engine = dict(lp.engine, tolerance=tol)
-    return MaxFlowSolution("optimal", value, flows, source_side, engine, tolerance=tol)
+    # Answers hold to LP_TOLERANCE relative to the largest capacity, as stated.
+    tol = LP_TOLERANCE * max(1.0, float(cap.max()) if m else 1.0)
+    failure = "no optimal answer"
+    for scale in _scales(cap):
+        try:
+            lp = solve_lp(c, matrix, zeros, zeros, np.zeros(m + 1), np.append(upper / scale, np.inf),
+                          maximize=True, time_limit=time_limit)
+        except SolverFailure as exc:  # e.g. ABNORMAL on a badly conditioned scaling
+            failure = exc.detail
+            continue
+        if lp.status == "time_limit":
+            raise SolveTimeout("the LP engine reached the time limit before the maximum flow")
+        if lp.status != "optimal":
+            failure = f"GLOP returned {lp.status} for a bounded max-flow model"
+            continue
+        flows = np.clip(lp.x[:m] * scale, 0.0, upper)
+        value = float(lp.x[m]) * scale
+        source_side = residual_reachable(num_nodes, tail, head, flows, upper, source, tol)
+        crossing = source_side[tail] & ~source_side[head]
+        # GLOP's tolerances are absolute, so a scaling can lose small capacities or
+        # strain large ones: an answer whose residual cut does not match its value is
+        # not taken (the service's certificate checks the one taken in full).
+        if abs(float(upper[crossing].sum()) - value) <= tol * max(1, int(crossing.sum())):
+            engine = dict(lp.engine, tolerance=tol)
+            return MaxFlowSolution("optimal", value, flows, source_side, engine, tolerance=tol)
+        failure = f"the flow's value {value:g} and its residual cut differ (scaling {scale:g})"
+    raise SolverFailure(f"GLOP found no certified maximum flow at any scaling of the capacities: {failure}")
+
+
+def _scales(cap: np.ndarray) -> list[float]:
+    """Divisors for the capacities, tried in turn: GLOP's tolerances are absolute, so
+    the model is best conditioned when the capacities sit around 1. First the
+    geometric mean of the smallest positive and the largest capacity (both ends
+    equally far from 1), then the largest (everything at most 1: integer data whose
+    sums overflow int64 comes here), then none."""
+    positive = cap[cap > 0]
+    if positive.size == 0:
+        return [1.0]
+    low, high = float(positive.min()), float(positive.max())
+    scales = [max(1.0, float(np.sqrt(low) * np.sqrt(high))), max(1.0, high), 1.0]
+    return list(dict.fromkeys(scales))
 
 
 def residual_reachable(num_nodes, tail, head, flows, upper, source, tol) -> np.ndarray:
