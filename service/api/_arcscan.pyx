@@ -54,6 +54,8 @@ cdef enum:
     MAX_MEMBERS = 64
     # Nesting depth at most inside a skipped member (orjson decodes it afterwards).
     MAX_SKIP_DEPTH = 512
+    # Longest number with a fraction or an exponent this scan reads.
+    MAX_FRACTION_BYTES = 64
 
 cdef struct Column:
     int64_t* data
@@ -73,6 +75,9 @@ cdef struct Scan:
     int oom
     Column col[NFIELDS]
     Py_ssize_t present[NFIELDS]  # object form: arcs carrying the field
+    # Numbers with a fraction or an exponent, as (field, row, byte offset, length)
+    # quadruples; their rows hold 0 in ``col`` until :func:`fractions` parses them.
+    Column fraction
     # Interned string ids. Their bytes are copied to the arena, not found again in
     # the body: the first mention of an id may lie megabytes back, and comparing
     # against it there would miss the cache on nearly every lookup.
@@ -120,14 +125,17 @@ cdef int grow(void** data, Py_ssize_t* cap, Py_ssize_t need, Py_ssize_t item) no
     return 0
 
 
-cdef inline int push(Scan* s, int field, int64_t value) noexcept nogil:
-    cdef Column* c = &s.col[field]
+cdef inline int append(Scan* s, Column* c, int64_t value) noexcept nogil:
     if c.size == c.cap and grow(<void**>&c.data, &c.cap, c.size + 1, sizeof(int64_t)) < 0:
         s.oom = 1
         return -1
     c.data[c.size] = value
     c.size += 1
     return 0
+
+
+cdef inline int push(Scan* s, int field, int64_t value) noexcept nogil:
+    return append(s, &s.col[field], value)
 
 
 cdef cptr read_int(cptr p, int64_t* out) noexcept nogil:
@@ -148,6 +156,41 @@ cdef cptr read_int(cptr p, int64_t* out) noexcept nogil:
     if digits == 0 or digits > MAX_DIGITS or p[0] == 46 or p[0] == 101 or p[0] == 69:  # ".", "e", "E"
         return NULL
     out[0] = -value if negative else value
+    return p
+
+
+cdef cptr skip_fraction(cptr p) noexcept nogil:
+    """Past a JSON number that has a fraction or an exponent (p at its first byte);
+    NULL for anything else, or for a token longer than MAX_FRACTION_BYTES."""
+    cdef cptr start = p
+    cdef bint fraction = False
+    if p[0] == 45:
+        p += 1
+    if p[0] == 48:
+        p += 1
+    elif 49 <= p[0] <= 57:
+        while 48 <= p[0] <= 57:
+            p += 1
+    else:
+        return NULL
+    if p[0] == 46:  # "." and at least one digit
+        p += 1
+        if not 48 <= p[0] <= 57:
+            return NULL
+        while 48 <= p[0] <= 57:
+            p += 1
+        fraction = True
+    if p[0] == 101 or p[0] == 69:  # "e" or "E", a sign, at least one digit
+        p += 1
+        if p[0] == 43 or p[0] == 45:
+            p += 1
+        if not 48 <= p[0] <= 57:
+            return NULL
+        while 48 <= p[0] <= 57:
+            p += 1
+        fraction = True
+    if not fraction or p - start > MAX_FRACTION_BYTES:
+        return NULL
     return p
 
 
@@ -352,20 +395,29 @@ cdef cptr read_id(Scan* s, cptr p, int field) noexcept nogil:
 
 
 cdef cptr read_number(Scan* s, cptr p, int field) noexcept nogil:
-    """An integer, or ``null`` where the field allows it (capacity), into ``field``."""
-    cdef int64_t value
+    """A number (an integer for ids), or ``null`` where the field allows it
+    (capacity), into ``field``."""
+    cdef int64_t value = 0
+    cdef cptr q
     if p[0] == 110:  # "n"
         if field != F_CAPACITY or p + 4 > s.end or memcmp(p, b"null", 4) != 0:
             return NULL
         value = NULL_SLOT
-        p += 4
+        q = p + 4
     else:
-        p = read_int(p, &value)
-        if p == NULL:
-            return NULL
+        q = read_int(p, &value)
+        if q == NULL:
+            if field <= F_TO:
+                return NULL
+            q = skip_fraction(p)
+            if q == NULL:
+                return NULL
+            if (append(s, &s.fraction, field) < 0 or append(s, &s.fraction, s.col[field].size) < 0
+                    or append(s, &s.fraction, p - s.base) < 0 or append(s, &s.fraction, q - p) < 0):
+                return NULL
     if push(s, field, value) < 0:
         return NULL
-    return p
+    return q
 
 
 cdef cptr read_value(Scan* s, cptr p, int field) noexcept nogil:
@@ -529,6 +581,7 @@ cdef void release(Scan* s) noexcept nogil:
     cdef int f
     for f in range(NFIELDS):
         free(s.col[f].data)
+    free(s.fraction.data)
     free(s.group)
     free(s.arena)
     free(s.table)
@@ -539,6 +592,46 @@ cdef bytearray take(Column* c):
     cdef bytearray out = bytearray(c.size * sizeof(int64_t))
     if c.size:
         memcpy(<char*>out, c.data, c.size * sizeof(int64_t))
+    return out
+
+
+cdef extern from "Python.h":
+    double PyOS_string_to_double(const char* s, char** endptr, void* overflow_exception) except? -1.0
+
+
+cdef dict fractions(Scan* s):
+    """The numbers with a fraction or an exponent, per field: ``(rows, values)`` as the
+    bytes of an int64 and a float64 array; None when one is beyond a double's range
+    (orjson refuses those: the ordinary path says so).
+
+    Python's own conversion (correctly rounded, as orjson's is) reads each token.
+    """
+    cdef dict out = {}
+    cdef int f
+    cdef Py_ssize_t i, n, count = s.fraction.size // 4
+    cdef int64_t* q = s.fraction.data
+    cdef char* stop
+    cdef double value
+    cdef bytearray rows, values
+    for f in range(NFIELDS):
+        n = 0
+        for i in range(count):
+            n += q[4 * i] == f
+        if n == 0:
+            continue
+        rows = bytearray(n * sizeof(int64_t))
+        values = bytearray(n * sizeof(double))
+        n = 0
+        for i in range(count):
+            if q[4 * i] != f:
+                continue
+            value = PyOS_string_to_double(<const char*>(s.base + q[4 * i + 2]), &stop, NULL)
+            if stop != <char*>(s.base + q[4 * i + 2] + q[4 * i + 3]) or value != value or value - value != 0:
+                return None  # not the whole token, or infinite
+            (<int64_t*><char*>rows)[n] = q[4 * i + 1]
+            (<double*><char*>values)[n] = value
+            n += 1
+        out[FIELDS[f]] = (rows, values)
     return out
 
 
@@ -602,12 +695,14 @@ def scan(bytes raw, unsigned long long seed):
     -------
     tuple or None
         ``None`` when the body is outside the subset (see :mod:`service.api.fastarcs`).
-        Otherwise ``(form, members, columns, names)``: ``form`` is ``"objects"`` or
-        ``"columns"``; ``members`` lists ``(key, start, stop)`` byte spans of the other
-        top-level members, in order; ``columns`` maps each field present to the bytes
-        of an int64 array (string ids as indices into ``names``, ``null`` as
-        :data:`NULL_VALUE`); ``names`` is the list of distinct string ids in order of
-        first mention, or None for integer ids.
+        Otherwise ``(form, members, columns, names, fractions)``: ``form`` is
+        ``"objects"`` or ``"columns"``; ``members`` lists ``(key, start, stop)`` byte
+        spans of the other top-level members, in order; ``columns`` maps each field
+        present to the bytes of an int64 array (string ids as indices into ``names``,
+        ``null`` as :data:`NULL_VALUE`, 0 for a number with a fraction); ``names`` is
+        the list of distinct string ids in order of first mention, or None for integer
+        ids; ``fractions`` maps a field to the rows and float64 values of its numbers
+        with a fraction or an exponent.
     """
     cdef Scan s
     cdef cptr p = <cptr>PyBytes_AS_STRING(raw)
@@ -677,10 +772,13 @@ def scan(bytes raw, unsigned long long seed):
                 names = renumber(&s)
             except UnicodeDecodeError:
                 return None
+        split = fractions(&s) if s.fraction.size else {}
+        if split is None:
+            return None
         columns = {}
         for f in range(NFIELDS):
             if s.present[f]:
                 columns[FIELDS[f]] = take(&s.col[f])
-        return ("objects" if form == 1 else "columns"), members, columns, names
+        return ("objects" if form == 1 else "columns"), members, columns, names, split
     finally:
         release(&s)

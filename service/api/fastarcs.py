@@ -17,12 +17,15 @@ ordinary decode (orjson, then the model reading the lists):
   whose keys are ``from``, ``to``, ``capacity``, ``cost``, ``lower``, each at most once
   (and ``from`` and ``to`` in every arc object);
 * ``from``/``to`` are all integers or all strings without escapes;
-* ``capacity``, ``cost`` and ``lower`` are integers of at most 18 digits, and only
-  ``capacity`` may be ``null``.
+* ``capacity``, ``cost`` and ``lower`` are numbers (integers of at most 18 digits, or
+  with a fraction or an exponent, of at most 64 bytes and within a double's range),
+  and only ``capacity`` may be ``null``. A column with any fraction becomes float64,
+  as the ordinary path makes it; Python's correctly rounded conversion reads each
+  such number, which orjson's agrees with.
 
 Anything else returns ``None`` and takes the ordinary path, which also writes the
-error messages: fractions, escapes, arc ``key`` labels, invalid JSON or UTF-8, and
-any failure of this module's own. Tests decode generated and mutated bodies both
+error messages: escapes, arc ``key`` labels, invalid JSON or UTF-8, numbers the
+subset leaves out, and any failure of this module's own. Tests decode generated and mutated bodies both
 ways and compare everything the model produces (``tests/test_fastarcs.py``).
 """
 
@@ -35,7 +38,7 @@ import numpy as np
 import orjson
 
 from ..model.arcs import ObjectArcs
-from ..model.columns import NullableInts
+from ..model.columns import NullableNumbers
 from ..model.ids import InternedIds
 
 try:
@@ -72,8 +75,9 @@ def decode_arcs_body(raw: bytes, min_bytes: int = MIN_BYTES) -> dict | None:
     dict or None
         The decoded body. Object-form ``arcs`` become an
         :class:`~service.model.arcs.ObjectArcs`, columnar ones a dict of columns;
-        columns are int64 arrays, :class:`~service.model.columns.NullableInts` where
-        a capacity is ``null`` or absent, and :class:`~service.model.ids.InternedIds`
+        columns are int64 arrays (float64 where a number has a fraction),
+        :class:`~service.model.columns.NullableNumbers` where a capacity is ``null`` or
+        absent, and :class:`~service.model.ids.InternedIds`
         for string node ids. ``None`` when the body is outside the subset (see the
         module doc) or the scanner is not installed.
 
@@ -96,7 +100,8 @@ def decode_arcs_body(raw: bytes, min_bytes: int = MIN_BYTES) -> dict | None:
         return None
 
 
-def _assemble(raw: bytes, form: str, members: list, columns: dict, names: list | None) -> dict | None:
+def _assemble(raw: bytes, form: str, members: list, columns: dict, names: list | None,
+              fractions: dict) -> dict | None:
     out = {}
     view = memoryview(raw)
     for key, start, stop in members:
@@ -107,7 +112,7 @@ def _assemble(raw: bytes, form: str, members: list, columns: dict, names: list |
             out[name] = orjson.loads(view[start:stop])
         except (UnicodeDecodeError, orjson.JSONDecodeError):
             return None
-    arcs = {field: _column(field, data, names) for field, data in columns.items()}
+    arcs = {field: _column(field, data, names, fractions.get(field)) for field, data in columns.items()}
     if form == "objects":
         out["arcs"] = ObjectArcs(arcs, len(arcs["from"]))
     else:
@@ -115,12 +120,18 @@ def _assemble(raw: bytes, form: str, members: list, columns: dict, names: list |
     return out
 
 
-def _column(field: str, data: bytearray, names: list | None):
+def _column(field: str, data: bytearray, names: list | None, fractions: tuple | None):
     values = np.frombuffer(data, dtype=np.int64)
     if field in ("from", "to"):
         return values if names is None else InternedIds(values.astype(np.int32), names)
     null = values == _arcscan.NULL_VALUE
+    if fractions is not None:
+        # As the ordinary path's np.asarray of ints and floats: every value a double
+        # (a fraction's row holds 0 until here, so it is never taken for a null).
+        rows, parsed = fractions
+        values = values.astype(np.float64)
+        values[np.frombuffer(rows, dtype=np.int64)] = np.frombuffer(parsed, dtype=np.float64)
     if null.any():
         values[null] = 0
-        return NullableInts(values, null)
+        return NullableNumbers(values, null)
     return values

@@ -13,7 +13,7 @@ from operator import itemgetter
 import numpy as np
 
 from ..errors import FieldError, InputError, ProblemTooLarge
-from .columns import MAX_REPORTED_ERRORS, NullableInts, NumberColumn, number_column
+from .columns import MAX_REPORTED_ERRORS, NullableNumbers, NumberColumn, number_column
 from .ids import MAX_ID_LENGTH, IdColumn, InternedIds, NodeIndex, intern_ids
 
 ARC_FIELDS = ("from", "to", "capacity", "cost", "lower", "key")
@@ -33,7 +33,7 @@ class RawArcs:
 
 @dataclass(frozen=True)
 class ObjectArcs:
-    """Object-form arcs already split into columns (numpy arrays, :class:`NullableInts`
+    """Object-form arcs already split into columns (numpy arrays, :class:`NullableNumbers`
     or :class:`~service.model.ids.InternedIds`) by the API's compiled body scanner.
     Pointers still name ``/arcs/<i>/<field>``, as for the list of objects they came
     from."""
@@ -118,7 +118,7 @@ def _read_columns(raw: dict, base: str) -> RawArcs:
         if name not in raw:
             continue
         values = raw[name]
-        if not isinstance(values, (list, np.ndarray, InternedIds, NullableInts)):
+        if not isinstance(values, (list, np.ndarray, InternedIds, NullableNumbers)):
             raise InputError.at(f"{base}/{name}", "must be a list")
         if count is None:
             count = len(values)

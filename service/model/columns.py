@@ -26,9 +26,9 @@ MAX_REPORTED_ERRORS = 20
 
 
 @dataclass(frozen=True)
-class NullableInts:
-    """An int64 column with JSON nulls marked (their value slot is 0), as the
-    object-form fast decoder hands it over."""
+class NullableNumbers:
+    """A typed column (int64, or float64 where a number has a fraction) with JSON nulls
+    marked (their value slot is 0), as the compiled body scanner hands it over."""
 
     values: np.ndarray
     null: np.ndarray
@@ -105,7 +105,7 @@ def number_column(
     """
     if isinstance(col, np.ndarray):
         return _typed_column(col, where, minimum)
-    if isinstance(col, NullableInts):
+    if isinstance(col, NullableNumbers):
         if not allow_null and col.null.any():
             raise _mask_errors(col.null, where, "must be a number")
         return NumberColumn(_typed_column(col.values, where, minimum).values, col.null if col.null.any() else None)
