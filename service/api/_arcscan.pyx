@@ -28,14 +28,15 @@ cdef extern from *:
 
 # The arc fields this scan reads, in the order of its columns.
 cdef enum:
-    NFIELDS = 5
+    NFIELDS = 6
     F_FROM = 0
     F_TO = 1
     F_CAPACITY = 2
     F_COST = 3
     F_LOWER = 4
+    F_KEY = 5  # an arc's own label: a string or null, never interned
 
-FIELDS = ("from", "to", "capacity", "cost", "lower")
+FIELDS = ("from", "to", "capacity", "cost", "lower", "key")
 
 # What the node ids of this body are (one kind per payload).
 cdef enum:
@@ -78,6 +79,8 @@ cdef struct Scan:
     # Numbers with a fraction or an exponent, as (field, row, byte offset, length)
     # quadruples; their rows hold 0 in ``col`` until :func:`fractions` parses them.
     Column fraction
+    # The byte length of each key label (its offset is in ``col[F_KEY]``).
+    Column key_length
     # Interned string ids. Their bytes are copied to the arena, not found again in
     # the body: the first mention of an id may lie megabytes back, and comparing
     # against it there would miss the cache on nearly every lookup.
@@ -248,6 +251,9 @@ cdef inline cptr known_key(Scan* s, cptr p, int* field) noexcept nogil:
     if (w & 0xFFFFFFFFFFFFULL) == 0x227265776F6CULL:  # 'lower"'
         field[0] = F_LOWER
         return p + 7
+    if (w & 0xFFFFFFFFULL) == 0x2279656BULL:  # 'key"'
+        field[0] = F_KEY
+        return p + 5
     return NULL
 
 
@@ -262,6 +268,8 @@ cdef inline int field_of(cptr k, Py_ssize_t n) noexcept nogil:
         return F_COST
     if n == 5 and memcmp(k, b"lower", 5) == 0:
         return F_LOWER
+    if n == 3 and memcmp(k, b"key", 3) == 0:
+        return F_KEY
     return -1
 
 
@@ -420,9 +428,30 @@ cdef cptr read_number(Scan* s, cptr p, int field) noexcept nogil:
     return q
 
 
+cdef cptr read_label(Scan* s, cptr p) noexcept nogil:
+    """An arc's key: a string without escapes (its offset and length) or null."""
+    cdef cptr k
+    cdef Py_ssize_t n = 0
+    cdef int64_t at = NULL_SLOT
+    if p[0] == 34:
+        p = read_key(s, p, &k, &n)
+        if p == NULL:
+            return NULL
+        at = k - s.base
+    elif p + 4 <= s.end and memcmp(p, b"null", 4) == 0:
+        p += 4
+    else:
+        return NULL
+    if push(s, F_KEY, at) < 0 or append(s, &s.key_length, n) < 0:
+        return NULL
+    return p
+
+
 cdef cptr read_value(Scan* s, cptr p, int field) noexcept nogil:
     if field <= F_TO:
         return read_id(s, p, field)
+    if field == F_KEY:
+        return read_label(s, p)
     return read_number(s, p, field)
 
 
@@ -470,6 +499,8 @@ cdef cptr read_arc(Scan* s, cptr p) noexcept nogil:
     if not seen & (1 << F_COST) and push(s, F_COST, 0) < 0:
         return NULL
     if not seen & (1 << F_LOWER) and push(s, F_LOWER, 0) < 0:
+        return NULL
+    if not seen & (1 << F_KEY) and (push(s, F_KEY, NULL_SLOT) < 0 or append(s, &s.key_length, 0) < 0):
         return NULL
     return p + 1
 
@@ -582,9 +613,25 @@ cdef void release(Scan* s) noexcept nogil:
     for f in range(NFIELDS):
         free(s.col[f].data)
     free(s.fraction.data)
+    free(s.key_length.data)
     free(s.group)
     free(s.arena)
     free(s.table)
+
+
+cdef list labels(Scan* s):
+    """The key column as the ordinary path has it: a str or None per arc.
+
+    Raises UnicodeDecodeError for a label that is not UTF-8.
+    """
+    cdef Py_ssize_t i, n = s.col[F_KEY].size
+    cdef int64_t* at = s.col[F_KEY].data
+    cdef int64_t* length = s.key_length.data
+    cdef list out = [None] * n
+    for i in range(n):
+        if at[i] != NULL_SLOT:
+            out[i] = s.base[at[i]: at[i] + length[i]].decode("utf-8")
+    return out
 
 
 cdef bytearray take(Column* c):
@@ -767,18 +814,18 @@ def scan(bytes raw, unsigned long long seed):
         if skip_ws(p + 1) != end or not form or s.ids == IDS_UNSEEN:
             return None
         names = None
-        if s.ids == IDS_STRING:
-            try:
+        try:
+            if s.ids == IDS_STRING:
                 names = renumber(&s)
-            except UnicodeDecodeError:
-                return None
+            columns = {}
+            for f in range(NFIELDS):
+                if s.present[f]:
+                    columns[FIELDS[f]] = take(&s.col[f]) if f != F_KEY else labels(&s)
+        except UnicodeDecodeError:
+            return None
         split = fractions(&s) if s.fraction.size else {}
         if split is None:
             return None
-        columns = {}
-        for f in range(NFIELDS):
-            if s.present[f]:
-                columns[FIELDS[f]] = take(&s.col[f])
         return ("objects" if form == 1 else "columns"), members, columns, names, split
     finally:
         release(&s)

@@ -14,18 +14,19 @@ ordinary decode (orjson, then the model reading the lists):
 
 * the body is one JSON object, with distinct top-level keys and one ``arcs`` member;
 * ``arcs`` is an array of flat arc objects or an object of flat arrays (columns),
-  whose keys are ``from``, ``to``, ``capacity``, ``cost``, ``lower``, each at most once
-  (and ``from`` and ``to`` in every arc object);
+  whose keys are ``from``, ``to``, ``capacity``, ``cost``, ``lower``, ``key``, each at
+  most once (and ``from`` and ``to`` in every arc object);
 * ``from``/``to`` are all integers or all strings without escapes;
 * ``capacity``, ``cost`` and ``lower`` are numbers (integers of at most 18 digits, or
   with a fraction or an exponent, of at most 64 bytes and within a double's range),
-  and only ``capacity`` may be ``null``. A column with any fraction becomes float64,
+  and only ``capacity`` may be ``null``;
+* ``key`` labels are strings without escapes, or ``null``. A column with any fraction becomes float64,
   as the ordinary path makes it; Python's correctly rounded conversion reads each
   such number, which orjson's agrees with.
 
 Anything else returns ``None`` and takes the ordinary path, which also writes the
-error messages: escapes, arc ``key`` labels, invalid JSON or UTF-8, numbers the
-subset leaves out, and any failure of this module's own. Tests decode generated and mutated bodies both
+error messages: escapes in the arcs, invalid JSON or UTF-8, numbers the subset
+leaves out, and any failure of this module's own. Tests decode generated and mutated bodies both
 ways and compare everything the model produces (``tests/test_fastarcs.py``).
 """
 
@@ -120,7 +121,9 @@ def _assemble(raw: bytes, form: str, members: list, columns: dict, names: list |
     return out
 
 
-def _column(field: str, data: bytearray, names: list | None, fractions: tuple | None):
+def _column(field: str, data: bytearray | list, names: list | None, fractions: tuple | None):
+    if field == "key":
+        return data  # already the list of labels (str or None) the model checks
     values = np.frombuffer(data, dtype=np.int64)
     if field in ("from", "to"):
         return values if names is None else InternedIds(values.astype(np.int32), names)

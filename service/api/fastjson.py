@@ -1,7 +1,7 @@
 """A fast decode for columnar payloads of numbers, fractions included.
 
 The compiled scanner (:mod:`service.api.fastarcs`) takes most large bodies; this
-path serves the columnar ones it leaves aside (fractional capacities or costs) and
+path serves the numeric columnar ones it leaves aside (escapes, longer numbers) and
 callers that keep lists (jobs, which re-serialise the body). A columnar body with
 integer node ids is mostly long JSON arrays of numbers; simdjson parses the document
 once and hands each numeric array over as a typed buffer. Only such bodies take this
