@@ -162,6 +162,15 @@ cdef cptr read_int(cptr p, int64_t* out) noexcept nogil:
     return p
 
 
+cdef inline cptr skip_digits(cptr p) noexcept nogil:
+    """Past one or more digits; NULL when there is none."""
+    if not 48 <= p[0] <= 57:
+        return NULL
+    while 48 <= p[0] <= 57:
+        p += 1
+    return p
+
+
 cdef cptr skip_fraction(cptr p) noexcept nogil:
     """Past a JSON number that has a fraction or an exponent (p at its first byte);
     NULL for anything else, or for a token longer than MAX_FRACTION_BYTES."""
@@ -177,20 +186,17 @@ cdef cptr skip_fraction(cptr p) noexcept nogil:
     else:
         return NULL
     if p[0] == 46:  # "." and at least one digit
-        p += 1
-        if not 48 <= p[0] <= 57:
+        p = skip_digits(p + 1)
+        if p == NULL:
             return NULL
-        while 48 <= p[0] <= 57:
-            p += 1
         fraction = True
     if p[0] == 101 or p[0] == 69:  # "e" or "E", a sign, at least one digit
         p += 1
         if p[0] == 43 or p[0] == 45:
             p += 1
-        if not 48 <= p[0] <= 57:
+        p = skip_digits(p)
+        if p == NULL:
             return NULL
-        while 48 <= p[0] <= 57:
-            p += 1
         fraction = True
     if not fraction or p - start > MAX_FRACTION_BYTES:
         return NULL
