@@ -16,7 +16,7 @@ NUL is not allowed anywhere in JSON, so every loop stops at a byte it does not
 expect, at the latest at that terminator; a pointer never passes it.
 """
 
-from libc.stdint cimport INT64_MIN, int32_t, int64_t, uint64_t
+from libc.stdint cimport INT64_MIN, int64_t, uint64_t
 from libc.stdlib cimport free, malloc, realloc
 from libc.string cimport memcmp, memcpy, memset
 from cpython.bytes cimport PyBytes_AS_STRING, PyBytes_GET_SIZE

@@ -19,15 +19,15 @@ ordinary decode (orjson, then the model reading the lists):
 * ``from``/``to`` are all integers or all strings without escapes;
 * ``capacity``, ``cost`` and ``lower`` are numbers (integers of at most 18 digits, or
   with a fraction or an exponent, of at most 64 bytes and within a double's range),
-  and only ``capacity`` may be ``null``;
-* ``key`` labels are strings without escapes, or ``null``. A column with any fraction becomes float64,
+  and only ``capacity`` may be ``null``. A column with any fraction becomes float64,
   as the ordinary path makes it; Python's correctly rounded conversion reads each
-  such number, which orjson's agrees with.
+  such number, which orjson's agrees with;
+* ``key`` labels are strings without escapes, or ``null``.
 
 Anything else returns ``None`` and takes the ordinary path, which also writes the
 error messages: escapes in the arcs, invalid JSON or UTF-8, numbers the subset
-leaves out, and any failure of this module's own. Tests decode generated and mutated bodies both
-ways and compare everything the model produces (``tests/test_fastarcs.py``).
+leaves out, and any failure of this module's own. Tests decode generated and mutated
+bodies both ways and compare everything the model produces (``tests/test_fastarcs.py``).
 """
 
 from __future__ import annotations
@@ -78,8 +78,8 @@ def decode_arcs_body(raw: bytes, min_bytes: int = MIN_BYTES) -> dict | None:
         :class:`~service.model.arcs.ObjectArcs`, columnar ones a dict of columns;
         columns are int64 arrays (float64 where a number has a fraction),
         :class:`~service.model.columns.NullableNumbers` where a capacity is ``null`` or
-        absent, and :class:`~service.model.ids.InternedIds`
-        for string node ids. ``None`` when the body is outside the subset (see the
+        absent, :class:`~service.model.ids.InternedIds` for string node ids, and a
+        list for ``key`` labels. ``None`` when the body is outside the subset (see the
         module doc) or the scanner is not installed.
 
     Examples

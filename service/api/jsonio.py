@@ -102,7 +102,7 @@ def read_json_body(arc_columns: bool = False):
         decoded = decode_arcs_body(raw)
         if decoded is not None:
             return decoded
-    if looks_columnar(raw):  # e.g. fractional capacities, or a caller that keeps lists
+    if looks_columnar(raw):  # what the scanner leaves aside, or a caller that keeps lists
         decoded = decode_columnar(raw)
         if decoded is not None:
             return decoded
