@@ -160,8 +160,11 @@ class RedisJobs:
         self.redis.close()
 
     # -- shared -----------------------------------------------------------------------
-    def _transition(self, job_id: str, from_states: tuple, to_state: str, fields: dict) -> bool:
-        """Move the record to ``to_state`` if it is in one of ``from_states`` (atomically)."""
+    def _transition(self, job_id: str, from_states: tuple, to_state: str, fields: dict, also=None) -> bool:
+        """Move the record to ``to_state`` if it is in one of ``from_states`` (atomically).
+
+        ``also(pipe)``, when given, queues more commands into the same MULTI.
+        """
         key = self._key(job_id)
         with self.redis.pipeline() as pipe:
             while True:
@@ -173,6 +176,8 @@ class RedisJobs:
                         return False
                     pipe.multi()
                     pipe.hset(key, mapping={"state": to_state, **fields})
+                    if also is not None:
+                        also(pipe)
                     pipe.execute()
                     return True
                 except redis.WatchError:
@@ -188,13 +193,18 @@ class RedisJobs:
     # -- worker side (inside an RQ work horse) ------------------------------------------
     def run(self, job_id: str) -> str:
         """Claim and run one job; returns its final state (or why it did not run)."""
-        if not self._transition(job_id, (QUEUED,), RUNNING, {"started": time.time()}):
-            return "not queued"
-        attempts = self.redis.hincrby(self._key(job_id), "attempts", 1)
         lease_key = self._key(job_id, ":lease")
-        self.redis.set(lease_key, 1, px=int(self.lease * 1000))
-        h = self.redis.hmget(self._key(job_id), "kind", "time_limit")
-        kind, time_limit = h[0].decode(), float(h[1])
+
+        def claim(pipe) -> None:
+            # In the same MULTI as the move to running: a reader that saw "running" with
+            # no lease would take the worker for lost and fail the job.
+            pipe.set(lease_key, 1, px=int(self.lease * 1000))
+            pipe.hincrby(self._key(job_id), "attempts", 1)
+
+        if not self._transition(job_id, (QUEUED,), RUNNING, {"started": time.time()}, also=claim):
+            return "not queued"
+        h = self.redis.hmget(self._key(job_id), "kind", "time_limit", "attempts")
+        kind, time_limit, attempts = h[0].decode(), float(h[1]), int(h[2])
         body = self.redis.get(self._key(job_id, ":body"))
 
         def renew() -> bool:
