@@ -45,7 +45,7 @@ from ..config import Settings
 from ..kinds import Kind, Limits
 from ..store import DEFAULT_TENANT, Store, StoreUnavailable, open_store
 from .bounded import bounded_solve
-from .jsonio import DUMP_OPTIONS, _is_json, raw_body
+from .jsonio import DUMP_OPTIONS, _is_json, raw_body, raw_body_fingerprint
 from .metrics import CACHE_EVENTS
 
 log = logging.getLogger("sluice.cache")
@@ -99,19 +99,19 @@ def _limits() -> Limits:
 
 
 def body_key(kind: Kind) -> str | None:
-    """sha256 of the endpoint, the limits and the raw body; None when the body is not JSON.
+    """sha256 of the endpoint, the limits and the raw body's fingerprint; None when the body is not JSON.
 
     The limits are part of the key because a body accepted under one limit may be
     refused under another (hosts sharing one Redis may differ).
     """
     if not _is_json(request.mimetype or ""):
         return None
-    raw = raw_body()  # read once: read_json_body decodes the same bytes
-    if not raw:
+    fingerprint = raw_body_fingerprint()  # reads the body once: read_json_body decodes the same bytes
+    if not raw_body():
         return None
     limits = _limits()
     h = hashlib.sha256(f"{kind.name}|{limits.max_arcs}|{limits.max_nodes}|".encode())
-    h.update(raw)
+    h.update(fingerprint)
     return h.hexdigest()
 
 

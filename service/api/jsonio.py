@@ -3,6 +3,10 @@
 from __future__ import annotations
 
 import gc
+import hashlib
+import os
+import threading
+from concurrent.futures import ThreadPoolExecutor
 from contextlib import contextmanager
 
 import orjson
@@ -69,6 +73,73 @@ def raw_body() -> bytes:
             raise BadRequest(f"the body ended after {len(raw)} of {length} bytes")
     g._sluice_raw_body = raw
     return raw
+
+
+#: The body fingerprint hashes the body in steps of this size, so that a large body's
+#: steps can be hashed on two threads at once.
+FINGERPRINT_STEP = 1 << 20
+_hash_pool: tuple[int, ThreadPoolExecutor] | None = None
+_hash_pool_lock = threading.Lock()
+
+
+def body_fingerprint(raw: bytes) -> bytes:
+    """sha256 over the sha256 digests of the body's 1 MiB steps (32 bytes).
+
+    As collision-resistant as sha256 itself (the steps have a fixed size, so the list
+    of digests determines the body). The steps of a large body are hashed on two
+    threads (hashlib releases the GIL): a 7 MB body took 4 ms in one sha256, most of a
+    10 ms cache hit.
+    """
+    view = memoryview(raw)
+    steps = [view[i:i + FINGERPRINT_STEP] for i in range(0, len(raw), FINGERPRINT_STEP)] or [view]
+    if len(steps) == 1:
+        digests = [hashlib.sha256(steps[0]).digest()]
+    else:
+        digests = list(_hashers().map(_sha256, steps))
+    return hashlib.sha256(b"".join(digests)).digest()
+
+
+def raw_body_fingerprint() -> bytes:
+    """:func:`body_fingerprint` of the request body, which is read once (as :func:`raw_body`).
+
+    A large body not yet read is hashed while it arrives: each step is handed to the
+    hashing threads as soon as it is received.
+    """
+    length = request.content_length
+    if g.get("_sluice_raw_body") is not None or length is None or length <= FINGERPRINT_STEP:
+        return body_fingerprint(raw_body())
+    stream, pool, parts, pending, left = request.environ["wsgi.input"], _hashers(), [], [], length
+    aligned = True  # every read so far was one whole step of the fingerprint
+    while left:
+        step = stream.read(min(FINGERPRINT_STEP, left))
+        if not step:
+            break
+        parts.append(step)
+        left -= len(step)
+        if aligned and (len(step) == FINGERPRINT_STEP or not left):
+            pending.append(pool.submit(_sha256, step))
+        else:  # a short read (a trickling input): hash the whole body once it is here
+            aligned = False
+    raw = b"".join(parts)
+    if len(raw) < length:
+        raise BadRequest(f"the body ended after {len(raw)} of {length} bytes")
+    g._sluice_raw_body = raw
+    if not aligned:
+        return body_fingerprint(raw)
+    return hashlib.sha256(b"".join(f.result() for f in pending)).digest()
+
+
+def _sha256(data) -> bytes:
+    return hashlib.sha256(data).digest()
+
+
+def _hashers() -> ThreadPoolExecutor:
+    """This process's two hashing threads (made on first use, again after a fork)."""
+    global _hash_pool
+    with _hash_pool_lock:
+        if _hash_pool is None or _hash_pool[0] != os.getpid():
+            _hash_pool = (os.getpid(), ThreadPoolExecutor(2, thread_name_prefix="sluice-body-hash"))
+        return _hash_pool[1]
 
 
 def read_json_body(arc_columns: bool = False):
