@@ -62,6 +62,10 @@ def raw_body() -> bytes:
     raw = g.get("_sluice_raw_body")
     if raw is not None:
         return raw
+    parts = g.pop("_sluice_raw_parts", None)
+    if parts is not None:  # read by raw_body_fingerprint, joined only when needed
+        raw = g._sluice_raw_body = b"".join(parts)
+        return raw
     length = request.content_length
     if length is None:  # chunked: werkzeug enforces MAX_CONTENT_LENGTH while reading
         raw = request.get_data(cache=False)
@@ -99,15 +103,19 @@ def body_fingerprint(raw: bytes) -> bytes:
     return hashlib.sha256(b"".join(digests)).digest()
 
 
-def raw_body_fingerprint() -> bytes:
-    """:func:`body_fingerprint` of the request body, which is read once (as :func:`raw_body`).
+def raw_body_fingerprint() -> bytes | None:
+    """:func:`body_fingerprint` of the request body (read once, as :func:`raw_body`);
+    None for an empty body.
 
     A large body not yet read is hashed while it arrives: each step is handed to the
-    hashing threads as soon as it is received.
+    hashing threads as soon as it is received. Its steps are joined into one bytes
+    object only when :func:`raw_body` asks, which a cache hit never does (the copy
+    cost 1.4 ms of a 7 MB hit in-process).
     """
     length = request.content_length
     if g.get("_sluice_raw_body") is not None or length is None or length <= FINGERPRINT_STEP:
-        return body_fingerprint(raw_body())
+        raw = raw_body()
+        return body_fingerprint(raw) if raw else None
     stream, pool, parts, pending, left = request.environ["wsgi.input"], _hashers(), [], [], length
     aligned = True  # every read so far was one whole step of the fingerprint
     while left:
@@ -120,12 +128,11 @@ def raw_body_fingerprint() -> bytes:
             pending.append(pool.submit(_sha256, step))
         else:  # a short read (a trickling input): hash the whole body once it is here
             aligned = False
-    raw = b"".join(parts)
-    if len(raw) < length:
-        raise BadRequest(f"the body ended after {len(raw)} of {length} bytes")
-    g._sluice_raw_body = raw
+    if left:
+        raise BadRequest(f"the body ended after {length - left} of {length} bytes")
+    g._sluice_raw_parts = parts
     if not aligned:
-        return body_fingerprint(raw)
+        return body_fingerprint(raw_body())
     return hashlib.sha256(b"".join(f.result() for f in pending)).digest()
 
 
