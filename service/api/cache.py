@@ -27,7 +27,7 @@ Every solve response says what happened in a ``Cache-Status`` header (RFC 9211):
 ====================================================  =======================================
 
 The fast path: a byte-identical body (same endpoint, same bytes) is answered from the
-sha256 of the raw body, mapped to the digest it normalised to, without decoding or
+hash of the raw body (BLAKE3), mapped to the digest it normalised to, without decoding or
 parsing it. Such an alias is only recorded for requests whose ``options.cache`` was
 ``use``, so a body that asks for ``refresh`` or ``bypass`` never takes the fast path.
 """
@@ -45,7 +45,7 @@ from ..config import Settings
 from ..kinds import Kind, Limits
 from ..store import DEFAULT_TENANT, Store, StoreUnavailable, open_store
 from .bounded import bounded_solve
-from .jsonio import DUMP_OPTIONS, _is_json, raw_body_fingerprint
+from .jsonio import DUMP_OPTIONS, _is_json, body_fingerprint, raw_body
 from .metrics import CACHE_EVENTS
 
 log = logging.getLogger("sluice.cache")
@@ -99,19 +99,19 @@ def _limits() -> Limits:
 
 
 def body_key(kind: Kind) -> str | None:
-    """sha256 of the endpoint, the limits and the raw body's fingerprint; None when the body is not JSON.
+    """sha256 of the endpoint, the limits and the raw body's BLAKE3 hash; None when the body is not JSON.
 
     The limits are part of the key because a body accepted under one limit may be
     refused under another (hosts sharing one Redis may differ).
     """
     if not _is_json(request.mimetype or ""):
         return None
-    fingerprint = raw_body_fingerprint()  # reads the body once: read_json_body decodes the same bytes
-    if fingerprint is None:
+    raw = raw_body()  # read once: read_json_body decodes the same bytes
+    if not raw:
         return None
     limits = _limits()
     h = hashlib.sha256(f"{kind.name}|{limits.max_arcs}|{limits.max_nodes}|".encode())
-    h.update(fingerprint)
+    h.update(body_fingerprint(raw))
     return h.hexdigest()
 
 
