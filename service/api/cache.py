@@ -45,7 +45,7 @@ from ..config import Settings
 from ..kinds import Kind, Limits
 from ..store import DEFAULT_TENANT, Store, StoreUnavailable, open_store
 from .bounded import bounded_solve
-from .jsonio import DUMP_OPTIONS, _is_json, body_fingerprint, raw_body
+from .jsonio import DUMP_OPTIONS, _is_json, raw_body, raw_body_fingerprint
 from .metrics import CACHE_EVENTS
 
 log = logging.getLogger("sluice.cache")
@@ -106,12 +106,11 @@ def body_key(kind: Kind) -> str | None:
     """
     if not _is_json(request.mimetype or ""):
         return None
-    raw = raw_body()  # read once: read_json_body decodes the same bytes
-    if not raw:
+    if not request.content_length and not raw_body():
         return None
     limits = _limits()
     h = hashlib.sha256(f"{kind.name}|{limits.max_arcs}|{limits.max_nodes}|".encode())
-    h.update(body_fingerprint(raw))
+    h.update(raw_body_fingerprint())  # reads the body once: read_json_body decodes the same bytes
     return h.hexdigest()
 
 

@@ -3,6 +3,8 @@
 from __future__ import annotations
 
 import gc
+import queue
+import threading
 from contextlib import contextmanager
 
 import orjson
@@ -54,22 +56,67 @@ def no_gc():
             gc.enable()
 
 
+#: Bodies from this size on are hashed while they arrive (when the cache asks for the hash).
+HASH_WHILE_READING = 2 << 20
+_READ_STEP = 1 << 20
+
+
+class _ReceivedBody:
+    """The request body as it arrived: its steps (joined on first use) and, when it was
+    hashed on the way in, its fingerprint."""
+
+    def __init__(self, steps: list[bytes], fingerprint: bytes | None = None):
+        self.steps, self._fingerprint, self._raw = steps, fingerprint, None
+
+    def raw(self) -> bytes:
+        if self._raw is None:
+            self._raw = self.steps[0] if len(self.steps) == 1 else b"".join(self.steps)
+            self.steps = [self._raw]
+        return self._raw
+
+    def fingerprint(self) -> bytes:
+        if self._fingerprint is None:
+            self._fingerprint = body_fingerprint(self.raw())
+        return self._fingerprint
+
+
 def raw_body() -> bytes:
     """The request body, read once per request (later calls return the same bytes)."""
-    raw = g.get("_sluice_raw_body")
-    if raw is not None:
-        return raw
+    return _received(hashing=False).raw()
+
+
+def raw_body_fingerprint() -> bytes:
+    """:func:`body_fingerprint` of the request body (read once, as :func:`raw_body`).
+
+    A large body not read yet is hashed on a helper thread while it arrives (BLAKE3
+    releases the GIL), and a cache hit never joins its steps into one bytes object: at
+    7.2 MB the hash after the read cost 1.3 ms of a 4-5 ms hit in the server.
+    """
+    return _received(hashing=True).fingerprint()
+
+
+def _received(hashing: bool) -> _ReceivedBody:
+    body = g.get("_sluice_body")
+    if body is None:
+        body = g._sluice_body = _receive(hashing)
+    return body
+
+
+def _receive(hashing: bool) -> _ReceivedBody:
     length = request.content_length
     if length is None:  # chunked: werkzeug enforces MAX_CONTENT_LENGTH while reading
-        raw = request.get_data(cache=False)
+        return _ReceivedBody([request.get_data(cache=False)])
+    stream = request.environ["wsgi.input"]
+    if hashing and length >= HASH_WHILE_READING:
+        steps, hasher = _read_hashing(stream, length)
     else:
         # One read of the announced length lets the server recv() in large chunks
         # instead of werkzeug's small ones (the length was checked against the limit).
-        raw = _read_exactly(request.environ["wsgi.input"], length)
-        if len(raw) < length:
-            raise BadRequest(f"the body ended after {len(raw)} of {length} bytes")
-    g._sluice_raw_body = raw
-    return raw
+        steps, hasher = [_read_exactly(stream, length)], None
+    got = sum(map(len, steps))
+    if got < length:
+        raise BadRequest(f"the body ended after {got} of {length} bytes")
+    return _ReceivedBody(steps, None if hasher is None else hasher.digest())
 
 
 def _read_exactly(stream, length: int) -> bytes:
@@ -84,6 +131,28 @@ def _read_exactly(stream, length: int) -> bytes:
         parts.append(more)
         left -= len(more)
     return b"".join(parts)
+
+
+def _read_hashing(stream, length: int) -> tuple[list[bytes], blake3]:
+    """Read in steps; a helper thread hashes each step while the next one arrives."""
+    hasher, todo = blake3(), queue.SimpleQueue()
+
+    def hash_steps() -> None:
+        while (step := todo.get()) is not None:
+            hasher.update(step)
+
+    helper = threading.Thread(target=hash_steps, name="sluice-body-hash", daemon=True)
+    helper.start()
+    steps, left = [], length
+    try:
+        while left and (step := stream.read(min(_READ_STEP, left))):
+            steps.append(step)
+            todo.put(step)
+            left -= len(step)
+    finally:
+        todo.put(None)
+        helper.join()
+    return steps, hasher
 
 
 def body_fingerprint(raw: bytes) -> bytes:
