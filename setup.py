@@ -1,8 +1,11 @@
-"""Build the one compiled module (the request-body scanner); everything else is in pyproject.toml.
+"""Build the compiled modules; everything else is in pyproject.toml.
 
-The extension is optional: where it cannot be built (no C compiler), the service
-still installs and answers every request through the ordinary JSON decode, only
-slower on large bodies (``service.api.fastarcs`` steps aside when it is missing).
+- ``service.api._arcscan``: the request-body scanner (``service.api.fastarcs`` in front);
+- ``service.model._firstseen``: integer node ids numbered in one pass.
+
+Both are optional: where they cannot be built (no C compiler), the service still
+installs and answers every request through numpy and the ordinary JSON decode, only
+slower on large bodies.
 """
 
 from Cython.Build import cythonize
@@ -11,6 +14,8 @@ from setuptools import Extension, setup
 setup(
     ext_modules=cythonize(
         [Extension("service.api._arcscan", ["service/api/_arcscan.pyx"], extra_compile_args=["-O3"],
+                   optional=True),
+         Extension("service.model._firstseen", ["service/model/_firstseen.pyx"], extra_compile_args=["-O3"],
                    optional=True)],
         compiler_directives={"language_level": 3},
     ),

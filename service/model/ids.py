@@ -14,6 +14,11 @@ import numpy as np
 from ..errors import FieldError, InputError
 from .columns import MAX_REPORTED_ERRORS, PointerFn
 
+try:  # compiled at install (setup.py); without a C compiler the numpy path below serves
+    from ._firstseen import first_seen
+except ImportError:
+    first_seen = None
+
 MAX_ID_LENGTH = 200
 #: Dense lookup tables for integer ids are used while the largest id is at most this
 #: many times the number of ids seen (plus a constant); beyond that we sort.
@@ -223,6 +228,10 @@ def _intern_ints(declared: np.ndarray, tails: np.ndarray, heads: np.ndarray):
         return [], tails.astype(np.int32), heads.astype(np.int32)
     top = max(int(a.max()) for a in (declared, tails, heads) if a.size)
     if top <= DENSE_FACTOR * size + 1_000_000:
+        if first_seen is not None:  # one compiled pass: 2-4 ms at 1M arcs against 18 ms below
+            ids, tail, head = first_seen(*(np.ascontiguousarray(a, dtype=np.int64) for a in (declared, tails, heads)),
+                                         top)
+            return ids.tolist(), tail, head
         # The position of each id's first mention in the order declared, from, to,
         # from, to, ...: without building that interleaved sequence.
         first = np.full(top + 1, size, dtype=np.int64)
