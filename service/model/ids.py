@@ -228,7 +228,7 @@ def _intern_ints(declared: np.ndarray, tails: np.ndarray, heads: np.ndarray):
         return [], tails.astype(np.int32), heads.astype(np.int32)
     top = max(int(a.max()) for a in (declared, tails, heads) if a.size)
     if top <= DENSE_FACTOR * size + 1_000_000:
-        if first_seen is not None:  # one compiled pass: 2-4 ms at 1M arcs against 18 ms below
+        if first_seen is not None:  # one compiled pass: about 5 ms at 1M arcs against 18 ms below
             ids, tail, head = first_seen(*(np.ascontiguousarray(a, dtype=np.int64) for a in (declared, tails, heads)),
                                          top)
             return ids.tolist(), tail, head
