@@ -108,32 +108,30 @@ def _receive(hashing: bool) -> _ReceivedBody:
         return _ReceivedBody([request.get_data(cache=False)])
     stream = request.environ["wsgi.input"]
     if hashing and length >= HASH_WHILE_READING:
-        steps, hasher = _read_hashing(stream, length)
+        steps, fingerprint = _read_hashing(stream, length)
     else:
         # One read of the announced length lets the server recv() in large chunks
         # instead of werkzeug's small ones (the length was checked against the limit).
-        steps, hasher = [_read_exactly(stream, length)], None
+        steps, fingerprint = _read_steps(stream, length, length), None
     got = sum(map(len, steps))
     if got < length:
         raise BadRequest(f"the body ended after {got} of {length} bytes")
-    return _ReceivedBody(steps, None if hasher is None else hasher.digest())
+    return _ReceivedBody(steps, fingerprint)
 
 
-def _read_exactly(stream, length: int) -> bytes:
-    """``length`` bytes, or fewer only when the input ends first: an input may hand out
-    less than asked per read (gunicorn's reads all of it in one call)."""
-    raw = stream.read(length)
-    if len(raw) >= length or not raw:
-        return raw
-    parts = [raw]
-    left = length - len(raw)
-    while left and (more := stream.read(left)):
-        parts.append(more)
-        left -= len(more)
-    return b"".join(parts)
+def _read_steps(stream, length: int, step: int, on_step=None) -> list[bytes]:
+    """Up to ``length`` bytes in reads of at most ``step``, fewer only when the input
+    ends first (an input may hand out less than asked per read; gunicorn's does not)."""
+    steps, left = [], length
+    while left and (chunk := stream.read(min(step, left))):
+        steps.append(chunk)
+        left -= len(chunk)
+        if on_step is not None:
+            on_step(chunk)
+    return steps
 
 
-def _read_hashing(stream, length: int) -> tuple[list[bytes], blake3]:
+def _read_hashing(stream, length: int) -> tuple[list[bytes], bytes]:
     """Read in steps; a helper thread hashes each step while the next one arrives."""
     hasher, todo = blake3(), queue.SimpleQueue()
 
@@ -143,16 +141,12 @@ def _read_hashing(stream, length: int) -> tuple[list[bytes], blake3]:
 
     helper = threading.Thread(target=hash_steps, name="sluice-body-hash", daemon=True)
     helper.start()
-    steps, left = [], length
     try:
-        while left and (step := stream.read(min(_READ_STEP, left))):
-            steps.append(step)
-            todo.put(step)
-            left -= len(step)
+        steps = _read_steps(stream, length, _READ_STEP, todo.put)
     finally:
         todo.put(None)
         helper.join()
-    return steps, hasher
+    return steps, hasher.digest()
 
 
 def body_fingerprint(raw: bytes) -> bytes:
