@@ -18,7 +18,7 @@ import scipy.sparse as sp
 
 from ..errors import FieldError, InputError, ProblemTooLarge, pointer
 from .columns import MAX_MAGNITUDE, MAX_REPORTED_ERRORS, number_column
-from .ids import MAX_ID_LENGTH
+from .ids import MAX_ID_LENGTH, lookalike, shown_id
 
 #: Variables and constraints are named by ``id``, as nodes, arcs' ends and commodities
 #: are; ``name``, the first spelling, is still read as an alias of it.
@@ -296,8 +296,8 @@ def _columns_of(names: list, lookup: dict, at) -> np.ndarray:
     unknown = cols < 0
     if unknown.any():
         idx = np.flatnonzero(unknown)[:MAX_REPORTED_ERRORS]
-        raise InputError([FieldError(at(int(k)), f"unknown variable {names[k]!r}: declare it in variables")
-                          for k in idx])
+        raise InputError([FieldError(at(int(k)), f"unknown variable {shown_id(names[k])}: declare it in variables"
+                                                 f"{lookalike(names[k], lookup)}") for k in idx])
     return cols
 
 
