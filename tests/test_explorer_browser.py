@@ -194,7 +194,8 @@ def test_explorer_says_when_an_answer_came_from_the_cache(browser, server):
     wait = _ready(browser, server)
     # A network of its own (ids no other test uses), so the first solve is a miss.
     tag = uuid.uuid4().hex[:8]
-    body = f'{{"source": "a-{tag}", "sink": "b-{tag}", "arcs": [{{"from": "a-{tag}", "to": "b-{tag}", "capacity": 4}}]}}'
+    body = (f'{{"source": "a-{tag}", "sink": "b-{tag}", '
+            f'"arcs": [{{"from": "a-{tag}", "to": "b-{tag}", "capacity": 4}}]}}')
     _solve_pasted(browser, wait, "maxflow", body)
     first = _facts(browser)
     assert first["cache"] == "miss: solved now and stored" and "from the cache" not in first["time (ms)"]

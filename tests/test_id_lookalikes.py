@@ -75,7 +75,8 @@ def test_stored_network_supplies_name_the_lookalike(client):
 @pytest.mark.parametrize("spelling", [NFC, NFD])
 def test_lp_unknown_variable_names_the_lookalike(client, spelling):
     other = NFD if spelling == NFC else NFC
-    r = client.post("/v1/lp", json={"objective": {"sense": "min", "terms": {spelling: 1}}, "variables": [{"id": other}]})
+    r = client.post("/v1/lp", json={"objective": {"sense": "min", "terms": {spelling: 1}},
+                                    "variables": [{"id": other}]})
     assert r.status_code == 422
     detail = r.get_json()["errors"][0]["detail"]
     assert detail.startswith(f"unknown variable {shown_id(spelling)}: declare it in variables; the known id "

@@ -14,7 +14,7 @@ The convention (README, "How the README's examples are checked"):
 - ``json``: stdout and the block are read as a sequence of JSON documents and compared
   member by member. ``…`` (or ``...``) stands for left-out members or array elements
   (``{"a": 1, …}``, ``[1, 2, …]``), for one value (``"cut": …``) or, inside a string,
-  for any characters (``"sha256:…"``; ``...`` works wherever ``…`` does). A number matches at the precision it is printed
+  for any characters (``"sha256:…"``). A number matches at the precision it is printed
   with (``4.625``, ``3.6e-15``). The values of the volatile members in ``VOLATILE``
   (timings, times, request and job ids) are not compared, only their presence.
 - ``text``: line by line; ``…`` inside a line stands for any characters, a line ``…``
