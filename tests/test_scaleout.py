@@ -24,6 +24,7 @@ import requests
 
 from tests.conftest import ROOT, SCENARIOS, RunningServer
 from tests.opsutil import poll_job
+from tests.test_redis_ops import stop
 
 pytestmark = [pytest.mark.redis, pytest.mark.server]
 
@@ -108,13 +109,7 @@ def cluster(plain_install, redis_url, tmp_path):
     finally:
         for server in servers:
             server.stop()
-        if worker.poll() is None:
-            worker.terminate()
-            try:
-                worker.wait(timeout=15)
-            except subprocess.TimeoutExpired:
-                worker.kill()
-                worker.wait()
+        stop(worker)
         client = redis.Redis.from_url(redis_url)
         keys = list(client.scan_iter(match=f"{prefix}*")) + list(client.scan_iter(match=f"*{queue}*"))
         for i in range(0, len(keys), 500):
