@@ -55,8 +55,8 @@ create-only. Network names are 1-128 characters from `A-Z a-z 0-9 . _ -`, starti
 a letter or digit.
 
 Status codes worth knowing: a request whose Content-Type is neither JSON nor a DIMACS
-type the endpoint takes gets 415 Unsupported Media Type (RFC 9110). A malformed path or query parameter
-(network name, digest, `limit`, `after`, `include`) gets 400 `invalid-parameter` with
+type the endpoint takes gets 415 Unsupported Media Type (RFC 9110). A malformed path or
+query parameter (network name, digest, `limit`, `after`, `include`) gets 400 `invalid-parameter` with
 `errors: [{"parameter": ..., "detail": ...}]` (there is no body to point into). When the
 store (SQLite file or Redis) does not answer, `/readyz` answers 200 with `status:
 degraded` (solves still answer, without the cache), while stored networks and cached
