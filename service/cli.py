@@ -37,8 +37,21 @@ def _settings_or_exit():
         sys.exit(2)
 
 
+def _backends_or_exit(settings) -> None:
+    """Refuse to start, with the install command, when a configured backend's package is
+    missing (an install made without dependencies): never a 500 at the first job."""
+    if settings.redis_url:
+        import importlib.util
+
+        missing = [name for name in ("redis", "rq") if importlib.util.find_spec(name) is None]
+        if missing:
+            print(f"sluice: SLUICE_REDIS_URL is set but {' and '.join(missing)} is not installed; "
+                  f"run: pip install 'redis>=5.0' 'rq>=1.16'", file=sys.stderr)
+            sys.exit(2)
+
+
 def _serve(args) -> int:
-    _settings_or_exit()
+    _backends_or_exit(_settings_or_exit())
     _Server(gunicorn_defaults(args.host, args.port, args.workers)).run()
     return 0
 
@@ -51,6 +64,7 @@ def _worker(args) -> int:
     if not settings.redis_url:
         print("sluice worker: set SLUICE_REDIS_URL (jobs run in the API process without Redis)", file=sys.stderr)
         return 2
+    _backends_or_exit(settings)
     logs.configure()
     from rq import Queue, Worker
 

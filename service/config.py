@@ -56,6 +56,27 @@ def _api_keys_from_env() -> tuple[ApiKey, ...]:
     return keys
 
 
+def check_metrics_access(mode: str, key: str | None) -> None:
+    """``SLUICE_METRICS``: ``open`` (default), ``key`` (``SLUICE_METRICS_KEY`` as a bearer
+    token) or ``port:N`` (``/metrics`` only on port N). Raises ``ValueError`` saying why."""
+    if mode == "key":
+        if not key or len(key) < 8:
+            raise ValueError("SLUICE_METRICS=key needs SLUICE_METRICS_KEY of 8+ characters")
+    elif mode.startswith("port:"):
+        port = mode[5:]
+        if not port.isdigit() or not 0 < int(port) < 65536:
+            raise ValueError(f"SLUICE_METRICS={mode}: the port must be a number from 1 to 65535")
+    elif mode != "open":
+        raise ValueError(f"SLUICE_METRICS={mode}: use open, key or port:N")
+
+
+def _metrics_from_env() -> dict:
+    mode = (os.environ.get("SLUICE_METRICS") or "open").strip()
+    key = os.environ.get("SLUICE_METRICS_KEY") or None
+    check_metrics_access(mode, key)
+    return {"metrics": mode, "metrics_key": key}
+
+
 @dataclass(frozen=True)
 class Settings:
     """Everything configurable. ``from_env`` reads the ``SLUICE_*`` variables."""
@@ -89,6 +110,8 @@ class Settings:
     store_retry: float = 1.0  # seconds between attempts to reach a store that failed
     max_diagram_nodes: int = 60  # diagrams are for small networks: 413 above these
     max_diagram_arcs: int = 200
+    metrics: str = "open"  # who may read /metrics: "open", "key" (metrics_key) or "port:N"
+    metrics_key: str | None = field(default=None, repr=False)  # never shown in logs or reprs
 
     @classmethod
     def from_env(cls) -> "Settings":
@@ -120,7 +143,13 @@ class Settings:
             store_retry=_float("SLUICE_STORE_RETRY", 1.0),
             max_diagram_nodes=_int("SLUICE_MAX_DIAGRAM_NODES", 60),
             max_diagram_arcs=_int("SLUICE_MAX_DIAGRAM_ARCS", 200),
+            **_metrics_from_env(),
         )
+
+    @property
+    def metrics_port(self) -> int | None:
+        """The port of its own that ``/metrics`` is served on (``SLUICE_METRICS=port:N``)."""
+        return int(self.metrics[5:]) if self.metrics.startswith("port:") else None
 
     @property
     def max_body_bytes(self) -> int:

@@ -26,8 +26,12 @@ def default_workers() -> int:
 def gunicorn_defaults(host: str = "127.0.0.1", port: int = 8000, workers: int | None = None) -> dict:
     time_limit = float(os.environ.get("SLUICE_TIME_LIMIT") or 30)
     level = os.environ.get("SLUICE_LOG_LEVEL", "info")
+    bind = [f"{host}:{port}"]
+    metrics = os.environ.get("SLUICE_METRICS") or ""
+    if metrics.startswith("port:"):  # /metrics on a port of its own (checked by Settings at start-up)
+        bind.append(f"{host}:{metrics[5:]}")
     return {
-        "bind": f"{host}:{port}",
+        "bind": bind if len(bind) > 1 else bind[0],
         "workers": workers or default_workers(),
         "worker_class": "gthread",
         "threads": 4,
@@ -131,6 +135,9 @@ def when_ready(server) -> None:
     else:
         tenants = sorted({k.tenant for k in settings.api_keys})
         server.log.info("sluice: %d API key(s) for %d tenant(s)", len(settings.api_keys), len(tenants))
+        if settings.metrics == "open":
+            server.log.warning("sluice: /metrics is open to anyone who can reach the port; "
+                               "SLUICE_METRICS=key or port:N restricts it")
     server.log.info("sluice: ready; data dir %s, redis %s, synchronous time limit %g s, job time limit %g s",
                     settings.data_dir, "configured" if settings.redis_url else "not configured",
                     settings.time_limit, settings.job_time_limit)

@@ -36,9 +36,11 @@ def free_port() -> int:
 
 
 class RunningServer:
-    """A real `sluice serve` process on a free loopback port."""
+    """A real `sluice serve` process on a free loopback port (``command``: another
+    ``sluice`` to run, e.g. a fresh install's ``bin/sluice``)."""
 
-    def __init__(self, env: dict | None = None, workers: int = 2, data_dir: str | None = None):
+    def __init__(self, env: dict | None = None, workers: int = 2, data_dir: str | None = None,
+                 command: list[str] | None = None, cwd: Path = ROOT):
         self.port = free_port()
         self.url = f"http://127.0.0.1:{self.port}"
         full_env = {**os.environ, **(env or {})}
@@ -48,8 +50,9 @@ class RunningServer:
         # full pipe (64 KB of JSON access lines) would block the server's workers.
         self.log = tempfile.TemporaryFile()
         self.proc = subprocess.Popen(
-            [sys.executable, "-m", "service.cli", "serve", "--port", str(self.port), "--workers", str(workers)],
-            cwd=ROOT, env=full_env, stdout=subprocess.DEVNULL, stderr=self.log,
+            [*(command or [sys.executable, "-m", "service.cli"]), "serve", "--port", str(self.port),
+             "--workers", str(workers)],
+            cwd=cwd, env=full_env, stdout=subprocess.DEVNULL, stderr=self.log,
         )
         try:
             self._wait_ready()

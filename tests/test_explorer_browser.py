@@ -124,3 +124,84 @@ def _scenario() -> dict:
     import json
 
     return json.loads((SCENARIOS / "depots-maxflow.json").read_text())
+
+
+def _ready(browser, server):
+    from selenium.webdriver.common.by import By
+    from selenium.webdriver.support.ui import WebDriverWait
+
+    wait = WebDriverWait(browser, 30)
+    browser.get(server.url + "/")
+    wait.until(lambda d: d.find_element(By.TAG_NAME, "body").get_attribute("data-state") == "ready")
+    return wait
+
+
+def _solve_pasted(browser, wait, kind: str, body: str) -> None:
+    from selenium.webdriver.common.by import By
+    from selenium.webdriver.support.ui import Select
+
+    Select(browser.find_element(By.ID, "kind")).select_by_value(kind)
+    area = browser.find_element(By.ID, "payload")
+    area.clear()
+    area.send_keys(body)
+    browser.find_element(By.ID, "solve").click()
+    wait.until(lambda d: d.find_element(By.TAG_NAME, "body").get_attribute("data-state") in ("solved", "failed"))
+    assert browser.find_element(By.TAG_NAME, "body").get_attribute("data-state") == "solved"
+
+
+def _facts(browser) -> dict[str, str]:
+    from selenium.webdriver.common.by import By
+
+    names = [e.text for e in browser.find_elements(By.CSS_SELECTOR, "#summary dt")]
+    values = [e.text for e in browser.find_elements(By.CSS_SELECTOR, "#summary dd")]
+    return dict(zip(names, values))
+
+
+@pytest.mark.browser
+@pytest.mark.server
+def test_explorer_shows_assignments_as_a_table(browser, server, tmp_path):
+    """The pairs are in the summary, not only inside the collapsed full response."""
+    import json
+
+    from selenium.webdriver.common.by import By
+    from selenium.webdriver.support.ui import Select
+
+    wait = _ready(browser, server)
+    Select(browser.find_element(By.ID, "scenario")).select_by_value("vans-assignment")
+    wait.until(lambda d: "van-amber" in d.find_element(By.ID, "payload").get_attribute("value"))
+    browser.find_element(By.ID, "solve").click()
+    wait.until(lambda d: d.find_element(By.TAG_NAME, "body").get_attribute("data-state") in ("solved", "failed"))
+    expected = requests.post(server.url + "/v1/assignment", timeout=30,
+                             json=json.loads((SCENARIOS / "vans-assignment.json").read_text())).json()
+    table = browser.find_element(By.CSS_SELECTOR, "#tables table#assignments")
+    assert table.is_displayed()
+    assert [th.text for th in table.find_elements(By.CSS_SELECTOR, "thead th")] == ["agent", "task", "cost"]
+    rows = [[td.text for td in tr.find_elements(By.TAG_NAME, "td")]
+            for tr in table.find_elements(By.CSS_SELECTOR, "tbody tr")]
+    assert rows == [[a["agent"], a["task"], str(a["cost"])] for a in expected["assignments"]]
+    assert len(rows) == 4 and _facts(browser)["assignments"] == "4 pairs"
+    assert not browser.find_element(By.TAG_NAME, "details").get_attribute("open")  # still collapsed
+    folder = Path(os.environ.get("SLUICE_SCREENSHOT_DIR") or tmp_path)
+    folder.mkdir(parents=True, exist_ok=True)
+    assert browser.save_screenshot(str(folder / "explorer-assignment-table.png"))
+
+
+@pytest.mark.browser
+@pytest.mark.server
+def test_explorer_says_when_an_answer_came_from_the_cache(browser, server):
+    import uuid
+
+    wait = _ready(browser, server)
+    # A network of its own (ids no other test uses), so the first solve is a miss.
+    tag = uuid.uuid4().hex[:8]
+    body = (f'{{"source": "a-{tag}", "sink": "b-{tag}", '
+            f'"arcs": [{{"from": "a-{tag}", "to": "b-{tag}", "capacity": 4}}]}}')
+    _solve_pasted(browser, wait, "maxflow", body)
+    first = _facts(browser)
+    assert first["cache"] == "miss: solved now and stored" and "from the cache" not in first["time (ms)"]
+    assert first["minimum cut"] == "1 arc, capacity 4"  # not "1 arcs"
+    _solve_pasted(browser, wait, "maxflow", body)
+    again = _facts(browser)
+    assert again["cache"] == "hit: answered from the cache, not solved again"
+    assert again["time (ms)"].endswith("(solve 0: the answer came from the cache)")
+    assert again["value"] == first["value"] == "4"

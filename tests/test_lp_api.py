@@ -31,7 +31,7 @@ def pointers(response) -> list[str]:
 
 
 def scenario_as_model(body: dict) -> dict:
-    names = [v["name"] for v in body["variables"]]
+    names = [v["id"] for v in body["variables"]]
     A = np.array([[c["terms"].get(v, 0) for v in names] for c in body["constraints"]], float)
     inf = math.inf
     return {
@@ -53,8 +53,8 @@ def test_scenario_against_scipy(client):
     _, objective = linprog_solve(model)
     assert out["status"] == "optimal"
     assert out["objective"] == pytest.approx(objective)
-    names = [v["name"] for v in body["variables"]]
-    rows = [c["name"] for c in body["constraints"]]
+    names = [v["id"] for v in body["variables"]]
+    rows = [c["id"] for c in body["constraints"]]
     fig = duality_figures(model, [out["values"][v] for v in names], [out["duals"][c] for c in rows],
                           [out["reduced_costs"][v] for v in names])
     assert fig["primal_violation"] <= 1e-9 and fig["stationarity"] <= 1e-9
@@ -257,3 +257,54 @@ def test_too_many_variables_is_a_413(tmp_path):
     client = create_app({"data_dir": str(tmp_path), "max_arcs": 1}).test_client()
     r = post(client, BASE)
     assert r.status_code == 413 and pointers(r) == ["/variables"]
+
+
+# -- `id`, with `name` as its older alias ------------------------------------------
+
+def renamed(body: dict, old: str, new: str) -> dict:
+    out = json.loads(json.dumps(body))
+    for part in ("variables", "constraints"):
+        if isinstance(out[part], list):
+            out[part] = [{(new if k == old else k): v for k, v in entry.items()} for entry in out[part]]
+        else:
+            out[part] = {(new if k == old else k): v for k, v in out[part].items()}
+    return out
+
+
+@pytest.mark.parametrize("name", ["depots-lp.json", "depots-lp-matrix.json"])
+def test_name_is_read_as_id_with_the_same_answer_and_digest(client, name):
+    body = scenario(name)
+    assert "name" not in json.dumps(body)  # the scenarios use the documented spelling
+    by_id = post(client, body).get_json()
+    by_name = post(client, renamed(body, "id", "name")).get_json()
+    assert by_name["status"] == by_id["status"] == "optimal"
+    assert by_name["digest"] == by_id["digest"]
+    assert by_name["values"] == by_id["values"] and by_name["duals"] == by_id["duals"]
+
+
+def test_entries_may_mix_id_and_name_but_not_give_both(client):
+    body = scenario("depots-lp.json")
+    body["variables"][0] = {"name": body["variables"][0].pop("id"), **body["variables"][0]}
+    assert post(client, body).get_json()["status"] == "optimal"
+    body["variables"][1]["name"] = body["variables"][1]["id"]
+    r = post(client, body)
+    assert r.status_code == 422 and pointers(r) == ["/variables/1/name"]
+    assert "not both" in r.get_json()["errors"][0]["detail"]
+
+
+def test_columns_give_id_or_name_not_both(client):
+    body = scenario("depots-lp-matrix.json")
+    body["variables"]["name"] = body["variables"]["id"]
+    r = post(client, body)
+    assert r.status_code == 422 and pointers(r) == ["/variables/name"]
+
+
+def test_errors_point_at_the_spelling_sent(client):
+    body = scenario("depots-lp.json")
+    body["variables"][2]["id"] = body["variables"][0]["id"]
+    r = post(client, body)
+    assert pointers(r) == ["/variables/2/id"] and "duplicate variable id" in r.get_json()["errors"][0]["detail"]
+    old = renamed(body, "id", "name")
+    assert pointers(post(client, old)) == ["/variables/2/name"]
+    del body["variables"][0]["id"]
+    assert pointers(post(client, body)) == ["/variables/0/id"]

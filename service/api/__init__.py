@@ -53,7 +53,7 @@ def create_app(config: Settings | dict | None = None) -> Flask:
     # Order matters: request id and clock first (so every answer is counted and logged),
     # then authentication (the tenant), then the rate limit (per tenant), then the body limit.
     requestlog.init_app(app)
-    metrics.init_app(app)
+    metrics.init_app(app, settings)
     auth.init_app(app, settings.api_keys)
     ratelimit.init_app(app, settings, keyed=bool(settings.api_keys))
     app.before_request(_enforce_body_limit)

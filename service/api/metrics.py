@@ -8,17 +8,30 @@ worker. Without that variable (tests, a bare ``create_app()``) the process regis
 used.
 
 Other parts of the service increment these directly, e.g.
-``CACHE_EVENTS.labels("hit").inc()`` in the result cache.
+``CACHE_EVENTS.labels("hit").inc()`` in the result cache. Every series whose label
+values are known in advance (kinds, engines, cache results, job events) is created at
+0 when the app starts, so rates and alerts work before the first event; the HTTP series
+(one per route, method and status) appear with their first request.
+
+Who may read ``/metrics`` is ``SLUICE_METRICS``: ``open`` (default), ``key`` (a bearer
+token of its own, ``SLUICE_METRICS_KEY``; API keys do not grant it: the figures are
+service-wide, not one tenant's) or ``port:N`` (only on a second listening port, N, which
+serves nothing else; ``/metrics`` on the main port is then a 404).
 """
 
 from __future__ import annotations
 
+import hashlib
+import hmac
 import os
 from time import perf_counter
 
 from flask import Blueprint, Flask, Response, current_app, g, request
 from prometheus_client import CONTENT_TYPE_LATEST, REGISTRY, CollectorRegistry, Counter, Histogram, generate_latest
 from prometheus_client.core import GaugeMetricFamily
+
+from ..config import Settings
+from ..errors import NotFound, Unauthorized
 
 LATENCY_BUCKETS = (0.001, 0.0025, 0.005, 0.01, 0.025, 0.05, 0.1, 0.25, 0.5, 1, 2.5, 5, 10, 30, 60, 120)
 
@@ -34,6 +47,11 @@ CACHE_EVENTS = Counter("sluice_cache_events_total", "Result cache lookups and wr
                        "(hit, miss, stored, bypass, unavailable).", ["result"])
 JOB_EVENTS = Counter("sluice_jobs_total", "Jobs by kind and event (submitted, done, failed, cancelled).",
                      ["kind", "event"])
+
+#: The label values known in advance, exported at 0 from start-up.
+CACHE_RESULTS = ("hit", "miss", "stored", "bypass", "unavailable")
+JOB_EVENT_NAMES = ("submitted", "done", "failed", "cancelled")
+ENGINE_KINDS = ("graph", "lp")
 
 bp = Blueprint("metrics", __name__)
 
@@ -64,9 +82,46 @@ def _registry() -> CollectorRegistry:
     return REGISTRY
 
 
+def export_known_series(kinds) -> None:
+    """Create every series with known labels at 0 (Prometheus practice: a counter that
+    is absent until its first event breaks rates and alerts on it)."""
+    for kind in kinds:
+        SOLVE_TIMEOUTS.labels(kind)
+        for engine in ENGINE_KINDS:
+            SOLVE_SECONDS.labels(kind, engine)
+        for event in JOB_EVENT_NAMES:
+            JOB_EVENTS.labels(kind, event)
+    for result in CACHE_RESULTS:
+        CACHE_EVENTS.labels(result)
+
+
+class MetricsAccess:
+    """Who may read ``/metrics`` (``SLUICE_METRICS``, ``SLUICE_METRICS_KEY``)."""
+
+    def __init__(self, settings: Settings):
+        self.port = settings.metrics_port
+        self.key_digest = hashlib.sha256(settings.metrics_key.encode()).digest() \
+            if settings.metrics == "key" and settings.metrics_key else None
+
+    def on_metrics_port(self) -> bool:
+        return self.port is not None and request.environ.get("SERVER_PORT") == str(self.port)
+
+    def check(self) -> None:
+        """Raise unless the current request may read the metrics."""
+        if self.port is not None and not self.on_metrics_port():
+            raise NotFound(f"/metrics is served on port {self.port} (SLUICE_METRICS=port:{self.port})")
+        if self.key_digest is not None:
+            scheme, _, token = request.headers.get("Authorization", "").partition(" ")
+            given = hashlib.sha256(token.strip().encode()).digest()
+            if scheme.lower() != "bearer" or not hmac.compare_digest(given, self.key_digest):
+                raise Unauthorized("/metrics needs Authorization: Bearer <SLUICE_METRICS_KEY>",
+                                   headers={"WWW-Authenticate": 'Bearer realm="sluice-metrics"'})
+
+
 @bp.get("/metrics")
 def metrics():
     """Prometheus text exposition of this service's counters and histograms."""
+    current_app.extensions["sluice.metrics"].check()
     text = generate_latest(_registry())
     jobs = current_app.extensions.get("sluice.jobs")
     if jobs is not None:
@@ -81,10 +136,17 @@ def route_label() -> str:
     return request.url_rule.rule if request.url_rule is not None else "unmatched"
 
 
-def init_app(app: Flask) -> None:
+def init_app(app: Flask, settings: Settings) -> None:
+    from ..kinds import KINDS
+
+    access = app.extensions["sluice.metrics"] = MetricsAccess(settings)
+    export_known_series(KINDS)
+
     @app.before_request
     def _start_clock():
         g.started = perf_counter()
+        if access.on_metrics_port() and request.path != "/metrics":
+            raise NotFound(f"port {access.port} serves /metrics only")
 
     @app.after_request
     def _count(response):

@@ -54,16 +54,21 @@ so of two writers holding one ETag exactly one wins) and `If-None-Match: *` make
 create-only. Network names are 1-128 characters from `A-Z a-z 0-9 . _ -`, starting with
 a letter or digit.
 
-Deviations from the draft contract: a request whose Content-Type is not JSON gets
-415 Unsupported Media Type (RFC 9110), not 400. A malformed path or query parameter
-(network name, digest, `limit`, `after`, `include`) gets 400 `invalid-parameter` with
+Status codes worth knowing: a request whose Content-Type is neither JSON nor a DIMACS
+type the endpoint takes gets 415 Unsupported Media Type (RFC 9110). A malformed path or
+query parameter (network name, digest, `limit`, `after`, `include`) gets 400 `invalid-parameter` with
 `errors: [{"parameter": ..., "detail": ...}]` (there is no body to point into). When the
 store (SQLite file or Redis) does not answer, `/readyz` answers 200 with `status:
 degraded` (solves still answer, without the cache), while stored networks and cached
 solutions answer 503 `store-unavailable` with `Retry-After`; `/readyz` answers 503 only
-when the solvers fail. Network metadata carries `etag`, `size`, `created` and `updated`
-besides the contract's fields, and what-if answers carry `network` (name, version,
-ETag of the version that answered).
+when the solvers fail. Network metadata carries `etag`, `size`, `created` and `updated`,
+and what-if answers carry `network` (name, version, ETag of the version that
+answered).
+
+Linear programs name their variables and constraints `id`, as every other kind names
+its nodes and commodities; `name`, the first spelling, is still read as an alias (one
+of the two per entry). Answers are unchanged: `values`, `duals` and `reduced_costs` are
+maps keyed by those ids.
 
 Results are decision support: plans affecting people, vehicles or safety-critical
 stock must be reviewed by a responsible planner and follow local rules."""

@@ -47,9 +47,9 @@ residual capacity). A feasible min-cost plan gets either potentials proving it
 cheapest or a negative-cost cycle (`improving_cycle`, `amount` to push round it,
 `unit_cost` < 0, `gain` = cost saved). A path or cycle without any limit is reported
 with `gain: null` and `unbounded: true`. Every verdict is checked again by the
-service before it is returned. Beyond the draft contract: `violation_count`, `amount`,
-`unit_cost`, `cut`, `potentials`, `certificate`. Plans are checked under the default
-`options.shortage` `reject` only (`max-flow` is a 422 at `/problem/options/shortage`).
+service before it is returned. Answers also carry `violation_count`, `amount`,
+`unit_cost`, `cut`, `potentials` and `certificate` where they apply. Plans are checked
+under the default `options.shortage` `reject` only (`max-flow` is a 422 at `/problem/options/shortage`).
 
 ## Batches
 

@@ -151,5 +151,14 @@ def register(spec) -> None:
     })
     spec.path(path="/metrics", operations={"get": {
         "operationId": "metrics", "summary": "Prometheus metrics (text exposition format), all workers summed.",
-        "responses": {"200": {"description": "The metrics.", "content": {"text/plain": {"schema": {"type": "string"}}}}},
+        "description": "Every series whose labels are known in advance (solves, timeouts, the result cache and "
+                       "jobs, for every kind, engine, result and event) is there at 0 from start-up; the HTTP "
+                       "series appear with each route's first request. Who may read it is the operator's "
+                       "choice, SLUICE_METRICS: open (the default), key (Authorization: Bearer with "
+                       "SLUICE_METRICS_KEY, a key of its own: API keys do not grant it) or port:N (only on that "
+                       "second port, which serves nothing else).",
+        "responses": {"200": {"description": "The metrics.", "content": {"text/plain": {"schema": {"type": "string"}}}},
+                      "401": {"description": "SLUICE_METRICS=key and no valid metrics key.", "content": PROBLEM,
+                              "headers": {"WWW-Authenticate": {"schema": {"type": "string"}}}},
+                      "404": {"description": "SLUICE_METRICS=port:N and this is not port N.", "content": PROBLEM}},
     }})

@@ -15,7 +15,7 @@ from typing import Any, Protocol
 import numpy as np
 
 from ..errors import InputError
-from ..model.ids import NodeIndex
+from ..model.ids import NodeIndex, lookalike, shown_id
 
 
 @dataclass(frozen=True)
@@ -65,7 +65,8 @@ def ids_of(nodes: NodeIndex, indices: np.ndarray):
 def node_position(nodes: NodeIndex, node_id, ptr: str) -> int:
     index = nodes.index_of(node_id)
     if index is None:
-        raise InputError.at(ptr, f"unknown node {node_id!r}: it is neither in nodes nor on any arc")
+        raise InputError.at(ptr, f"unknown node {shown_id(node_id)}: it is neither in nodes nor on any arc"
+                                 f"{lookalike(node_id, nodes.ids)}")
     return index
 
 

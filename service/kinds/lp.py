@@ -24,19 +24,26 @@ CONVENTION = (
 
 _NUMBER_MAP = {"type": "object", "additionalProperties": {"type": "number"}}
 _NUMBER_OR_NULL = {"oneOf": [{"type": "number"}, {"type": "null"}]}
+# Named by `id` like every other kind; `name` (the first spelling) is read as its alias,
+# one of the two per variable or constraint. Responses are maps keyed by these ids.
+_ID = {"type": "string", "minLength": 1, "maxLength": 200}
+_ID_ALIAS = {**_ID, "deprecated": True, "description": "Older spelling of id, still read; give one of the two."}
+_ID_REQUIRED = [{"required": ["id"]}, {"required": ["name"]}]
 _VARIABLE = {
-    "type": "object", "required": ["name"], "additionalProperties": False,
+    "type": "object", "oneOf": _ID_REQUIRED, "additionalProperties": False,
     "properties": {
-        "name": {"type": "string", "minLength": 1, "maxLength": 200},
+        "id": {**_ID, "description": "The variable's id: keys values and reduced_costs, names it in terms."},
+        "name": _ID_ALIAS,
         "lower": {**_NUMBER_OR_NULL, "description": "Lower bound; default 0, null = no limit."},
         "upper": {**_NUMBER_OR_NULL, "description": "Upper bound; default and null = no limit."},
     },
 }
 _CONSTRAINT = {
-    "type": "object", "required": ["name"], "additionalProperties": False,
+    "type": "object", "oneOf": _ID_REQUIRED, "additionalProperties": False,
     "properties": {
-        "name": {"type": "string", "minLength": 1, "maxLength": 200},
-        "terms": {**_NUMBER_MAP, "description": "{variable name: coefficient}."},
+        "id": {**_ID, "description": "The constraint's id: keys duals."},
+        "name": _ID_ALIAS,
+        "terms": {**_NUMBER_MAP, "description": "{variable id: coefficient}."},
         "lower": {**_NUMBER_OR_NULL, "description": "The sum of the terms is at least this."},
         "upper": {**_NUMBER_OR_NULL, "description": "The sum of the terms is at most this."},
         "equals": {**_NUMBER_OR_NULL, "description": "The sum of the terms equals this (not with lower/upper)."},
@@ -47,7 +54,7 @@ _CONSTRAINT = {
 def _columns_of(record: dict, what: str) -> dict:
     props = {name: {"type": "array", "items": schema} for name, schema in record["properties"].items()
              if name != "terms"}
-    return {"type": "object", "required": ["name"], "additionalProperties": False, "properties": props,
+    return {"type": "object", "oneOf": _ID_REQUIRED, "additionalProperties": False, "properties": props,
             "description": f"Columnar form: one list per field, one entry per {what}."}
 
 
@@ -65,7 +72,7 @@ class ObjectiveSchema(Schema):
 
     sense = fields.String(required=True, validate=validate.OneOf(["min", "max"]))
     terms = fields.Raw(load_default=None, metadata={
-        **_NUMBER_MAP, "description": "{variable name: coefficient}; must name at least one variable."})
+        **_NUMBER_MAP, "description": "{variable id: coefficient}; must name at least one variable."})
     coefficients = fields.Raw(load_default=None, metadata={
         "type": "array", "items": {"type": "number"},
         "description": "Instead of terms, for large models: one coefficient per variable, in variables order."})
@@ -138,7 +145,12 @@ class LPInfeasibility(Schema):
                                                                         "(nonzero multipliers of the "
                                                                         "least-violation model)."})
     variables = fields.List(fields.String(), metadata={"description": "Variables whose bounds take part."})
-    least_total_violation = fields.Float()
+    least_total_violation = fields.Float(metadata={
+        "description": "A proven lower bound on how far the constraints are from being met together: the least "
+                       "possible sum, over the constraints, of each one's violation divided by 1 + |its bound| "
+                       "(so a shortfall of 5 on a bound of 240 counts 5/241, on a bound of 0 counts 5), with "
+                       "every variable inside its own bounds. It is the dual objective of that least-violation "
+                       "model, checked by the service; > 0 proves the model infeasible."})
 
 
 class LPRay(Schema):
@@ -153,12 +165,12 @@ class LPResponse(Schema):
     status = fields.String(validate=validate.OneOf(["optimal", "infeasible", "unbounded", "time_limit"]))
     objective = fields.Float(allow_none=True, metadata={"description": "Objective value, constant included."})
     values = fields.Dict(keys=fields.String(), values=fields.Float(),
-                         metadata={"description": "Optimal value of every variable, by name."})
+                         metadata={"description": "Optimal value of every variable, by id."})
     duals = fields.Dict(keys=fields.String(), values=fields.Float(), metadata={
-        "description": "Shadow price of every constraint, by name. " + CONVENTION + " So for min a binding "
+        "description": "Shadow price of every constraint, by id. " + CONVENTION + " So for min a binding "
                        "lower bound has a dual >= 0 and a binding upper bound <= 0; for max the reverse."})
     reduced_costs = fields.Dict(keys=fields.String(), values=fields.Float(), metadata={
-        "description": "Of every variable, by name: the change of the objective per unit increase of the "
+        "description": "Of every variable, by id: the change of the objective per unit increase of the "
                        "variable's active bound (equal to c - A^T duals). " + CONVENTION})
     infeasibility = fields.Nested(LPInfeasibility)
     ray = fields.Nested(LPRay)

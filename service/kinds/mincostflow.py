@@ -11,7 +11,7 @@ from ..errors import FieldError, InputError, ProblemTooLarge
 from ..model.arcs import Network, read_network
 from ..model.columns import number_column
 from ..model.digest import problem_digest
-from ..model.ids import IdColumn
+from ..model.ids import IdColumn, lookalike, shown_id
 from ..model.nodes import read_nodes
 from ..model.schemas import ArcsField, NodeId, NodesField, OptionsSchema, detail_field, load_envelope
 from ..solvers.mincost import imbalance, min_cost_flow
@@ -204,7 +204,8 @@ def _positions(network: Network, ids: IdColumn) -> np.ndarray:
                         dtype=np.int64, count=len(ids.values))
     if (index < 0).any():
         i = int(np.flatnonzero(index < 0)[0])
-        raise InputError.at(ids.where(i), f"unknown node {ids.values[i]!r}: it is not in the stored network")
+        raise InputError.at(ids.where(i), f"unknown node {shown_id(ids.values[i])}: it is not in the stored "
+                                          f"network{lookalike(ids.values[i], nodes.ids)}")
     if np.unique(index).size < index.size:
         seen = set()
         for i, v in enumerate(index.tolist()):

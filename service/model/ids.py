@@ -7,7 +7,10 @@ request's ``nodes`` first, then nodes first seen in the arcs, in order of appear
 
 from __future__ import annotations
 
+import json
+import unicodedata
 from dataclasses import dataclass
+from itertools import islice
 
 import numpy as np
 
@@ -83,6 +86,44 @@ class NodeIndex:
             return int(hits[0]) if hits.size else None
         self.lookup = {v: i for i, v in enumerate(self.ids)}
         return self.lookup.get(node_id)
+
+
+#: How many known ids an error message searches for a look-alike (error path only).
+LOOKALIKE_SCAN = 1_000_000
+
+
+def shown_id(value: object) -> str:
+    """An id as an error message shows it: its repr and, when it holds anything but
+    printable ASCII, its code points as JSON escapes, since two ids can look the same
+    and differ there ("Zürich" as one code point or as "u" plus a combining diaeresis).
+
+    Examples
+    --------
+    >>> shown_id("hub-a")
+    "'hub-a'"
+    >>> print(shown_id("Zu\\u0308rich"))
+    'Zu\u0308rich' ("Zu\\u0308rich", not in NFC form)
+    """
+    text = repr(value)
+    if isinstance(value, str) and not (value.isascii() and value.isprintable()):
+        nfc = "" if unicodedata.is_normalized("NFC", value) else ", not in NFC form"
+        text += f" ({json.dumps(value)}{nfc})"
+    return text
+
+
+def lookalike(value: object, known) -> str:
+    """A clause naming a known id that differs from ``value`` only in Unicode
+    normalisation (NFKC), or ``""``. Ids are compared exactly, code point by code point;
+    this only explains an "unknown" error whose id prints like a known one."""
+    if not isinstance(value, str):
+        return ""
+    target, plain = unicodedata.normalize("NFKC", value), value.isascii()
+    for other in islice(known, LOOKALIKE_SCAN):
+        if (isinstance(other, str) and other != value and not (plain and other.isascii())
+                and unicodedata.normalize("NFKC", other) == target):
+            return (f"; the known id {shown_id(other)} differs from it only in Unicode normalisation "
+                    f"(ids are compared exactly)")
+    return ""
 
 
 def _kinds(col: IdColumn) -> set:

@@ -18,10 +18,13 @@ import scipy.sparse as sp
 
 from ..errors import FieldError, InputError, ProblemTooLarge, pointer
 from .columns import MAX_MAGNITUDE, MAX_REPORTED_ERRORS, number_column
-from .ids import MAX_ID_LENGTH
+from .ids import MAX_ID_LENGTH, lookalike, shown_id
 
-VARIABLE_FIELDS = ("name", "lower", "upper")
-CONSTRAINT_FIELDS = ("name", "terms", "lower", "upper", "equals")
+#: Variables and constraints are named by ``id``, as nodes, arcs' ends and commodities
+#: are; ``name``, the first spelling, is still read as an alias of it.
+ID, ID_ALIAS = "id", "name"
+VARIABLE_FIELDS = (ID, ID_ALIAS, "lower", "upper")
+CONSTRAINT_FIELDS = (ID, ID_ALIAS, "terms", "lower", "upper", "equals")
 MATRIX_FIELDS = ("row", "column", "value")
 _ABSENT = object()
 _NO_TERMS: dict = {}
@@ -108,17 +111,37 @@ def _column_where(base, name):
     return lambda i: f"{base}/{name}/{i}"
 
 
+def _fold_id_alias(records: _Records, base: str) -> _Records:
+    """Read ``name`` as ``id``: each record (or the columns) gives one of the two; error
+    pointers keep the spelling the client sent."""
+    if ID_ALIAS not in records.columns:
+        return records
+    names, name_where = records.columns.pop(ID_ALIAS)
+    if ID not in records.columns:
+        records.columns[ID] = (names, name_where)
+        return records
+    ids, id_where = records.columns[ID]
+    both = 0 if records.form == "columns" else next(
+        (i for i, (a, b) in enumerate(zip(ids, names)) if a is not _ABSENT and b is not _ABSENT), None)
+    if both is not None:
+        where = f"{base}/{ID_ALIAS}" if records.form == "columns" else name_where(both)
+        raise InputError.at(where, "give id or name (its older spelling), not both")
+    merged = [b if a is _ABSENT else a for a, b in zip(ids, names)]
+    records.columns[ID] = (merged, lambda i: (name_where if ids[i] is _ABSENT else id_where)(i))
+    return records
+
+
 def _names(records: _Records, base: str, what: str) -> tuple[list, dict]:
-    if "name" not in records.columns:
-        where = (lambda i: f"{base}/{i}/name") if records.form == "objects" else (lambda i: f"{base}/name")
+    if ID not in records.columns:
+        where = (lambda i: f"{base}/{i}/{ID}") if records.form == "objects" else (lambda i: f"{base}/{ID}")
         raise InputError.at(where(0), "is required")
-    names, where = records.columns["name"]
+    names, where = records.columns[ID]
     if _ABSENT in names:
         i = next(i for i, v in enumerate(names) if v is _ABSENT)
         raise InputError.at(where(i), "is required")
     if set(map(type, names)) - {str}:
         i = next(i for i, v in enumerate(names) if type(v) is not str)
-        raise InputError.at(where(i), f"must be a {what} name: a string of 1-{MAX_ID_LENGTH} characters")
+        raise InputError.at(where(i), f"must be a {what} id: a string of 1-{MAX_ID_LENGTH} characters")
     lengths = np.fromiter(map(len, names), dtype=np.int64, count=len(names))
     bad = (lengths < 1) | (lengths > MAX_ID_LENGTH)
     if bad.any():
@@ -129,7 +152,7 @@ def _names(records: _Records, base: str, what: str) -> tuple[list, dict]:
         seen: dict = {}
         for i, v in enumerate(names):
             if v in seen:
-                raise InputError.at(where(i), f"duplicate {what} name {v!r} (first at {seen[v]})")
+                raise InputError.at(where(i), f"duplicate {what} id {v!r} (first at {seen[v]})")
             seen[v] = i
     return names, lookup
 
@@ -167,7 +190,8 @@ def read_variables(raw, *, max_count: int, base: str = "/variables"):
     InputError
         Bad shape, names or numbers, or a lower bound above the upper bound.
     """
-    records = _read_records(raw, base, VARIABLE_FIELDS, {"lower": 0, "upper": None}, "variable")
+    records = _fold_id_alias(_read_records(raw, base, VARIABLE_FIELDS, {"lower": 0, "upper": None}, "variable"),
+                             base)
     if records.count == 0:
         raise InputError.at(base, "must hold at least one variable")
     if records.count > max_count:
@@ -207,12 +231,13 @@ def read_constraints(raw, lookup: dict, *, max_count: int, base: str = "/constra
     """
     if raw is None:
         raw = []
-    records = _read_records(raw, base, CONSTRAINT_FIELDS,
-                           {"terms": _NO_TERMS, "lower": None, "upper": None, "equals": None}, "constraint")
+    records = _fold_id_alias(_read_records(raw, base, CONSTRAINT_FIELDS,
+                                           {"terms": _NO_TERMS, "lower": None, "upper": None, "equals": None},
+                                           "constraint"), base)
     if records.count > max_count:
         raise ProblemTooLarge(FieldError(base, f"has {records.count} constraints; the limit is {max_count}"))
-    if records.form == "columns" and "name" not in records.columns:
-        raise InputError.at(f"{base}/name", "is required")
+    if records.form == "columns" and ID not in records.columns:
+        raise InputError.at(f"{base}/{ID}", "is required")
     if records.count == 0:
         return [], np.empty(0), np.empty(0), _empty_entries()
     names, _ = _names(records, base, "constraint")
@@ -231,7 +256,7 @@ def read_constraints(raw, lookup: dict, *, max_count: int, base: str = "/constra
     upper = np.where(has_eq, equals, upper)
     free = ~np.isfinite(lower) & ~np.isfinite(upper)
     if free.any():
-        where = (lambda i: f"{base}/{i}") if records.form == "objects" else records.columns["name"][1]
+        where = (lambda i: f"{base}/{i}") if records.form == "objects" else records.columns[ID][1]
         idx = np.flatnonzero(free)[:MAX_REPORTED_ERRORS]
         raise InputError([FieldError(where(int(i)), "needs lower, upper or equals") for i in idx])
     crossed = lower > upper
@@ -271,8 +296,8 @@ def _columns_of(names: list, lookup: dict, at) -> np.ndarray:
     unknown = cols < 0
     if unknown.any():
         idx = np.flatnonzero(unknown)[:MAX_REPORTED_ERRORS]
-        raise InputError([FieldError(at(int(k)), f"unknown variable {names[k]!r}: declare it in variables")
-                          for k in idx])
+        raise InputError([FieldError(at(int(k)), f"unknown variable {shown_id(names[k])}: declare it in variables"
+                                                 f"{lookalike(names[k], lookup)}") for k in idx])
     return cols
 
 

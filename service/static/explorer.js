@@ -60,6 +60,7 @@ function showProblem(doc, where) {
 function clearAnswer() {
   $("error").hidden = true;
   $("summary").replaceChildren();
+  $("tables").replaceChildren();
   $("response").textContent = "";
 }
 
@@ -72,14 +73,67 @@ function fact(name, value) {
   $("summary").append(dt, dd);
 }
 
-function showSummary(kind, doc) {
+function plural(count, word) {
+  return `${count} ${word}${count === 1 ? "" : "s"}`;
+}
+
+function isCacheHit(header) {
+  return Boolean(header) && /;\s*hit\b/.test(header);
+}
+
+// The Cache-Status header (RFC 9211) of a solve, in words.
+function cacheWords(header) {
+  if (!header) return null;
+  if (isCacheHit(header)) return "hit: answered from the cache, not solved again";
+  if (/detail=bypass/.test(header)) return "bypassed: solved without reading or writing the cache";
+  if (/fwd=request;\s*stored/.test(header)) return "refreshed: solved again and stored";
+  if (/fwd=miss;\s*stored/.test(header)) return "miss: solved now and stored";
+  return header;
+}
+
+function assignmentTable(doc) {
+  const table = document.createElement("table");
+  table.id = "assignments";
+  const head = table.createTHead().insertRow();
+  for (const name of ["agent", "task", "cost"]) {
+    const th = document.createElement("th");
+    th.textContent = name;
+    head.appendChild(th);
+  }
+  const body = table.createTBody();
+  for (const a of doc.assignments) {
+    const row = body.insertRow();
+    for (const value of [a.agent, a.task, a.cost]) row.insertCell().textContent = String(value);
+  }
+  const wrap = document.createElement("div");
+  wrap.className = "result-table";
+  wrap.appendChild(table);
+  for (const [label, ids] of [["unassigned agents", doc.unassigned_agents], ["unassigned tasks", doc.unassigned_tasks]]) {
+    if (Array.isArray(ids) && ids.length) {
+      const note = document.createElement("p");
+      note.className = "hint";
+      note.textContent = `${label}: ${ids.join(", ")}`;
+      wrap.appendChild(note);
+    }
+  }
+  return wrap;
+}
+
+function showSummary(kind, doc, cacheStatus) {
   fact("status", doc.status);
   for (const name of ["value", "cost", "total_cost", "objective", "shipped"]) fact(name, doc[name]);
-  if (doc.cut) fact("minimum cut", `${doc.cut.arcs.length} arcs, capacity ${doc.cut.capacity}`);
+  if (doc.cut) fact("minimum cut", `${plural(doc.cut.arcs.length, "arc")}, capacity ${doc.cut.capacity}`);
+  if (Array.isArray(doc.assignments)) fact("assignments", plural(doc.assignments.length, "pair"));
   if (doc.certificate) fact("certificate", doc.certificate.checked ? "checked ✓" : "NOT checked");
   if (doc.engine) fact("engine", `${doc.engine.kind} · ${doc.engine.solver || ""} ${doc.engine.version || ""}`);
-  if (doc.timing_ms) fact("time (ms)", `parse ${doc.timing_ms.parse} · solve ${doc.timing_ms.solve} · total ${doc.timing_ms.total}`);
+  fact("cache", cacheWords(cacheStatus));
+  if (doc.timing_ms) {
+    const times = `parse ${doc.timing_ms.parse} · solve ${doc.timing_ms.solve} · total ${doc.timing_ms.total}`;
+    fact("time (ms)", isCacheHit(cacheStatus) ? `${times} (solve 0: the answer came from the cache)` : times);
+  }
   if (doc.digest) fact("digest", doc.digest.slice(0, 23) + "…");
+  $("tables").replaceChildren();
+  if (Array.isArray(doc.assignments) && doc.assignments.length) $("tables").appendChild(assignmentTable(doc));
 }
 
 async function drawDiagram(kind, problem) {
@@ -123,7 +177,7 @@ async function solve() {
       document.body.dataset.state = "failed";
       return;
     }
-    showSummary(kind, doc);
+    showSummary(kind, doc, r.headers.get("Cache-Status"));
     await drawDiagram(kind, problem);
     document.body.dataset.state = "solved";
   } catch (e) {
