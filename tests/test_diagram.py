@@ -10,7 +10,8 @@ import numpy as np
 import pytest
 
 from service.api import create_app
-from service.api.diagram import layered_layout, render_diagram, solution_diagram
+from service.api.diagram import render_diagram, solution_diagram
+from service.drawing.layout import layered_layout
 from service.errors import InputError
 from service.kinds import KINDS
 from tests.conftest import SCENARIOS

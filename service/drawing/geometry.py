@@ -1,0 +1,82 @@
+"""Boxes and paths: the shapes a diagram is laid out with, and how to test them.
+
+A path is a list of segments, each a line (two points) or a cubic Bézier curve (four
+points); the SVG writer draws exactly these (``M``, ``L``, ``C``), so what the layout
+checks is what the reader sees.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+
+@dataclass(frozen=True)
+class Box:
+    """An axis-aligned rectangle, ``x0 <= x1`` and ``y0 <= y1`` (SVG user units)."""
+
+    x0: float
+    y0: float
+    x1: float
+    y1: float
+
+    @classmethod
+    def around(cls, x: float, y: float, width: float, height: float) -> Box:
+        """The box of the given size centred on ``(x, y)``."""
+        return cls(x - width / 2, y - height / 2, x + width / 2, y + height / 2)
+
+    def grown(self, by: float) -> Box:
+        return Box(self.x0 - by, self.y0 - by, self.x1 + by, self.y1 + by)
+
+    def shifted(self, dx: float, dy: float) -> Box:
+        return Box(self.x0 + dx, self.y0 + dy, self.x1 + dx, self.y1 + dy)
+
+    def overlaps(self, other: Box) -> bool:
+        """True when the interiors meet (touching edges do not count)."""
+        return self.x0 < other.x1 and other.x0 < self.x1 and self.y0 < other.y1 and other.y0 < self.y1
+
+    def holds(self, points: np.ndarray) -> np.ndarray:
+        """Per point of an ``(n, 2)`` array: inside the box (strictly)."""
+        x, y = points[:, 0], points[:, 1]
+        return (x > self.x0) & (x < self.x1) & (y > self.y0) & (y < self.y1)
+
+
+def union(boxes) -> Box:
+    """The smallest box holding all of ``boxes`` (at least one)."""
+    boxes = list(boxes)
+    return Box(min(b.x0 for b in boxes), min(b.y0 for b in boxes),
+               max(b.x1 for b in boxes), max(b.y1 for b in boxes))
+
+
+Point = tuple[float, float]
+#: A line ``(p0, p1)`` or a cubic Bézier curve ``(p0, c1, c2, p1)``.
+Segment = tuple[Point, ...]
+
+
+def sample(path: list[Segment], step: float = 2.0) -> np.ndarray:
+    """Points along ``path``, about ``step`` apart, ends included, as an ``(n, 2)`` array."""
+    parts = []
+    for segment in path:
+        ctrl = np.asarray(segment, dtype=np.float64)
+        reach = float(np.sum(np.hypot(*np.diff(ctrl, axis=0).T)))  # bounds the segment's length
+        t = np.linspace(0.0, 1.0, max(2, int(reach / step) + 2))[:, None]
+        if len(segment) == 2:
+            parts.append(ctrl[0] + t * (ctrl[1] - ctrl[0]))
+        else:
+            s = 1 - t
+            parts.append(s ** 3 * ctrl[0] + 3 * s * s * t * ctrl[1] + 3 * s * t * t * ctrl[2] + t ** 3 * ctrl[3])
+    return np.concatenate(parts) if parts else np.zeros((0, 2))
+
+
+def arc_lengths(points: np.ndarray) -> np.ndarray:
+    """Distance along a sampled path from its first point to each point."""
+    if len(points) == 0:
+        return np.zeros(0)
+    return np.concatenate([[0.0], np.cumsum(np.hypot(*np.diff(points, axis=0).T))])
+
+
+def bounds(points: np.ndarray) -> Box:
+    """The box of an ``(n, 2)`` array of points (at least one)."""
+    return Box(float(points[:, 0].min()), float(points[:, 1].min()),
+               float(points[:, 0].max()), float(points[:, 1].max()))

@@ -1,0 +1,113 @@
+"""Arc labels placed along their arcs, greedily, so that no two texts meet.
+
+Each label tries spots along its own arc: sitting on the arc (its halo interrupts
+the stroke), just above, below, right or left of it, at steps along the arc's length. A spot is
+allowed only if the label's box meets no box already taken (node pills and captions,
+marks, titles, labels placed before); among the allowed spots it takes the one
+nearest the arc's middle, preferring spots that cover no other arc. Labels of short
+arcs go first: they have the fewest spots. When some label finds no spot at all the
+caller lays the diagram out again with more room (see :func:`.scene.draw`).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from .geometry import Box, arc_lengths
+
+#: Spots are tried this far apart along an arc, and never this close to its ends.
+STEP, END_CLEARANCE = 4.0, 16.0
+#: Size of the cells in which arcs' strokes are counted.
+CELL = 4.0
+#: Cost of a spot, in px along the arc: covering another arc, sitting on the arc, below
+#: it, beside it (right or left: for arcs that run up or down).
+COVERS_ARC, ON_ARC, BELOW, BESIDE = 60.0, 14.0, 5.0, 10.0
+
+
+class Placer:
+    """Keeps the boxes already taken and the strokes of every arc.
+
+    Parameters
+    ----------
+    taken : list of Box
+        Boxes no label may meet.
+    strokes : list of ndarray
+        Per arc, points along its path (``(n, 2)``), to count the arcs a spot covers.
+    """
+
+    def __init__(self, taken: list[Box], strokes: list[np.ndarray]):
+        self.boxes = np.array([(b.x0, b.y0, b.x1, b.y1) for b in taken], dtype=np.float64).reshape(-1, 4)
+        everything = np.concatenate([p for p in strokes if len(p)] or [np.zeros((0, 2))])
+        self.origin = everything.min(axis=0) - 2 * CELL if len(everything) else np.zeros(2)
+        self.cells = [np.unique(self._cell(p), axis=0) for p in strokes]
+        shape = tuple(int(v) + 2 for v in np.max([c.max(axis=0) for c in self.cells if len(c)] or [[0, 0]], axis=0))
+        grid = np.zeros(shape, dtype=np.int64)
+        for c in self.cells:
+            np.add.at(grid, (c[:, 0], c[:, 1]), 1)
+        self.shape = shape
+        self.table = np.zeros((shape[0] + 1, shape[1] + 1), dtype=np.int64)  # summed-area table
+        self.table[1:, 1:] = grid.cumsum(0).cumsum(1)
+
+    def _cell(self, points: np.ndarray) -> np.ndarray:
+        return np.floor((points - self.origin) / CELL).astype(np.int64).reshape(-1, 2)
+
+    def take(self, box: Box) -> None:
+        """Mark ``box`` as taken."""
+        self.boxes = np.vstack([self.boxes, (box.x0, box.y0, box.x1, box.y1)])
+
+    def free(self, box: Box) -> bool:
+        """True when ``box`` meets no taken box."""
+        return not self._meets(np.array([(box.x0, box.y0, box.x1, box.y1)]))[0]
+
+    def _meets(self, cand: np.ndarray) -> np.ndarray:
+        b = self.boxes
+        if not len(b):
+            return np.zeros(len(cand), dtype=bool)
+        hit = ((cand[:, None, 0] < b[None, :, 2]) & (b[None, :, 0] < cand[:, None, 2])
+               & (cand[:, None, 1] < b[None, :, 3]) & (b[None, :, 1] < cand[:, None, 3]))
+        return hit.any(axis=1)
+
+    def _covered(self, arc: int, cand: np.ndarray) -> np.ndarray:
+        """Per candidate box, how many (arc, cell) pairs of other arcs it covers."""
+        lo = np.clip(np.floor((cand[:, :2] - self.origin) / CELL).astype(np.int64), 0, np.array(self.shape))
+        hi = np.clip(np.floor((cand[:, 2:] - self.origin) / CELL).astype(np.int64) + 1, 0, np.array(self.shape))
+        t = self.table
+        total = t[hi[:, 0], hi[:, 1]] - t[lo[:, 0], hi[:, 1]] - t[hi[:, 0], lo[:, 1]] + t[lo[:, 0], lo[:, 1]]
+        own = self.cells[arc]
+        mine = ((own[None, :, 0] >= lo[:, None, 0]) & (own[None, :, 0] < hi[:, None, 0])
+                & (own[None, :, 1] >= lo[:, None, 1]) & (own[None, :, 1] < hi[:, None, 1])).sum(axis=1)
+        return total - mine
+
+    def place(self, arc: int, width: float, height: float, points: np.ndarray, middle, clearance: float) -> Box | None:
+        """The best free spot along ``points`` for a ``width`` x ``height`` label, taken; or None.
+
+        ``middle`` is the preferred point; ``clearance`` the space between the arc's
+        centre line and a label beside it (half the stroke and a little more).
+        """
+        length = arc_lengths(points)
+        if len(points) < 2 or length[-1] <= 0:
+            return None
+        want = length[int(np.argmin(np.hypot(*(points - np.asarray(middle)).T)))]
+        low, high = min(END_CLEARANCE, length[-1] / 3), max(length[-1] - END_CLEARANCE, 2 * length[-1] / 3)
+        at = np.arange(low, high + 1e-9, STEP)
+        if at.size == 0:
+            at = np.array([length[-1] / 2])
+        xs, ys = np.interp(at, length, points[:, 0]), np.interp(at, length, points[:, 1])
+        # On the arc, above, below, right of and left of each point.
+        side, up = width / 2 + clearance, height / 2 + clearance
+        shift_x = np.array([0.0, 0.0, 0.0, side, -side])
+        shift_y = np.array([0.0, -up, up, 0.0, 0.0])
+        extra = np.array([ON_ARC, 0.0, BELOW, BESIDE, BESIDE])
+        k = shift_x.size
+        cx = (xs[:, None] + shift_x[None, :]).ravel()
+        cy = (ys[:, None] + shift_y[None, :]).ravel()
+        cand = np.stack([cx - width / 2, cy - height / 2, cx + width / 2, cy + height / 2], axis=1)
+        cost = np.repeat(np.abs(at - want), k) + np.tile(extra, at.size)
+        cost = cost + COVERS_ARC * (self._covered(arc, cand) > 0)
+        cost[self._meets(cand)] = np.inf
+        best = int(np.argmin(cost))
+        if not np.isfinite(cost[best]):
+            return None
+        box = Box(*cand[best])
+        self.take(box)
+        return box
