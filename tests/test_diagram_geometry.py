@@ -24,6 +24,7 @@ from service.drawing import DRAWERS
 from service.drawing.svg import exact
 from service.drawing.text import ASCENT, DESCENT, Font, text_width
 from tests.conftest import SCENARIOS
+from tests.test_explorer_browser import browser  # noqa: F401  (the fixture: headless chromium)
 
 SVG = "{http://www.w3.org/2000/svg}"
 
@@ -274,3 +275,33 @@ def test_random_networks_route_around_nodes_and_keep_texts_apart(client, kind):
         except AssertionError as exc:
             failures.append(f"seed {seed}: {str(exc).splitlines()[0]}")
     assert not failures, f"{len(failures)} of {SEEDS} random networks:\n" + "\n".join(failures)
+
+
+@pytest.mark.browser
+def test_text_widths_hold_what_chromium_renders(browser, client, tmp_path):
+    """The drawer's widths are at least what a browser draws (so boxes that do not meet
+    on paper do not meet on screen), measured per text with getBoundingClientRect."""
+    cases = [(kind, body) for _, kind, body in SCENARIO_CASES if not isinstance(body, str)]
+    cases += [(kind, random_body(seed, kind)) for seed in (3, 11) for kind in sorted(DRAWERS)]
+    cases.append(("maxflow", {"source": "Zürich-ЖД-ü", "sink": "t\u0000", "arcs": [
+        {"from": "Zürich-ЖД-ü", "to": "t\u0000", "capacity": 12345678}]}))
+    measured = 0
+    for i, (kind, body) in enumerate(cases):
+        r = client.post("/v1/diagram.svg", json={"kind": kind, "problem": body})
+        if r.status_code != 200:
+            continue
+        page = tmp_path / f"diagram-{i}.svg"
+        page.write_bytes(r.data)
+        browser.get(page.as_uri())
+        real = browser.execute_script(
+            "return [...document.querySelectorAll('text')].map(t => {"
+            " const r = t.getBoundingClientRect(); return [t.textContent, r.left, r.right]; });")
+        estimated = text_boxes(ET.fromstring(r.data))
+        assert [t for t, _, _ in real] == [t for _, t, _, _ in estimated]
+        for (text, left, right), (css, _, box, _) in zip(real, estimated):
+            if not text:
+                continue
+            assert box[0] - 0.5 <= left and right <= box[2] + 0.5, (
+                f"{css} {text!r}: drawn over {left:.1f}..{right:.1f}, estimated {box[0]:.1f}..{box[2]:.1f}")
+            measured += 1
+    assert measured > 100
