@@ -56,17 +56,24 @@ Segment = tuple[Point, ...]
 
 def sample(path: list[Segment], step: float = 2.0) -> np.ndarray:
     """Points along ``path``, about ``step`` apart, ends included, as an ``(n, 2)`` array."""
-    parts = []
-    for segment in path:
-        ctrl = np.asarray(segment, dtype=np.float64)
-        reach = float(np.sum(np.hypot(*np.diff(ctrl, axis=0).T)))  # bounds the segment's length
-        t = np.linspace(0.0, 1.0, max(2, int(reach / step) + 2))[:, None]
-        if len(segment) == 2:
-            parts.append(ctrl[0] + t * (ctrl[1] - ctrl[0]))
-        else:
-            s = 1 - t
-            parts.append(s ** 3 * ctrl[0] + 3 * s * s * t * ctrl[1] + 3 * s * t * t * ctrl[2] + t ** 3 * ctrl[3])
-    return np.concatenate(parts) if parts else np.zeros((0, 2))
+    if not path:
+        return np.zeros((0, 2))
+    # Every segment as a cubic (a line is the cubic with its control points at thirds).
+    ctrl = np.array([seg if len(seg) == 4 else (seg[0], _third(seg, 1), _third(seg, 2), seg[1]) for seg in path],
+                    dtype=np.float64)
+    reach = np.hypot(*np.diff(ctrl, axis=1).transpose(2, 0, 1)).sum(axis=1)  # bounds each segment's length
+    counts = (reach / step).astype(np.int64) + 2
+    which = np.repeat(np.arange(len(path)), counts)
+    first = np.concatenate([[0], np.cumsum(counts)[:-1]])
+    t = ((np.arange(which.size) - first[which]) / (counts[which] - 1))[:, None]
+    c = ctrl[which]
+    s = 1 - t
+    return s ** 3 * c[:, 0] + 3 * s * s * t * c[:, 1] + 3 * s * t * t * c[:, 2] + t ** 3 * c[:, 3]
+
+
+def _third(line: Segment, k: int) -> Point:
+    (x0, y0), (x1, y1) = line
+    return (x0 + (x1 - x0) * k / 3, y0 + (y1 - y0) * k / 3)
 
 
 def arc_lengths(points: np.ndarray) -> np.ndarray:

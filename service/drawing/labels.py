@@ -60,7 +60,11 @@ class Placer:
         return not self._meets(np.array([(box.x0, box.y0, box.x1, box.y1)]))[0]
 
     def _meets(self, cand: np.ndarray) -> np.ndarray:
+        # Only the taken boxes near the candidates can meet one: filter them first.
         b = self.boxes
+        near = ((b[:, 0] < cand[:, 2].max()) & (cand[:, 0].min() < b[:, 2])
+                & (b[:, 1] < cand[:, 3].max()) & (cand[:, 1].min() < b[:, 3]))
+        b = b[near]
         if not len(b):
             return np.zeros(len(cand), dtype=bool)
         hit = ((cand[:, None, 0] < b[None, :, 2]) & (b[None, :, 0] < cand[:, None, 2])
@@ -69,14 +73,10 @@ class Placer:
 
     def _covered(self, arc: int, cand: np.ndarray) -> np.ndarray:
         """Per candidate box, how many (arc, cell) pairs of other arcs it covers."""
-        lo = np.clip(np.floor((cand[:, :2] - self.origin) / CELL).astype(np.int64), 0, np.array(self.shape))
-        hi = np.clip(np.floor((cand[:, 2:] - self.origin) / CELL).astype(np.int64) + 1, 0, np.array(self.shape))
-        t = self.table
-        total = t[hi[:, 0], hi[:, 1]] - t[lo[:, 0], hi[:, 1]] - t[hi[:, 0], lo[:, 1]] + t[lo[:, 0], lo[:, 1]]
-        own = self.cells[arc]
-        mine = ((own[None, :, 0] >= lo[:, None, 0]) & (own[None, :, 0] < hi[:, None, 0])
-                & (own[None, :, 1] >= lo[:, None, 1]) & (own[None, :, 1] < hi[:, None, 1])).sum(axis=1)
-        return total - mine
+        limit = np.array(self.shape)
+        lo = np.clip(np.floor((cand[:, :2] - self.origin) / CELL).astype(np.int64), 0, limit)
+        hi = np.clip(np.floor((cand[:, 2:] - self.origin) / CELL).astype(np.int64) + 1, 0, limit)
+        return _window_sums(self.table, lo, hi) - _own_sums(self.cells[arc], lo, hi)
 
     def place(self, arc: int, width: float, height: float, points: np.ndarray, middle, clearance: float) -> Box | None:
         """The best free spot along ``points`` for a ``width`` x ``height`` label, taken; or None.
@@ -111,3 +111,22 @@ class Placer:
         box = Box(*cand[best])
         self.take(box)
         return box
+
+
+def _window_sums(table: np.ndarray, lo: np.ndarray, hi: np.ndarray) -> np.ndarray:
+    """Sums over the cell windows ``[lo, hi)`` of a grid, from its summed-area table."""
+    return table[hi[:, 0], hi[:, 1]] - table[lo[:, 0], hi[:, 1]] - table[hi[:, 0], lo[:, 1]] + table[lo[:, 0], lo[:, 1]]
+
+
+def _own_sums(cells: np.ndarray, lo: np.ndarray, hi: np.ndarray) -> np.ndarray:
+    """How many of ``cells`` (one arc's) lie in each window: a small summed-area table
+    over just the windows' span."""
+    if not len(cells):
+        return np.zeros(len(lo), dtype=np.int64)
+    start = np.minimum(lo.min(axis=0), cells.min(axis=0))
+    stop = np.maximum(hi.max(axis=0), cells.max(axis=0) + 1)
+    grid = np.zeros(tuple(stop - start), dtype=np.int64)
+    np.add.at(grid, (cells[:, 0] - start[0], cells[:, 1] - start[1]), 1)
+    table = np.zeros((grid.shape[0] + 1, grid.shape[1] + 1), dtype=np.int64)
+    table[1:, 1:] = grid.cumsum(0).cumsum(1)
+    return _window_sums(table, lo - start, hi - start)

@@ -65,10 +65,11 @@ def draw(drawer: Drawer, net: DrawnNetwork, result: dict) -> str:
     for spread in SPREADS:
         placed = place(layer, rank, [s.footprint for s in shapes], spread)
         routes = route_all(net.tail, net.head, placed, [s.footprint for s in shapes], spread)
-        labels, missing = _place_labels(placed, shapes, routes, texts, widths, marks)
+        strokes = [sample(r.path, 3.0) for r in routes]
+        labels, missing = _place_labels(placed, shapes, routes, strokes, texts, widths, marks)
         if not missing:
             break
-    return _write(drawer, net, result, marks, shapes, placed, routes, widths, labels, texts)
+    return _write(drawer, net, result, marks, shapes, placed, routes, strokes, widths, labels, texts)
 
 
 def _short(label: str) -> str:
@@ -110,12 +111,11 @@ def _notch_box(x: float, y: float) -> Box:
     return Box.around(x, y, 19, 15)
 
 
-def _place_labels(placed, shapes, routes: list[Route], texts, widths, marks: Marks):
+def _place_labels(placed, shapes, routes: list[Route], strokes, texts, widths, marks: Marks):
     """Label boxes per arc (without the halo); and how many found no free spot."""
     taken = [part.shifted(placed.x[v], placed.y[v]) for v, s in enumerate(shapes) for part in s.footprint.parts]
     taken += [_notch_box(*routes[a].middle) for a, m in marks.arcs.items()
               if m in ("cut", "binding") and 0 <= a < len(routes)]
-    strokes = [sample(r.path, 3.0) for r in routes]
     placer = Placer(taken, strokes)
     font = FONTS["arc-label"]
     height = (ASCENT + DESCENT) * font.size
@@ -166,8 +166,7 @@ def _arc_style(mark, flow) -> tuple[str, str, str]:
     return "idle-arc", IDLE, "idle"
 
 
-def _write(drawer, net, result, marks, shapes, placed, routes, widths, labels, texts) -> str:
-    strokes = [sample(r.path, 6.0) for r in routes]
+def _write(drawer, net, result, marks, shapes, placed, routes, strokes, widths, labels, texts) -> str:
     extent = [s.footprint.extent.shifted(placed.x[v], placed.y[v]) for v, s in enumerate(shapes)]
     extent += [bounds(p).grown(4) for p in strokes if len(p)] + [b for b in labels if b is not None]
     content = union(extent) if extent else Box(0, 0, 0, 0)
