@@ -32,14 +32,6 @@ class Box:
     def shifted(self, dx: float, dy: float) -> Box:
         return Box(self.x0 + dx, self.y0 + dy, self.x1 + dx, self.y1 + dy)
 
-    def overlaps(self, other: Box) -> bool:
-        """True when the interiors meet (touching edges do not count)."""
-        return self.x0 < other.x1 and other.x0 < self.x1 and self.y0 < other.y1 and other.y0 < self.y1
-
-    def holds(self, points: np.ndarray) -> np.ndarray:
-        """Per point of an ``(n, 2)`` array: inside the box (strictly)."""
-        x, y = points[:, 0], points[:, 1]
-        return (x > self.x0) & (x < self.x1) & (y > self.y0) & (y < self.y1)
 
 
 def union(boxes) -> Box:

@@ -55,10 +55,6 @@ class Placer:
         """Mark ``box`` as taken."""
         self.boxes = np.vstack([self.boxes, (box.x0, box.y0, box.x1, box.y1)])
 
-    def free(self, box: Box) -> bool:
-        """True when ``box`` meets no taken box."""
-        return not self._meets(np.array([(box.x0, box.y0, box.x1, box.y1)]))[0]
-
     def _meets(self, cand: np.ndarray) -> np.ndarray:
         # Only the taken boxes near the candidates can meet one: filter them first.
         b = self.boxes

@@ -18,7 +18,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .geometry import Box
+from .geometry import Box, union
 
 COL_GAP, ROW_GAP = 230.0, 96.0
 #: The narrowest channel between two columns' footprints.
@@ -107,8 +107,7 @@ class Footprint:
 
     @property
     def extent(self) -> Box:
-        return Box(min(b.x0 for b in self.parts), min(b.y0 for b in self.parts),
-                   max(b.x1 for b in self.parts), max(b.y1 for b in self.parts))
+        return union(self.parts)
 
 
 @dataclass(frozen=True)
