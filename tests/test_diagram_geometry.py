@@ -156,6 +156,13 @@ def check_geometry(svg: bytes, arcs: list[tuple]) -> dict:
         gap_y = np.maximum.reduce([box[1] - p[:, 1], np.zeros(len(p)), p[:, 1] - box[3]])
         near = np.hypot(gap_x, gap_y).min()
         assert near <= NEAR, f"label {text!r} is {near:.1f} px from its arc {a}"
+    for g in drawn:  # the slashes across a cut or binding arc cover no text either
+        for line in g.iter(f"{SVG}line"):
+            x1, y1, x2, y2 = (float(line.get(k)) for k in ("x1", "y1", "x2", "y2"))
+            cap = float(line.get("stroke-width")) / 2
+            box = (min(x1, x2) - cap, min(y1, y2) - cap, max(x1, x2) + cap, max(y1, y2) + cap)
+            for css, text, other, _ in texts:
+                assert not meet(box, other), f"a notch of arc {g.get('data-arc')} covers {css} {text!r}"
     width, height = float(root.get("width")), float(root.get("height"))
     for css, text, box, _ in texts:
         assert box[0] >= 0 and box[1] >= 0 and box[2] <= width and box[3] <= height, f"{text!r} off the canvas"

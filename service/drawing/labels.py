@@ -21,7 +21,7 @@ STEP, END_CLEARANCE = 4.0, 16.0
 CELL = 4.0
 #: Cost of a spot, in px along the arc: covering another arc, sitting on the arc, below
 #: it, beside it (right or left: for arcs that run up or down).
-COVERS_ARC, ON_ARC, BELOW, BESIDE = 60.0, 14.0, 5.0, 10.0
+COVERS_ARC, ON_ARC, BELOW, BESIDE = 60.0, 40.0, 5.0, 10.0
 
 
 class Placer:
@@ -80,29 +80,31 @@ class Placer:
         ``middle`` is the preferred point; ``clearance`` the space between the arc's
         centre line and a label beside it (half the stroke and a little more).
         """
+        side, up = width / 2 + clearance, height / 2 + clearance
+        # On the arc, above, below, right of and left of each point.
+        shifts = np.array([(0.0, 0.0), (0.0, -up), (0.0, up), (side, 0.0), (-side, 0.0)])
+        return self._best(arc, width, height, points, middle, shifts, np.array([ON_ARC, 0.0, BELOW, BESIDE, BESIDE]))
+
+    def place_mark(self, arc: int, width: float, height: float, points: np.ndarray, middle) -> Box | None:
+        """Like :meth:`place`, for a mark drawn across the arc (centred on it)."""
+        return self._best(arc, width, height, points, middle, np.zeros((1, 2)), np.zeros(1))
+
+    def _best(self, arc, width, height, points, middle, shifts: np.ndarray, extra: np.ndarray) -> Box | None:
         length = arc_lengths(points)
         if len(points) < 2 or length[-1] <= 0:
             return None
         want = length[int(np.argmin(np.hypot(*(points - np.asarray(middle)).T)))]
         low, high = min(END_CLEARANCE, length[-1] / 3), max(length[-1] - END_CLEARANCE, 2 * length[-1] / 3)
         at = np.arange(low, high + 1e-9, STEP)
-        if at.size == 0:
-            at = np.array([length[-1] / 2])
         xs, ys = np.interp(at, length, points[:, 0]), np.interp(at, length, points[:, 1])
-        # On the arc, above, below, right of and left of each point.
-        side, up = width / 2 + clearance, height / 2 + clearance
-        shift_x = np.array([0.0, 0.0, 0.0, side, -side])
-        shift_y = np.array([0.0, -up, up, 0.0, 0.0])
-        extra = np.array([ON_ARC, 0.0, BELOW, BESIDE, BESIDE])
-        k = shift_x.size
-        cx = (xs[:, None] + shift_x[None, :]).ravel()
-        cy = (ys[:, None] + shift_y[None, :]).ravel()
+        cx = (xs[:, None] + shifts[None, :, 0]).ravel()
+        cy = (ys[:, None] + shifts[None, :, 1]).ravel()
         cand = np.stack([cx - width / 2, cy - height / 2, cx + width / 2, cy + height / 2], axis=1)
-        cost = np.repeat(np.abs(at - want), k) + np.tile(extra, at.size)
+        cost = np.repeat(np.abs(at - want), len(shifts)) + np.tile(extra, at.size)
         cost = cost + COVERS_ARC * (self._covered(arc, cand) > 0)
         cost[self._meets(cand)] = np.inf
-        best = int(np.argmin(cost))
-        if not np.isfinite(cost[best]):
+        best = int(np.argmin(cost)) if cost.size else 0
+        if not cost.size or not np.isfinite(cost[best]):
             return None
         box = Box(*cand[best])
         self.take(box)

@@ -30,6 +30,8 @@ CLAY_FILL, CLAY = "#f6e7d6", "#9c5a1f"
 PLAIN_FILL, PLAIN = "#eef1f6", "#4a5a70"
 FLOW, IDLE = "#35598f", "#c5c8cc"
 MARK_COLOURS = {"cut": "#d1451b", "binding": "#7b3fa0", "proof": "#b8860b"}
+#: Marks drawn with two slashes across the arc as well as their colour.
+NOTCHED = ("cut", "binding")
 
 MARGIN, TOP = 40.0, 64.0
 PILL_H, TAB_W = 28.0, 6.0
@@ -66,10 +68,10 @@ def draw(drawer: Drawer, net: DrawnNetwork, result: dict) -> str:
         placed = place(layer, rank, [s.footprint for s in shapes], spread)
         routes = route_all(net.tail, net.head, placed, [s.footprint for s in shapes], spread)
         strokes = [sample(r.path, 3.0) for r in routes]
-        labels, missing = _place_labels(placed, shapes, routes, strokes, texts, widths, marks)
+        labels, notches, missing = _place_labels(placed, shapes, routes, strokes, texts, widths, marks)
         if not missing:
             break
-    return _write(drawer, net, result, marks, shapes, placed, routes, strokes, widths, labels, texts)
+    return _write(drawer, net, result, marks, shapes, placed, routes, strokes, widths, labels, notches, texts)
 
 
 def _short(label: str) -> str:
@@ -107,15 +109,15 @@ def _stroke_widths(net: DrawnNetwork, flows, marks: Marks) -> np.ndarray:
     return widths
 
 
-def _notch_box(x: float, y: float) -> Box:
-    return Box.around(x, y, 19, 15)
+#: The box of the two slashes drawn across a cut or binding arc (see :func:`_arc`).
+NOTCH_W, NOTCH_H = 19.0, 15.0
 
 
 def _place_labels(placed, shapes, routes: list[Route], strokes, texts, widths, marks: Marks):
-    """Label boxes per arc (without the halo); and how many found no free spot."""
+    """Label boxes per arc (without the halo), the centre of each notch (by arc), and
+    how many labels and notches found no free spot. Labels go first; each notch then takes the
+    free spot on its arc nearest the arc's middle."""
     taken = [part.shifted(placed.x[v], placed.y[v]) for v, s in enumerate(shapes) for part in s.footprint.parts]
-    taken += [_notch_box(*routes[a].middle) for a, m in marks.arcs.items()
-              if m in ("cut", "binding") and 0 <= a < len(routes)]
     placer = Placer(taken, strokes)
     font = FONTS["arc-label"]
     height = (ASCENT + DESCENT) * font.size
@@ -129,7 +131,12 @@ def _place_labels(placed, shapes, routes: list[Route], strokes, texts, widths, m
             mx, my = routes[a].middle
             box = Box.around(mx, my, width + 2 * HALO, height + 2 * HALO)
         labels[a] = box.grown(-HALO)
-    return labels, missing
+    notches = {}
+    for a in sorted(a for a, m in marks.arcs.items() if m in NOTCHED and 0 <= a < len(routes)):
+        box = placer.place_mark(a, NOTCH_W, NOTCH_H, strokes[a], routes[a].middle)
+        missing += box is None
+        notches[a] = routes[a].middle if box is None else ((box.x0 + box.x1) / 2, (box.y0 + box.y1) / 2)
+    return labels, notches, missing
 
 
 def _style() -> str:
@@ -166,7 +173,7 @@ def _arc_style(mark, flow) -> tuple[str, str, str]:
     return "idle-arc", IDLE, "idle"
 
 
-def _write(drawer, net, result, marks, shapes, placed, routes, strokes, widths, labels, texts) -> str:
+def _write(drawer, net, result, marks, shapes, placed, routes, strokes, widths, labels, notches, texts) -> str:
     extent = [s.footprint.extent.shifted(placed.x[v], placed.y[v]) for v, s in enumerate(shapes)]
     extent += [bounds(p).grown(4) for p in strokes if len(p)] + [b for b in labels if b is not None]
     content = union(extent) if extent else Box(0, 0, 0, 0)
@@ -188,7 +195,8 @@ def _write(drawer, net, result, marks, shapes, placed, routes, strokes, widths, 
     out.append(svg.text(subtitle, MARGIN, MARGIN + 12, "subtitle", anchor="start"))
     flows = result.get("flows")
     for a in range(net.num_arcs):
-        out.append(_arc(net, a, routes[a], widths[a], marks.arcs.get(a), None if flows is None else flows[a], dx, dy))
+        out.append(_arc(net, a, routes[a], widths[a], marks.arcs.get(a), None if flows is None else flows[a],
+                        notches.get(a), dx, dy))
     font = FONTS["arc-label"]
     out.append('<g class="arc-labels">' + "".join(
         svg.text(texts[a], (box.x0 + box.x1) / 2 + dx, box.y0 + ASCENT * font.size + dy, "arc-label",
@@ -200,7 +208,7 @@ def _write(drawer, net, result, marks, shapes, placed, routes, strokes, widths, 
     return "".join(out)
 
 
-def _arc(net: DrawnNetwork, a: int, route: Route, width: float, mark, flow, dx: float, dy: float) -> str:
+def _arc(net: DrawnNetwork, a: int, route: Route, width: float, mark, flow, notch, dx: float, dy: float) -> str:
     css, colour, tip = _arc_style(mark, flow)
     u, v = int(net.tail[a]), int(net.head[a])
     lower = net.lower is not None and net.lower[a] > 0
@@ -213,8 +221,8 @@ def _arc(net: DrawnNetwork, a: int, route: Route, width: float, mark, flow, dx: 
         "path", d=svg.path_data(path), fill="none", stroke=colour, stroke_width=f"{width:.2f}",
         stroke_linecap="round", stroke_dasharray="5 4" if css == "idle-arc" else None,
         marker_end=f"url(#tip-{tip})")
-    if mark in ("cut", "binding"):
-        x, y = route.middle[0] + dx, route.middle[1] + dy
+    if notch is not None:
+        x, y = notch[0] + dx, notch[1] + dy
         body += "".join(svg.element("line", x1=x + d - 4, y1=y + 6, x2=x + d + 4, y2=y - 6, stroke=colour,
                                     stroke_width="2.4", stroke_linecap="round", class_="notch")
                         for d in (-4.0, 4.0))
