@@ -90,6 +90,7 @@ def test_size_limits_give_413(tmp_path):
     r = client.post("/v1/diagram.svg", json={"kind": "maxflow", "problem": DEPOTS})
     assert r.status_code == 413 and r.mimetype == "application/problem+json"
     assert r.get_json()["errors"][0]["pointer"] == "/problem/arcs"
+    assert "SLUICE_MAX_DIAGRAM_ARCS" in r.get_json()["detail"]  # parsed once, within the diagram limits
     small = {**DEPOTS, "arcs": DEPOTS["arcs"][:8]}
     r = client.post("/v1/diagram.svg", json={"kind": "maxflow", "problem": small})
     assert r.status_code == 413 and r.get_json()["errors"][0]["pointer"] == "/problem/nodes"

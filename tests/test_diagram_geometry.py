@@ -283,6 +283,13 @@ def test_random_networks_route_around_nodes_and_keep_texts_apart(client, kind):
     assert not failures, f"{len(failures)} of {SEEDS} random networks:\n" + "\n".join(failures)
 
 
+def test_networks_without_arcs_are_drawn(client):
+    for kind, body in (("maxflow", {"source": "a", "sink": "b", "nodes": [{"id": "a"}, {"id": "b"}], "arcs": []}),
+                       ("mincostflow", {"nodes": [{"id": "a"}], "arcs": []})):
+        root = check_geometry(draw(client, kind, body), [])["root"]
+        assert len(node_parts(root)) == len(body["nodes"])
+
+
 @pytest.mark.browser
 def test_text_widths_hold_what_chromium_renders(browser, client, tmp_path):
     """The drawer's widths are at least what a browser draws (so boxes that do not meet

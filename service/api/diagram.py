@@ -173,8 +173,10 @@ def _parse_drawable(kind, body, state):
     try:
         return kind.parse(body, limits)
     except ProblemTooLarge as exc:
-        raise ProblemTooLarge([FieldError(e.pointer, f"{e.detail} for a diagram (SLUICE_MAX_DIAGRAM_ARCS, "
-                                                     "SLUICE_MAX_DIAGRAM_NODES)") for e in exc.errors]) from None
+        setting = {"/arcs": "SLUICE_MAX_DIAGRAM_ARCS", "/nodes": "SLUICE_MAX_DIAGRAM_NODES"}
+        raise ProblemTooLarge([FieldError(e.pointer, f"{e.detail} for a diagram "
+                                                     f"({setting.get(e.pointer, 'the diagram limits')})")
+                               for e in exc.errors]) from None
 
 
 @bp.post("/diagram.svg")
