@@ -53,10 +53,13 @@ def drawn_network(network: Network, *, supply=None, source: int | None = None,
     capacity = network.capacity.astype(np.float64)
     if network.unlimited is not None:
         capacity[network.unlimited] = np.inf
-    as_float = (lambda a: None if a is None else np.asarray(a, dtype=np.float64))
     return DrawnNetwork(ids, network.tail.astype(np.int64), network.head.astype(np.int64), capacity,
-                        lower=as_float(network.lower), cost=as_float(network.cost), keys=network.keys,
-                        supply=as_float(supply), source=source, sink=sink)
+                        lower=_floats(network.lower), cost=_floats(network.cost), keys=network.keys,
+                        supply=_floats(supply), source=source, sink=sink)
+
+
+def _floats(values) -> np.ndarray | None:
+    return None if values is None else np.asarray(values, dtype=np.float64)
 
 
 def drawn_problem(problem) -> DrawnNetwork:
