@@ -10,7 +10,8 @@ import numpy as np
 import pytest
 
 from service.api import create_app
-from service.api.diagram import layered_layout, render_diagram, solution_diagram
+from service.api.diagram import render_diagram, solution_diagram
+from service.drawing.layout import layered_layout
 from service.errors import InputError
 from service.kinds import KINDS
 from tests.conftest import SCENARIOS
@@ -89,6 +90,7 @@ def test_size_limits_give_413(tmp_path):
     r = client.post("/v1/diagram.svg", json={"kind": "maxflow", "problem": DEPOTS})
     assert r.status_code == 413 and r.mimetype == "application/problem+json"
     assert r.get_json()["errors"][0]["pointer"] == "/problem/arcs"
+    assert "SLUICE_MAX_DIAGRAM_ARCS" in r.get_json()["detail"]  # parsed once, within the diagram limits
     small = {**DEPOTS, "arcs": DEPOTS["arcs"][:8]}
     r = client.post("/v1/diagram.svg", json={"kind": "maxflow", "problem": small})
     assert r.status_code == 413 and r.get_json()["errors"][0]["pointer"] == "/problem/nodes"
@@ -136,3 +138,40 @@ def test_cached_solution_hook_draws_a_response(app):
 def test_min_cost_diagram_over_http(client):
     root = draw(client, "mincostflow", MC_PLAN["problem"])
     assert root.get("data-kind") == "mincostflow" and groups(root, "binding-arc")
+
+
+def test_control_characters_in_ids_and_keys_stay_well_formed(client):
+    # XML 1.0 cannot carry U+0000 or the other C0 controls, not even as character
+    # references (XML 1.0, section 2.2 "Characters": only #x9, #xA, #xD below #x20).
+    a, t, mid = "dock\u0000a", "t\u001fz", "mid\\x\u007f"
+    body = {"source": a, "sink": t, "arcs": [{"from": a, "to": t, "capacity": 2, "key": "lane\u0001"},
+                                             {"from": a, "to": mid, "capacity": 1},
+                                             {"from": mid, "to": t, "capacity": 5}]}
+    raw = client.post("/v1/diagram.svg", json={"kind": "maxflow", "problem": body}).data
+    assert not set(raw.decode()) & {chr(c) for c in range(32) if c not in (9, 10, 13)}
+    root = draw(client, "maxflow", body)  # parses, so well-formed
+    labels = [t.text for t in root.iter(f"{SVG}text") if t.get("class") == "node-label"]
+    assert labels == ["dock\u2400a", "t\u241fz", "mid\\x\u2421"]  # control pictures
+    # data-node spells ids reversibly, as JSON would
+    exact = [g.get("data-node") for g in groups(root, "node")]
+    assert [json.loads(f'"{v}"') for v in exact] == [a, t, mid]
+    titles = [g.find(f"{SVG}title").text for g in groups(root, "arc")]
+    assert titles[0] == "arc 0 (lane\u2401): dock\u2400a → t\u241fz"
+    digest = client.post("/v1/maxflow", json=body).get_json()["digest"]
+    cached = client.get(f"/v1/solutions/{digest}/diagram.svg")
+    assert cached.status_code == 200 and cached.data == raw  # the cached answer draws the same
+
+
+def test_lower_bounds_are_drawn(client):
+    body = json.loads((SCENARIOS / "depots-mincostflow.json").read_text())
+    lower = [i for i, a in enumerate(body["arcs"]) if a.get("lower")]
+    assert lower, "the scenario should have an arc with a lower bound"
+    root = draw(client, "mincostflow", body)
+    assert {int(g.get("data-arc")) for g in groups(root, "lower-bounded")} == set(lower)
+    flows = client.post("/v1/mincostflow", json=body).get_json()["flows"]
+    shown = {int(t.get("data-arc")): t.text for t in root.iter(f"{SVG}text") if t.get("class") == "arc-label"}
+    for i in lower:
+        arc = body["arcs"][i]
+        assert shown[i] == f"{flows[i]:g}/{arc['lower']}..{arc['capacity']} @{arc['cost']}"
+    legend = [t.text for t in root.iter(f"{SVG}text") if t.get("class") == "legend"]
+    assert "flow/lower..capacity @cost" in legend

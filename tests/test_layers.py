@@ -14,6 +14,7 @@ ALLOWED = {
     "kinds": {"errors", "model", "solvers"},
     "store": {"errors", "model"},
     "jobs": {"errors", "config", "kinds", "memory"},
+    "drawing": set(),  # numpy and plain data only: no model, no solvers, no Flask
 }
 
 

@@ -66,7 +66,11 @@ problem object.
 `POST /v1/diagram.svg` with `{"kind": "maxflow" | "mincostflow", "problem": ...}`
 solves the problem and draws the answer as SVG: a layered left-to-right layout from
 source to sink, flows, the minimum cut (max-flow) or the arcs at capacity (min-cost
-flow), node potentials when the answer has them. Diagrams are for small networks:
+flow), node potentials when the answer has them. Arcs run around the nodes they do not
+join; each is labelled `flow/capacity` (`flow/lower..capacity` with a lower bound,
+then `@cost` for min-cost flow), and no two texts overlap. Control characters in ids
+and keys are drawn as their Unicode control pictures (U+0000 as ␀), so the document
+is always well-formed XML. Diagrams are for small networks:
 above `SLUICE_MAX_DIAGRAM_NODES` nodes or `SLUICE_MAX_DIAGRAM_ARCS` arcs the answer is
 413. `GET /v1/solutions/{digest}/diagram.svg` draws a cached answer the same way.
 `GET /` is an explorer page for trying the service in a browser;
