@@ -1,0 +1,260 @@
+"""Input at the edges of what the decoders take: deep nesting, error pointers, a BOM.
+
+Every body is decoded by each path that could take it: the compiled scanner
+(``fastarcs``, bodies of 16 KB and more), the simdjson columnar path (``fastjson``,
+numeric columnar bodies) and orjson. Whichever path takes a body, the client must get
+the same verdict: an answer, or a 4xx naming the offending entries and only those.
+"""
+
+from __future__ import annotations
+
+import json
+import sys
+
+import orjson
+import pytest
+
+from service.api.fastarcs import decode_arcs_body
+from service.api.fastjson import _count_lists, decode_columnar
+from service.errors import InputError
+from service.kinds import KINDS
+from service.kinds.base import Limits
+from service.model.schemas import flatten_messages
+
+BOM = b"\xef\xbb\xbf"
+PAD = 20_000  # bytes of white space: large enough for the compiled scanner
+
+
+@pytest.fixture
+def client(tmp_path):
+    from service.api import create_app
+
+    return create_app({"data_dir": str(tmp_path / "data"), "rate_limit": "off"}).test_client()
+
+
+def post(client, url: str, body: bytes | str, content_type: str = "application/json"):
+    return client.post(url, data=body, headers={"Content-Type": content_type})
+
+
+def padded(raw: bytes) -> bytes:
+    """The same JSON document, grown past the compiled scanner's threshold."""
+    return raw[:-1] + b" " * PAD + raw[-1:]
+
+
+def decoded_by_each_path(raw: bytes) -> dict:
+    """``path -> decoded body`` for every decoder that takes ``raw`` (orjson always)."""
+    out = {"orjson": orjson.loads(raw)}
+    for name, decoded in (("scanner", decode_arcs_body(padded(raw), min_bytes=0)), ("simdjson", decode_columnar(raw))):
+        if decoded is not None:
+            out[name] = decoded
+    return out
+
+
+def maxflow_errors(body) -> list[tuple[str, str]]:
+    with pytest.raises(InputError) as caught:
+        KINDS["maxflow"].parse(body, Limits())
+    return [(e.pointer, e.detail) for e in caught.value.errors]
+
+
+# --- deep nesting --------------------------------------------------------------------
+
+def nest(depth: int) -> str:
+    return "[" * depth + "]" * depth
+
+
+def columnar_ints(n: int) -> dict:
+    return {"source": 0, "sink": n, "arcs": {"from": list(range(n)), "to": list(range(1, n + 1)),
+                                             "capacity": [3] * n}}
+
+
+def objects_strings(n: int) -> dict:
+    return {"source": "n0", "sink": f"n{n}",
+            "arcs": [{"from": f"n{i}", "to": f"n{i + 1}", "capacity": 3} for i in range(n)]}
+
+
+MARK = "@@deep@@"
+
+
+def with_deep_value(doc: dict, path: tuple, depth: int) -> str:
+    """``doc`` as JSON with the value at ``path`` (a new member when it is absent)
+    replaced by ``depth`` nested empty arrays."""
+    doc = json.loads(json.dumps(doc))
+    holder = doc
+    for key in path[:-1]:
+        holder = holder.setdefault(key, {}) if isinstance(holder, dict) else holder[key]
+    holder[path[-1]] = MARK
+    return json.dumps(doc).replace(json.dumps(MARK), nest(depth))
+
+
+DEEP_PLACES = [("source",), ("sink",), ("nodes",), ("options",), ("options", "detail"), ("extra",),
+               ("arcs",), ("arcs", "from"), ("arcs", "capacity"), ("arcs", "key")]
+
+
+def deep_bodies():
+    # Integer columns take the simdjson path; 2,000 arcs take the scanner; objects with
+    # string ids the scanner or orjson.
+    for label, doc in (("columns, int ids", columnar_ints(3)), ("columns, int ids, large", columnar_ints(2000)),
+                       ("objects, string ids, large", objects_strings(2000))):
+        places = DEEP_PLACES if isinstance(doc["arcs"], dict) else \
+            [p for p in DEEP_PLACES if p[0] != "arcs" or len(p) == 1] + [("arcs", 0), ("arcs", 1999)]
+        for place in places:
+            yield label, doc, place
+
+
+@pytest.mark.parametrize("depth", [300, 600, 1000, 1030, 5000])
+def test_deeply_nested_values_anywhere_are_a_4xx_on_every_endpoint(client, depth):
+    # 500-1023 levels used to be a 500: simdjson takes up to 1,024 levels, and a
+    # recursive count of its lists ran out of Python stack.
+    seen = set()
+    for label, doc, place in deep_bodies():
+        body = with_deep_value(doc, place, depth)
+        for url, wrapped in (("/v1/maxflow", body), ("/v1/jobs", '{"kind": "maxflow", "problem": %s}' % body),
+                             ("/v1/batch", '{"items": [{"kind": "maxflow", "problem": %s}]}' % body)):
+            r = post(client, url, body=wrapped)
+            status = r.status_code
+            if url == "/v1/batch" and status == 200:  # a batch answers for its items one by one
+                [item] = r.get_json()["results"]
+                status = item.get("status", 200)
+            else:
+                assert r.mimetype == "application/problem+json"
+            assert 400 <= status < 500, (label, place, url, status, r.data[:200])
+            seen.add(status)
+        r = client.put("/v1/networks/deep", data=body, headers={"Content-Type": "application/json"})
+        assert 400 <= r.status_code < 500, (label, place, "PUT", r.status_code)
+    assert seen <= {400, 422}
+
+
+def test_a_deep_value_is_named_by_pointer_when_the_json_is_within_the_depth_limit(client):
+    body = with_deep_value(columnar_ints(3), ("arcs", "capacity", 1), 900)
+    r = post(client, "/v1/maxflow", body)
+    assert r.status_code == 422
+    assert r.get_json()["errors"][0]["pointer"] == "/arcs/capacity/1"
+    body = with_deep_value(columnar_ints(3), ("nodes",), 900)
+    assert post(client, "/v1/maxflow", body).get_json()["errors"][0]["pointer"] == "/nodes/0"
+
+
+def test_walks_of_decoded_values_keep_their_own_stack():
+    deep = []
+    for _ in range(3 * sys.getrecursionlimit()):
+        deep = [deep, {"k": [1]}]
+    assert _count_lists(deep) == 2 * 3 * sys.getrecursionlimit() + 1
+    messages: dict = {"x": ["Y."]}
+    for i in range(3 * sys.getrecursionlimit()):
+        messages = {i % 3: messages}
+    [error] = flatten_messages(messages)
+    assert error.detail == "y" and error.pointer.count("/") == 3 * sys.getrecursionlimit() + 1
+
+
+def test_error_messages_keep_their_order_and_pointers():
+    messages = {"a": ["First.", "Second"], "_schema": ["Whole"], "b": {0: {"c": ["Unknown field."]}, 1: [{"d": ["Q"]}, "R"]}}
+    assert [(e.pointer, e.detail) for e in flatten_messages(messages)] == [
+        ("/a", "first"), ("/a", "second"), ("", "whole"), ("/b/0/c", "unknown field"), ("/b/1/d", "q"), ("/b/1", "r")]
+
+
+# --- error pointers name the offending entries only ----------------------------------
+
+ID_CASES = {
+    # one stray entry among integer ids: (from column, the errors expected)
+    "negative": ([0, 0, 0, -1], [("/arcs/from/3", "must be a non-negative integer")]),
+    "a string": ([0, 0, 0, "x"], [("/arcs/from/3", "node ids in one payload must all be integers")]),
+    "a fraction": ([0, 0, 0, 1.5], [("/arcs/from/3", "must be a node id: a string of 1-200 characters or a "
+                                                     "non-negative integer")]),
+    "written with a fraction": ([0, 0, 1.0, 0], [("/arcs/from/2", "must be a node id: a string of 1-200 "
+                                                                  "characters or a non-negative integer")]),
+    "2^63": ([0, 2**63, 0, 0], [("/arcs/from/1", "integer node ids must fit in 63 bits")]),
+    "2^64 - 1": ([0, 0, 0, 2**64 - 1], [("/arcs/from/3", "integer node ids must fit in 63 bits")]),
+    "beyond 64 bits": ([0, 0, 0, 2**70], [("/arcs/from/3", "must be a node id: a string of 1-200 characters or a "
+                                                           "non-negative integer")]),
+    "a boolean": ([0, 0, True, 0], [("/arcs/from/2", "must be a node id: a string of 1-200 characters or a "
+                                                     "non-negative integer")]),
+}
+
+
+@pytest.mark.parametrize("case", ID_CASES)
+def test_one_bad_integer_id_is_the_only_one_named_whichever_path_decodes_it(case):
+    tails, expected = ID_CASES[case]
+    for form in ("columns", "objects"):
+        if form == "columns":
+            doc = {"source": 0, "sink": 1, "arcs": {"from": tails, "to": [1] * 4, "capacity": [5] * 4}}
+        else:
+            doc = {"source": 0, "sink": 1, "arcs": [{"from": f, "to": 1, "capacity": 5} for f in tails]}
+            expected = [(p.replace("/arcs/from/", "/arcs/") + "/from", d) for p, d in expected]
+        raw = json.dumps(doc).encode()  # json, not orjson: ids beyond 64 bits
+        for path, body in decoded_by_each_path(raw).items():
+            assert maxflow_errors(body) == expected, (form, path)
+
+
+def test_one_stray_string_among_integer_ids_is_the_one_named():
+    doc = {"source": 0, "sink": 9, "arcs": {"from": [0, 1, 2, "dock", 4], "to": [1, 2, 3, 4, 9]}}
+    for path, body in decoded_by_each_path(orjson.dumps(doc)).items():
+        assert maxflow_errors(body) == [("/arcs/from/3", "node ids in one payload must all be integers")], path
+
+
+def test_one_stray_integer_among_string_ids_is_the_one_named():
+    doc = {"source": "a", "sink": "z", "arcs": [{"from": "a", "to": "b"}, {"from": "b", "to": 7},
+                                                {"from": "b", "to": "z"}]}
+    for path, body in decoded_by_each_path(orjson.dumps(doc)).items():
+        assert maxflow_errors(body) == [("/arcs/1/to", "node ids in one payload must all be strings")], path
+
+
+def test_declared_nodes_of_the_other_kind_are_named_not_the_arcs():
+    doc = {"source": 0, "sink": 2, "nodes": ["depot"], "arcs": {"from": [0, 1], "to": [1, 2]}}
+    for path, body in decoded_by_each_path(orjson.dumps(doc)).items():
+        assert maxflow_errors(body) == [("/nodes/0", "node ids in one payload must all be integers")], path
+
+
+def test_one_bad_number_is_the_only_one_named_whichever_path_decodes_it():
+    for column, expected in (([5, 5, "5", 5], [("/arcs/capacity/2", "must be a number or null")]),
+                             ([5, -1, 5, 5], [("/arcs/capacity/1", "must be >= 0")]),
+                             ([5, 5, 5, 2**64 - 1], [("/arcs/capacity/3", f"must be at most {2**62} in magnitude")]),
+                             ([5, 5, 5.5, 2**63], [("/arcs/capacity/3", f"must be at most {2**62} in magnitude")])):
+        doc = {"source": 0, "sink": 1, "arcs": {"from": [0] * 4, "to": [1] * 4, "capacity": column}}
+        for path, body in decoded_by_each_path(json.dumps(doc).encode()).items():
+            assert maxflow_errors(body) == expected, (column, path)
+
+
+def test_a_bad_id_is_named_over_http_in_a_large_columnar_body(client):
+    doc = columnar_ints(3000)
+    doc["arcs"]["from"][1234] = 2**64 - 1
+    r = post(client, "/v1/maxflow", json.dumps(doc))
+    assert r.status_code == 422
+    assert r.get_json()["errors"] == [{"pointer": "/arcs/from/1234", "detail": "integer node ids must fit in 63 bits"}]
+
+
+# --- one verdict on a byte-order mark ------------------------------------------------
+
+def bom_bodies():
+    yield "columns, int ids", orjson.dumps(columnar_ints(2))
+    yield "columns, int ids, large", orjson.dumps(columnar_ints(2000))
+    yield "objects, int ids", orjson.dumps({"source": 0, "sink": 1, "arcs": [{"from": 0, "to": 1, "capacity": 5}]})
+    yield "objects, string ids, large", orjson.dumps(objects_strings(2000))
+
+
+@pytest.mark.parametrize("label,raw", list(bom_bodies()), ids=[label for label, _ in bom_bodies()])
+def test_a_byte_order_mark_is_refused_with_a_400_on_every_path(client, label, raw):
+    # RFC 8259, section 8.1: senders must not add one; parsers may ignore it. Sluice
+    # refuses it whatever the body's form (simdjson alone used to accept it).
+    assert post(client, "/v1/maxflow", raw).status_code == 200
+    for prefix in (BOM, BOM + b" "):
+        r = post(client, "/v1/maxflow", prefix + raw)
+        assert r.status_code == 400, label
+        assert "byte order mark" in r.get_json()["detail"]
+    assert decode_arcs_body(BOM + padded(raw), min_bytes=0) is None
+    assert decode_columnar(BOM + raw) is None
+
+
+def test_a_byte_order_mark_is_refused_in_jobs_and_stored_networks(client):
+    raw = orjson.dumps(columnar_ints(3))
+    assert post(client, "/v1/jobs", BOM + b'{"kind": "maxflow", "problem": %s}' % raw).status_code == 400
+    r = client.put("/v1/networks/bom", data=BOM + raw, headers={"Content-Type": "application/json"})
+    assert r.status_code == 400
+
+
+def test_a_dimacs_file_with_a_byte_order_mark_is_refused_naming_line_1(client):
+    text = b"p max 2 1\nn 1 s\nn 2 t\na 1 2 5\n"
+    assert post(client, "/v1/maxflow", text, "text/x-dimacs").status_code == 200
+    r = post(client, "/v1/maxflow", BOM + text, "text/x-dimacs")
+    assert r.status_code == 422
+    [error] = r.get_json()["errors"]
+    assert (error["pointer"], error["detail"]) == ("/line/1", "starts with a byte-order mark (U+FEFF); send the file "
+                                                              "without one")
