@@ -258,3 +258,144 @@ def test_a_dimacs_file_with_a_byte_order_mark_is_refused_naming_line_1(client):
     [error] = r.get_json()["errors"]
     assert (error["pointer"], error["detail"]) == ("/line/1", "starts with a byte-order mark (U+FEFF); send the file "
                                                               "without one")
+
+
+# --- defaults normalised before digests ----------------------------------------------
+
+#: Digests of problems that use no default explicitly, computed before defaults were
+#: normalised (with the solver version pinned to "pinned"): cached results stay valid.
+PINNED = {
+    "depots-maxflow.json": "sha256:5f75cf7e2c87b28bd4476b6c2b0fb093281791b95a1ad20eaf9ee82578706df1",
+    "depots-maxflow-columns.json": "sha256:0aca1051a0b2318bad662be4056eeb7050ae2b05bc170f8df64ee3e5c90e603e",
+    "depots-mincostflow.json": "sha256:bbe7944f15c43ddde1dd4d0c0130230b8bbfabb569a10cc000856353df534ff0",
+    "depots-multicommodity.json": "sha256:6e84f5672c89cbea3da2ff8c6ad0fd701ac6bd8d85a27f65199eaec8f75c877f",
+    "depots-lp.json": "sha256:8a2e0fb9e2f5b6bb1fc0df50bdd3a93c662875bd5241a473f696b42610195bea",
+    "depots-lp-matrix.json": "sha256:8a2e0fb9e2f5b6bb1fc0df50bdd3a93c662875bd5241a473f696b42610195bea",
+    "vans-assignment.json": "sha256:fd9986f0d0c218c7bc8c51713dd42e4748ca30a5ea372d376802066514293cfa",
+}
+PINNED_KIND = {"depots-maxflow.json": "maxflow", "depots-maxflow-columns.json": "maxflow",
+               "depots-mincostflow.json": "mincostflow", "depots-multicommodity.json": "multicommodity",
+               "depots-lp.json": "lp", "depots-lp-matrix.json": "lp", "vans-assignment.json": "assignment"}
+
+
+@pytest.fixture
+def pinned_version(monkeypatch):
+    """The solver version in digests pinned, so an OR-Tools upgrade does not move them."""
+    import importlib
+
+    for name in ("maxflow", "mincostflow", "multicommodity", "lp", "assignment"):
+        monkeypatch.setattr(importlib.import_module(f"service.kinds.{name}"), "ORTOOLS_VERSION", "pinned")
+
+
+def scenario(name: str) -> dict:
+    from tests.conftest import SCENARIOS
+
+    return json.loads((SCENARIOS / name).read_text())
+
+
+def test_digests_of_problems_without_explicit_defaults_are_unchanged(pinned_version):
+    for name, digest in PINNED.items():
+        assert KINDS[PINNED_KIND[name]].parse(scenario(name), Limits()).digest == digest, name
+    body = scenario("depots-mincostflow.json")
+    body["options"] = {"detail": ["flows"]}
+    assert KINDS["mincostflow"].parse(body, Limits()).digest == \
+        "sha256:cec9a3fe957e020f14850a8839f25da318359892606a7575e8e5cb1cb864e3bd"
+    big = columnar_ints(2000)
+    big["arcs"]["cost"] = [i % 7 for i in range(2000)]
+    big["nodes"] = [{"id": 0, "supply": 5}, {"id": 2000, "supply": -5}]
+    del big["source"], big["sink"]
+    assert KINDS["mincostflow"].parse(big, Limits()).digest == \
+        "sha256:432a1e32661953fa6f19bc8c166faec6d0ed2c94576c00db2a6c8fa1dc9c7164"
+
+
+def test_a_stored_networks_digest_without_explicit_defaults_is_unchanged():
+    from service.model.arcs import read_network
+    from service.store import network_digest
+
+    body = scenario("depots-mincostflow.json")
+    net, _ = read_network(body["arcs"], body["nodes"], max_arcs=100, max_nodes=100)
+    assert network_digest(net) == "sha256:a7b5a321b07b7a1bf1d10204c52eaa0a51a1ef001d481a8f85f26c26e8040566"
+
+
+def mincost_body(n: int, **fields) -> dict:
+    """A chain of ``n`` arcs carrying 5 units; ``fields`` adds arc columns."""
+    arcs = {"from": list(range(n)), "to": list(range(1, n + 1)), "capacity": [9] * n, **fields}
+    return {"nodes": [{"id": 0, "supply": 5}, {"id": n, "supply": -5}], "arcs": arcs}
+
+
+def as_objects(body: dict) -> dict:
+    arcs = body["arcs"]
+    names = list(arcs)
+    return {**body, "arcs": [dict(zip(names, row)) for row in zip(*(arcs[k] for k in names))]}
+
+
+def digests_over_http(client, kind: str, body: dict) -> set:
+    """The digest answered for ``body`` in both arc forms, small and padded (so every
+    decode path takes it)."""
+    out = set()
+    for doc in (body, as_objects(body)) if isinstance(body.get("arcs"), dict) else (body,):
+        raw = orjson.dumps(doc)
+        for sent in (raw, padded(raw)):
+            r = post(client, f"/v1/{kind}", sent)
+            assert r.status_code == 200, r.data[:300]
+            out.add(r.get_json()["digest"])
+    return out
+
+
+@pytest.mark.parametrize("n", [4, 3000])
+def test_explicit_default_arc_fields_digest_as_omitted_ones(client, n):
+    plain = digests_over_http(client, "mincostflow", mincost_body(n))
+    assert len(plain) == 1
+    for extra in ({"cost": [0] * n}, {"cost": [0.0] * n}, {"lower": [0] * n}, {"key": [None] * n},
+                  {"cost": [0] * n, "lower": [0.0] * n, "key": [None] * n}):
+        assert digests_over_http(client, "mincostflow", mincost_body(n, **extra)) == plain, extra
+    with_costs = digests_over_http(client, "mincostflow", mincost_body(n, cost=[1] * n))
+    assert with_costs.isdisjoint(plain)
+
+
+def test_explicit_default_supplies_and_options_digest_as_omitted_ones(client):
+    body = mincost_body(4)
+    plain = digests_over_http(client, "mincostflow", body)
+    declared = {**body, "nodes": body["nodes"] + [{"id": 1, "supply": 0}]}
+    assert digests_over_http(client, "mincostflow", {**body, "nodes": [{"id": 0, "supply": 5}, {"id": 4, "supply": -5}],
+                                                     "options": {"detail": ["potentials", "flows"], "engine": "auto",
+                                                                 "shortage": "reject"}}) == plain
+    # Node 1 comes third either way (declared nodes first, then first seen on the arcs).
+    assert digests_over_http(client, "mincostflow", declared) == plain
+    reordered = {**body, "nodes": [{"id": 1, "supply": 0}] + body["nodes"]}
+    assert digests_over_http(client, "mincostflow", reordered) != plain  # another node order: another answer
+    maxflow = {"source": 0, "sink": 4, "arcs": body["arcs"]}
+    plain = digests_over_http(client, "maxflow", maxflow)
+    assert digests_over_http(client, "maxflow", {**maxflow, "options": {"detail": ["cut", "flows"]}}) == plain
+    assert digests_over_http(client, "maxflow", {**maxflow, "options": {"detail": ["cut"]}}) != plain
+
+
+def test_explicit_defaults_in_multicommodity_and_lp_digest_as_omitted_ones(client):
+    body = scenario("depots-multicommodity.json")
+    plain = digests_over_http(client, "multicommodity", {**body, "arcs": [
+        {k: v for k, v in a.items() if k != "cost"} for a in body["arcs"]]})
+    zero = digests_over_http(client, "multicommodity", {**body, "arcs": [{**a, "cost": 0} for a in body["arcs"]],
+                                                        "options": {"detail": ["capacity_prices", "flows"]}})
+    assert zero == plain
+    lp = scenario("depots-lp.json")
+    plain = digests_over_http(client, "lp", lp)
+    explicit = json.loads(json.dumps(lp))
+    explicit["variables"][1]["lower"] = 0
+    explicit["variables"][0]["upper"] = 60.0
+    explicit["constraints"][2]["terms"]["marrow-jam"] = 0
+    explicit["options"] = {"detail": ["values", "duals", "reduced_costs"]}
+    assert digests_over_http(client, "lp", explicit) == plain
+
+
+def test_a_what_if_that_sets_every_cost_to_zero_digests_as_the_network_without_costs(client):
+    body = mincost_body(4, cost=[3, 0, 2, 0])
+    assert client.put("/v1/networks/zeros", json={"arcs": body["arcs"]}).status_code == 201
+    assert client.put("/v1/networks/none", json={"arcs": mincost_body(4)["arcs"]}).status_code == 201
+    supplies = {"supplies": body["nodes"]}
+    zeroed = client.post("/v1/networks/zeros/mincostflow",
+                         json={**supplies, "changes": [{"arc": 0, "cost": 0}, {"arc": 2, "cost": 0.0}]})
+    plain = client.post("/v1/networks/none/mincostflow", json=supplies)
+    assert zeroed.status_code == plain.status_code == 200
+    assert zeroed.get_json()["digest"] == plain.get_json()["digest"]
+    stored = client.put("/v1/networks/explicit", json={"arcs": mincost_body(4, cost=[0] * 4, key=[None] * 4)["arcs"]})
+    assert stored.get_json()["digest"] == client.get("/v1/networks/none").get_json()["digest"]

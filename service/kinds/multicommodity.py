@@ -22,7 +22,7 @@ from ..model.schemas import (
 from ..solvers.multicommodity import Commodities, multicommodity_flow
 from ..solvers.multicommodity import Network as FlowNetwork
 from ..solvers.versions import ORTOOLS_VERSION
-from .base import Limits, node_position, time_limit, wants
+from .base import Limits, digest_detail, node_position, time_limit, wants
 from .maxflow import EngineSchema, TimingSchema
 
 DETAIL = ["flows", "capacity_prices"]
@@ -188,7 +188,7 @@ def parse(body, limits: Limits) -> MultiCommodityProblem:
     digest = problem_digest(
         "multicommodity", ORTOOLS_VERSION, network.nodes.ids, network.tail, network.head, network.capacity,
         network.unlimited, network.cost, commodities.sources, commodities.sinks, demands,
-        [ids, objective], {"detail": options.get("detail")},
+        [ids, objective], {"detail": digest_detail(options, DETAIL)},
     )
     return MultiCommodityProblem(network, ids, commodities, objective, options, digest)
 
