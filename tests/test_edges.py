@@ -399,3 +399,61 @@ def test_a_what_if_that_sets_every_cost_to_zero_digests_as_the_network_without_c
     assert zeroed.get_json()["digest"] == plain.get_json()["digest"]
     stored = client.put("/v1/networks/explicit", json={"arcs": mincost_body(4, cost=[0] * 4, key=[None] * 4)["arcs"]})
     assert stored.get_json()["digest"] == client.get("/v1/networks/none").get_json()["digest"]
+
+
+# --- control characters in ids: never raw in SVG or logs -----------------------------
+
+ODD_IDS = ["nul\x00depot", "bell\x07", "unit\x1fsep", "tab\there", "line\nbreak", "cr\rhere", "<&\"'>",
+           "non-char\ufffe", "non-char\uffff", "del\x7f", "nel\x85", "ls\u2028"]
+
+
+def odd_maxflow() -> dict:
+    chain = ["src"] + ODD_IDS + ["snk"]
+    return {"source": "src", "sink": "snk",
+            "arcs": [{"from": a, "to": b, "capacity": 5, "key": f"key\x00{i}"} for i, (a, b) in
+                     enumerate(zip(chain, chain[1:]))]}
+
+
+def test_node_ids_with_control_characters_give_well_formed_svg(client):
+    import xml.etree.ElementTree as ET
+
+    problem = odd_maxflow()
+    answer = post(client, "/v1/maxflow", json.dumps(problem))
+    assert answer.status_code == 200 and answer.get_json()["value"] == 5  # ids are opaque strings: accepted
+    for r in (client.post("/v1/diagram.svg", json={"kind": "maxflow", "problem": problem}),
+              client.get(f"/v1/solutions/{answer.get_json()['digest']}/diagram.svg")):
+        assert r.status_code == 200 and r.mimetype == "image/svg+xml"
+        root = ET.fromstring(r.data)  # raises on anything XML 1.0 cannot hold
+        nodes = {g.get("data-node") for g in root.iter("{http://www.w3.org/2000/svg}g") if g.get("data-node")}
+        # Characters XML cannot hold are written out; tab, LF and CR survive as references.
+        assert "nul\\u0000depot" in nodes and "non-char\\ufffe" in nodes and "unit\\u001fsep" in nodes
+        assert {"tab\there", "line\nbreak", "cr\rhere", "<&\"'>", "del\x7f"} <= nodes
+        titles = " ".join(t.text or "" for t in root.iter("{http://www.w3.org/2000/svg}title"))
+        assert "key\\u00000" in titles
+
+
+def test_log_lines_never_carry_raw_control_characters():
+    import logging
+
+    from service.logs import JsonFormatter, TextFormatter
+
+    record = logging.LogRecord("sluice.api", logging.ERROR, __file__, 1, "request failed: %s",
+                               ("/arcs/0/fr\x00om\nFAKE 200 line\u2028: unknown field",), None)
+    text = TextFormatter(fmt="%(levelname)s %(name)s %(message)s").format(record)
+    assert "\n" not in text and "\x00" not in text and "\u2028" not in text
+    assert text.endswith(r"/arcs/0/fr\x00om\nFAKE 200 line\u2028: unknown field")
+    line = JsonFormatter().format(record)
+    assert "\n" not in line and "\x00" not in line
+    assert json.loads(line)["msg"] == record.getMessage()
+
+
+def test_the_text_log_format_uses_the_escaping_formatter():
+    import logging.config
+
+    from service.logs import TextFormatter, logging_config
+
+    spec = logging_config("info", "text")["formatters"]["main"]
+    built = logging.config.DictConfigurator({}).configure_formatter(dict(spec))  # as dictConfig builds it
+    assert isinstance(built, TextFormatter)
+    record = logging.LogRecord("sluice", logging.INFO, __file__, 1, "id %s", ("a\x00\nb",), None)
+    assert built.format(record).endswith(r"id a\x00\nb")

@@ -23,8 +23,9 @@ Diagrams are for small networks: above ``SLUICE_MAX_DIAGRAM_NODES`` nodes or
 
 from __future__ import annotations
 
+import re
 from time import perf_counter
-from xml.sax.saxutils import escape, quoteattr
+from xml.sax import saxutils
 
 import numpy as np
 import orjson
@@ -171,6 +172,27 @@ def _fmt(x) -> str:
     if x.is_integer():
         return f"{int(x):,}".replace(",", " ") if abs(x) >= 10_000 else str(int(x))
     return f"{x:.4g}"
+
+
+#: What XML 1.0 cannot hold even as a character reference: the C0 controls but tab, LF
+#: and CR (U+0000 above all), U+FFFE and U+FFFF. Node ids and arc keys are any JSON
+#: string, so they may hold these.
+_NOT_XML = re.compile("[^\t\n\r\u0020-\ud7ff\ue000-\ufffd\U00010000-\U0010ffff]")
+
+
+def _xml_safe(text: str) -> str:
+    """``text`` with the characters XML cannot hold written as ``\\uXXXX`` (visible, as in JSON)."""
+    return _NOT_XML.sub(lambda m: f"\\u{ord(m.group()):04x}", text)
+
+
+def escape(text: str) -> str:
+    """Text content for the SVG: XML-escaped, control characters written out."""
+    return saxutils.escape(_xml_safe(text))
+
+
+def quoteattr(text: str) -> str:
+    """A quoted attribute value for the SVG (tab, LF and CR as character references)."""
+    return saxutils.quoteattr(_xml_safe(text), {"\t": "&#9;", "\n": "&#10;", "\r": "&#13;"})
 
 
 def _short(label: str) -> str:
