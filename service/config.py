@@ -29,20 +29,33 @@ def parse_api_keys(text: str, source: str = "SLUICE_API_KEYS") -> tuple[ApiKey, 
     """Parse ``tenant:key[:scope]`` entries separated by commas or new lines.
 
     Blank lines and lines starting with ``#`` are skipped. ``scope`` is ``full``
-    (default) or ``read`` (GET only). A malformed entry raises ``ValueError`` naming its
-    position, never its text (it may hold a key).
+    (default) or ``read`` (GET only). The tenant must be a name the store can hold
+    (1-64 characters of ``a-z 0-9 _ -``, see :func:`service.store.names.check_tenant`):
+    refused here, at start-up, rather than a 500 on each of that tenant's requests.
+    Names are not mapped (``ACME`` to ``acme``): two entries could then share a
+    tenant's data unawares. A malformed entry raises ``ValueError`` naming its position
+    (entry and line), never its text (it may hold a key).
     """
+    from .store.names import check_tenant
+
     keys = []
-    entries = [e.strip() for line in text.splitlines() for e in line.split(",")]
-    for number, entry in enumerate(entries, start=1):
+    entries = [(line_number, e.strip()) for line_number, line in enumerate(text.splitlines(), start=1)
+               for e in line.split(",")]
+    for number, (line, entry) in enumerate(entries, start=1):
         if not entry or entry.startswith("#"):
             continue
+        where = f"{source}: entry {number} (line {line})"
         parts = entry.split(":")
         if len(parts) not in (2, 3) or not parts[0] or len(parts[1]) < 8:
-            raise ValueError(f"{source}: entry {number} is not tenant:key[:scope] with a key of 8+ characters")
+            raise ValueError(f"{where} is not tenant:key[:scope] with a key of 8+ characters")
         scope = parts[2] if len(parts) == 3 else "full"
         if scope not in ("full", "read"):
-            raise ValueError(f"{source}: entry {number} has scope {scope!r}; use full or read")
+            raise ValueError(f"{where} has scope {scope!r}; use full or read")
+        try:
+            check_tenant(parts[0])
+        except ValueError:
+            raise ValueError(f"{where} has a tenant name the store cannot hold: use 1-64 characters of lower-case "
+                             "a-z, digits, '_' and '-', starting with a letter or digit") from None
         keys.append(ApiKey(parts[0], parts[1], scope))
     return tuple(keys)
 

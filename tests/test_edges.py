@@ -457,3 +457,55 @@ def test_the_text_log_format_uses_the_escaping_formatter():
     assert isinstance(built, TextFormatter)
     record = logging.LogRecord("sluice", logging.INFO, __file__, 1, "id %s", ("a\x00\nb",), None)
     assert built.format(record).endswith(r"id a\x00\nb")
+
+
+# --- tenant names the store refuses are refused at start-up --------------------------
+
+@pytest.mark.parametrize("tenant", ["ACME", "big corp", "-north", "depot/north", "x" * 65, "dépôt"])
+def test_a_tenant_name_the_store_cannot_hold_is_refused_when_keys_are_loaded(tenant):
+    from service.config import parse_api_keys
+
+    with pytest.raises(ValueError) as err:
+        parse_api_keys(f"north:north-key-001\n# a comment\nsouth:south-key-02, {tenant}:secret-key-003:read")
+    message = str(err.value)
+    assert "entry 4 (line 3)" in message and "tenant name" in message
+    assert "secret-key-003" not in message and tenant not in message.replace("SLUICE_API_KEYS", "")
+
+
+def test_tenant_names_the_store_holds_are_accepted():
+    from service.config import parse_api_keys
+
+    keys = parse_api_keys("acme:key-00001,big-corp_2:key-00002,0depot:key-00003")
+    assert [k.tenant for k in keys] == ["acme", "big-corp_2", "0depot"]
+
+
+def test_keys_given_to_the_app_directly_are_checked_too(tmp_path):
+    from service.api import create_app
+    from service.config import ApiKey
+
+    with pytest.raises(ValueError, match="API key 2 has a tenant name"):
+        create_app({"data_dir": str(tmp_path), "api_keys": (ApiKey("ok", "key-00001"), ApiKey("Big Corp", "k-0002"))})
+
+
+@pytest.mark.server
+@pytest.mark.parametrize("where", ["SLUICE_API_KEYS", "SLUICE_API_KEYS_FILE"])
+def test_sluice_serve_refuses_to_start_with_a_bad_tenant_name(tmp_path, where):
+    import os
+    import subprocess
+
+    from tests.conftest import ROOT, free_port
+
+    env = {**os.environ, "SLUICE_DATA_DIR": str(tmp_path / "data")}
+    env.pop("SLUICE_API_KEYS", None)
+    env.pop("SLUICE_API_KEYS_FILE", None)
+    entries = "north:north-key-001\nACME:secret-key-003"
+    if where == "SLUICE_API_KEYS":
+        env[where] = entries
+    else:
+        (tmp_path / "keys").write_text(entries + "\n")
+        env[where] = str(tmp_path / "keys")
+    done = subprocess.run([sys.executable, "-m", "service.cli", "serve", "--port", str(free_port())], cwd=ROOT,
+                          env=env, capture_output=True, text=True, timeout=60)
+    assert done.returncode == 2
+    assert f"{where}: entry 2 (line 2) has a tenant name the store cannot hold" in done.stderr
+    assert "secret-key-003" not in done.stderr + done.stdout
