@@ -84,10 +84,18 @@ class Settings:
     time_limit: float = 30.0  # seconds, a synchronous solve (hard: the solving process is killed)
     api_keys: tuple = ()  # of ApiKey
     rate_limit: str = "600/minute"  # per tenant; "off" disables
-    # Synchronous solves of problems larger than this many arcs run in a killable
-    # solver process under the hard time limit; smaller ones inline (milliseconds).
+    # Synchronous solves of problems larger than this (arcs, or the kind's size: flow
+    # variables, LP nonzeros + columns, assignment pairs) run in a killable solver
+    # process under the hard time limit; smaller ones inline (milliseconds).
     inline_max_arcs: int = 20_000
     solver_processes: int = 2  # per API worker process, for synchronous solves
+    # A pooled solver process whose resident memory is above this after a solve is
+    # replaced by a fresh one (a 1M-arc min-cost flow leaves one at about 220 MB);
+    # 0 keeps them whatever they hold.
+    solver_max_rss_mb: float = 1024.0
+    # A worker keeps at most this much freed memory for its next request (above what it
+    # holds live); the rest goes back to the system after the request (service.memory).
+    worker_retain_mb: float = 256.0
     job_time_limit: float = 600.0  # seconds, one job
     job_workers: int = 1  # embedded backend: jobs run at once per API worker process
     job_lease: float = 15.0  # seconds without a heartbeat before a running job is taken back
@@ -119,6 +127,8 @@ class Settings:
             rate_limit=os.environ.get("SLUICE_RATE_LIMIT") or "600/minute",
             inline_max_arcs=_int("SLUICE_INLINE_MAX_ARCS", 20_000),
             solver_processes=_int("SLUICE_SOLVER_PROCESSES", 2),
+            solver_max_rss_mb=_float("SLUICE_SOLVER_MAX_RSS_MB", 1024.0),
+            worker_retain_mb=_float("SLUICE_WORKER_RETAIN_MB", 256.0),
             job_time_limit=_float("SLUICE_JOB_TIME_LIMIT", 600.0),
             job_workers=_int("SLUICE_JOB_WORKERS", 1),
             job_lease=_float("SLUICE_JOB_LEASE", 15.0),

@@ -108,6 +108,11 @@ class MaxFlowProblem:
     options: dict
     digest: str
 
+    @property
+    def size(self) -> int:
+        """Arcs: what the solve's time and memory grow with (see api/bounded)."""
+        return self.network.num_arcs
+
 
 def parse(body, limits: Limits) -> MaxFlowProblem:
     """Validate and normalise a max-flow request.

@@ -150,6 +150,11 @@ class MinCostFlowProblem:
     options: dict
     digest: str
 
+    @property
+    def size(self) -> int:
+        """Arcs: what the solve's time and memory grow with (see api/bounded)."""
+        return self.network.num_arcs
+
 
 def parse(body, limits: Limits) -> MinCostFlowProblem:
     """Validate and normalise a min-cost flow request.

@@ -145,6 +145,12 @@ class MultiCommodityProblem:
     options: dict
     digest: str
 
+    @property
+    def size(self) -> int:
+        """Flow variables, arcs x commodities: a 180 KB body of 2,000 arcs and 1,000
+        commodities is an LP of 2M columns (gigabytes while it is solved)."""
+        return self.network.num_arcs * len(self.commodity_ids)
+
 
 def parse(body, limits: Limits) -> MultiCommodityProblem:
     """Validate and normalise a multi-commodity request.
