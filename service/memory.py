@@ -53,10 +53,10 @@ def retain_freed_memory() -> bool:
 _PAGE = os.sysconf("SC_PAGE_SIZE") if hasattr(os, "sysconf") else 4096
 
 
-def resident_bytes() -> int | None:
-    """This process's resident memory (None where ``/proc`` cannot tell)."""
+def resident_bytes(pid: int | str = "self") -> int | None:
+    """A process's resident memory, this one's by default (None where ``/proc`` cannot tell)."""
     try:
-        with open("/proc/self/statm", "rb") as f:
+        with open(f"/proc/{pid}/statm", "rb") as f:
             return int(f.read().split()[1]) * _PAGE
     except (OSError, ValueError, IndexError):
         return None
@@ -72,9 +72,8 @@ class RetainCeiling:
     when it became ready, or after its last trim) hands its free pages back with
     ``malloc_trim``. The floor becomes what remains (never below the first size), so a
     large live set (the network memo, a request in flight) does not make every request
-    trim. The default (256 MB, see
-    ``SLUICE_WORKER_RETAIN_MB``) keeps the pages of a 1M-arc request (a worker grew by
-    85-170 MB for one in the max-flow benchmark).
+    trim. The default (256 MB, ``SLUICE_WORKER_RETAIN_MB``) keeps the pages of a 1M-arc
+    request: a worker grew by 85-170 MB for one in the max-flow benchmark.
     """
 
     def __init__(self, retain_mb: float):

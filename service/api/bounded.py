@@ -5,10 +5,10 @@ min-cost flow, arcs x commodities for multi-commodity flow, nonzeros plus column
 an LP, allowed pairs for an assignment) is at most ``SLUICE_INLINE_MAX_ARCS`` (default
 20,000) is solved inline on the request thread: such solves take milliseconds, and the
 IPC of a solver process would cost more than the solve. A larger problem (or one whose
-size a kind does not report) goes to this worker's pool of warm solver processes with a deadline of
-``min(options.time_limit, SLUICE_TIME_LIMIT)`` (plus a short grace for the GLOP kinds,
-which stop themselves at the limit and answer ``time_limit``); past it the process is killed (the
-OR-Tools solvers cannot be interrupted), the client gets 504 ``time-limit`` with a hint
+size a kind does not report) goes to this worker's pool of warm solver processes with a
+deadline of ``min(options.time_limit, SLUICE_TIME_LIMIT)`` (plus a short grace for the
+GLOP kinds, which stop themselves at the limit and answer ``time_limit``); past it the
+process is killed (the OR-Tools solvers cannot be interrupted), the client gets 504 ``time-limit`` with a hint
 to submit a job instead, and a fresh process takes its place. The gunicorn worker
 itself never blocks past the deadline, so it stays healthy, and never holds a large
 solve's memory: a solver process that grew past ``SLUICE_SOLVER_MAX_RSS_MB`` is replaced

@@ -24,6 +24,7 @@ from concurrent.futures import Future
 from queue import Queue
 
 from ..errors import SluiceError
+from ..memory import resident_bytes
 from .frames import read_frame, write_frame
 
 log = logging.getLogger("sluice.runner")
@@ -34,7 +35,6 @@ START_TIMEOUT = 120.0  # seconds for a child to import its libraries (slow on a 
 #: unprivileged process, /proc/sys/fs/pipe-max-size) about halved the time of a
 #: 16 MB + 8 MB round trip on a 2-CPU host (33-52 ms -> 16-22 ms).
 PIPE_SIZE = 1 << 20
-_PAGE = os.sysconf("SC_PAGE_SIZE") if hasattr(os, "sysconf") else 4096
 
 
 class DeadlineExceeded(Exception):
@@ -96,11 +96,8 @@ class SolverProcess:
 
     def rss_mb(self) -> float | None:
         """Resident memory of the child in MiB (None where ``/proc`` cannot tell)."""
-        try:
-            with open(f"/proc/{self.pid}/statm", "rb") as f:
-                return int(f.read().split()[1]) * _PAGE / (1 << 20)
-        except (OSError, ValueError, IndexError):
-            return None
+        rss = resident_bytes(self.pid)
+        return None if rss is None else rss / (1 << 20)
 
     def kill(self) -> None:
         if self.proc.poll() is None:
