@@ -29,20 +29,33 @@ def parse_api_keys(text: str, source: str = "SLUICE_API_KEYS") -> tuple[ApiKey, 
     """Parse ``tenant:key[:scope]`` entries separated by commas or new lines.
 
     Blank lines and lines starting with ``#`` are skipped. ``scope`` is ``full``
-    (default) or ``read`` (GET only). A malformed entry raises ``ValueError`` naming its
-    position, never its text (it may hold a key).
+    (default) or ``read`` (GET only). The tenant must be a name the store can hold
+    (1-64 characters of ``a-z 0-9 _ -``, see :func:`service.store.names.check_tenant`):
+    refused here, at start-up, rather than a 500 on each of that tenant's requests.
+    Names are not mapped (``ACME`` to ``acme``): two entries could then share a
+    tenant's data unawares. A malformed entry raises ``ValueError`` naming its position
+    (entry and line), never its text (it may hold a key).
     """
+    from .store.names import check_tenant
+
     keys = []
-    entries = [e.strip() for line in text.splitlines() for e in line.split(",")]
-    for number, entry in enumerate(entries, start=1):
+    entries = [(line_number, e.strip()) for line_number, line in enumerate(text.splitlines(), start=1)
+               for e in line.split(",")]
+    for number, (line, entry) in enumerate(entries, start=1):
         if not entry or entry.startswith("#"):
             continue
+        where = f"{source}: entry {number} (line {line})"
         parts = entry.split(":")
         if len(parts) not in (2, 3) or not parts[0] or len(parts[1]) < 8:
-            raise ValueError(f"{source}: entry {number} is not tenant:key[:scope] with a key of 8+ characters")
+            raise ValueError(f"{where} is not tenant:key[:scope] with a key of 8+ characters")
         scope = parts[2] if len(parts) == 3 else "full"
         if scope not in ("full", "read"):
-            raise ValueError(f"{source}: entry {number} has scope {scope!r}; use full or read")
+            raise ValueError(f"{where} has scope {scope!r}; use full or read")
+        try:
+            check_tenant(parts[0])
+        except ValueError:
+            raise ValueError(f"{where} has a tenant name the store cannot hold: use 1-64 characters of lower-case "
+                             "a-z, digits, '_' and '-', starting with a letter or digit") from None
         keys.append(ApiKey(parts[0], parts[1], scope))
     return tuple(keys)
 
@@ -92,10 +105,18 @@ class Settings:
     time_limit: float = 30.0  # seconds, a synchronous solve (hard: the solving process is killed)
     api_keys: tuple = ()  # of ApiKey
     rate_limit: str = "600/minute"  # per tenant; "off" disables
-    # Synchronous solves of problems larger than this many arcs run in a killable
-    # solver process under the hard time limit; smaller ones inline (milliseconds).
+    # Synchronous solves of problems larger than this (arcs, or the kind's size: flow
+    # variables, LP nonzeros + columns, assignment pairs) run in a killable solver
+    # process under the hard time limit; smaller ones inline (milliseconds).
     inline_max_arcs: int = 20_000
     solver_processes: int = 2  # per API worker process, for synchronous solves
+    # A pooled solver process whose resident memory is above this after a solve is
+    # replaced by a fresh one (a 1M-arc min-cost flow leaves one at about 220 MB);
+    # 0 keeps them whatever they hold.
+    solver_max_rss_mb: float = 1024.0
+    # A worker keeps at most this much freed memory for its next request (above what it
+    # holds live); the rest goes back to the system after the request (service.memory).
+    worker_retain_mb: float = 256.0
     job_time_limit: float = 600.0  # seconds, one job
     job_workers: int = 1  # embedded backend: jobs run at once per API worker process
     job_lease: float = 15.0  # seconds without a heartbeat before a running job is taken back
@@ -129,6 +150,8 @@ class Settings:
             rate_limit=os.environ.get("SLUICE_RATE_LIMIT") or "600/minute",
             inline_max_arcs=_int("SLUICE_INLINE_MAX_ARCS", 20_000),
             solver_processes=_int("SLUICE_SOLVER_PROCESSES", 2),
+            solver_max_rss_mb=_float("SLUICE_SOLVER_MAX_RSS_MB", 1024.0),
+            worker_retain_mb=_float("SLUICE_WORKER_RETAIN_MB", 256.0),
             job_time_limit=_float("SLUICE_JOB_TIME_LIMIT", 600.0),
             job_workers=_int("SLUICE_JOB_WORKERS", 1),
             job_lease=_float("SLUICE_JOB_LEASE", 15.0),

@@ -3,12 +3,15 @@
 Fields: ``ts`` (RFC 3339, UTC), ``level``, ``logger``, ``msg`` and, when set,
 ``request_id``, ``tenant``, ``method``, ``path``, ``route``, ``status``,
 ``duration_ms``, ``remote``. Request headers are never logged (they may carry keys).
+Control characters from request data never reach a log line raw: JSON escapes them,
+and the text format (``SLUICE_LOG_FORMAT=text``) writes them out as escapes.
 """
 
 from __future__ import annotations
 
 import logging
 import os
+import re
 from datetime import datetime, timezone
 
 import orjson
@@ -43,10 +46,29 @@ class JsonFormatter(logging.Formatter):
         return orjson.dumps(doc, default=str).decode()
 
 
+#: Characters that would break a text log line or hide what follows: C0 and C1
+#: controls, DEL and the Unicode line and paragraph separators.
+_CONTROL = re.compile("[\x00-\x1f\x7f-\x9f\u2028\u2029]")
+
+
+def escape_controls(text: str) -> str:
+    """``text`` with control characters written as ``\\xNN`` / ``\\uNNNN`` (as Python's repr does)."""
+    return _CONTROL.sub(lambda m: repr(m.group())[1:-1], text)
+
+
+class TextFormatter(logging.Formatter):
+    """The plain-text format, one line per record: messages may quote request data
+    (a node id, an unknown field's name), so their control characters are escaped.
+    An exception's trace still follows on its own lines."""
+
+    def formatMessage(self, record: logging.LogRecord) -> str:
+        return escape_controls(super().formatMessage(record))
+
+
 def logging_config(level: str = "info", fmt: str = "json") -> dict:
     """A ``logging.config.dictConfig`` document for gunicorn's ``logconfig_dict``."""
     formatter = {"()": "service.logs.JsonFormatter"} if fmt == "json" else {
-        "format": "%(asctime)s %(levelname)s %(name)s %(message)s"}
+        "()": "service.logs.TextFormatter", "fmt": "%(asctime)s %(levelname)s %(name)s %(message)s"}
     handler = {"class": "logging.StreamHandler", "formatter": "main", "stream": "ext://sys.stderr"}
     level = level.upper()
     return {

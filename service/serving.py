@@ -14,7 +14,7 @@ import shutil
 import tempfile
 
 from .logs import logging_config
-from .memory import retain_freed_memory
+from .memory import RetainCeiling, retain_freed_memory
 
 _METRICS_DIR_OWNED = "SLUICE_METRICS_DIR_OWNED"
 
@@ -57,6 +57,7 @@ def gunicorn_defaults(host: str = "127.0.0.1", port: int = 8000, workers: int | 
         "on_starting": on_starting,
         "post_fork": post_fork,
         "post_worker_init": post_worker_init,
+        "post_request": post_request,
         "worker_exit": worker_exit,
         "child_exit": child_exit,
         "on_exit": on_exit,
@@ -84,7 +85,7 @@ def post_fork(server, worker) -> None:
     # cyclic-GC passes keep the decode fast. Reference counting frees them as usual.
     gc.set_threshold(50_000, 20, 20)
     # Before the worker starts its threads (see service.memory).
-    retain_freed_memory()
+    worker.sluice_retains = retain_freed_memory()
 
 
 def post_worker_init(worker) -> None:
@@ -96,6 +97,16 @@ def post_worker_init(worker) -> None:
     jobs = app.extensions.get("sluice.jobs")
     if jobs is not None:
         jobs.start()
+    state = app.extensions.get("sluice")
+    if getattr(worker, "sluice_retains", False) and state is not None and state.settings.worker_retain_mb > 0:
+        worker.sluice_memory = RetainCeiling(state.settings.worker_retain_mb)
+
+
+def post_request(worker, req, environ, resp) -> None:
+    """After the response is sent: hand back freed memory above the worker's ceiling."""
+    ceiling = getattr(worker, "sluice_memory", None)
+    if ceiling is not None:
+        ceiling.after_request()
 
 
 def worker_exit(server, worker) -> None:

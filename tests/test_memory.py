@@ -48,3 +48,33 @@ def test_off_keeps_the_c_librarys_defaults():
     assert not took
     pages = (50 << 20) // 4096
     assert min(faults) >= pages // 2  # glibc maps (and faults in) every large block anew
+
+
+CEILING_PROBE = r"""
+import sys
+from service.memory import RetainCeiling, resident_bytes, retain_freed_memory
+assert retain_freed_memory()
+ceiling = RetainCeiling(float(sys.argv[1]))
+base = resident_bytes()
+block = bytearray(300 << 20)  # written: zero-filled, every page touched
+del block
+kept = resident_bytes()
+trimmed = ceiling.after_request()
+print(base >> 20, kept >> 20, resident_bytes() >> 20, trimmed, ceiling.after_request())
+"""
+
+
+def ceiling_probe(retain_mb: float) -> list:
+    out = subprocess.run([sys.executable, "-c", CEILING_PROBE, str(retain_mb)], capture_output=True, text=True,
+                         check=True, cwd=os.path.dirname(os.path.dirname(__file__))).stdout.split()
+    return [int(x) for x in out[:3]] + [x == "True" for x in out[3:]]
+
+
+@pytest.mark.skipif(not sys.platform.startswith("linux"), reason="malloc_trim and /proc are glibc's and Linux's")
+def test_memory_above_the_retain_ceiling_goes_back_after_a_request():
+    base, kept, after, trimmed, again = ceiling_probe(64)
+    assert kept > base + 250  # freed, but kept for the next request (retain_freed_memory)
+    assert trimmed and after < base + 64  # above the ceiling: handed back
+    assert not again  # nothing left above it: the next request does not trim again
+    base, kept, after, trimmed, _ = ceiling_probe(512)
+    assert not trimmed and after > base + 250  # below the ceiling: kept for reuse

@@ -22,6 +22,7 @@ from flask import Flask, g, request
 
 from ..config import ApiKey
 from ..errors import Forbidden, Unauthorized
+from ..store.names import check_tenant
 
 PUBLIC_TENANT = "public"
 REALM = 'Bearer realm="sluice"'
@@ -41,6 +42,11 @@ class KeyRing:
     """The configured keys, kept as digests."""
 
     def __init__(self, keys: tuple[ApiKey, ...]):
+        for number, k in enumerate(keys, start=1):  # keys parsed from the environment are checked already
+            try:
+                check_tenant(k.tenant)
+            except ValueError:
+                raise ValueError(f"API key {number} has a tenant name the store cannot hold") from None
         self.entries = [(_digest(k.key), k.tenant, k.scope) for k in keys]
 
     def __bool__(self) -> bool:

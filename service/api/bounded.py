@@ -1,14 +1,18 @@
 """Synchronous solves under a hard time limit.
 
-Policy: a problem of at most ``SLUICE_INLINE_MAX_ARCS`` arcs (default 20,000) is solved
-inline on the request thread: such solves take milliseconds, and the IPC of a solver
-process would cost more than the solve. A larger problem (or one whose size a kind does
-not report) goes to this worker's pool of warm solver processes with a deadline of
-``min(options.time_limit, SLUICE_TIME_LIMIT)`` (plus a short grace for the GLOP kinds,
-which stop themselves at the limit and answer ``time_limit``); past it the process is killed (the
-OR-Tools solvers cannot be interrupted), the client gets 504 ``time-limit`` with a hint
+Policy: a problem whose size (its kind's measure of the work: arcs for max-flow and
+min-cost flow, arcs x commodities for multi-commodity flow, nonzeros plus columns for
+an LP, allowed pairs for an assignment) is at most ``SLUICE_INLINE_MAX_ARCS`` (default
+20,000) is solved inline on the request thread: such solves take milliseconds, and the
+IPC of a solver process would cost more than the solve. A larger problem (or one whose
+size a kind does not report) goes to this worker's pool of warm solver processes with a
+deadline of ``min(options.time_limit, SLUICE_TIME_LIMIT)`` (plus a short grace for the
+GLOP kinds, which stop themselves at the limit and answer ``time_limit``); past it the
+process is killed (the OR-Tools solvers cannot be interrupted), the client gets 504 ``time-limit`` with a hint
 to submit a job instead, and a fresh process takes its place. The gunicorn worker
-itself never blocks past the deadline, so it stays healthy.
+itself never blocks past the deadline, so it stays healthy, and never holds a large
+solve's memory: a solver process that grew past ``SLUICE_SOLVER_MAX_RSS_MB`` is replaced
+after its solve (see :class:`~service.jobs.runner.SolverPool`).
 """
 
 from __future__ import annotations
@@ -32,13 +36,11 @@ EXTENSION = "sluice.solver"
 
 
 def problem_size(problem) -> int | None:
-    """Arcs (or the kind's own ``size``) of a parsed problem; None when unknown."""
+    """The work a parsed problem reports (its ``size``: arcs, flow variables, LP
+    nonzeros and columns, assignment pairs); None when unknown (it goes to a solver
+    process)."""
     size = getattr(problem, "size", None)
-    if isinstance(size, int):
-        return size
-    network = getattr(problem, "network", None)
-    tail = getattr(network, "tail", None)
-    return None if tail is None else int(tail.size)
+    return size if isinstance(size, int) else None
 
 
 class BoundedSolver:
@@ -47,7 +49,7 @@ class BoundedSolver:
     def __init__(self, settings: Settings):
         self.inline_max_arcs = settings.inline_max_arcs
         self.job_time_limit = settings.job_time_limit
-        self.pool = SolverPool(settings.solver_processes)
+        self.pool = SolverPool(settings.solver_processes, max_rss_mb=settings.solver_max_rss_mb)
 
     def solve(self, kind: Kind, problem, limits: Limits) -> dict:
         size = problem_size(problem)

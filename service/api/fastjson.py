@@ -14,6 +14,10 @@ from __future__ import annotations
 import numpy as np
 import simdjson
 
+#: The UTF-8 byte-order mark. RFC 8259 (section 8.1) forbids senders to add one and lets
+#: parsers ignore it; Sluice refuses it on every decode path (orjson's 400).
+UTF8_BOM = b"\xef\xbb\xbf"
+
 
 def looks_columnar(raw: bytes) -> bool:
     """Cheap pre-check that a body has numeric columnar arcs.
@@ -45,11 +49,20 @@ def _numeric(array) -> np.ndarray | list:
 
 
 def _count_lists(value) -> int:
-    if isinstance(value, list):
-        return 1 + sum(_count_lists(v) for v in value)
-    if isinstance(value, dict):
-        return sum(_count_lists(v) for v in value.values())
-    return 0
+    """The lists in a decoded value, nested ones included.
+
+    A walk with its own stack, not recursion: simdjson takes up to 1,024 levels of
+    nesting, more than Python's recursion limit allows a recursive walk.
+    """
+    count, todo = 0, [value]
+    while todo:
+        item = todo.pop()
+        if isinstance(item, list):
+            count += 1
+            todo.extend(v for v in item if isinstance(v, (list, dict)))
+        elif isinstance(item, dict):
+            todo.extend(v for v in item.values() if isinstance(v, (list, dict)))
+    return count
 
 
 def _python(value):
@@ -62,7 +75,13 @@ def _python(value):
 
 def parse_envelope(raw: bytes, arcs_type):
     """simdjson's parse of a body that is an object with distinct top-level keys and an
-    ``arcs`` member of ``arcs_type``: ``(doc, keys, arcs)``, or None (any doubt)."""
+    ``arcs`` member of ``arcs_type``: ``(doc, keys, arcs)``, or None (any doubt).
+
+    simdjson skips a leading UTF-8 byte-order mark, which orjson refuses: such a body
+    goes to orjson, so a BOM gets one verdict (400) whichever decoder would take it.
+    """
+    if raw.startswith(UTF8_BOM):
+        return None
     try:
         doc = simdjson.Parser().parse(raw)
     except Exception:  # noqa: BLE001 - any refusal just means "use the ordinary decoder"
@@ -101,6 +120,8 @@ def decode_columnar(raw: bytes):
     for key in column_keys:
         value = arcs[key]
         columns[key] = _numeric(value) if isinstance(value, simdjson.Array) else _python(value)
+        if key in ("from", "to") and isinstance(columns[key], np.ndarray) and columns[key].dtype.kind != "i":
+            return None  # a fraction or a 64-bit id: only the decoded values tell which entry it is
         arrays += 1 if isinstance(columns[key], np.ndarray) else _count_lists(columns[key])
     out["arcs"] = columns
     if raw.count(b"[") != arrays:

@@ -26,7 +26,9 @@ def open_jobs(settings: Settings, limits: Limits):
     from .sqlite_backend import SqliteJobs
 
     try:
-        return SqliteJobs(settings.data_dir, workers=settings.job_workers, **common)
+        # Redis jobs run each in a fresh solver process; embedded ones share a pool.
+        return SqliteJobs(settings.data_dir, workers=settings.job_workers,
+                          solver_max_rss_mb=settings.solver_max_rss_mb, **common)
     except (OSError, sqlite3.Error) as exc:
         # Like the result store: an unusable data folder degrades the service (jobs
         # answer 503, /readyz says degraded) instead of stopping it from starting.

@@ -24,6 +24,7 @@ from concurrent.futures import Future
 from queue import Queue
 
 from ..errors import SluiceError
+from ..memory import resident_bytes
 from .frames import read_frame, write_frame
 
 log = logging.getLogger("sluice.runner")
@@ -92,6 +93,11 @@ class SolverProcess:
     @property
     def alive(self) -> bool:
         return self.proc.poll() is None
+
+    def rss_mb(self) -> float | None:
+        """Resident memory of the child in MiB (None where ``/proc`` cannot tell)."""
+        rss = resident_bytes(self.pid)
+        return None if rss is None else rss / (1 << 20)
 
     def kill(self) -> None:
         if self.proc.poll() is None:
@@ -187,10 +193,18 @@ class _Spawner:
 
 
 class SolverPool:
-    """Up to ``size`` warm solver processes shared by the threads of one API process."""
+    """Up to ``size`` warm solver processes shared by the threads of one API process.
 
-    def __init__(self, size: int):
+    A child keeps the memory of its largest solve for the next one (see
+    :mod:`service.memory`); one whose resident memory is above ``max_rss_mb`` after a
+    solve is replaced by a fresh child instead of going back to the pool, so a single
+    huge problem does not hold gigabytes for the life of the worker.
+    """
+
+    def __init__(self, size: int, max_rss_mb: float | None = None):
         self.size = max(1, size)
+        self.max_rss_mb = max_rss_mb or None
+        self.replaced = 0  # children retired for their memory (tests, logs)
         self._slots = threading.BoundedSemaphore(self.size)
         self._idle: list[SolverProcess] = []
         self._starting: list[Future] = []
@@ -238,10 +252,25 @@ class SolverPool:
             except (DeadlineExceeded, Cancelled, ChildLost):
                 self.warm(1)  # a fresh child replaces the killed one, off the request path
                 raise
-            self._give(proc)
+            if self._grown(proc):
+                proc.kill()
+                self.warm(1)
+            else:
+                self._give(proc)
             return reply
         finally:
             self._slots.release()
+
+    def _grown(self, proc: SolverProcess) -> bool:
+        if self.max_rss_mb is None:
+            return False
+        rss = proc.rss_mb()
+        if rss is None or rss <= self.max_rss_mb:
+            return False
+        self.replaced += 1
+        log.info("solver process %d holds %.0f MB after its solve (ceiling %g MB): replaced by a fresh one",
+                 proc.pid, rss, self.max_rss_mb)
+        return True
 
     def pids(self) -> list[int]:
         with self._lock:

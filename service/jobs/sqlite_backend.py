@@ -60,7 +60,7 @@ class SqliteJobs:
     """Job records in SQLite and the dispatchers of this process."""
 
     def __init__(self, data_dir: str, *, limits: Limits, workers: int = 1, lease: float = 15.0,
-                 attempts: int = 2, ttl: int = 7 * 86400):
+                 attempts: int = 2, ttl: int = 7 * 86400, solver_max_rss_mb: float | None = None):
         os.makedirs(data_dir, exist_ok=True)
         self.path = os.path.join(data_dir, "jobs.sqlite3")
         self.limits, self.workers, self.lease, self.max_attempts, self.ttl = limits, workers, lease, attempts, ttl
@@ -69,6 +69,7 @@ class SqliteJobs:
         self._stop = threading.Event()
         self._threads: list[threading.Thread] = []
         self._pool: SolverPool | None = None
+        self.solver_max_rss_mb = solver_max_rss_mb
         self._owners: set[str] = set()
         self._lease_db: dict[str, sqlite3.Connection] = {}
         self._last_reap = 0.0
@@ -146,7 +147,7 @@ class SqliteJobs:
         """Start this process's dispatcher threads (once per process)."""
         if self._threads or self.workers <= 0:
             return
-        self._pool = SolverPool(self.workers)
+        self._pool = SolverPool(self.workers, max_rss_mb=self.solver_max_rss_mb)
         for i in range(self.workers):
             owner = f"{socket.gethostname()}:{os.getpid()}:{i}:{new_job_id()[:8]}"
             self._owners.add(owner)

@@ -75,6 +75,13 @@ def time_limit(options: dict, limits: Limits) -> float:
     return limits.time_limit if asked is None else min(float(asked), limits.time_limit)
 
 
+def digest_detail(options: dict, default) -> list | None:
+    """``options.detail`` as the digest sees it: ``None`` when it names the default
+    parts (in any order), so asking for the default equals leaving it out."""
+    detail = options.get("detail")
+    return None if detail is None or set(detail) == set(default) else detail
+
+
 def wants(options: dict, part: str) -> bool:
     detail = options.get("detail")
     return detail is None or part in detail

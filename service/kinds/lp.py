@@ -12,7 +12,7 @@ from ..model.linear import LinearModel, read_linear_model
 from ..model.schemas import OptionsSchema, StrictBoolean, StrictNumber, detail_field, load_envelope
 from ..solvers.lp import LPModel, solve_certified
 from ..solvers.versions import ORTOOLS_VERSION
-from .base import Limits, time_limit, wants
+from .base import Limits, digest_detail, time_limit, wants
 from .maxflow import EngineSchema, TimingSchema
 
 DETAIL = ["values", "duals", "reduced_costs"]
@@ -216,7 +216,7 @@ def digest_of(model: LinearModel, options: dict) -> str:
         "lp", ORTOOLS_VERSION, model.c, a.indptr, a.indices, a.data, model.row_lower, model.row_upper,
         model.col_lower, model.col_upper,
         [model.variables, model.constraints, model.maximize, model.constant],
-        {"detail": options.get("detail")},
+        {"detail": digest_detail(options, DETAIL)},
     )
 
 

@@ -20,7 +20,7 @@ from ..model.schemas import (
 from ..solvers import maximum_flow
 from ..solvers.versions import ORTOOLS_VERSION
 from ..errors import InputError, ProblemTooLarge, FieldError
-from .base import Limits, ids_of, node_position, time_limit, wants
+from .base import Limits, digest_detail, ids_of, node_position, time_limit, wants
 
 DETAIL = ["flows", "cut"]
 
@@ -108,6 +108,11 @@ class MaxFlowProblem:
     options: dict
     digest: str
 
+    @property
+    def size(self) -> int:
+        """Arcs: what the solve's time and memory grow with (see api/bounded)."""
+        return self.network.num_arcs
+
 
 def parse(body, limits: Limits) -> MaxFlowProblem:
     """Validate and normalise a max-flow request.
@@ -158,7 +163,7 @@ def _problem(network: Network, envelope: dict) -> MaxFlowProblem:
 def digest_of(network: Network, source: int, sink: int, options: dict) -> str:
     return problem_digest(
         "maxflow", ORTOOLS_VERSION, network.nodes.ids, network.tail, network.head, network.capacity,
-        network.unlimited, [source, sink], {"engine": options["engine"], "detail": options.get("detail")},
+        network.unlimited, [source, sink], {"engine": options["engine"], "detail": digest_detail(options, DETAIL)},
     )
 
 

@@ -16,7 +16,7 @@ from ..model.nodes import read_nodes
 from ..model.schemas import ArcsField, NodeId, NodesField, OptionsSchema, detail_field, load_envelope
 from ..solvers.mincost import imbalance, min_cost_flow
 from ..solvers.versions import ORTOOLS_VERSION
-from .base import Limits, ids_of, time_limit, wants
+from .base import Limits, digest_detail, ids_of, time_limit, wants
 from .maxflow import EngineSchema, TimingSchema
 
 DETAIL = ["flows", "potentials", "reduced_costs"]
@@ -150,6 +150,11 @@ class MinCostFlowProblem:
     options: dict
     digest: str
 
+    @property
+    def size(self) -> int:
+        """Arcs: what the solve's time and memory grow with (see api/bounded)."""
+        return self.network.num_arcs
+
 
 def parse(body, limits: Limits) -> MinCostFlowProblem:
     """Validate and normalise a min-cost flow request.
@@ -241,7 +246,8 @@ def digest_of(network: Network, supply: np.ndarray, options: dict) -> str:
     return problem_digest(
         "mincostflow", ORTOOLS_VERSION, network.nodes.ids, network.tail, network.head, network.capacity,
         network.unlimited, network.cost, network.lower, supply,
-        {"engine": options["engine"], "detail": options.get("detail"), "shortage": options["shortage"]},
+        {"engine": options["engine"], "detail": digest_detail(options, DEFAULT_DETAIL),
+         "shortage": options["shortage"]},
     )
 
 

@@ -144,8 +144,9 @@ def _column_where(base: str, name: str):
 class Network:
     """A normalised network: dense node indices and one numpy array per arc field.
 
-    ``capacity`` holds 0 where ``unlimited`` is set. ``cost`` and ``lower`` are
-    ``None`` when the request did not give them (all zero).
+    ``capacity`` holds 0 where ``unlimited`` is set (``None``: no arc is unlimited).
+    ``cost`` and ``lower`` are ``None`` when all zero, given or not, and ``keys`` when
+    no arc has a label: explicit defaults normalise as omitted ones do.
     """
 
     nodes: NodeIndex
@@ -189,18 +190,22 @@ def build_network(raw: RawArcs, declared: IdColumn, *, allow_lower: bool = True)
     cols = raw.columns
     nodes, tail, head = intern_ids(declared, cols["from"], cols["to"])
     capacity, unlimited = _capacity(cols.get("capacity"), raw.count)
-    cost = _optional(cols.get("cost"), minimum=None)
-    lower = _optional(cols.get("lower"), minimum=0)
+    cost = zeros_as_absent(_optional(cols.get("cost"), minimum=None))
+    lower = zeros_as_absent(_optional(cols.get("lower"), minimum=0))
     if lower is not None:
-        if not lower.any():
-            lower = None
-        elif not allow_lower:
+        if not allow_lower:
             i = int(np.flatnonzero(lower)[0])
             raise InputError.at(cols["lower"].where(i), "lower bounds are not supported by this problem kind")
         else:
             _check_lower(lower, capacity, unlimited, cols["lower"])
     keys = _keys(cols.get("key"))
     return Network(nodes, tail, head, capacity, unlimited, cost, lower, keys)
+
+
+def zeros_as_absent(values: np.ndarray | None) -> np.ndarray | None:
+    """``None`` for a column of zeros: an explicit default is the default left out, so
+    both normalise (and hash) alike."""
+    return None if values is None or not values.any() else values
 
 
 def read_network(arcs_raw, nodes_raw, *, max_arcs: int, max_nodes: int, allow_lower: bool = True,
@@ -254,6 +259,8 @@ def _keys(col: IdColumn | None) -> list | None:
         return None
     values = col.values
     kinds = set(map(type, values))
+    if kinds <= {type(None)}:  # every label null: as if no arc had one
+        return None
     if not kinds <= {str, type(None)}:
         i = next(i for i, v in enumerate(values) if v is not None and type(v) is not str)
         raise InputError.at(col.where(i), "must be a string or null")

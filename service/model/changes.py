@@ -20,7 +20,7 @@ from typing import Callable
 import numpy as np
 
 from ..errors import FieldError, InputError
-from .arcs import Network
+from .arcs import Network, zeros_as_absent
 from .columns import EXACT_FLOAT_INT, MAX_REPORTED_ERRORS, number_column
 
 CHANGE_FIELDS = ("arc", "key", "capacity", "cost", "closed")
@@ -87,7 +87,8 @@ def apply_changes(
     closed = cols.booleans("closed")
     _check_effect(cols)
     capacity, unlimited, lower = _new_capacity(network, cols, target, cap, closed)
-    new_cost = network.cost if cost is None else _assign(network.cost, network.num_arcs, target[cost[0]], cost[1])
+    new_cost = network.cost if cost is None else \
+        zeros_as_absent(_assign(network.cost, network.num_arcs, target[cost[0]], cost[1]))
     return replace(network, capacity=capacity, unlimited=unlimited, cost=new_cost, lower=lower)
 
 

@@ -53,17 +53,19 @@ class NumberColumn:
         return self.values.dtype.kind == "i"
 
 
-def _first_errors(col: list, bad: Callable[[object], bool], where: PointerFn, detail: str) -> InputError:
+def first_errors(col: list, bad: Callable[[object], bool], where: PointerFn,
+                  detail: str | Callable[[object], str]) -> InputError:
+    """Name the first offending elements (``detail`` may depend on the value)."""
     errors = []
     for i, v in enumerate(col):
         if bad(v):
-            errors.append(FieldError(where(i), detail))
+            errors.append(FieldError(where(i), detail(v) if callable(detail) else detail))
             if len(errors) >= MAX_REPORTED_ERRORS:
                 break
     return InputError(errors)
 
 
-def _mask_errors(mask: np.ndarray, where: PointerFn, detail: str) -> InputError:
+def mask_errors(mask: np.ndarray, where: PointerFn, detail: str) -> InputError:
     idx = np.flatnonzero(mask)[:MAX_REPORTED_ERRORS]
     return InputError([FieldError(where(int(i)), detail) for i in idx])
 
@@ -107,13 +109,13 @@ def number_column(
         return _typed_column(col, where, minimum)
     if isinstance(col, NullableNumbers):
         if not allow_null and col.null.any():
-            raise _mask_errors(col.null, where, "must be a number")
+            raise mask_errors(col.null, where, "must be a number")
         return NumberColumn(_typed_column(col.values, where, minimum).values, col.null if col.null.any() else None)
     kinds = set(map(type, col))
     allowed = {int, float, type(None)} if allow_null else {int, float}
     if not kinds <= allowed:
         wanted = "a number or null" if allow_null else "a number"
-        raise _first_errors(col, lambda v: type(v) not in allowed, where, f"must be {wanted}")
+        raise first_errors(col, lambda v: type(v) not in allowed, where, f"must be {wanted}")
     null = None
     if type(None) in kinds:
         null = np.fromiter((v is None for v in col), dtype=bool, count=len(col))
@@ -127,7 +129,7 @@ def number_column(
         try:
             values = np.asarray(col, dtype=np.int64)
         except OverflowError:
-            raise _first_errors(
+            raise first_errors(
                 col, lambda v: abs(v) > MAX_MAGNITUDE, where, f"must be at most {MAX_MAGNITUDE} in magnitude"
             ) from None
         if values.size == 0:
@@ -142,7 +144,7 @@ def _typed_column(values: np.ndarray, where: PointerFn, minimum: float | None) -
     if values.dtype.kind == "f":
         bad = ~np.isfinite(values)
         if bad.any():
-            raise _mask_errors(bad, where, "must be a finite number")
+            raise mask_errors(bad, where, "must be a finite number")
         _check_range(values, where, minimum)
         if np.all(np.floor(values) == values) and np.all(np.abs(values) <= EXACT_FLOAT_INT):
             values = values.astype(np.int64)
@@ -154,11 +156,11 @@ def _typed_column(values: np.ndarray, where: PointerFn, minimum: float | None) -
 def _check_range(values: np.ndarray, where: PointerFn, minimum: float | None) -> None:
     too_big = np.abs(values) > MAX_MAGNITUDE
     if too_big.any():
-        raise _mask_errors(too_big, where, f"must be at most {MAX_MAGNITUDE} in magnitude")
+        raise mask_errors(too_big, where, f"must be at most {MAX_MAGNITUDE} in magnitude")
     if minimum is not None:
         low = values < minimum
         if low.any():
-            raise _mask_errors(low, where, f"must be >= {minimum:g}")
+            raise mask_errors(low, where, f"must be >= {minimum:g}")
 
 
 def number_value(value: object, ptr: str, *, minimum: float | None = None) -> int | float:

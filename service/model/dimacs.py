@@ -153,6 +153,8 @@ def parse_dimacs(text: str, *, max_arcs: int | None = None, max_nodes: int | Non
     >>> f.request()["source"], f.request()["arcs"]["capacity"].tolist()
     (1, [5, 4])
     """
+    if text.startswith("\ufeff"):  # refused, as in JSON bodies (RFC 8259 forbids senders to add one)
+        _fail(1, "starts with a byte-order mark (U+FEFF); send the file without one")
     lines = text.split("\n")
     firsts = np.array([line[:1] for line in lines], dtype="U1")
     arc_index = np.flatnonzero(firsts == "a").tolist()

@@ -15,7 +15,7 @@ from itertools import islice
 import numpy as np
 
 from ..errors import FieldError, InputError
-from .columns import MAX_REPORTED_ERRORS, PointerFn
+from .columns import MAX_REPORTED_ERRORS, PointerFn, first_errors, mask_errors
 
 try:  # compiled at install (setup.py); without a C compiler the numpy path below serves
     from ._firstseen import first_seen
@@ -138,18 +138,35 @@ def _check_kinds(columns: list[IdColumn]) -> type | None:
     seen = set().union(*(_kinds(c) for c in columns))
     if not seen:
         return None
-    if not seen <= {str, int} or seen == {str, int}:
-        majority = str if sum(isinstance(v, str) for c in columns for v in c.values[:1000]) else int
-        allowed = {majority} if seen & {str, int} else set()
-        errors = []
-        for c in columns:
-            for i, v in enumerate(c.values):
-                if type(v) not in allowed:
-                    errors.append(FieldError(c.where(i), _id_message(v, majority)))
-                    if len(errors) >= MAX_REPORTED_ERRORS:
-                        raise InputError(errors)
-        raise InputError(errors)
+    if len(seen) > 1 or not seen <= {str, int}:
+        raise _kind_errors(columns)
     return seen.pop()
+
+
+def _python_values(col: IdColumn):
+    """The column's ids as Python objects (numpy scalars are neither str nor int)."""
+    return col.values.tolist() if isinstance(col.values, np.ndarray) else col.values
+
+
+def _kind_errors(columns: list[IdColumn]) -> InputError:
+    """Name the ids that do not fit: anything but a string or an integer, and the ids
+    of the less common kind when both appear (on a tie, the kind of the first id wins)."""
+    counts, first = {str: 0, int: 0}, None
+    for c in columns:
+        for v in _python_values(c):
+            kind = type(v)
+            if kind in counts:
+                counts[kind] += 1
+                first = first or kind
+    majority = str if counts[str] > counts[int] or (counts[str] == counts[int] and first is str) else int
+    errors = []
+    for c in columns:
+        for i, v in enumerate(_python_values(c)):
+            if type(v) is not majority:
+                errors.append(FieldError(c.where(i), _id_message(v, majority)))
+                if len(errors) >= MAX_REPORTED_ERRORS:
+                    return InputError(errors)
+    return InputError(errors)
 
 
 def _id_message(value: object, majority: type) -> str:
@@ -181,15 +198,18 @@ def _int_arrays(columns: list[IdColumn]) -> list[np.ndarray]:
         try:
             arr = np.asarray(c.values, dtype=np.int64)
         except OverflowError:
-            raise InputError.at(c.where(0), "integer node ids must fit in 63 bits") from None
+            raise first_errors(c.values, lambda v: v < 0 or v >= 2**63, c.where, _int_id_message) from None
         if arr.size == 0:
             arr = arr.astype(np.int64)
         bad = arr < 0
         if bad.any():
-            idx = np.flatnonzero(bad)[:MAX_REPORTED_ERRORS]
-            raise InputError([FieldError(c.where(int(i)), "must be a non-negative integer") for i in idx])
+            raise mask_errors(bad, c.where, "must be a non-negative integer")
         arrays.append(arr)
     return arrays
+
+
+def _int_id_message(value: int) -> str:
+    return "must be a non-negative integer" if value < 0 else "integer node ids must fit in 63 bits"
 
 
 def _interleave(a: np.ndarray | list, b: np.ndarray | list):
