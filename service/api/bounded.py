@@ -9,6 +9,10 @@ which stop themselves at the limit and answer ``time_limit``); past it the proce
 OR-Tools solvers cannot be interrupted), the client gets 504 ``time-limit`` with a hint
 to submit a job instead, and a fresh process takes its place. The gunicorn worker
 itself never blocks past the deadline, so it stays healthy.
+
+Admission: a solve that finds every solver process of its worker busy waits at most
+``SLUICE_QUEUE_WAIT`` seconds (default 2) for one, then gets 503 with ``Retry-After``:
+overload is shed, not queued behind solves that may each take the whole time limit.
 """
 
 from __future__ import annotations
@@ -47,6 +51,7 @@ class BoundedSolver:
     def __init__(self, settings: Settings):
         self.inline_max_arcs = settings.inline_max_arcs
         self.job_time_limit = settings.job_time_limit
+        self.queue_wait = settings.queue_wait
         self.pool = SolverPool(settings.solver_processes)
 
     def solve(self, kind: Kind, problem, limits: Limits) -> dict:
@@ -64,7 +69,7 @@ class BoundedSolver:
         try:
             reply = self.pool.run(("solve", kind.name, for_solver_process(problem), limits),
                                   deadline=time.monotonic() + hard,
-                                  wait=hard)
+                                  wait=min(hard, self.queue_wait))
         except DeadlineExceeded:
             SOLVE_TIMEOUTS.labels(kind.name).inc()
             raise SolveTimeout(
@@ -72,8 +77,8 @@ class BoundedSolver:
                 f"a job (POST /v1/jobs, or this request with the header Prefer: respond-async), whose limit is "
                 f"{self.job_time_limit:g} s") from None
         except TimeoutError:
-            raise Unavailable("every solver process of this worker is busy; retry, or submit a job",
-                              retry_after=max(1, int(seconds))) from None
+            raise Unavailable(f"every solver process of this worker stayed busy for {self.queue_wait:g} s; "
+                              "retry, or submit a job", retry_after=retry_after(self.queue_wait)) from None
         except (ChildLost, Cancelled) as exc:
             log.error("solver process lost: %s", exc)
             raise Unavailable("the solver process stopped unexpectedly; retry", retry_after=1) from None
@@ -85,6 +90,11 @@ class BoundedSolver:
     def _observe(kind: Kind, result: dict, seconds: float) -> None:
         engine = result.get("engine") if isinstance(result, dict) else None
         SOLVE_SECONDS.labels(kind.name, (engine or {}).get("kind", "none")).observe(seconds)
+
+
+def retry_after(wait: float) -> int:
+    """Seconds a shed request is told to wait: about as long as it waited, at least 1."""
+    return max(1, round(wait))
 
 
 def init_app(app: Flask, settings: Settings) -> BoundedSolver:
