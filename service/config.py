@@ -63,10 +63,21 @@ def parse_tenant_rate_limits(text: str) -> tuple[tuple[str, str], ...]:
             continue
         for entry in line.split():
             tenant, sep, limit = entry.partition("=")
-            if not sep or not tenant or not limit:
+            if not sep or not tenant or not _is_rate(limit):
                 raise ValueError(f"SLUICE_TENANT_RATE_LIMITS: {entry!r} is not tenant=limit (e.g. acme=100/second)")
             entries.append((tenant, limit))
     return tuple(entries)
+
+
+def _is_rate(text: str) -> bool:
+    from limits import parse_many  # flask-limiter's own parser: what it accepts, nothing else
+
+    if text.lower() == "off":
+        return True
+    try:
+        return bool(parse_many(text))
+    except ValueError:
+        return False
 
 
 def parse_origins(text: str) -> tuple[str, ...]:

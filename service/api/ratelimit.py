@@ -50,10 +50,11 @@ def init_app(app: Flask, settings: Settings, keyed: bool) -> Limiter | None:
         return None
 
     def limit() -> str:
-        return own.get(current_tenant(), default)
+        value = own.get(current_tenant(), default)
+        return "" if _is_off(value) else value  # "" = no limit for this tenant
 
     def exempt() -> bool:
-        return _exempt() or _is_off(limit())
+        return _exempt() or not limit()
 
     def key() -> str:
         return f"tenant:{current_tenant()}" if keyed else f"addr:{request.remote_addr}"
