@@ -13,6 +13,7 @@ import socket
 import threading
 import time
 import zlib
+from collections import Counter
 from concurrent.futures import ThreadPoolExecutor
 
 import pytest
@@ -174,6 +175,7 @@ def test_gzip_bodies_are_decoded_and_a_bomb_is_413_at_once(tmp_path):
             r = session.post(srv.url + "/v1/maxflow", data=bomb, headers={**JSON, "Content-Encoding": "gzip"},
                              timeout=30)
             elapsed = time.monotonic() - t0
+            print(f"gzip bomb: {len(bomb)} bytes, refused in {elapsed * 1000:.0f} ms")
             assert r.status_code == 413 and "inflates past the limit" in r.json()["detail"]
             assert elapsed < 1.0, f"the bomb took {elapsed:.2f} s to refuse"
             # Inflated no further than the limit (128 MB), never to 300 MB.
@@ -219,4 +221,6 @@ def test_overload_is_shed_and_the_probes_stay_fast(tmp_path):
     assert any(code == 200 for code, _ in answers), answers
     assert probes and all(status == 200 for status, _ in probes)
     worst = max(t for _, t in probes)
+    print(f"overload: answers {sorted(Counter(code for code, _ in answers).items())}, "
+          f"{len(probes)} probes, slowest {worst * 1000:.0f} ms")
     assert worst < 1.0, f"/healthz took {worst:.2f} s during the overload"
