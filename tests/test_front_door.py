@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import gzip
 import socket
+import subprocess
 import threading
 import time
 import zlib
@@ -19,7 +20,7 @@ from concurrent.futures import ThreadPoolExecutor
 import pytest
 import requests
 
-from tests.conftest import SCENARIOS, RunningServer
+from tests.conftest import ROOT, SCENARIOS, RunningServer
 from tests.opsutil import columnar_body, gunicorn_workers, layered
 
 pytestmark = pytest.mark.server
@@ -224,3 +225,24 @@ def test_overload_is_shed_and_the_probes_stay_fast(tmp_path):
     print(f"overload: answers {sorted(Counter(code for code, _ in answers).items())}, "
           f"{len(probes)} probes, slowest {worst * 1000:.0f} ms")
     assert worst < 1.0, f"/healthz took {worst:.2f} s during the overload"
+
+
+def _readme_block(after: str) -> str:
+    text = (ROOT / "README.md").read_text()
+    start = text.index("```sh\n", text.index(after)) + len("```sh\n")
+    return text[start:text.index("```", start)]
+
+
+def test_the_readme_cache_example_works_in_its_order(server, tmp_path):
+    """The README's max-flow example first (so the answer is cached already), then the
+    cache section's commands as written: each Cache-Status is the one the README shows."""
+    (tmp_path / "service").symlink_to(ROOT / "service")
+    first = _readme_block("### Max-flow")
+    cache = _readme_block("### Result cache")
+    script = (first + "\n" + cache).replace("localhost:8000", server.url.removeprefix("http://"))
+    run = subprocess.run(["bash", "-e", "-o", "pipefail", "-c", script], cwd=tmp_path, capture_output=True,
+                         text=True, timeout=60)
+    shown = [line.split("(")[0].strip() for line in cache.splitlines() if line.startswith("# Cache-Status:")]
+    got = [line.strip() for line in run.stdout.splitlines() if line.lower().startswith("cache-status:")]
+    assert [g.lower() for g in got] == [s.removeprefix("# ").lower() for s in shown], run.stdout + run.stderr
+    assert len(got) == 2
