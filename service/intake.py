@@ -14,7 +14,12 @@ stops, costs a socket and a coroutine here, never one of the app's threads:
   never leaves unread bytes on a kept-alive connection;
 - ``/healthz`` and ``/readyz`` run on threads of their own, never queued behind solves;
   a request that waited longer than ``queue_wait`` for a thread is answered 503 with
-  ``Retry-After`` instead of being run late (the app decides, see ``sluice.queued``).
+  ``Retry-After`` instead of being run late (the app decides, see ``sluice.queued``);
+- at most ``heavy_slots`` bodies of ``HEAVY_FROM`` bytes or more are handed to threads
+  at once (as many as the worker has solver processes): another waits up to
+  ``queue_wait`` for a turn, then gets 503 with ``Retry-After`` without being decoded.
+  Decoding a large body holds the GIL for long stretches, so a few at a time keep the
+  event loop and the probes answering.
 
 A body of 2 MiB or more is hashed (BLAKE3) as it arrives, for the result cache's
 byte-identical fast path (``service.api.jsonio``), so a cache hit pays no hash after
@@ -34,6 +39,8 @@ from blake3 import blake3
 
 #: Bodies from this size on are hashed while they arrive.
 HASH_FROM = 2 << 20
+#: Bodies from this size on take a heavy slot (a problem that large goes to a solver process anyway).
+HEAVY_FROM = 1 << 20
 #: Paths answered on their own threads (probes must not wait behind solves).
 PROBE_PATHS = frozenset({"/healthz", "/readyz"})
 #: After a 408 or 413 the unread rest of a body is discarded for at most this long, so
@@ -52,6 +59,8 @@ class IntakeLimits:
     min_rate: float = 1024.0
     threads: int = 4
     probe_threads: int = 2
+    heavy_slots: int = 2
+    queue_wait: float = 2.0
 
 
 class _Refused(Exception):
@@ -117,6 +126,7 @@ class BufferedWSGI:
         self.app, self.limits = app, limits
         self._threads = ThreadPoolExecutor(limits.threads, thread_name_prefix="sluice-request")
         self._probes = ThreadPoolExecutor(limits.probe_threads, thread_name_prefix="sluice-probe")
+        self._heavy = None  # an asyncio.Semaphore, made on the worker's event loop
 
     async def __call__(self, scope, receive, send):
         if scope["type"] != "http":
@@ -133,13 +143,37 @@ class BufferedWSGI:
         except _Gone:
             return None
         environ = self._environ(scope, steps, fingerprint)
-        lane = self._probes if scope["path"] in PROBE_PATHS else self._threads
-        status, headers, parts = await asyncio.get_running_loop().run_in_executor(lane, self._run, environ, monotonic())
+        if int(environ["CONTENT_LENGTH"]) >= HEAVY_FROM:
+            status, headers, parts = await self._run_heavy(environ, receive, send)
+            if status is None:
+                return None
+        else:
+            lane = self._probes if scope["path"] in PROBE_PATHS else self._threads
+            status, headers, parts = await asyncio.get_running_loop().run_in_executor(
+                lane, self._run, environ, monotonic())
         await send({"type": "http.response.start", "status": status, "headers": headers})
         for part in parts[:-1]:
             await send({"type": "http.response.body", "body": part, "more_body": True})
         await send({"type": "http.response.body", "body": parts[-1] if parts else b""})
         return None
+
+    async def _run_heavy(self, environ: dict, receive, send):
+        if self._heavy is None:
+            self._heavy = asyncio.Semaphore(self.limits.heavy_slots)
+        try:
+            async with asyncio.timeout(self.limits.queue_wait):
+                await self._heavy.acquire()
+        except (TimeoutError, asyncio.TimeoutError):
+            wait = self.limits.queue_wait
+            await self._answer(send, _Refused(503, "unavailable", "Temporarily unavailable",
+                                              f"the service is overloaded: every slot for large problems stayed "
+                                              f"busy for {wait:g} s; retry, or submit a job"),
+                               [(b"retry-after", str(max(1, round(wait))).encode())])
+            return None, None, None
+        try:
+            return await asyncio.get_running_loop().run_in_executor(self._threads, self._run, environ, monotonic())
+        finally:
+            self._heavy.release()
 
     async def _read_body(self, receive, length: int | None) -> tuple[list[bytes], bytes | None]:
         limit = self.limits.max_body
@@ -183,12 +217,16 @@ class BufferedWSGI:
             watch.stop()
         return steps, None if hasher is None else hasher.digest()
 
-    async def _answer_and_linger(self, receive, send, refused: _Refused) -> None:
+    @staticmethod
+    async def _answer(send, refused: _Refused, headers: list) -> None:
         body = _problem(refused.status, refused.slug, refused.title, refused.detail)
         await send({"type": "http.response.start", "status": refused.status,
                     "headers": [(b"content-type", b"application/problem+json"),
-                                (b"content-length", str(len(body)).encode()), (b"connection", b"close")]})
+                                (b"content-length", str(len(body)).encode()), *headers]})
         await send({"type": "http.response.body", "body": body})
+
+    async def _answer_and_linger(self, receive, send, refused: _Refused) -> None:
+        await self._answer(send, refused, [(b"connection", b"close")])
         # A client still sending would get a reset (and maybe lose the answer) if the
         # socket closed with unread bytes: discard what arrives for a moment first.
         try:

@@ -76,7 +76,8 @@ def asgi_app():
 
     settings = Settings.from_env()
     limits = IntakeLimits(max_body=settings.max_body_bytes, idle_timeout=settings.body_timeout,
-                          min_rate=settings.body_min_rate, threads=settings.threads)
+                          min_rate=settings.body_min_rate, threads=settings.threads,
+                          heavy_slots=max(1, settings.solver_processes), queue_wait=settings.queue_wait)
     return BufferedWSGI(create_app(settings), limits)
 
 
