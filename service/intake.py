@@ -17,7 +17,8 @@ stops, costs a socket and a coroutine here, never one of the app's threads:
   ``Retry-After`` instead of being run late (the app decides, see ``sluice.queued``);
 - at most ``heavy_slots`` bodies of ``HEAVY_FROM`` bytes or more are handed to threads
   at once (as many as the worker has solver processes): another waits up to
-  ``queue_wait`` for a turn, then gets 503 with ``Retry-After`` without being decoded.
+  ``queue_wait`` for a turn, then gets 503 with ``Retry-After`` without being decoded
+  (the app answers it, flagged ``sluice.shed``, on a probe thread).
   Decoding a large body holds the GIL for long stretches, so a few at a time keep the
   event loop and the probes answering.
 
@@ -48,6 +49,8 @@ PROBE_PATHS = frozenset({"/healthz", "/readyz"})
 LINGER_SECONDS = 2.0
 #: environ keys the app reads (service.api.jsonio and the shedding hook).
 BODY_STEPS, BODY_FINGERPRINT, QUEUED = "sluice.body_steps", "sluice.body_fingerprint", "sluice.queued"
+#: Set when every heavy slot stayed busy: the app answers 503 without decoding the body.
+SHED = "sluice.shed"
 
 
 @dataclass(frozen=True)
@@ -106,6 +109,11 @@ class _Watch:
         self.handle.cancel()
 
 
+async def run_in(pool: ThreadPoolExecutor, fn, environ: dict):
+    """``fn(environ, queued_at)`` on ``pool``; ``queued_at`` lets the app see how long it waited."""
+    return await asyncio.get_running_loop().run_in_executor(pool, fn, environ, monotonic())
+
+
 def _problem(status: int, slug: str, title: str, detail: str) -> bytes:
     from .errors import PROBLEM_BASE
 
@@ -131,8 +139,8 @@ class BufferedWSGI:
     async def __call__(self, scope, receive, send):
         if scope["type"] != "http":
             return None  # no lifespan events are needed, and no websockets are served
-        length, lines = None, scope["headers"]
-        for name, value in lines:
+        length = None
+        for name, value in scope["headers"]:
             if name.lower() == b"content-length":
                 length = int(value)
         try:
@@ -143,37 +151,35 @@ class BufferedWSGI:
         except _Gone:
             return None
         environ = self._environ(scope, steps, fingerprint)
-        if int(environ["CONTENT_LENGTH"]) >= HEAVY_FROM:
-            status, headers, parts = await self._run_heavy(environ, receive, send)
-            if status is None:
-                return None
-        else:
-            lane = self._probes if scope["path"] in PROBE_PATHS else self._threads
-            status, headers, parts = await asyncio.get_running_loop().run_in_executor(
-                lane, self._run, environ, monotonic())
+        status, headers, parts = await self._dispatch(environ, scope["path"])
         await send({"type": "http.response.start", "status": status, "headers": headers})
         for part in parts[:-1]:
             await send({"type": "http.response.body", "body": part, "more_body": True})
         await send({"type": "http.response.body", "body": parts[-1] if parts else b""})
         return None
 
-    async def _run_heavy(self, environ: dict, receive, send):
+    async def _dispatch(self, environ: dict, path: str) -> tuple[int, list, list[bytes]]:
+        """The app's answer, from a thread of the right lane (large bodies take turns)."""
+        if path in PROBE_PATHS:
+            return await run_in(self._probes, self._run, environ)
+        if int(environ["CONTENT_LENGTH"]) < HEAVY_FROM:
+            return await run_in(self._threads, self._run, environ)
         if self._heavy is None:
             self._heavy = asyncio.Semaphore(self.limits.heavy_slots)
         try:
             async with asyncio.timeout(self.limits.queue_wait):
                 await self._heavy.acquire()
         except (TimeoutError, asyncio.TimeoutError):
-            wait = self.limits.queue_wait
-            await self._answer(send, _Refused(503, "unavailable", "Temporarily unavailable",
-                                              f"the service is overloaded: every slot for large problems stayed "
-                                              f"busy for {wait:g} s; retry, or submit a job"),
-                               [(b"retry-after", str(max(1, round(wait))).encode())])
-            return None, None, None
-        try:
-            return await asyncio.get_running_loop().run_in_executor(self._threads, self._run, environ, monotonic())
-        finally:
-            self._heavy.release()
+            # The app answers 503 at once (its first hook), on a probe thread: the
+            # answer is counted, logged and carries the usual headers.
+            environ[SHED] = True
+            return await run_in(self._probes, self._run, environ)
+        # The slot is free when the thread is done, not when this coroutine is: a client
+        # that leaves cancels the wait, not the decode under way.
+        loop = asyncio.get_running_loop()
+        work = self._threads.submit(self._run, environ, monotonic())
+        work.add_done_callback(lambda _: loop.call_soon_threadsafe(self._heavy.release))
+        return await asyncio.wrap_future(work)
 
     async def _read_body(self, receive, length: int | None) -> tuple[list[bytes], bytes | None]:
         limit = self.limits.max_body
@@ -217,16 +223,12 @@ class BufferedWSGI:
             watch.stop()
         return steps, None if hasher is None else hasher.digest()
 
-    @staticmethod
-    async def _answer(send, refused: _Refused, headers: list) -> None:
+    async def _answer_and_linger(self, receive, send, refused: _Refused) -> None:
         body = _problem(refused.status, refused.slug, refused.title, refused.detail)
         await send({"type": "http.response.start", "status": refused.status,
                     "headers": [(b"content-type", b"application/problem+json"),
-                                (b"content-length", str(len(body)).encode()), *headers]})
+                                (b"content-length", str(len(body)).encode()), (b"connection", b"close")]})
         await send({"type": "http.response.body", "body": body})
-
-    async def _answer_and_linger(self, receive, send, refused: _Refused) -> None:
-        await self._answer(send, refused, [(b"connection", b"close")])
         # A client still sending would get a reset (and maybe lose the answer) if the
         # socket closed with unread bytes: discard what arrives for a moment first.
         try:

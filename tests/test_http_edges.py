@@ -15,7 +15,7 @@ import pytest
 from service.api import create_app
 from service.api.explorer import EXAMPLES
 from service.config import parse_api_keys, parse_origins, parse_tenant_rate_limits
-from service.intake import QUEUED
+from service.intake import QUEUED, SHED
 from tests.conftest import ROOT, SCENARIOS
 
 DEPOTS = (SCENARIOS / "depots-maxflow.json").read_bytes()
@@ -201,6 +201,9 @@ def test_a_request_that_waited_too_long_for_a_thread_is_503(tmp_path):
     assert late.status_code == 503 and int(late.headers["Retry-After"]) >= 1
     assert client.get("/healthz", environ_overrides={QUEUED: 5.0}).status_code == 200  # probes never shed
     assert client.post("/v1/maxflow", data=DEPOTS, headers=JSON, environ_overrides={QUEUED: 0.1}).status_code == 200
+    shed = client.post("/v1/maxflow", data=b"not even json", headers=JSON, environ_overrides={SHED: True})
+    assert shed.status_code == 503 and "large problems" in shed.get_json()["detail"]  # refused undecoded
+    assert shed.headers["Retry-After"] == "1" and shed.headers["X-Request-Id"]
 
 
 def test_a_solve_that_finds_every_solver_process_busy_is_503(tmp_path):

@@ -9,7 +9,7 @@ from flask import Flask, request
 
 from ..config import Settings
 from ..errors import FieldError, ProblemTooLarge, Unavailable
-from ..intake import PROBE_PATHS, QUEUED
+from ..intake import PROBE_PATHS, QUEUED, SHED
 from ..kinds import Limits
 from . import (auth, bounded, cache, cors, encoding, extras, jobs, metrics, networks, ops, problems, ratelimit,
                requestlog, solutions, solve)
@@ -38,8 +38,12 @@ def _enforce_body_limit():
 
 def _shed_late(queue_wait: float):
     def shed():
-        # service.intake says how long the request waited for a thread: past the
-        # admission wait it would only add to the queue's length, so it is refused.
+        # service.intake says how long the request waited for a thread (past the
+        # admission wait it would only add to the queue's length), or that it found
+        # every slot for large bodies busy: either way it is refused, undecoded.
+        if request.environ.get(SHED):
+            raise Unavailable(f"the service is overloaded: every slot for large problems stayed busy for "
+                              f"{queue_wait:g} s; retry, or submit a job", retry_after=bounded.retry_after(queue_wait))
         waited = request.environ.get(QUEUED, 0.0)
         if waited > queue_wait and request.path not in PROBE_PATHS:
             raise Unavailable(f"the service is overloaded: this request waited {waited:.1f} s for a thread; retry",
