@@ -161,3 +161,6 @@ def when_ready(server) -> None:
     server.log.info("sluice: ready; data dir %s, redis %s, synchronous time limit %g s, job time limit %g s",
                     settings.data_dir, "configured" if settings.redis_url else "not configured",
                     settings.time_limit, settings.job_time_limit)
+    server.log.info("sluice: %d threads a worker; a request body may pause %g s and must average %g bytes/s "
+                    "(408 otherwise); %g s of waiting for a thread or solver process before a 503",
+                    settings.threads, settings.body_timeout, settings.body_min_rate, settings.queue_wait)
