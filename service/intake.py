@@ -40,7 +40,7 @@ from blake3 import blake3
 
 #: Bodies from this size on are hashed while they arrive.
 HASH_FROM = 2 << 20
-#: Bodies from this size on take a heavy slot (a problem that large goes to a solver process anyway).
+#: Bodies from this size on take a heavy slot (about where a problem goes to a solver process).
 HEAVY_FROM = 1 << 20
 #: Paths answered on their own threads (probes must not wait behind solves).
 PROBE_PATHS = frozenset({"/healthz", "/readyz"})

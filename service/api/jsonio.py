@@ -14,7 +14,7 @@ from flask import Response, current_app, g, has_request_context, request
 from flask.json.provider import JSONProvider
 
 from ..errors import BadRequest, FieldError, ProblemTooLarge, UnsupportedMediaType
-from ..intake import BODY_FINGERPRINT, BODY_STEPS
+from ..intake import BODY_FINGERPRINT, BODY_STEPS, HASH_FROM
 from .fastarcs import decode_arcs_body
 from .fastjson import decode_columnar, looks_columnar
 
@@ -59,7 +59,7 @@ def no_gc():
 
 
 #: Bodies from this size on are hashed while they arrive (when the cache asks for the hash).
-HASH_WHILE_READING = 2 << 20
+HASH_WHILE_READING = HASH_FROM
 _READ_STEP = 1 << 20
 
 
