@@ -9,12 +9,27 @@ $(BIN)/python:
 	$(PYTHON) -m venv $(VENV)
 	$(BIN)/pip install --quiet --upgrade pip
 
+# What an install depends on: when none of it changed, an install does nothing.
+SOURCES = pyproject.toml setup.py service/api/_arcscan.pyx service/model/_firstseen.pyx
+RUNTIME = $(VENV)/.installed-runtime
+TESTING = $(VENV)/.installed-test
+
 # The request-body scanner is compiled at install (Cython, a C compiler).
-install: $(BIN)/python
+$(RUNTIME): $(SOURCES) | $(BIN)/python
+	bash .ci/ensure-compiler $(BIN)/python
+	$(BIN)/pip install --quiet -e .
+	touch $@
+
+# The test extras include the runtime.
+$(TESTING): $(SOURCES) | $(BIN)/python
 	bash .ci/ensure-compiler $(BIN)/python
 	$(BIN)/pip install --quiet -e ".[test]"
+	touch $@ $(RUNTIME)
 
-serve: install
+install: $(TESTING)
+
+# The service's runtime dependencies only (no test tools), installed once.
+serve: $(RUNTIME)
 	$(BIN)/sluice serve
 
 # pytest exits 5 when it collected no test: that is a failure here, not a pass.

@@ -1,4 +1,4 @@
-# gunicorn configuration for containers: `gunicorn -c deploy/gunicorn.conf.py 'service.api:create_app()'`.
+# gunicorn configuration for containers: `gunicorn -c deploy/gunicorn.conf.py 'service.serving:asgi_app()'`.
 # The values are the same embedded defaults `sluice serve` uses.
 import os
 

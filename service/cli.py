@@ -22,9 +22,9 @@ class _Server(BaseApplication):
                 self.cfg.set(key, value)
 
     def load(self):
-        from .api import create_app
+        from .serving import asgi_app
 
-        return create_app()
+        return asgi_app()
 
 
 def _settings_or_exit():

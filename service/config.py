@@ -60,6 +60,48 @@ def parse_api_keys(text: str, source: str = "SLUICE_API_KEYS") -> tuple[ApiKey, 
     return tuple(keys)
 
 
+#: The per-tenant limit when API keys are configured and SLUICE_RATE_LIMIT is not set.
+KEYED_RATE_LIMIT = "600/minute"
+
+
+def parse_tenant_rate_limits(text: str) -> tuple[tuple[str, str], ...]:
+    """Parse ``tenant=limit`` entries separated by spaces or new lines.
+
+    ``limit`` is a rate such as ``100/second`` (several joined by ``;``, e.g.
+    ``20/second;600/minute``) or ``off``. Lines starting with ``#`` are skipped.
+    """
+    entries = []
+    for line in text.splitlines():
+        if line.strip().startswith("#"):
+            continue
+        for entry in line.split():
+            tenant, sep, limit = entry.partition("=")
+            if not sep or not tenant or not _is_rate(limit):
+                raise ValueError(f"SLUICE_TENANT_RATE_LIMITS: {entry!r} is not tenant=limit (e.g. acme=100/second)")
+            entries.append((tenant, limit))
+    return tuple(entries)
+
+
+def _is_rate(text: str) -> bool:
+    from limits import parse_many  # flask-limiter's own parser: what it accepts, nothing else
+
+    if text.lower() == "off":
+        return True
+    try:
+        return bool(parse_many(text))
+    except ValueError:
+        return False
+
+
+def parse_origins(text: str) -> tuple[str, ...]:
+    """``scheme://host[:port]`` origins separated by commas (``*`` allows any origin)."""
+    origins = tuple(o.strip().rstrip("/") for o in text.split(",") if o.strip())
+    for origin in origins:
+        if origin != "*" and ("://" not in origin or origin.count("/") > 2):
+            raise ValueError(f"SLUICE_CORS_ORIGINS: {origin!r} is not an origin such as https://app.example")
+    return origins
+
+
 def _api_keys_from_env() -> tuple[ApiKey, ...]:
     keys = parse_api_keys(os.environ.get("SLUICE_API_KEYS") or "")
     path = os.environ.get("SLUICE_API_KEYS_FILE")
@@ -104,7 +146,15 @@ class Settings:
     max_batch_items: int = 1000  # items in one POST /v1/batch
     time_limit: float = 30.0  # seconds, a synchronous solve (hard: the solving process is killed)
     api_keys: tuple = ()  # of ApiKey
-    rate_limit: str = "600/minute"  # per tenant; "off" disables
+    # "" = none when the service runs open, 600/minute per tenant with keys; "off" = none.
+    rate_limit: str = ""
+    tenant_rate_limits: tuple = ()  # of (tenant, limit): SLUICE_TENANT_RATE_LIMITS
+    cors_origins: tuple = ()  # origins a browser page may call from (SLUICE_CORS_ORIGINS)
+    threads: int = 4  # per worker process, running the app (the probes have two more)
+    body_timeout: float = 10.0  # seconds a body may pause; also the grace before body_min_rate
+    body_min_rate: float = 1024.0  # bytes/s a body must average (408 below it)
+    queue_wait: float = 2.0  # seconds a request may wait for a thread or a solver process (503 past it)
+    gzip_min_bytes: int = 4096  # smaller responses are not compressed
     # Synchronous solves of problems larger than this (arcs, or the kind's size: flow
     # variables, LP nonzeros + columns, assignment pairs) run in a killable solver
     # process under the hard time limit; smaller ones inline (milliseconds).
@@ -147,7 +197,14 @@ class Settings:
             max_batch_items=_int("SLUICE_MAX_BATCH_ITEMS", 1000),
             time_limit=_float("SLUICE_TIME_LIMIT", 30.0),
             api_keys=_api_keys_from_env(),
-            rate_limit=os.environ.get("SLUICE_RATE_LIMIT") or "600/minute",
+            rate_limit=os.environ.get("SLUICE_RATE_LIMIT") or "",
+            tenant_rate_limits=parse_tenant_rate_limits(os.environ.get("SLUICE_TENANT_RATE_LIMITS") or ""),
+            cors_origins=parse_origins(os.environ.get("SLUICE_CORS_ORIGINS") or ""),
+            threads=_int("SLUICE_THREADS", 4),
+            body_timeout=_float("SLUICE_BODY_TIMEOUT", 10.0),
+            body_min_rate=_float("SLUICE_BODY_MIN_RATE", 1024.0),
+            queue_wait=_float("SLUICE_QUEUE_WAIT", 2.0),
+            gzip_min_bytes=_int("SLUICE_GZIP_MIN_BYTES", 4096),
             inline_max_arcs=_int("SLUICE_INLINE_MAX_ARCS", 20_000),
             solver_processes=_int("SLUICE_SOLVER_PROCESSES", 2),
             solver_max_rss_mb=_float("SLUICE_SOLVER_MAX_RSS_MB", 1024.0),

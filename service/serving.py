@@ -1,9 +1,11 @@
 """The embedded gunicorn defaults used by ``sluice serve`` (and by deploy/gunicorn.conf.py).
 
-gthread workers: each worker process runs a few threads, so a slow or stalled client
-holds one thread, not the whole worker. One worker per core: solves are CPU-bound.
+gunicorn's asyncio worker receives every request whole before a thread runs the app
+(:mod:`service.intake`): a slow or stalled client holds a socket, never a thread, and
+its body gets a deadline (408). One worker per core: solves are CPU-bound. Each worker
+runs the Flask app on ``SLUICE_THREADS`` threads (default 4) plus two for the probes.
 Large solves run in killable solver processes (see :mod:`service.api.bounded`), so a
-worker thread never waits past the synchronous time limit.
+thread never waits past the synchronous time limit.
 """
 
 from __future__ import annotations
@@ -33,8 +35,11 @@ def gunicorn_defaults(host: str = "127.0.0.1", port: int = 8000, workers: int | 
     return {
         "bind": bind if len(bind) > 1 else bind[0],
         "workers": workers or default_workers(),
-        "worker_class": "gthread",
-        "threads": 4,
+        # The app's threads belong to service.intake; the asyncio worker has none.
+        "worker_class": "asgi",
+        "threads": 1,
+        # Without lifespan events nothing waits on start-up; the app needs none.
+        "asgi_lifespan": "off",
         # A worker that stops heart-beating for this long is replaced; solves run on
         # worker threads (or in solver processes) while the main thread keeps beating,
         # so this only catches truly stuck workers. Leave room above the solve limit.
@@ -65,6 +70,28 @@ def gunicorn_defaults(host: str = "127.0.0.1", port: int = 8000, workers: int | 
     }
 
 
+def asgi_app():
+    """The app ``sluice serve`` runs: the Flask app behind the buffering front.
+
+    ``gunicorn -c deploy/gunicorn.conf.py 'service.serving:asgi_app()'`` in a container.
+    """
+    from .api import create_app
+    from .config import Settings
+    from .intake import BufferedWSGI, IntakeLimits
+
+    settings = Settings.from_env()
+    limits = IntakeLimits(max_body=settings.max_body_bytes, idle_timeout=settings.body_timeout,
+                          min_rate=settings.body_min_rate, threads=settings.threads,
+                          heavy_slots=max(1, settings.solver_processes), queue_wait=settings.queue_wait)
+    return BufferedWSGI(create_app(settings), limits)
+
+
+def _flask_app(worker):
+    front = getattr(worker, "asgi", None) or getattr(worker, "wsgi", None)
+    app = getattr(front, "app", front)
+    return app if hasattr(app, "extensions") else None
+
+
 def on_starting(server) -> None:
     """Before any worker exists: a clean folder for the metrics of all workers."""
     folder = os.environ.get("PROMETHEUS_MULTIPROC_DIR")
@@ -90,7 +117,7 @@ def post_fork(server, worker) -> None:
 
 def post_worker_init(worker) -> None:
     """The app is loaded in this worker: warm a solver process, start the job dispatchers."""
-    app = worker.wsgi
+    app = _flask_app(worker)
     solver = app.extensions.get("sluice.solver")
     if solver is not None:
         solver.pool.warm(1)
@@ -111,14 +138,14 @@ def post_request(worker, req, environ, resp) -> None:
 
 def worker_exit(server, worker) -> None:
     """A worker leaves (SIGTERM, max requests): hand its running jobs back to the queue."""
-    app = getattr(worker, "wsgi", None)
-    jobs = app.extensions.get("sluice.jobs") if app is not None and hasattr(app, "extensions") else None
+    app = _flask_app(worker)
+    jobs = app.extensions.get("sluice.jobs") if app is not None else None
     if jobs is not None:
         try:
             jobs.release()
         except Exception as exc:  # noqa: BLE001 - the lease takes the jobs back anyway
             server.log.warning("sluice: could not release jobs: %s", exc)
-    solver = app.extensions.get("sluice.solver") if app is not None and hasattr(app, "extensions") else None
+    solver = app.extensions.get("sluice.solver") if app is not None else None
     if solver is not None:
         solver.pool.close()
 
@@ -152,3 +179,6 @@ def when_ready(server) -> None:
     server.log.info("sluice: ready; data dir %s, redis %s, synchronous time limit %g s, job time limit %g s",
                     settings.data_dir, "configured" if settings.redis_url else "not configured",
                     settings.time_limit, settings.job_time_limit)
+    server.log.info("sluice: %d threads a worker; a request body may pause %g s and must average %g bytes/s "
+                    "(408 otherwise); %g s of waiting for a thread or solver process before a 503",
+                    settings.threads, settings.body_timeout, settings.body_min_rate, settings.queue_wait)

@@ -10,6 +10,7 @@ COMMIT, while the ~5 MB blob spills pages into the write-ahead log.
 
 from __future__ import annotations
 
+import dataclasses
 import os
 import signal
 import sys
@@ -29,10 +30,17 @@ def big_network(seed: int, arcs: int = 150_000):
     return build_network(read_arcs(columns), read_nodes(None).ids)
 
 
+def variant(network, n: int):
+    """Another content for each write (identical content would keep its version): the
+    first capacity names the process and the write."""
+    capacity = network.capacity.copy()
+    capacity[0] = 1_000_000 * (os.getpid() % 1000) + n
+    return dataclasses.replace(network, capacity=capacity)
+
+
 def main() -> None:
     store = open_store(**orjson.loads(sys.argv[1]))
     networks = [big_network(s) for s in range(2)]
-    digests = [network_digest(n) for n in networks]
     kill_write, kill_step = (int(sys.argv[2]), int(sys.argv[3])) if len(sys.argv) > 3 else (None, None)
     n = 0
     while True:
@@ -49,8 +57,8 @@ def main() -> None:
 
             store.backend._conn().set_progress_handler(progress, 1)
         if n % 2:
-            net = networks[n % 4 // 2]
-            store.put_network("public", f"crash-{n % 3}", net, digests[n % 4 // 2])
+            net = variant(networks[n % 4 // 2], n)
+            store.put_network("public", f"crash-{n % 3}", net, network_digest(net))
         else:
             value = orjson.dumps({"n": n, "payload": "x" * 2_000_000})
             store.put_result("public", f"sha256:{n % 7:064x}", value, body_key=f"body-{n}")

@@ -95,14 +95,14 @@ def test_grace_period_covers_gunicorn_graceful_timeout(monkeypatch):
     config = find("ConfigMap", "sluice-config")["data"]
     monkeypatch.setenv("SLUICE_TIME_LIMIT", config["SLUICE_TIME_LIMIT"])
     settings = runpy.run_path(str(DEPLOY / "gunicorn.conf.py"))
-    assert settings["bind"] == "0.0.0.0:8000" and settings["worker_class"] == "gthread"
+    assert settings["bind"] == "0.0.0.0:8000" and settings["worker_class"] == "asgi"
     grace = find("Deployment", "sluice-api")["spec"]["template"]["spec"]["terminationGracePeriodSeconds"]
     assert grace > settings["graceful_timeout"]
 
 
 def test_container_file_runs_the_committed_config():
     text = (DEPLOY / "Containerfile").read_text()
-    assert "deploy/gunicorn.conf.py" in text and "service.api:create_app()" in text
+    assert "deploy/gunicorn.conf.py" in text and "service.serving:asgi_app()" in text
     api = container(find("Deployment", "sluice-api"))
     assert api["command"][:3] == ["gunicorn", "-c", "deploy/gunicorn.conf.py"]
     mounts = {m["mountPath"] for m in api["volumeMounts"]}

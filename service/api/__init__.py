@@ -8,10 +8,12 @@ from dataclasses import dataclass
 from flask import Flask, request
 
 from ..config import Settings
-from ..errors import FieldError, ProblemTooLarge
+from ..errors import FieldError, ProblemTooLarge, Unavailable
+from ..intake import PROBE_PATHS, QUEUED, SHED
 from ..kinds import Limits
-from . import auth, bounded, cache, extras, jobs, metrics, networks, ops, problems, ratelimit, requestlog, solutions, solve
-from .jsonio import OrjsonProvider
+from . import (auth, bounded, cache, cors, encoding, extras, jobs, metrics, networks, ops, problems, ratelimit,
+               requestlog, solutions, solve)
+from .jsonio import OrjsonProvider, content_coding
 
 log = logging.getLogger("sluice")
 
@@ -30,6 +32,23 @@ def _enforce_body_limit():
     limit = request.max_content_length
     if request.content_length is not None and limit is not None and request.content_length > limit:
         raise ProblemTooLarge(FieldError("", f"the body has {request.content_length} bytes; the limit is {limit}"))
+    if request.content_length or request.headers.get("Transfer-Encoding"):
+        content_coding()  # an unknown Content-Encoding is a 415 whatever the endpoint
+
+
+def _shed_late(queue_wait: float):
+    def shed():
+        # service.intake says how long the request waited for a thread (past the
+        # admission wait it would only add to the queue's length), or that it found
+        # every slot for large bodies busy: either way it is refused, undecoded.
+        if request.environ.get(SHED):
+            raise Unavailable(f"the service is overloaded: every slot for large problems stayed busy for "
+                              f"{queue_wait:g} s; retry, or submit a job", retry_after=bounded.retry_after(queue_wait))
+        waited = request.environ.get(QUEUED, 0.0)
+        if waited > queue_wait and request.path not in PROBE_PATHS:
+            raise Unavailable(f"the service is overloaded: this request waited {waited:.1f} s for a thread; retry",
+                              retry_after=bounded.retry_after(queue_wait))
+    return shed
 
 
 def create_app(config: Settings | dict | None = None) -> Flask:
@@ -51,12 +70,16 @@ def create_app(config: Settings | dict | None = None) -> Flask:
                     max_commodities=settings.max_commodities, max_batch_items=settings.max_batch_items)
     problems.init_app(app)
     # Order matters: request id and clock first (so every answer is counted and logged),
-    # then authentication (the tenant), then the rate limit (per tenant), then the body limit.
+    # then shedding, then CORS preflights (sent without credentials), then authentication
+    # (the tenant), then the rate limit (per tenant), then the body limit.
     requestlog.init_app(app)
     metrics.init_app(app, settings)
+    app.before_request(_shed_late(settings.queue_wait))
+    cors.init_app(app, settings.cors_origins)
     auth.init_app(app, settings.api_keys)
     ratelimit.init_app(app, settings, keyed=bool(settings.api_keys))
     app.before_request(_enforce_body_limit)
+    encoding.init_app(app, settings.gzip_min_bytes)
     app.register_blueprint(ops.bp)
     app.register_blueprint(solve.bp)
     app.register_blueprint(networks.bp)

@@ -13,6 +13,10 @@ to submit a job instead, and a fresh process takes its place. The gunicorn worke
 itself never blocks past the deadline, so it stays healthy, and never holds a large
 solve's memory: a solver process that grew past ``SLUICE_SOLVER_MAX_RSS_MB`` is replaced
 after its solve (see :class:`~service.jobs.runner.SolverPool`).
+
+Admission: a solve that finds every solver process of its worker busy waits at most
+``SLUICE_QUEUE_WAIT`` seconds (default 2) for one, then gets 503 with ``Retry-After``:
+overload is shed, not queued behind solves that may each take the whole time limit.
 """
 
 from __future__ import annotations
@@ -49,6 +53,7 @@ class BoundedSolver:
     def __init__(self, settings: Settings):
         self.inline_max_arcs = settings.inline_max_arcs
         self.job_time_limit = settings.job_time_limit
+        self.queue_wait = settings.queue_wait
         self.pool = SolverPool(settings.solver_processes, max_rss_mb=settings.solver_max_rss_mb)
 
     def solve(self, kind: Kind, problem, limits: Limits) -> dict:
@@ -66,7 +71,7 @@ class BoundedSolver:
         try:
             reply = self.pool.run(("solve", kind.name, for_solver_process(problem), limits),
                                   deadline=time.monotonic() + hard,
-                                  wait=hard)
+                                  wait=min(hard, self.queue_wait))
         except DeadlineExceeded:
             SOLVE_TIMEOUTS.labels(kind.name).inc()
             raise SolveTimeout(
@@ -74,8 +79,8 @@ class BoundedSolver:
                 f"a job (POST /v1/jobs, or this request with the header Prefer: respond-async), whose limit is "
                 f"{self.job_time_limit:g} s") from None
         except TimeoutError:
-            raise Unavailable("every solver process of this worker is busy; retry, or submit a job",
-                              retry_after=max(1, int(seconds))) from None
+            raise Unavailable(f"every solver process of this worker stayed busy for {self.queue_wait:g} s; "
+                              "retry, or submit a job", retry_after=retry_after(self.queue_wait)) from None
         except (ChildLost, Cancelled) as exc:
             log.error("solver process lost: %s", exc)
             raise Unavailable("the solver process stopped unexpectedly; retry", retry_after=1) from None
@@ -87,6 +92,11 @@ class BoundedSolver:
     def _observe(kind: Kind, result: dict, seconds: float) -> None:
         engine = result.get("engine") if isinstance(result, dict) else None
         SOLVE_SECONDS.labels(kind.name, (engine or {}).get("kind", "none")).observe(seconds)
+
+
+def retry_after(wait: float) -> int:
+    """Seconds a shed request is told to wait: about as long as it waited, at least 1."""
+    return max(1, round(wait))
 
 
 def init_app(app: Flask, settings: Settings) -> BoundedSolver:

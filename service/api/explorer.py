@@ -2,8 +2,9 @@
 
 ``GET /`` serves ``service/static/explorer.html`` (plain HTML with a little
 JavaScript, no build step); ``GET /explorer/{name}`` its script and style sheet.
-``GET /v1/scenarios`` lists the invented example files of ``service/scenarios/`` and
-``GET /v1/scenarios/{name}`` returns one of them.
+``GET /v1/scenarios`` lists the invented example files declared in :data:`EXAMPLES`
+and ``GET /v1/scenarios/{name}`` returns one of them; other files a user writes into
+``service/scenarios/`` are not served.
 
 A scenario's kind comes from its file name: the stem's first ``-``-separated word
 that names a kind (``depots-maxflow-columns`` is a max-flow request); its endpoint is
@@ -43,6 +44,14 @@ class ScenarioListSchema(Schema):
     scenarios = fields.List(fields.Nested(ScenarioSchema))
 
 
+#: The example files served (a file in service/scenarios/ not named here is not).
+EXAMPLES = (
+    "batch-depots.json", "depots-lp-matrix.json", "depots-lp.json", "depots-maxflow-columns.json",
+    "depots-maxflow.dimacs", "depots-maxflow.json", "depots-mincostflow.json", "depots-multicommodity.json",
+    "vans-assignment.json", "verify-depots-maxflow.json", "verify-depots-mincostflow.json",
+)
+
+
 def _folder():
     return resources.files("service").joinpath("scenarios")
 
@@ -62,10 +71,10 @@ def _describe(name: str, suffix: str) -> dict:
 
 
 def scenario_files() -> dict:
-    """name -> (file, suffix) of every scenario file: a JSON file is named by its stem,
+    """name -> (file, suffix) of every declared example: a JSON file is named by its stem,
     a DIMACS file by its whole file name (``depots-maxflow.dimacs``)."""
     out = {}
-    for entry in sorted(_folder().iterdir(), key=lambda e: e.name):
+    for entry in sorted((_folder().joinpath(name) for name in EXAMPLES), key=lambda e: e.name):
         if entry.name.endswith(".json"):
             out[entry.name[: -len(".json")]] = (entry, ".json")
         elif entry.name.endswith(".dimacs"):

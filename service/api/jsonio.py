@@ -5,6 +5,7 @@ from __future__ import annotations
 import gc
 import queue
 import threading
+import zlib
 from contextlib import contextmanager
 
 import orjson
@@ -12,7 +13,8 @@ from blake3 import blake3
 from flask import Response, current_app, g, has_request_context, request
 from flask.json.provider import JSONProvider
 
-from ..errors import BadRequest, UnsupportedMediaType
+from ..errors import BadRequest, FieldError, ProblemTooLarge, UnsupportedMediaType
+from ..intake import BODY_FINGERPRINT, BODY_STEPS, HASH_FROM
 from .fastarcs import decode_arcs_body
 from .fastjson import decode_columnar, looks_columnar
 
@@ -57,7 +59,7 @@ def no_gc():
 
 
 #: Bodies from this size on are hashed while they arrive (when the cache asks for the hash).
-HASH_WHILE_READING = 2 << 20
+HASH_WHILE_READING = HASH_FROM
 _READ_STEP = 1 << 20
 
 
@@ -102,7 +104,40 @@ def _received(hashing: bool) -> _ReceivedBody:
     return body
 
 
+#: Content codings a request body may use (RFC 9110 section 8.4); x-gzip is gzip.
+GZIP_CODINGS = frozenset({"gzip", "x-gzip"})
+
+
+def content_coding() -> str:
+    """``identity`` or ``gzip``: the request body's Content-Encoding.
+
+    Raises
+    ------
+    UnsupportedMediaType
+        Any other coding, or more than one (a 415 that lists what is accepted).
+    """
+    codings = [c.strip().lower() for c in request.headers.get("Content-Encoding", "").split(",") if c.strip()]
+    codings = [c for c in codings if c != "identity"]
+    if not codings:
+        return "identity"
+    if len(codings) == 1 and codings[0] in GZIP_CODINGS:
+        return "gzip"
+    raise UnsupportedMediaType(f"the body's Content-Encoding {', '.join(codings)!r} is not supported; "
+                               "send it as gzip or uncompressed", headers={"Accept-Encoding": "gzip"})
+
+
 def _receive(hashing: bool) -> _ReceivedBody:
+    coding = content_coding()
+    hashing = hashing and coding == "identity"  # a gzip body is hashed once decoded
+    steps = request.environ.get(BODY_STEPS)
+    if steps is not None:  # received whole by the worker's front (service.intake)
+        body = _ReceivedBody(steps, request.environ.get(BODY_FINGERPRINT) if hashing else None)
+    else:
+        body = _read_input(hashing)
+    return _ReceivedBody(_gunzip(body.steps)) if coding == "gzip" else body
+
+
+def _read_input(hashing: bool) -> _ReceivedBody:
     length = request.content_length
     if length is None:  # chunked: werkzeug enforces MAX_CONTENT_LENGTH while reading
         return _ReceivedBody([request.get_data(cache=False)])
@@ -117,6 +152,30 @@ def _receive(hashing: bool) -> _ReceivedBody:
     if got < length:
         raise BadRequest(f"the body ended after {got} of {length} bytes")
     return _ReceivedBody(steps, fingerprint)
+
+
+def _gunzip(steps: list[bytes]) -> list[bytes]:
+    """The decoded body, inflated step by step so that it never outgrows the body limit:
+    a small body that inflates past it is refused as soon as it does (a 413)."""
+    limit = request.max_content_length
+    inflate, out, size = zlib.decompressobj(wbits=16 + zlib.MAX_WBITS), [], 0
+    try:
+        for data in steps:
+            while data:
+                piece = inflate.decompress(data, _READ_STEP)
+                size += len(piece)
+                if limit is not None and size > limit:
+                    raise ProblemTooLarge(FieldError("", f"the gzip body inflates past the limit of {limit} bytes"))
+                out.append(piece)
+                data = inflate.unconsumed_tail
+        out.append(inflate.flush())
+    except zlib.error as exc:
+        raise BadRequest(f"the body is not valid gzip: {exc}") from None
+    if not inflate.eof:
+        raise BadRequest("the gzip body ended before its end marker")
+    if inflate.unused_data:
+        raise BadRequest("the gzip body has bytes after its end marker")
+    return [piece for piece in out if piece]
 
 
 def _read_steps(stream, length: int, step: int, on_step=None) -> list[bytes]:

@@ -1,8 +1,11 @@
 """Rate limits per tenant with flask-limiter: 429 problem+json with ``Retry-After``.
 
-One budget per tenant across every ``/v1`` route (``SLUICE_RATE_LIMIT``, e.g.
-``600/minute``; ``off`` disables). When the service runs open there are no tenants to
-tell apart, so the budget is per client address. Counters live in Redis when
+One budget per tenant across every ``/v1`` route. ``SLUICE_RATE_LIMIT`` (e.g.
+``600/minute``, ``20/second;600/minute``, or ``off``) sets it for every tenant; unset, it
+is 600/minute per tenant when API keys are configured and none when the service runs
+open (its one anonymous tenant is its only client). ``SLUICE_TENANT_RATE_LIMITS``
+gives single tenants their own: ``acme=100/second bulk=off``. When the service runs
+open and a limit is set, the budget is per client address. Counters live in Redis when
 ``SLUICE_REDIS_URL`` is set (shared by every worker and host) and in each worker's
 memory otherwise (so the embedded limit is per worker process). If Redis stops
 answering, the limiter falls back to memory rather than failing requests.
@@ -17,7 +20,7 @@ from flask import Flask, request
 from flask_limiter import Limiter, RequestLimit
 from flask_limiter.errors import RateLimitExceeded
 
-from ..config import Settings
+from ..config import KEYED_RATE_LIMIT, Settings
 from .auth import current_tenant
 from .problems import problem_response
 
@@ -35,10 +38,23 @@ def _breach(limit: RequestLimit):
                  "RateLimit-Remaining": "0"})
 
 
+def _is_off(limit: str) -> bool:
+    return limit.strip().lower() in ("off", "0", "none", "")
+
+
 def init_app(app: Flask, settings: Settings, keyed: bool) -> Limiter | None:
     """Attach the limiter (call after authentication so the tenant is known)."""
-    if settings.rate_limit.strip().lower() in ("off", "0", "none", ""):
+    default = settings.rate_limit.strip() or (KEYED_RATE_LIMIT if keyed else "off")
+    own = dict(settings.tenant_rate_limits) if keyed else {}
+    if _is_off(default) and all(map(_is_off, own.values())):
         return None
+
+    def limit() -> str:
+        value = own.get(current_tenant(), default)
+        return "" if _is_off(value) else value  # "" = no limit for this tenant
+
+    def exempt() -> bool:
+        return _exempt() or not limit()
 
     def key() -> str:
         return f"tenant:{current_tenant()}" if keyed else f"addr:{request.remote_addr}"
@@ -49,8 +65,8 @@ def init_app(app: Flask, settings: Settings, keyed: bool) -> Limiter | None:
         storage, options = "memory://", {}
     limiter = Limiter(
         key_func=key,
-        application_limits=[settings.rate_limit],
-        application_limits_exempt_when=_exempt,
+        application_limits=[limit],
+        application_limits_exempt_when=exempt,
         storage_uri=storage,
         storage_options=options,
         strategy="moving-window",

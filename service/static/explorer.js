@@ -25,7 +25,8 @@ function updateCurl() {
   const kind = $("kind").value;
   const body = compactPayload();
   if (!kind || body === null) { $("curl").textContent = "(the payload is not valid JSON yet)"; return; }
-  const auth = $("apikey").value.trim() ? " -H 'Authorization: Bearer $SLUICE_KEY'" : "";
+  // Double quotes: the shell expands $SLUICE_KEY (the key itself is never shown).
+  const auth = $("apikey").value.trim() ? ' -H "Authorization: Bearer $SLUICE_KEY"' : "";
   const base = window.location.origin;
   let text = `curl -s ${base}/v1/${kind} -H 'Content-Type: application/json'${auth} \\\n     -d ${shellQuote(body)}`;
   if (DRAWN.includes(kind)) {
@@ -214,24 +215,31 @@ async function copyCurl() {
   setTimeout(() => { $("copy-curl").textContent = "Copy"; }, 1500);
 }
 
+let scenariosListed = false;  // with API keys the list needs one: it loads once a key works
+
+async function listScenarios() {
+  if (scenariosListed) return;
+  const listed = await fetch("/v1/scenarios", { headers: headers() });
+  if (!listed.ok || scenariosListed) return;
+  scenariosListed = true;
+  for (const s of (await listed.json()).scenarios) {
+    if (!s.endpoint || s.endpoint !== `/v1/${s.kind}` || s.media_type !== "application/json") continue;
+    const option = new Option(`${s.kind}: ${s.title}`, s.name);
+    option.dataset.kind = s.kind;
+    $("scenario").add(option);
+  }
+}
+
 async function start() {
   const spec = await (await fetch("/openapi.json")).json();
   const kinds = Object.values(spec.paths).map((p) => p.post && p.post.operationId)
     .filter((id) => id && id.startsWith("solve_")).map((id) => id.slice(6));
   for (const kind of kinds) $("kind").add(new Option(kind, kind));
-  const listed = await fetch("/v1/scenarios", { headers: headers() });
-  if (listed.ok) {
-    for (const s of (await listed.json()).scenarios) {
-      if (!s.endpoint || s.endpoint !== `/v1/${s.kind}` || s.media_type !== "application/json") continue;
-      const option = new Option(`${s.kind}: ${s.title}`, s.name);
-      option.dataset.kind = s.kind;
-      $("scenario").add(option);
-    }
-  }
+  await listScenarios();
   $("scenario").addEventListener("change", pickScenario);
   $("kind").addEventListener("change", updateCurl);
   $("payload").addEventListener("input", updateCurl);
-  $("apikey").addEventListener("input", updateCurl);
+  $("apikey").addEventListener("input", () => { updateCurl(); listScenarios(); });
   $("solve").addEventListener("click", solve);
   $("copy-curl").addEventListener("click", copyCurl);
   $("tidy").addEventListener("click", () => {

@@ -94,6 +94,11 @@ def next_meta(current: NetworkMeta | None, name: str, digest: str, node_count: i
     return NetworkMeta(name, version, etag, digest, node_count, arc_count, size, created, now)
 
 
+def unchanged(current: NetworkMeta | None, digest: str) -> bool:
+    """Whether a write would store the same content again: it keeps its version and ETag."""
+    return current is not None and current.digest == digest
+
+
 def not_found(name: str) -> NotFound:
     return NotFound(f"no stored network named {name!r}")
 

@@ -34,7 +34,7 @@ from redis.exceptions import RedisError, ResponseError, WatchError
 from redis.retry import Retry
 
 from ..errors import Conflict
-from .base import NetworkMeta, Preconditions, next_meta, not_found
+from .base import NetworkMeta, Preconditions, next_meta, not_found, unchanged
 from .errors import StoreUnavailable
 
 log = logging.getLogger("sluice.store")
@@ -152,6 +152,8 @@ class RedisBackend:
         key = self._key(tenant, "n", name)
 
         def write(pipe, current):
+            if unchanged(current, digest):
+                return current
             meta = next_meta(current, name, digest, node_count, arc_count, len(blob))
             pipe.hset(key, mapping={"meta": orjson.dumps(meta.__dict__), "blob": blob})
             pipe.zadd(self._key(tenant, "ni"), {name: 0})

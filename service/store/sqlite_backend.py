@@ -22,7 +22,7 @@ import time
 from contextlib import contextmanager
 from pathlib import Path
 
-from .base import NetworkMeta, Preconditions, next_meta, not_found
+from .base import NetworkMeta, Preconditions, next_meta, not_found, unchanged
 from .errors import StoreUnavailable
 
 log = logging.getLogger("sluice.store")
@@ -276,6 +276,8 @@ class SqliteBackend:
             with _transaction(conn):
                 current = self._head(conn, tenant, name)
                 pre.check(current, name)
+                if unchanged(current, digest):
+                    return current, False
                 meta = next_meta(current, name, digest, node_count, arc_count, len(blob))
                 conn.execute(
                     "INSERT INTO networks (tenant, name, version, etag, digest, node_count, arc_count, size, "
