@@ -10,12 +10,9 @@ from . import certificates
 from .maxflow_graph import CapacityOverflow, MaxFlowSolution, check_capacity_sums, max_flow_graph
 from .maxflow_lp import LP_TOLERANCE, max_flow_lp
 from .maxflow_wide import max_flow_wide
-from .scaling import binary_scale, common_scale, divide, is_object
+from .scaling import binary_scale, common_scale, is_object, rescale
 
 EngineChoice = Literal["auto", "graph", "lp"]
-
-#: Totals at or beyond this are reported as the nearest double (JSON integers stop at int64).
-_JSON_INT = 2**63
 
 
 def maximum_flow(
@@ -69,7 +66,21 @@ def exact_capacities(capacity: np.ndarray) -> tuple[np.ndarray, int, dict]:
 
 
 def _exact_route(num_nodes, tail, head, capacity, unlimited, source, sink):
-    """Solve on exact integers and certify exactly (Python ints where int64 overflows)."""
+    solution, certificate, _, denominator, scaled = exact_max_flow(num_nodes, tail, head, capacity, unlimited,
+                                                                   source, sink)
+    _report(solution, certificate, denominator, scaled)
+    return solution, certificate
+
+
+def exact_max_flow(num_nodes, tail, head, capacity, unlimited, source, sink):
+    """Solve on exact integers and certify exactly (Python ints where int64 overflows).
+
+    Returns
+    -------
+    (solution, certificate, ints, denominator, scaled)
+        The answer and its certificate in the integers ``ints`` (the capacities times
+        ``denominator``), before any rounding; ``scaled`` names the scaling.
+    """
     ints, denominator, scaled = exact_capacities(capacity)
     if _fits_int64(ints, unlimited):
         solution = max_flow_graph(num_nodes, tail, head, ints, unlimited, source, sink)
@@ -77,8 +88,7 @@ def _exact_route(num_nodes, tail, head, capacity, unlimited, source, sink):
         ints = ints.astype(object)  # the certificate's sums in Python integers too
         solution = max_flow_wide(num_nodes, tail, head, ints, unlimited, source, sink)
     certificate = certify_max_flow(solution, num_nodes, tail, head, ints, unlimited, source, sink)
-    _report(solution, certificate, denominator, scaled)
-    return solution, certificate
+    return solution, certificate, ints, denominator, scaled
 
 
 def _fits_int64(ints: np.ndarray, unlimited) -> bool:
@@ -94,26 +104,14 @@ def _fits_int64(ints: np.ndarray, unlimited) -> bool:
 def _report(solution: MaxFlowSolution, certificate: dict, denominator: int, scaled: dict) -> None:
     """The exact integer answer in the caller's units: divided by the scale (one
     rounding per number), integers kept exact wherever JSON integers hold them."""
-    if denominator == 1:
-        if is_object(solution.flows):
-            solution.flows = solution.flows.astype(np.int64)  # each flow is at most its capacity
-        convert = _json_int
-    else:
-        solution.flows = divide(solution.flows, denominator)
-
-        def convert(x):
-            return divide(x, denominator)
+    solution.flows = rescale(solution.flows, 1, denominator)
     if solution.value is not None:
-        solution.value = convert(solution.value)
+        solution.value = rescale(solution.value, 1, denominator)
     for name in ("flow_value", "cut_capacity"):
         if name in certificate:
-            certificate[name] = convert(certificate[name])
+            certificate[name] = rescale(certificate[name], 1, denominator)
     certificate.update(scaled)
     solution.engine = dict(solution.engine, **scaled)
-
-
-def _json_int(x):
-    return int(x) if abs(x) < _JSON_INT else float(x)
 
 
 def certify_max_flow(solution: MaxFlowSolution, num_nodes, tail, head, capacity, unlimited, source, sink) -> dict:

@@ -195,3 +195,30 @@ def divide(ints, denominator: int):
             return ints / denominator  # both exact as float64: one correctly rounded division
         return np.array([int(x) / denominator for x in ints.tolist()], dtype=np.float64)
     return int(ints) / denominator
+
+
+#: Integers at or beyond this are reported as the nearest double (JSON integers stop at int64).
+JSON_INT = 2**63
+
+
+def rescale(ints, numerator: int = 1, denominator: int = 1):
+    """``ints * numerator / denominator`` in the caller's units, rounded once.
+
+    Integers stay integers when the denominator is 1 and they fit a JSON integer
+    (int64); anything else becomes float64 (arrays or one number).
+    """
+    if isinstance(ints, np.ndarray):
+        if numerator != 1:
+            ints = _times(ints, numerator)
+        if denominator != 1:
+            return divide(ints, denominator)
+        if ints.dtype == object:
+            big = bool(ints.size) and max(abs(int(x)) for x in ints.tolist()) >= JSON_INT
+            return ints.astype(np.float64) if big else ints.astype(np.int64)
+        return ints
+    if isinstance(ints, (float, np.floating)):
+        return float(ints) * numerator / denominator
+    value = int(ints) * numerator
+    if denominator != 1:
+        return value / denominator
+    return value if abs(value) < JSON_INT else float(value)
