@@ -47,7 +47,8 @@ def exact_dot(a: np.ndarray, b: np.ndarray):
         return float(a.astype(np.float64) @ b.astype(np.float64))
     if not a.size:
         return 0
-    if float(np.abs(a).max()) * float(np.abs(b).max()) * a.size < _INT_SAFE:
+    if a.dtype != object and b.dtype != object and \
+            float(np.abs(a).max()) * float(np.abs(b).max()) * a.size < _INT_SAFE:
         return int(a.astype(np.int64) @ b.astype(np.int64))
     return sum(x * y for x, y in zip(a.tolist(), b.tolist()))
 
