@@ -271,3 +271,30 @@ def test_multicommodity_check_measures_each_arc_against_its_own_capacity():
         check_flows(net, com, np.array([[1.1e-6, 1.1e-6]]), np.array([1.1e-6]), prices, lp)
     with pytest.raises(SelfCheckFailed, match="conserved"):
         check_flows(net, com, np.array([[1e-6, 0.5e-6]]), com.demands, prices, lp)
+
+
+# ---------------------------------------------------------------------------- assignment
+
+
+def test_assignment_with_costs_near_2_62_is_exact(client):
+    # Worked by hand: a-x + b-y = 2B - 7 beats a-y + b-x = 2B - 4 (B = 2**62). Before,
+    # these went to GLOP in doubles, where both totals are the same number.
+    r = client.post("/v1/assignment", json={"agents": ["a", "b"], "tasks": ["x", "y"],
+                                            "costs": [[BIG, BIG - 1], [BIG - 3, BIG - 7]]})
+    doc = r.get_json()
+    assert r.status_code == 200 and doc["total_cost"] == 2 * BIG - 7
+    assert [(p["agent"], p["task"]) for p in doc["assignments"]] == [("a", "x"), ("b", "y")]
+    assert doc["certificate"]["gap"] == 0 and doc["certificate"]["tolerance"] == 0
+    # By pairs: y is b's only task, so a takes x: B + (B - 1).
+    r = client.post("/v1/assignment", json={"agents": ["a", "b"], "tasks": ["x", "y"], "pairs": [
+        {"agent": "a", "task": "x", "cost": BIG}, {"agent": "b", "task": "y", "cost": BIG - 1},
+        {"agent": "a", "task": "y", "cost": BIG - 3}]})
+    assert r.status_code == 200 and r.get_json()["total_cost"] == 2 * BIG - 1
+
+
+def test_assignment_costs_beyond_the_exact_range_are_a_422_naming_the_costs(client):
+    r = client.post("/v1/assignment", json={"agents": ["a", "b"], "tasks": ["x", "y"],
+                                            "costs": [[1e-9, 1e12], [1e12, 0.5]]})
+    assert r.status_code == 422
+    error = r.get_json()["errors"][0]
+    assert error["pointer"] == "/costs" and "pair 1" in error["detail"] and "at most" in error["detail"]

@@ -235,7 +235,14 @@ def _divide_common_factors(net: _Net):
 
 
 def _out_of_range(exc: GraphRangeError, n: int, dq: int, dc: int, gq: int = 1, gc: int = 1) -> InputError:
-    """A 422 naming the field and the limit in the caller's units."""
+    """A 422 naming the field and the limit in the caller's units; ``culprit`` keeps
+    the field and arc for callers that know the request's pointers (assignment)."""
+    error = _range_error(exc, n, dq, dc, gq, gc)
+    error.culprit = (exc.field, exc.index)
+    return error
+
+
+def _range_error(exc: GraphRangeError, n: int, dq: int, dc: int, gq: int, gc: int) -> InputError:
     exact = "integers and decimals of at most 9 places are solved exactly or refused, never approximated"
     if exc.field == "cost":
         limit = exc.limit * gc / 10**dc
