@@ -13,7 +13,7 @@ import scipy.sparse as sp
 from hypothesis import given, settings, strategies as st
 from scipy.sparse.csgraph import maximum_flow as scipy_maximum_flow
 
-from service.errors import InputError, SelfCheckFailed
+from service.errors import SelfCheckFailed
 from service.solvers import maximum_flow
 from service.solvers.certificates import check_max_flow
 from tests.checkers import assert_cut, assert_exact_max_flow, assert_integral, assert_max_flow

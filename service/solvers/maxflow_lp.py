@@ -10,12 +10,12 @@ from __future__ import annotations
 
 import numpy as np
 import scipy.sparse as sp
-from scipy.sparse.csgraph import breadth_first_order
 
-from .lp import incidence_matrix, solve_lp
-from .maxflow_graph import MaxFlowSolution, graph_engine, unlimited_path
 from ..errors import FieldError, InputError, SelfCheckFailed, SolverFailure, SolveTimeout
 from . import certificates
+from .lp import incidence_matrix, solve_lp
+from .maxflow_graph import MaxFlowSolution, graph_engine, unlimited_path
+from .potentials import residual_reach
 
 LP_TOLERANCE = 1e-6
 
@@ -60,7 +60,9 @@ def max_flow_lp(num_nodes, tail, head, capacity, unlimited, source, sink, *, tim
             continue
         flows = np.clip(lp.x[:m] * scale, 0.0, upper)
         value = float(lp.x[m]) * scale
-        source_side = residual_reachable(num_nodes, tail, head, flows, upper, source, value)
+        # Open residual arcs: further than LP_TOLERANCE of their own capacity from a bound.
+        slack = LP_TOLERANCE * np.where(np.isfinite(upper), upper, abs(value))
+        source_side = residual_reach(num_nodes, tail, head, flows, upper, None, source, slack)
         solution = MaxFlowSolution("optimal", value, flows, source_side, dict(lp.engine, tolerance=LP_TOLERANCE),
                                    tolerance=LP_TOLERANCE)
         # GLOP's tolerances are absolute, so a scaling can lose small capacities or
@@ -95,23 +97,3 @@ def _scales(cap: np.ndarray) -> list[float]:
     low, high = float(positive.min()), float(positive.max())
     scales = [max(1.0, float(np.sqrt(low) * np.sqrt(high))), max(1.0, high), 1.0]
     return list(dict.fromkeys(scales))
-
-
-def residual_reachable(num_nodes, tail, head, flows, upper, source, value) -> np.ndarray:
-    """Nodes reachable from ``source`` in the residual network (boolean mask).
-
-    An arc has residual room when it lies further than ``LP_TOLERANCE`` times its own
-    capacity from its bound (an unlimited arc: always forward; backward beyond that
-    fraction of the flow value).
-    """
-    size = np.where(np.isfinite(upper), upper, abs(value))
-    slack = LP_TOLERANCE * size
-    forward = flows < upper - slack
-    backward = flows > slack
-    rows = np.concatenate([tail[forward], head[backward]])
-    cols = np.concatenate([head[forward], tail[backward]])
-    graph = sp.csr_matrix((np.ones(rows.size), (rows, cols)), shape=(num_nodes, num_nodes))
-    reached = breadth_first_order(graph, source, directed=True, return_predecessors=False)
-    mask = np.zeros(num_nodes, dtype=bool)
-    mask[reached] = True
-    return mask

@@ -17,11 +17,9 @@ in Python integers.
 from __future__ import annotations
 
 import numpy as np
-import scipy.sparse as sp
-from scipy.sparse.csgraph import breadth_first_order
 
-from ..errors import SolverFailure
-from .maxflow_graph import MaxFlowSolution, graph_engine, ortools_max_flow, unlimited_path
+from .maxflow_graph import MaxFlowSolution, graph_engine, run_max_flow, unlimited_path
+from .potentials import residual_reach
 
 #: Every capacity handed to OR-Tools, and every flow value it can reach, stays below this.
 _LIMIT = 2**62
@@ -54,7 +52,7 @@ def max_flow_wide(num_nodes, tail, head, capacity, unlimited, source, sink) -> M
         flows = flows << drop
         flows = flows + _augment(num_nodes, tail, head, cap >> shift, flows, m * ((1 << drop) - 1), source, sink)
         phases += 1
-    side = _residual_side(num_nodes, tail, head, flows, cap, source)
+    side = residual_reach(num_nodes, tail, head, flows, cap, None, source)
     balance = np.zeros(num_nodes, dtype=object)
     np.subtract.at(balance, tail, flows)
     np.add.at(balance, head, flows)
@@ -63,13 +61,7 @@ def max_flow_wide(num_nodes, tail, head, capacity, unlimited, source, sink) -> M
 
 
 def _phase(num_nodes, tail, head, cap: np.ndarray, source, sink) -> np.ndarray:
-    solver = ortools_max_flow.SimpleMaxFlow()
-    if num_nodes:
-        solver.add_arc_with_capacity(num_nodes - 1, num_nodes - 1, 0)
-    arcs = solver.add_arcs_with_capacity(tail, head, cap)
-    status = solver.solve(source, sink)
-    if status != solver.OPTIMAL:
-        raise SolverFailure(f"OR-Tools max-flow returned status {status} on a phase of the exact scaling")
+    solver, arcs = run_max_flow(num_nodes, tail, head, cap, source, sink)
     return np.asarray(solver.flows(arcs), dtype=np.int64)
 
 
@@ -84,15 +76,3 @@ def _augment(num_nodes, tail, head, cap, flows, bound: int, source, sink) -> np.
     change = _phase(num_nodes, both_tail, both_head, np.concatenate([forward, backward]), source, sink)
     m = tail.size
     return (change[:m] - change[m:]).astype(object)
-
-
-def _residual_side(num_nodes, tail, head, flows, cap, source) -> np.ndarray:
-    """Nodes reachable from the source in the residual network (exact comparisons)."""
-    forward = flows < cap
-    backward = flows > 0
-    rows = np.concatenate([tail[forward], head[backward]])
-    cols = np.concatenate([head[forward], tail[backward]])
-    graph = sp.csr_matrix((np.ones(rows.size, dtype=np.int8), (rows, cols)), shape=(num_nodes, num_nodes))
-    mask = np.zeros(num_nodes, dtype=bool)
-    mask[breadth_first_order(graph, source, directed=True, return_predecessors=False)] = True
-    return mask

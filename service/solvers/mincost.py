@@ -38,8 +38,6 @@ from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
-import scipy.sparse as sp
-from scipy.sparse.csgraph import breadth_first_order
 
 from ..errors import FieldError, InputError, SolverFailure, SolveTimeout
 from . import mincost_checks as checks
@@ -56,7 +54,7 @@ from .mincost_graph import (
     solve_balanced,
     solver_bounds,
 )
-from .potentials import node_potentials, residual_masks
+from .potentials import node_potentials, residual_reach
 from .scaling import MAX_DECIMALS, common_scale, is_object, rescale
 
 #: Relative slack of a flow rounded once from an exact answer (conservation over many arcs).
@@ -388,7 +386,7 @@ def _solve_max_flow(net: _Net):
     aug.sup[s], aug.sup[t] = shipped, -shipped
     certificate = checks.check_min_cost_flow(aug.n, aug.tail, aug.head, aug.cap, aug.unl, aug.low, aug.cost,
                                              aug.sup, flows, p)
-    side = _residual_reach(aug.n, aug.tail, aug.head, flows_t, bounds.caps, bounds.stand_in, s)
+    side = residual_reach(aug.n, aug.tail, aug.head, flows_t, bounds.caps, bounds.stand_in, s)
     certificate["shipped_bound"] = checks.check_shipped_cut(aug.tail, aug.head, aug.cap, aug.unl, aug.low, side,
                                                             s, t, shipped)
     return _max_flow_solution(net, aug, src, dst, flows, p, shipped, certificate), certificate
@@ -459,16 +457,6 @@ def _lower_bounds_infeasible(net, side):
         solution.infeasibility["side"] = "demand"
         return solution, certificate
     return _infeasible(net, side[:net.n].copy(), optional=True, demand_room=demand_room)
-
-
-def _residual_reach(num_nodes, tail, head, flows, cap, unl, start, slack=0):
-    forward, backward = residual_masks(flows, cap, unl, slack)
-    rows = np.concatenate([tail[forward], head[backward]])
-    cols = np.concatenate([head[forward], tail[backward]])
-    graph = sp.csr_matrix((np.ones(rows.size, dtype=np.int8), (rows, cols)), shape=(num_nodes, num_nodes))
-    mask = np.zeros(num_nodes, dtype=bool)
-    mask[breadth_first_order(graph, start, directed=True, return_predecessors=False)] = True
-    return mask
 
 
 def _report(solution: MinCostSolution, certificate: dict, quantities: tuple[int, int], costs: tuple[int, int]):
@@ -672,7 +660,7 @@ def _lp_max_flow(net: _Net, time_limit):
     flows, p, certificate = _lp_certified(aug, lp, low, upper)
     room = upper - low
     slack = LP_TOLERANCE * np.where(np.isfinite(room), room, abs(shipped))
-    side = _residual_reach(aug.n, aug.tail, aug.head, flows - low, room, aug.unl, s, slack)
+    side = residual_reach(aug.n, aug.tail, aug.head, flows - low, room, aug.unl, s, slack)
     through = throughput(aug.n, aug.tail, aug.head, flows)
     certificate["shipped_bound"] = checks.check_shipped_cut(aug.tail, aug.head, aug.cap, aug.unl, aug.low, side,
                                                             s, t, shipped, LP_TOLERANCE, through)
