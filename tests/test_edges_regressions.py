@@ -298,3 +298,16 @@ def test_assignment_costs_beyond_the_exact_range_are_a_422_naming_the_costs(clie
     assert r.status_code == 422
     error = r.get_json()["errors"][0]
     assert error["pointer"] == "/costs" and "pair 1" in error["detail"] and "at most" in error["detail"]
+
+
+def test_lp_route_proofs_are_exact_beside_a_huge_lane(client):
+    # Costs of 1/3 are not decimals: the LP engine solves, but its proofs come from an
+    # exact max-flow and exact sums, so the huge lane cannot loosen them.
+    doc = mincost(client, [{"id": "s", "supply": 5}, {"id": "t", "supply": -5}],
+                  arcs(("s", "a", 3), ("a", "t", BIG), cost=[1 / 3, 1]))
+    assert doc["status"] == "infeasible" and doc["engine"]["kind"] == "lp"
+    assert doc["infeasibility"]["net_supply"] == 5 and doc["infeasibility"]["outgoing_capacity"] == 3
+    doc = mincost(client, [{"id": "s", "supply": 1}, {"id": "t", "supply": -1}],
+                  [{"from": "s", "to": "t", "capacity": BIG, "cost": 1 / 3},
+                   {"from": "a", "to": "b", "cost": -1 / 3}, {"from": "b", "to": "a", "cost": -1 / 3}])
+    assert doc["status"] == "unbounded" and doc["negative_cycle"]["cost"] == -2 / 3

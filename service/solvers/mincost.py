@@ -43,7 +43,7 @@ from ..errors import FieldError, InputError, SolverFailure, SolveTimeout
 from . import mincost_checks as checks
 from .certificates import throughput
 from .front import exact_max_flow
-from .lp import incidence_matrix, solve_lp
+from .lp import beyond_range, incidence_matrix, solve_lp
 from .maxflow_lp import LP_TOLERANCE
 from .mincost_graph import (
     GraphRangeError,
@@ -335,6 +335,8 @@ def _unbounded(net: _Net, cycle: np.ndarray, feasible_flow: np.ndarray | None, r
     if feasible_flow is not None:
         certificate.update(checks.check_feasible_flow(net.n, net.tail, net.head, net.cap, net.unl, net.low,
                                                       net.sup, feasible_flow, relative))
+        if relative:  # a flow rounded once from an exact one: checked to that rounding
+            certificate["relative_tolerance"] = relative
     solution = MinCostSolution("unbounded", mincost_engine(), negative_cycle=cycle)
     solution.extra["cycle_cost"] = total
     return solution, certificate
@@ -508,17 +510,8 @@ def _lp_route(net: _Net, shortage: str, time_limit):
             return _lp_reject(net, time_limit)
         return _lp_max_flow(net, time_limit)
     except SolverFailure as exc:  # a failed certificate too: GLOP could not reach the tolerance here
-        raise InputError(FieldError("/arcs", f"the LP engine found no answer it could certify to a relative "
-                                             f"tolerance of {LP_TOLERANCE:g} ({exc.detail}); {_lp_range(net)}"))
-
-
-def _lp_range(net: _Net) -> str:
-    def span(a):
-        nonzero = np.abs(a[np.isfinite(a) & (a != 0)])
-        return f"{nonzero.min():g} to {nonzero.max():g}" if nonzero.size else "0"
-    return (f"the magnitudes here span {span(net.cap)} (capacities), {span(net.cost)} (costs) and "
-            f"{span(net.sup)} (supplies); GLOP works in doubles with absolute tolerances, so keep each within "
-            "about 1e6 of the others, or give decimals of at most 9 places (solved exactly)")
+        capacities = net.cap if net.unl is None else net.cap[~net.unl]
+        raise beyond_range(exc, "/arcs", capacities=capacities, costs=net.cost, supplies=net.sup) from None
 
 
 def _lp_engine():

@@ -20,11 +20,11 @@ OR-Tools pitfalls handled here:
 
 from __future__ import annotations
 
+from dataclasses import dataclass
+
 import numpy as np
 from ortools.graph.python import max_flow as ortools_max_flow
 from ortools.graph.python import min_cost_flow as ortools_min_cost_flow
-
-from dataclasses import dataclass
 
 from ..errors import SolverFailure
 from .maxflow_graph import graph_engine
@@ -96,11 +96,18 @@ def solver_bounds(num_nodes: int, tail: np.ndarray, head: np.ndarray, capacity: 
         raise GraphRangeError("the supplies sum to more than 2**61 in magnitude", "supply", limit=2**61)
     positive = int(supply[supply > 0].sum())
     finite = np.where(limited, capacity, 0)
-    big = int(finite.sum()) + positive + 1
-    if big < _STAND_IN_ROOM and not is_object(finite):
-        caps = finite.astype(np.int64) if unlimited is None else np.where(limited, finite, big).astype(np.int64)
-        if _node_sums_fit(num_nodes, tail, head, caps, supply):
-            return SolverBounds(caps, big, None, unlimited)
+    if not is_object(finite):
+        if unlimited is None:
+            # No stand-in on any arc; only a max-flow's return arc may take one, and
+            # no flow exceeds the supplies.
+            caps = finite.astype(np.int64, copy=False)
+            if _node_sums_fit(num_nodes, tail, head, caps, supply):
+                return SolverBounds(caps, positive + 1, None, None)
+        elif float(finite.astype(np.float64).sum()) + positive < _STAND_IN_ROOM / 2:  # no int64 wrap below
+            big = int(finite.sum()) + positive + 1
+            caps = np.where(limited, finite, big).astype(np.int64)
+            if _node_sums_fit(num_nodes, tail, head, caps, supply):
+                return SolverBounds(caps, big, None, unlimited)
     return _capped_bounds(num_nodes, tail, head, finite, limited, positive)
 
 

@@ -4,7 +4,7 @@ A JSON number with a fraction arrives as a float64 (on both decode paths: orjson
 the compiled scanner convert with correct rounding). The decimal the client wrote is
 recovered as the *shortest decimal that round-trips to that float64* (what Python's
 ``repr`` prints): it equals the written text whenever that text has at most 15
-significant digits, and is never more than half an ulp away otherwise. A number
+significant digits, and is within one ulp of it otherwise. A number
 without a fraction is its exact binary value (JSON integers arrive as int64 anyway).
 
 When every value of a problem has at most ``MAX_DECIMALS`` places in that sense,
