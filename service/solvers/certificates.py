@@ -46,15 +46,17 @@ def throughput(num_nodes: int, tail: np.ndarray, head: np.ndarray, flows: np.nda
     return np.maximum(np.bincount(head, f, num_nodes), np.bincount(tail, f, num_nodes))
 
 
-def arc_magnitude(capacity, unlimited, flows) -> np.ndarray:
-    """Per arc, its own magnitude (float64): the capacity, or the flow where unlimited."""
-    size = capacity.astype(np.float64)
+def arc_magnitude(capacity, unlimited, flows, lower=None) -> np.ndarray:
+    """Per arc, its own magnitude (float64): its bounds, or its flow where unlimited."""
+    size = np.abs(capacity.astype(np.float64))
     if unlimited is not None:
         size = np.where(unlimited, np.abs(flows.astype(np.float64)), size)
+    if lower is not None:
+        size = np.maximum(size, np.abs(lower.astype(np.float64)))
     return size
 
 
-def _beyond(error, allowed, relative: float):
+def beyond(error, allowed, relative: float):
     """Where ``error`` exceeds its allowance; exact comparisons when ``relative`` is 0."""
     return error > (allowed if relative else 0)
 
@@ -106,7 +108,7 @@ def check_max_flow(
     """
     excess = capacity_excess(flows, capacity, unlimited)
     arcs = relative * arc_magnitude(capacity, unlimited, flows) if relative else 0
-    bad = _beyond(excess, arcs, relative)
+    bad = beyond(excess, arcs, relative)
     if bad.any():
         _fail(f"an arc carries flow outside [0, capacity] by {_as_number(excess[bad].max())}")
     max_excess = _as_number(excess.max()) if excess.size else 0
@@ -117,12 +119,12 @@ def check_max_flow(
     into_sink = balance[sink]
     inner = balance.copy()
     inner[[source, sink]] = 0
-    off = _beyond(abs(inner), nodes, relative)
+    off = beyond(abs(inner), nodes, relative)
     if off.any():
         _fail(f"flow is not conserved at a node (imbalance {_as_number(abs(inner[off]).max())})")
     max_imbalance = _as_number(abs(inner).max()) if inner.size else 0
-    if _beyond(abs(out_of_source - value), nodes[source], relative) or \
-            _beyond(abs(into_sink - value), nodes[sink], relative):
+    if beyond(abs(out_of_source - value), nodes[source], relative) or \
+            beyond(abs(into_sink - value), nodes[sink], relative):
         _fail(f"flow value {value} differs from the net flow at the source or sink")
     if not source_side[source] or source_side[sink]:
         _fail("the cut does not separate the source from the sink")
@@ -135,7 +137,7 @@ def check_max_flow(
         back = ~source_side[tail] & source_side[head]
         sizes = arc_magnitude(capacity, unlimited, flows)
         cut_allowed = relative * (float(sizes[crossing | back].sum()) + float(through[source_side].sum()))
-    if _beyond(abs(cut_capacity - value), cut_allowed, relative):
+    if beyond(abs(cut_capacity - value), cut_allowed, relative):
         _fail(f"flow value {value} differs from the cut capacity {cut_capacity}")
     certificate = {
         "checked": True,

@@ -8,10 +8,11 @@ is feasible for ``u''`` and every cut grows by less than ``2**step`` per arc, so
 residual network needs at most ``m * (2**step - 1)`` more units: its capacities are
 capped just above that (a cap above the residual maximum never binds and never lands
 in a minimum cut) and it goes to OR-Tools as int64. Each phase is one vectorised
-OR-Tools solve; the phases are few (about ``(bits - 62) / step``, ``step`` = 62 minus
-twice the bits of the arc count). The minimum cut is read from the final flow's residual
-network, and :func:`service.solvers.certificates.check_max_flow` checks everything
-in Python integers.
+OR-Tools solve; the phases are few (about ``(bits - 61) / step``, ``step`` = 61
+minus twice the bits of the arc count, so that every sum of a phase fits int64). The
+minimum cut is read from the final flow's residual network, and
+:func:`service.solvers.certificates.check_max_flow` checks everything in Python
+integers.
 """
 
 from __future__ import annotations
@@ -20,9 +21,6 @@ import numpy as np
 
 from .maxflow_graph import MaxFlowSolution, graph_engine, run_max_flow, unlimited_path
 from .potentials import residual_reach
-
-#: Every capacity handed to OR-Tools, and every flow value it can reach, stays below this.
-_LIMIT = 2**62
 
 
 def max_flow_wide(num_nodes, tail, head, capacity, unlimited, source, sink) -> MaxFlowSolution:

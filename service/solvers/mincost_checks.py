@@ -27,7 +27,7 @@ import math
 import numpy as np
 
 from ..errors import SelfCheckFailed
-from .certificates import capacity_excess, node_balance, throughput
+from .certificates import arc_magnitude, beyond, capacity_excess, node_balance, throughput
 
 #: Above this magnitude int64 dot products switch to exact Python integers.
 _INT_SAFE = 2.0**62
@@ -65,24 +65,10 @@ def exact_sum(a: np.ndarray):
 def _exceeds(plus: list, minus: list) -> bool:
     """Whether ``sum(plus) > sum(minus)``, decided exactly (the sign of a correctly
     rounded float sum is exact; integer sums are exact)."""
-    arrays = [a for a in plus] + [-a for a in minus]
+    arrays = list(plus) + [-a for a in minus]
     if any(a.dtype.kind == "f" for a in arrays):
         return math.fsum(np.concatenate([a.astype(np.float64) for a in arrays]).tolist()) > 0
     return sum(exact_sum(a) for a in arrays) > 0
-
-
-def _sizes(capacity, unlimited, lower, flows) -> np.ndarray:
-    """Per arc, its own magnitude (float64): its bounds, or its flow where unlimited."""
-    size = np.abs(capacity.astype(np.float64))
-    if unlimited is not None:
-        size = np.where(unlimited, np.abs(flows.astype(np.float64)), size)
-    if lower is not None:
-        size = np.maximum(size, np.abs(lower.astype(np.float64)))
-    return size
-
-
-def _beyond(error, allowed, relative: float):
-    return error > (allowed if relative else 0)
 
 
 def reduced_costs(cost: np.ndarray, potentials: np.ndarray, tail: np.ndarray, head: np.ndarray) -> np.ndarray:
@@ -124,15 +110,15 @@ def check_min_cost_flow(num_nodes, tail, head, capacity, unlimited, lower, cost,
     """
     low = np.zeros_like(flows) if lower is None else lower
     excess = capacity_excess(flows, capacity, unlimited, low)
-    arcs = relative * _sizes(capacity, unlimited, lower, flows) if relative else 0
-    bad = _beyond(excess, arcs, relative)
+    arcs = relative * arc_magnitude(capacity, unlimited, flows, lower) if relative else 0
+    bad = beyond(excess, arcs, relative)
     if bad.any():
         _fail(f"an arc carries flow outside [lower, capacity] by {_num(excess[bad].max())}")
     max_excess = _num(excess.max()) if excess.size else 0
     imbalance = -node_balance(num_nodes, tail, head, flows) - supply
     nodes = relative * (throughput(num_nodes, tail, head, flows) + np.abs(supply.astype(np.float64))) \
         if relative else np.zeros(num_nodes)
-    off = _beyond(abs(imbalance), nodes, relative)
+    off = beyond(abs(imbalance), nodes, relative)
     if off.any():
         _fail(f"flow is not conserved at a node (off by {_num(abs(imbalance[off]).max())})")
     max_imbalance = _num(abs(imbalance).max()) if imbalance.size else 0
@@ -155,7 +141,7 @@ def check_min_cost_flow(num_nodes, tail, head, capacity, unlimited, lower, cost,
     gap = primal - dual
     gap_allowed = relative * _objective_terms(cost, flows, supply, potentials, rc, low, capacity, limited) \
         if relative else 0.0
-    if _beyond(abs(gap), gap_allowed, relative):
+    if beyond(abs(gap), gap_allowed, relative):
         _fail(f"flow cost {primal} differs from the dual bound {dual}")
     certificate = {
         "checked": True,
@@ -267,9 +253,9 @@ def check_shipped_cut(tail, head, capacity, unlimited, lower, members, source: i
     bound = exact_sum(capacity[leaving]) - (0 if lower is None else exact_sum(lower[entering]))
     allowed = 0.0
     if relative:
-        sizes = _sizes(capacity, unlimited, lower, np.zeros(capacity.size))
+        sizes = arc_magnitude(capacity, unlimited, np.zeros(capacity.size), lower)
         allowed = relative * (float(sizes[leaving | entering].sum()) + float(through[members].sum()))
-    if _beyond(abs(bound - shipped), allowed, relative):
+    if beyond(abs(bound - shipped), allowed, relative):
         _fail(f"shipped {shipped} differs from the cut bound {bound}")
     return bound
 
@@ -339,11 +325,11 @@ def check_feasible_flow(num_nodes, tail, head, capacity, unlimited, lower, suppl
     exactly, or within ``relative`` of each arc's bounds and each node's throughput and supply."""
     excess = capacity_excess(flows, capacity, unlimited, lower)
     imbalance = -node_balance(num_nodes, tail, head, flows) - supply
-    arcs = relative * _sizes(capacity, unlimited, lower, flows) if relative else 0
+    arcs = relative * arc_magnitude(capacity, unlimited, flows, lower) if relative else 0
     nodes = relative * (throughput(num_nodes, tail, head, flows) + np.abs(supply.astype(np.float64))) \
         if relative else 0
     max_excess = _num(excess.max()) if excess.size else 0
     max_imbalance = _num(abs(imbalance).max()) if imbalance.size else 0
-    if _beyond(excess, arcs, relative).any() or _beyond(abs(imbalance), nodes, relative).any():
+    if beyond(excess, arcs, relative).any() or beyond(abs(imbalance), nodes, relative).any():
         _fail(f"the feasible flow is not feasible (excess {max_excess}, imbalance {max_imbalance})")
     return {"max_imbalance": max_imbalance, "max_capacity_excess": max_excess}
