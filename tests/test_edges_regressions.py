@@ -311,3 +311,27 @@ def test_lp_route_proofs_are_exact_beside_a_huge_lane(client):
                   [{"from": "s", "to": "t", "capacity": BIG, "cost": 1 / 3},
                    {"from": "a", "to": "b", "cost": -1 / 3}, {"from": "b", "to": "a", "cost": -1 / 3}])
     assert doc["status"] == "unbounded" and doc["negative_cycle"]["cost"] == -2 / 3
+
+
+@pytest.mark.parametrize("body,side", [
+    # More agents than tasks, all agents required: was a 500 (the square solver was asked).
+    ({"agents": ["a", "b", "c"], "tasks": ["x"], "costs": [[4], [4], [1]], "options": {"require": "agents"}},
+     "agents"),
+    # More tasks than agents, all tasks required: was a 500 ("the Hall-violating set is empty").
+    ({"agents": ["a"], "tasks": ["x", "y"], "costs": [[3, 7]], "options": {"require": "tasks"}}, "tasks"),
+])
+def test_an_impossible_required_side_is_proved_not_a_500(client, body, side):
+    r = client.post("/v1/assignment", json=body)
+    doc = r.get_json()
+    assert r.status_code == 200 and doc["status"] == "infeasible" and doc["infeasibility"]["side"] == side
+    assert len(doc["infeasibility"]["allowed"]) < len(doc["infeasibility"]["members"])
+
+
+def test_a_common_factor_past_int64_is_reported_not_a_500(client):
+    # Costs 1e-9 and about 4.6e18 scale (by 10**9) past int64; reduced per agent and task,
+    # one cost is left, divided out by itself (a factor past int64). Worked by hand:
+    # a-x + b-y = 1e-9 + 0.1 beats a-y + b-x = 0 + 4.6e18.
+    r = client.post("/v1/assignment", json={"agents": ["a", "b"], "tasks": ["x", "y"],
+                                            "costs": [[1e-9, 0], [4.611686018427388e18, 0.1]]})
+    doc = r.get_json()
+    assert r.status_code == 200 and doc["total_cost"] == 0.100000001 and doc["certificate"]["gap"] == 0

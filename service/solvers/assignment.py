@@ -105,7 +105,7 @@ def solve_assignment(n_agents: int, n_tasks: int, rows: np.ndarray, cols: np.nda
         return _by_flow(n_agents, n_tasks, rows, cols, cost, c, None, maximize, need_agents, need_tasks, engine)
     d, (ints,) = scaled
     exact = _Exact(ints, 10**d, *_side_offsets(n_agents, n_tasks, rows, cols, ints, need_agents, need_tasks))
-    if dense and need_agents and need_tasks:
+    if dense and need_agents and need_tasks and n_agents == n_tasks:
         answer = _square(n_agents, exact.reduced.reshape(n_agents, n_tasks), rows, cols)
         if answer is not None:
             return _finish(answer, rows, cols, cost, exact, maximize)
@@ -256,9 +256,9 @@ def _by_flow(n_agents, n_tasks, rows, cols, cost, c, exact, maximize, need_agent
     ``c`` is the (reduced) exact integer cost with ``exact`` describing it, or the
     caller's floats with ``exact`` None (the LP engine's).
     """
-    if (need_agents and n_agents > n_tasks) or (need_tasks and n_tasks > n_agents) or not _coverable(
-            n_agents, n_tasks, rows, cols, need_agents, need_tasks):
-        return _hall(n_agents, n_tasks, rows, cols, need_agents)
+    short = _short_side(n_agents, n_tasks, rows, cols, need_agents, need_tasks)
+    if short is not None:
+        return _hall(n_agents, n_tasks, rows, cols, short == "agents")
     k, t, m = n_agents, n_tasks, rows.size
     tasks0 = k
     extra = k + t
@@ -322,13 +322,18 @@ def _refused(exc: InputError, pairs: int) -> InputError:
     return error
 
 
-def _coverable(k, t, rows, cols, need_agents, need_tasks) -> bool:
-    """Cheap necessary condition: every required member has at least one allowed pair."""
-    if need_agents and np.unique(rows).size < k:
-        return False
-    if need_tasks and np.unique(cols).size < t:
-        return False
-    return _matching_size(k, t, rows, cols, need_agents)[0] == (k if need_agents else t)
+def _short_side(k, t, rows, cols, need_agents, need_tasks) -> str | None:
+    """The required side that cannot be fully assigned ("agents" or "tasks"), or None."""
+    if need_agents and (k > t or np.unique(rows).size < k):
+        return "agents"
+    if need_tasks and (t > k or np.unique(cols).size < t):
+        return "tasks"
+    size = _matching_size(k, t, rows, cols, True)[0]
+    if need_agents and size < k:
+        return "agents"
+    if need_tasks and size < t:
+        return "tasks"
+    return None
 
 
 def _matching_size(k, t, rows, cols, by_agents):

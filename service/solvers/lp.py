@@ -185,9 +185,10 @@ def beyond_range(exc: SolverFailure, pointer: str, **parts: np.ndarray) -> Input
             spans.append(f"{name} {low:g} to {high:g}")
     low, high = magnitude_span(*parts.values())
     ratio = high / low if low else 0.0
+    span = f"{ratio:.1e}" if np.isfinite(ratio) else "beyond 1e308"
     return InputError(FieldError(pointer, (
         f"the LP engine found no answer it could certify to a relative tolerance of {lp_checks.REL:g} "
-        f"({exc.detail}); the magnitudes here span {ratio:.1e} ({'; '.join(spans)}), while GLOP, which computes "
+        f"({exc.detail}); the magnitudes here span {span} ({'; '.join(spans)}), while GLOP, which computes "
         f"in doubles with absolute tolerances, is certified reliably up to a span of {RELIABLE_SPAN:.0e}: "
         "rescale the units (e.g. thousands of units, or cents to dollars) to bring them closer")))
 

@@ -488,9 +488,9 @@ def _report(solution: MinCostSolution, certificate: dict, quantities: tuple[int,
     if quantities[1] != 1 or costs[1] != 1:
         scaled.update(decimal_scale=quantities[1], cost_scale=costs[1])
     if quantities[0] != 1:
-        scaled["quantity_factor"] = quantities[0]
+        scaled["quantity_factor"] = rescale(quantities[0])  # a double past int64 (it only informs)
     if costs[0] != 1:
-        scaled["cost_factor"] = costs[0]
+        scaled["cost_factor"] = rescale(costs[0])
     certificate.update(scaled)
     solution.engine = dict(solution.engine, **scaled)
 
@@ -520,13 +520,18 @@ def _lp_engine():
 
 
 def _float_negative_cycle(net: _Net):
-    """A negative unlimited cycle for fractional costs, found on costs rounded to 2**-40
-    of the largest and kept only when its exact cost is negative."""
+    """A negative unlimited cycle for fractional costs, found on the costs rounded to a
+    grid of 2**-bits of the largest (as many bits as OR-Tools takes for this many
+    nodes) and kept only when its exact cost is negative."""
     if net.unl is None or not (net.unl & (net.cost < 0)).any():
         return None
     top = float(np.abs(net.cost[net.unl]).max())
-    ints = np.rint(net.cost * (2.0**40 / top)).astype(np.int64)
-    cycle = negative_unlimited_cycle(net.n, net.tail, net.head, ints, net.unl)
+    bits = min(40, 58 - (net.n + 4).bit_length())
+    ints = np.rint(np.ldexp(np.where(net.unl, net.cost, 0.0), bits - int(np.frexp(top)[1]))).astype(np.int64)
+    try:
+        cycle = negative_unlimited_cycle(net.n, net.tail, net.head, ints, net.unl)
+    except GraphRangeError as exc:
+        raise SolverFailure(f"no negative-cycle search fits these costs ({exc})") from None
     if cycle is None or not checks.exact_sum(net.cost[cycle]) < 0:
         return None
     return cycle

@@ -112,7 +112,8 @@ def _times(ints: np.ndarray, factor: int) -> np.ndarray:
     """``ints * factor`` exactly: int64 while it fits, Python ints beyond."""
     if factor == 1:
         return ints
-    if ints.dtype != object and (not ints.size or float(np.abs(ints).max()) * factor < INT64_SAFE):
+    if ints.dtype != object and factor < INT64_SAFE and (not ints.size or float(np.abs(ints).max()) * factor
+                                                          < INT64_SAFE):
         return ints * np.int64(factor)
     return ints.astype(object) * factor
 
