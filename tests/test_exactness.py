@@ -308,3 +308,50 @@ def test_repr_is_the_decimal_the_client_wrote_up_to_15_digits():
     for text in ["99999999.99", "1000000000.5", "0.000001", "1e-9", "123456789012.345", "0.1", "4.35"]:
         assert Decimal(repr(float(text))) == Decimal(text)
     assert math.isclose(float("0.1") * 3, 0.30000000000000004)  # why floats need the rule
+
+
+# --------------------------------------------------------------- no 500, at the extremes
+
+#: Values the validators accept, from the smallest double to 2**62, with fractions of
+#: every kind (a decimal of 9 places, one of 17 digits, a binary fraction, 1/3).
+EXTREMES = [5e-324, 1e-300, 1e-9, 1 / 3, 0.1, 0.25, 123456789.123456789, 2.0**62, 2**62, 2**62 - 1, 10**18, 7, 0]
+
+
+def extreme():
+    return st.sampled_from(EXTREMES)
+
+
+@st.composite
+def extreme_bodies(draw, kind: str):
+    n = draw(st.integers(2, 5))
+    arcs = [{"from": draw(st.integers(0, n - 1)), "to": draw(st.integers(0, n - 1)),
+             "capacity": draw(st.one_of(extreme(), st.none()))} for _ in range(draw(st.integers(1, 6)))]
+    if kind == "maxflow":
+        return {"source": 0, "sink": n - 1, "arcs": arcs}
+    for arc in arcs:
+        arc["cost"] = draw(extreme()) * draw(st.sampled_from([1, -1] if kind == "mincostflow" else [1]))
+    if kind == "mincostflow":
+        x = draw(extreme())
+        return {"nodes": [{"id": 0, "supply": x}, {"id": n - 1, "supply": -x}], "arcs": arcs,
+                "options": {"shortage": draw(st.sampled_from(["reject", "max-flow"]))}}
+    if kind == "multicommodity":
+        return {"arcs": arcs, "commodities": [{"id": "k", "source": 0, "sink": n - 1, "demand": draw(extreme())}],
+                "objective": draw(st.sampled_from(["min-cost", "max-throughput"]))}
+    k, t = draw(st.integers(1, 3)), draw(st.integers(1, 3))
+    return {"agents": [f"a{i}" for i in range(k)], "tasks": [f"t{j}" for j in range(t)],
+            "costs": [[draw(st.one_of(extreme(), st.none())) for _ in range(t)] for _ in range(k)],
+            "options": {"maximize": draw(st.booleans()), "require": draw(st.sampled_from(["agents", "tasks",
+                                                                                          "min-side"]))}}
+
+
+@settings(max_examples=160, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+@given(st.sampled_from(["maxflow", "mincostflow", "multicommodity", "assignment"]).flatmap(
+    lambda kind: extreme_bodies(kind).map(lambda body: (kind, body))))
+def test_no_valid_problem_gets_a_500_at_the_extremes(client, problem):
+    kind, body = problem
+    status, doc = post(client, kind, body)
+    assert status < 500, doc
+    if status == 200:
+        assert doc["certificate"]["checked"], doc
+    else:
+        assert_names_a_field(doc)
