@@ -86,8 +86,13 @@ class MultiCommodityCertificate(Schema):
                                                             "provably unique."})
     degenerate = fields.Boolean()
     total_demand = fields.Float(metadata={"description": "Infeasible: the demand to meet."})
-    tolerance = fields.Float(metadata={"description": "Absolute tolerance of the flow checks (1e-6 relative to "
-                                                      "the largest capacity or demand)."})
+    tolerance = fields.Float(metadata={"description": "The largest absolute slack any flow check allowed."})
+    relative_tolerance = fields.Float(metadata={"description": "Each flow figure holds to this times its own "
+                                                               "magnitude: a commodity at a node against its "
+                                                               "throughput there, an arc against its capacity, a "
+                                                               "delivery against its demand."})
+    cost_tolerance = fields.Float(metadata={"description": "Absolute bound on the duality gap: the cost is optimal "
+                                                           "to within it."})
     reason = fields.String()
 
 

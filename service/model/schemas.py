@@ -99,9 +99,11 @@ class OptionsSchema(Schema):
     engine = fields.String(
         load_default="auto",
         validate=validate.OneOf(["auto", "graph", "lp"]),
-        metadata={"description": "auto: exact graph solver when the data allows, else LP. graph: force the "
-                                 "OR-Tools graph solver (integers, or decimals with at most 6 places by exact "
-                                 "scaling). lp: force GLOP (fractional data, stated tolerance)."},
+        metadata={"description": "auto: the exact graph solver for integers and for decimals of at most 9 "
+                                 "places (as written; solved exactly by scaling), refusing with a 422 what it "
+                                 "cannot hold exactly; other fractions go to GLOP with a stated tolerance "
+                                 "(max-flow solves those exactly too, on their binary values). graph: the exact "
+                                 "solver only. lp: force GLOP (stated tolerance)."},
     )
     time_limit = StrictNumber(
         # A limit below 10 ms cannot cover even the dispatch to the solver process; with
