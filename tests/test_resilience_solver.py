@@ -20,31 +20,7 @@ import service.solvers.resilience as resilience
 from service.errors import InputError, SelfCheckFailed
 from service.solvers.closure_checks import ClosureChecks
 from service.solvers.resilience import arc_closures
-
-
-def nx_values_without(n, tail, head, cap, unlimited, s, t) -> np.ndarray:
-    """networkx.maximum_flow_value re-solved once per arc, with that arc removed."""
-    out = []
-    for closed in range(tail.size):
-        g = nx.DiGraph()
-        g.add_nodes_from(range(n))
-        for a in range(tail.size):
-            u, v = int(tail[a]), int(head[a])
-            if a == closed or u == v:
-                continue
-            free = unlimited is not None and unlimited[a]
-            if g.has_edge(u, v):
-                if "capacity" in g[u][v]:
-                    if free:
-                        del g[u][v]["capacity"]
-                    else:
-                        g[u][v]["capacity"] += int(cap[a])
-            elif free:
-                g.add_edge(u, v)
-            else:
-                g.add_edge(u, v, capacity=int(cap[a]))
-        out.append(nx.maximum_flow_value(g, s, t))
-    return np.array(out)
+from tests.planning_reference import nx_values_without
 
 
 def random_network(rng, n, m, max_cap=20, unlimited_share=0.0):
