@@ -86,8 +86,10 @@ class Lanes:
 
     @property
     def extendable(self) -> np.ndarray:
-        """Lanes that get an added-capacity arc (an unlimited lane needs none)."""
-        return self.widenable if self.unlimited is None else self.widenable & ~self.unlimited
+        """Lanes that get an added-capacity arc (an unlimited lane needs none, and a
+        self-loop carries nothing from the source to the sink)."""
+        lanes = self.widenable & (self.tail != self.head)
+        return lanes if self.unlimited is None else lanes & ~self.unlimited
 
 
 @dataclass
