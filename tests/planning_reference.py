@@ -17,31 +17,15 @@ import scipy.sparse as sp
 from scipy.optimize import Bounds, LinearConstraint, milp
 
 from service.solvers.expansion import Lanes
+from tests.flowdata import nx_max_flow
 
 
 def nx_values_without(n, tail, head, cap, unlimited, s, t) -> np.ndarray:
-    """networkx.maximum_flow_value re-solved once per arc, with that arc removed."""
-    out = []
-    for closed in range(tail.size):
-        g = nx.DiGraph()
-        g.add_nodes_from(range(n))
-        for a in range(tail.size):
-            u, v = int(tail[a]), int(head[a])
-            if a == closed or u == v:
-                continue
-            free = unlimited is not None and unlimited[a]
-            if g.has_edge(u, v):
-                if "capacity" in g[u][v]:
-                    if free:
-                        del g[u][v]["capacity"]
-                    else:
-                        g[u][v]["capacity"] += int(cap[a])
-            elif free:
-                g.add_edge(u, v)
-            else:
-                g.add_edge(u, v, capacity=int(cap[a]))
-        out.append(nx.maximum_flow_value(g, s, t))
-    return np.array(out)
+    """networkx.maximum_flow_value re-solved once per arc, with that arc removed
+    (tests/flowdata.nx_max_flow: parallel arcs merged, no capacity = unlimited)."""
+    arcs = [{"from": int(u), "to": int(v), "capacity": None if unlimited is not None and unlimited[a] else int(c)}
+            for a, (u, v, c) in enumerate(zip(tail, head, cap))]
+    return np.array([nx_max_flow(arcs[:closed] + arcs[closed + 1:], s, t) for closed in range(len(arcs))])
 
 
 def replay(lanes: Lanes, solution) -> None:
@@ -90,25 +74,13 @@ def nx_augmented_cost(lanes: Lanes):
 
 
 def nx_fully_widened_value(lanes: Lanes):
-    g = nx.DiGraph()
-    g.add_nodes_from(range(lanes.num_nodes))
+    """networkx.maximum_flow_value with every lane widened as far as it may be."""
+    arcs = []
     for a in range(lanes.tail.size):
-        u, v = int(lanes.tail[a]), int(lanes.head[a])
-        if u == v:
-            continue
         free = (lanes.unlimited is not None and lanes.unlimited[a]) or (lanes.widenable[a] and lanes.expand_unlimited[a])
         cap = None if free else int(lanes.capacity[a] + (lanes.expand_max[a] if lanes.widenable[a] else 0))
-        if g.has_edge(u, v):
-            old = g[u][v].get("capacity")
-            if old is None or cap is None:
-                g[u][v].pop("capacity", None)
-            else:
-                g[u][v]["capacity"] = old + cap
-        elif cap is None:
-            g.add_edge(u, v)
-        else:
-            g.add_edge(u, v, capacity=cap)
-    return nx.maximum_flow_value(g, lanes.source, lanes.sink)
+        arcs.append({"from": int(lanes.tail[a]), "to": int(lanes.head[a]), "capacity": cap})
+    return nx_max_flow(arcs, lanes.source, lanes.sink)
 
 
 def scipy_fixed_charge_cost(lanes: Lanes):

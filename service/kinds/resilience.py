@@ -10,11 +10,11 @@ from marshmallow import RAISE, Schema, fields, validate
 from ..errors import InputError
 from ..model.arcs import Network, read_network
 from ..model.digest import problem_digest
-from ..model.schemas import ArcsField, NodeId, NodesField, OptionsSchema, detail_field, load_envelope
+from ..model.schemas import NodeId, OptionsSchema, detail_field, load_envelope
 from ..solvers.resilience import arc_closures
 from ..solvers.versions import ORTOOLS_VERSION
 from .base import Limits, ids_of, node_position, time_limit, wants
-from .maxflow import CutSchema, EngineSchema, MaxFlowCertificate, TimingSchema, UnboundedPathSchema
+from .maxflow import CutSchema, EngineSchema, MaxFlowCertificate, MaxFlowRequest, TimingSchema, UnboundedPathSchema
 
 DETAIL = ["flows", "cut", "cuts"]
 
@@ -27,14 +27,9 @@ class ResilienceOptions(OptionsSchema):
     detail = detail_field(DETAIL)
 
 
-class ResilienceRequest(Schema):
-    class Meta:
-        unknown = RAISE
+class ResilienceRequest(MaxFlowRequest):
+    """A max-flow request, plus ``top``."""
 
-    source = NodeId(required=True, metadata={"description": "Node the flow leaves."})
-    sink = NodeId(required=True, metadata={"description": "Node the flow reaches."})
-    arcs = ArcsField(required=True, metadata={"description": "Arcs in object or columnar form (as for max-flow)."})
-    nodes = NodesField(load_default=None, metadata={"description": "Optional node ids (or objects with id)."})
     top = fields.Integer(strict=True, load_default=None, validate=validate.Range(min=1), metadata={
         "description": "How many closures to list, worst first; default every closure that lowers the value."})
     options = fields.Nested(ResilienceOptions, load_default=lambda: ResilienceOptions().load({}))
