@@ -183,11 +183,11 @@ def arc_closures(num_nodes: int, tail: np.ndarray, head: np.ndarray, capacity: n
     solution = ResilienceSolution("optimal", base.value, base.flows, base.source_side, failing, loss, value_without,
                                   [found.cuts[int(a)] for a in failing], engine, stats=found.stats)
     if d:
-        _unscale(solution, certificate, cap, 10**d)
+        _unscale(solution, certificate, 10**d)
     return solution, certificate
 
 
-def _unscale(solution: ResilienceSolution, certificate: dict, cap: np.ndarray, factor: int) -> None:
+def _unscale(solution: ResilienceSolution, certificate: dict, factor: int) -> None:
     solution.value = solution.value / factor
     solution.flows = solution.flows / factor
     solution.loss = solution.loss / factor
