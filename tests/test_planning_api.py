@@ -124,6 +124,12 @@ def test_decimals_are_answered_in_the_units_written(client):
     answer = client.post("/v1/expansion", json=body).get_json()
     assert answer["cost"] == pytest.approx(0.105) and answer["additions"] == pytest.approx([0, 0.1, 0.1])
     assert answer["certificate"]["decimal_scale"] == 10
+    # With at most 1.0 more on the direct lane, full widening carries 0.5 + 1.2 = 1.7.
+    body["arcs"][2]["expand_max"] = 1.0
+    out_of_reach = client.post("/v1/expansion", json={**body, "target": 2.5}).get_json()
+    assert out_of_reach["status"] == "infeasible" and out_of_reach["value"] == pytest.approx(1.7)
+    assert out_of_reach["certificate"]["target"] == pytest.approx(2.5)
+    assert out_of_reach["certificate"]["shortfall"] == pytest.approx(0.8)
 
 
 def test_detail_trims_the_answer(client):

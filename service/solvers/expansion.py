@@ -175,25 +175,20 @@ def _scaled(lanes: Lanes) -> tuple[Lanes, int, int]:
     return scaled, 10**dq, 10**dc
 
 
+#: What is scaled back, and by which factor: quantities by the quantity scale, charges
+#: (per-unit charge times quantity) by both, potentials (per unit) by the charge scale.
+_QUANTITIES = ("value", "target", "cut_capacity", "shortfall", "flows", "additions")
+_CHARGES = ("cost", "bound", "primal_cost", "dual_bound", "gap_absolute", "own_bound", "solver_bound")
+
+
 def _unscale(solution: ExpansionSolution, certificate: dict, fq: int, fc: int) -> None:
-    """Back to the caller's units: quantities by ``fq``, charges by ``fc * fq``."""
-    for name in ("value", "cut_capacity"):
-        if getattr(solution, name) is not None:
-            setattr(solution, name, getattr(solution, name) / fq)
-    for name in ("flows", "additions"):
-        if getattr(solution, name) is not None:
-            setattr(solution, name, getattr(solution, name) / fq)
-    for name in ("cost", "bound"):
-        if getattr(solution, name) is not None:
-            setattr(solution, name, getattr(solution, name) / (fq * fc))
-    if solution.potentials is not None:
-        solution.potentials = solution.potentials / fc
-    for name in ("value", "cut_capacity", "shortfall"):
-        if name in certificate:
-            certificate[name] = certificate[name] / fq
-    for name in ("cost", "primal_cost", "dual_bound", "gap_absolute", "bound", "own_bound", "solver_bound"):
-        if certificate.get(name) is not None:
-            certificate[name] = certificate[name] / (fq * fc)
+    """Back to the caller's units (one division per number)."""
+    for names, factor in ((_QUANTITIES, fq), (_CHARGES, fq * fc), (("potentials",), fc)):
+        for name in names:
+            if getattr(solution, name, None) is not None:
+                setattr(solution, name, getattr(solution, name) / factor)
+            if certificate.get(name) is not None:
+                certificate[name] = certificate[name] / factor
     certificate["decimal_scale"], certificate["cost_scale"] = fq, fc
     solution.engine = dict(solution.engine, decimal_scale=fq, cost_scale=fc)
 
