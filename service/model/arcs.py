@@ -17,9 +17,12 @@ from .columns import MAX_REPORTED_ERRORS, NullableNumbers, NumberColumn, number_
 from .ids import MAX_ID_LENGTH, IdColumn, InternedIds, NodeIndex, intern_ids
 
 ARC_FIELDS = ("from", "to", "capacity", "cost", "lower", "key")
+#: Arc fields only some kinds read (they ask for them by name): lane widening terms.
+EXPANSION_FIELDS = ("expand_cost", "expand_max", "expand_fixed")
 REQUIRED = ("from", "to")
 #: Value used for an absent optional field.
-DEFAULTS = {"capacity": None, "cost": 0, "lower": 0, "key": None}
+DEFAULTS = {"capacity": None, "cost": 0, "lower": 0, "key": None, "expand_cost": None, "expand_max": None,
+            "expand_fixed": 0}
 
 
 @dataclass(frozen=True)
@@ -42,8 +45,12 @@ class ObjectArcs:
     count: int
 
 
-def read_arcs(raw: object, *, base: str = "/arcs", max_arcs: int | None = None) -> RawArcs:
+def read_arcs(raw: object, *, base: str = "/arcs", max_arcs: int | None = None,
+              extra_fields: tuple[str, ...] = ()) -> RawArcs:
     """Split the ``arcs`` member into columns, checking its shape.
+
+    ``extra_fields`` (from :data:`EXPANSION_FIELDS`) are accepted besides
+    :data:`ARC_FIELDS`, and become columns when any arc has them.
 
     Raises
     ------
@@ -56,9 +63,9 @@ def read_arcs(raw: object, *, base: str = "/arcs", max_arcs: int | None = None) 
         arcs = RawArcs({name: IdColumn(values, _object_where(base, name)) for name, values in raw.columns.items()},
                        raw.count, "objects")
     elif isinstance(raw, list):
-        arcs = _read_objects(raw, base)
+        arcs = _read_objects(raw, base, ARC_FIELDS + extra_fields)
     elif isinstance(raw, dict):
-        arcs = _read_columns(raw, base)
+        arcs = _read_columns(raw, base, ARC_FIELDS + extra_fields)
     else:
         raise InputError.at(base, "must be a list of arc objects or an object of columns")
     if max_arcs is not None and arcs.count > max_arcs:
@@ -69,7 +76,7 @@ def read_arcs(raw: object, *, base: str = "/arcs", max_arcs: int | None = None) 
 _ABSENT = object()
 
 
-def _read_objects(raw: list, base: str) -> RawArcs:
+def _read_objects(raw: list, base: str, known: tuple[str, ...]) -> RawArcs:
     if set(map(type, raw)) - {dict}:
         i = next(i for i, a in enumerate(raw) if type(a) is not dict)
         raise InputError.at(f"{base}/{i}", "must be an arc object")
@@ -77,7 +84,7 @@ def _read_objects(raw: list, base: str) -> RawArcs:
     # known field, or some arc carries an unknown one (then we go and find it).
     unaccounted = sum(map(len, raw))
     columns = {}
-    for name in ARC_FIELDS:
+    for name in known:
         if name not in REQUIRED and unaccounted == 0:
             break
         values, present = _object_column(raw, name, base)
@@ -85,7 +92,7 @@ def _read_objects(raw: list, base: str) -> RawArcs:
             columns[name] = IdColumn(values, _object_where(base, name))
             unaccounted -= present
     if unaccounted:
-        i, key = next((i, k) for i, a in enumerate(raw) for k in a if k not in ARC_FIELDS)
+        i, key = next((i, k) for i, a in enumerate(raw) for k in a if k not in known)
         raise InputError.at(f"{base}/{i}/{_escape(key)}", "unknown field")
     return RawArcs(columns, len(raw), "objects")
 
@@ -105,8 +112,8 @@ def _object_column(raw: list, name: str, base: str) -> tuple[list, int]:
     return [default if v is _ABSENT else v for v in values], present
 
 
-def _read_columns(raw: dict, base: str) -> RawArcs:
-    unknown = set(raw) - set(ARC_FIELDS)
+def _read_columns(raw: dict, base: str, known: tuple[str, ...]) -> RawArcs:
+    unknown = set(raw) - set(known)
     if unknown:
         raise InputError.at(f"{base}/{_escape(sorted(unknown)[0])}", "unknown field")
     for name in REQUIRED:
@@ -114,7 +121,7 @@ def _read_columns(raw: dict, base: str) -> RawArcs:
             raise InputError.at(f"{base}/{name}", "is required")
     count = None
     columns = {}
-    for name in ARC_FIELDS:
+    for name in known:
         if name not in raw:
             continue
         values = raw[name]
@@ -222,14 +229,29 @@ def read_network(arcs_raw, nodes_raw, *, max_arcs: int, max_nodes: int, allow_lo
     InputError, ProblemTooLarge
         Naming the offending field by JSON Pointer.
     """
+    network, nodes, _ = read_network_with(arcs_raw, nodes_raw, max_arcs=max_arcs, max_nodes=max_nodes,
+                                          allow_lower=allow_lower, node_fields=node_fields)
+    return network, nodes
+
+
+def read_network_with(arcs_raw, nodes_raw, *, max_arcs: int, max_nodes: int, allow_lower: bool = True,
+                      node_fields: tuple[str, ...] = ("supply",), arc_fields: tuple[str, ...] = ()):
+    """:func:`read_network`, also accepting the arc fields ``arc_fields``.
+
+    Returns
+    -------
+    (Network, RawNodes, dict)
+        As :func:`read_network`, and the extra fields' columns as read (those no arc
+        has are absent), for the kind to check.
+    """
     from .nodes import read_nodes
 
-    arcs = read_arcs(arcs_raw, max_arcs=max_arcs)
+    arcs = read_arcs(arcs_raw, max_arcs=max_arcs, extra_fields=arc_fields)
     nodes = read_nodes(nodes_raw, extra_fields=node_fields)
     network = build_network(arcs, nodes.ids, allow_lower=allow_lower)
     if network.num_nodes > max_nodes:
         raise ProblemTooLarge(FieldError("/nodes", f"has {network.num_nodes} nodes; the limit is {max_nodes}"))
-    return network, nodes
+    return network, nodes, {name: arcs.columns[name] for name in arc_fields if name in arcs.columns}
 
 
 def _capacity(col: IdColumn | None, count: int):
