@@ -17,7 +17,7 @@ from .runner import Cancelled, ChildLost, DeadlineExceeded, RemoteError, unpack
 log = logging.getLogger("sluice.jobs")
 
 
-def execute(run, kind: str, body: bytes, limits: Limits, time_limit: float, on_tick=None):
+def execute(run, kind: str, body: bytes, limits: Limits, time_limit: float, on_tick=None, on_progress=None):
     """Run a job through ``run`` (a :meth:`SolverPool.run` or :meth:`SolverProcess.run`).
 
     Parameters
@@ -28,6 +28,8 @@ def execute(run, kind: str, body: bytes, limits: Limits, time_limit: float, on_t
         Seconds for the whole job (parse and solve); the process is killed after.
     on_tick : callable, optional
         Heartbeat, called every quarter second; returning true cancels the job.
+    on_progress : callable, optional
+        Called with each progress document the solve reports (see :class:`Progress`).
 
     Returns
     -------
@@ -36,7 +38,8 @@ def execute(run, kind: str, body: bytes, limits: Limits, time_limit: float, on_t
     job_limits = replace(limits, time_limit=time_limit)
     deadline = time.monotonic() + time_limit
     try:
-        result, _ = unpack(run(("job", kind, body, job_limits), deadline=deadline, on_tick=on_tick))
+        result, _ = unpack(run(("job", kind, body, job_limits), deadline=deadline, on_tick=on_tick,
+                               on_progress=on_progress))
     except DeadlineExceeded:
         return FAILED, None, time_limit_error(time_limit)
     except Cancelled:
@@ -48,6 +51,25 @@ def execute(run, kind: str, body: bytes, limits: Limits, time_limit: float, on_t
     except RemoteError as exc:
         return FAILED, None, problem_doc(exc.status, exc.slug, exc.title, exc.detail, exc.extra())
     return DONE, orjson.dumps(result, option=DUMP_OPTIONS), None
+
+
+class Progress:
+    """The latest progress report of a running job, written to the job record at most
+    once per heartbeat (reports can come faster than a store write is worth)."""
+
+    def __init__(self):
+        self.latest: dict | None = None
+        self.written: dict | None = None
+
+    def __call__(self, document: dict) -> None:
+        self.latest = document
+
+    def pending(self) -> bytes | None:
+        """The report to write now as JSON, or None when nothing new came."""
+        if self.latest is None or self.latest is self.written:
+            return None
+        self.written = self.latest
+        return orjson.dumps(self.written, option=DUMP_OPTIONS)
 
 
 @contextmanager

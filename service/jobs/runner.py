@@ -103,7 +103,7 @@ class SolverProcess:
             except OSError:
                 pass
 
-    def _wait(self, deadline: float | None, on_tick, tick: float):
+    def _wait(self, deadline: float | None, on_tick, tick: float, on_progress=None):
         # Frames go through the descriptors (see frames); the unbuffered file objects
         # only own them, and fileno() refuses once kill() has closed them.
         fd = self.proc.stdout.fileno()
@@ -118,12 +118,17 @@ class SolverProcess:
                 if reply is None:
                     self.kill()
                     raise ChildLost(f"solver process {self.pid} exited with {self.proc.returncode}")
+                if isinstance(reply, tuple) and reply and reply[0] == "progress":
+                    if on_progress is not None:
+                        on_progress(reply[1])
+                    continue
                 return reply
             if on_tick is not None and on_tick():
                 self.kill()
                 raise Cancelled()
 
-    def run(self, message: tuple, *, deadline: float | None = None, on_tick=None, tick: float = 0.25):
+    def run(self, message: tuple, *, deadline: float | None = None, on_tick=None, tick: float = 0.25,
+            on_progress=None):
         """Send one message and wait for the reply.
 
         Parameters
@@ -135,6 +140,8 @@ class SolverProcess:
         on_tick : callable, optional
             Called every ``tick`` seconds while waiting (heartbeats); a true return
             value cancels: the child is killed.
+        on_progress : callable, optional
+            Called with each progress document the child reports before its reply.
 
         Returns
         -------
@@ -151,7 +158,7 @@ class SolverProcess:
         except (OSError, ValueError):  # the child has gone (ValueError: it was killed here before)
             self.kill()
             raise ChildLost(f"solver process {self.pid} exited with {self.proc.returncode}") from None
-        return self._wait(deadline, on_tick, tick)
+        return self._wait(deadline, on_tick, tick, on_progress)
 
 
 class _Spawner:
@@ -221,7 +228,8 @@ class SolverPool:
             else:
                 self._idle.append(proc)
 
-    def run(self, message: tuple, *, deadline: float | None = None, on_tick=None, wait: float = 30.0):
+    def run(self, message: tuple, *, deadline: float | None = None, on_tick=None, wait: float = 30.0,
+            on_progress=None):
         """Run one message on a pooled child (see :meth:`SolverProcess.run`).
 
         Raises
@@ -234,7 +242,7 @@ class SolverPool:
         try:
             proc = self._take()
             try:
-                reply = proc.run(message, deadline=deadline, on_tick=on_tick)
+                reply = proc.run(message, deadline=deadline, on_tick=on_tick, on_progress=on_progress)
             except (DeadlineExceeded, Cancelled, ChildLost):
                 self.warm(1)  # a fresh child replaces the killed one, off the request path
                 raise

@@ -38,7 +38,8 @@ from .multicommodity import Commodities, MultiCommoditySolution, Network, multic
 from .whole_checks import check_flows, check_plan, plan_cost, relative_gap
 from .whole_engines import EngineResult, engine_info, run_engine
 from .whole_heuristic import Plan, cheapest_path, read_plan, route_greedily
-from .whole_model import WholeData, WholeModel, build_model, cost_phase, cost_scale, trivial_bound
+from .whole_model import (WholeData, WholeModel, build_model, cost_phase, cost_scale, trivial_bound,
+                          limited_mask, whole_data_issue)
 
 log = logging.getLogger("sluice.solver")
 
@@ -62,7 +63,7 @@ class WholeSolution:
     infeasibility: dict | None = None
     unbounded: dict | None = None
     certificate: dict = field(default_factory=lambda: {"checked": False})
-    engine: dict = field(default_factory=lambda: engine_info("cp-sat"))
+    engine: dict = field(default_factory=lambda: engine_info("scip"))
 
 
 @dataclass
@@ -116,7 +117,7 @@ class _Search:
 
 
 def whole_unit_flow(net: Network, com: Commodities, *, objective: str = "min-cost", single_path: bool = False,
-                    gap: float = 0.0, time_limit: float = 30.0, engine: str = "cp-sat",
+                    gap: float = 0.0, time_limit: float = 30.0, engine: str = "scip",
                     on_progress: OnProgress | None = None) -> WholeSolution:
     """Solve and certify a whole-unit multi-commodity flow problem.
 
@@ -164,10 +165,13 @@ def whole_unit_flow(net: Network, com: Commodities, *, objective: str = "min-cos
     solved = lp is not None and lp.status == "optimal"
     if solved:
         search.tighten(_lp_bound(data, lp))
-    plan = route_greedily(data, lp.flows if solved else None)
-    if plan is not None:
-        search.offer(plan)
-    result = _search(search, engine, plan.values(data) if plan is not None else _rounded_lp(data, lp), deadline)
+    # Keeping the LP's whole-unit commodities as they are usually wins, not always: both.
+    for plan in [route_greedily(data, lp.flows, lp.delivered), route_greedily(data, lp.flows)] if solved else \
+            [route_greedily(data)]:
+        if plan is not None:
+            search.offer(plan)
+    hint = search.plan.values(data) if search.plan is not None else _rounded_lp(data, lp)
+    result = _search(search, engine, hint, deadline)
     if result is not None and result.status == "infeasible":
         if search.plan is not None:
             raise SolverFailure("the engine calls the problem infeasible, yet a plan was found")
@@ -181,16 +185,12 @@ def whole_unit_flow(net: Network, com: Commodities, *, objective: str = "min-cos
 
 
 def _whole_data(net: Network, com: Commodities, objective: str, single_path: bool) -> WholeData:
-    scaled = cost_scale(net.cost)
-    if scaled is None:
-        raise ValueError("whole-unit plans need costs with at most six decimals")
-    demands = com.demands
-    if not np.array_equal(demands, np.trunc(demands)) or not np.array_equal(net.capacity, np.trunc(net.capacity)):
-        raise ValueError("whole-unit plans need whole-number capacities and demands")
-    if single_path and (scaled[1] < 0).any():
-        raise ValueError("single-path plans need non-negative costs")
-    return WholeData(net, com, demands.astype(np.int64), scaled[1], scaled[0], single_path,
-                     objective == "max-throughput")
+    issue = whole_data_issue(net.capacity, limited_mask(net), net.cost, com.demands, single_path)
+    if issue is not None:
+        field_name, index, reason = issue
+        raise ValueError(f"{field_name} {index}: {reason}")
+    scale, cost = cost_scale(net.cost)
+    return WholeData(net, com, com.demands.astype(np.int64), cost, scale, single_path, objective == "max-throughput")
 
 
 def _relaxation(net: Network, com: Commodities, objective: str, deadline: float) -> MultiCommoditySolution | None:
@@ -236,9 +236,8 @@ def _search(search: _Search, engine: str, hint, deadline: float) -> EngineResult
         return None
 
     def on_plan(objective: float, bound: float, seconds: float) -> bool:
-        found = int(round(objective))
-        if search._better(found, search.found):
-            search.found = found
+        if math.isfinite(objective) and search._better(int(round(objective)), search.found):
+            search.found = int(round(objective))
         search.tighten(_engine_bound(bound, search.model))
         search.report()
         return search.closed()

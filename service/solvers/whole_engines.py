@@ -14,6 +14,7 @@ it through ``LinearExpr`` objects took over a minute at 60k variables.
 from __future__ import annotations
 
 import logging
+import math
 import os
 import threading
 import time
@@ -21,7 +22,8 @@ from dataclasses import dataclass
 from typing import Callable
 
 import numpy as np
-from ortools.linear_solver.python import model_builder_helper as mbh
+from ortools.math_opt import callback_pb2, model_parameters_pb2, model_pb2, parameters_pb2, result_pb2
+from ortools.math_opt.core.python import solver as mathopt
 from ortools.sat.python import cp_model
 
 from ..errors import SolverFailure
@@ -36,6 +38,12 @@ ENGINES = ("cp-sat", "scip")
 CPSAT_WORKERS = int(os.environ.get("H17_W", max(1, min(8, os.cpu_count() or 1))))
 #: SCIP answers doubles: a value within this of an integer is that integer.
 ROUNDING_TOL = 1e-6
+#: SCIP checks its time limit between steps (a presolve round, a root LP) and frees a
+#: large model slowly: on the 60k-variable benchmark model on a loaded 2-core host it
+#: returned up to 1.6 s past its limit, and 1.2 s more went to freeing the model. It
+#: gets its own limit this much early (at most 20% of the time left). (MathOpt's
+#: interrupter did not stop it there: measured.)
+SCIP_MARGIN = 2.0
 
 
 @dataclass
@@ -52,7 +60,7 @@ OnPlan = Callable[[float, float, float], bool]
 
 
 def engine_info(name: str) -> dict:
-    solver = {"cp-sat": "OR-Tools CP-SAT", "scip": "SCIP (OR-Tools MPSolver)"}[name]
+    solver = {"cp-sat": "OR-Tools CP-SAT", "scip": "SCIP (OR-Tools MathOpt)"}[name]
     return {"kind": "mip", "solver": solver, "version": ORTOOLS_VERSION}
 
 
@@ -72,11 +80,12 @@ def run_engine(name: str, model: WholeModel, hint: np.ndarray | None, *, time_li
     if name == "cp-sat":
         return _cpsat(model, hint, time_limit, gap, on_plan)
     if name == "scip":
-        return _mpsolver("scip", model, hint, time_limit, gap)
+        return _scip(model, hint, time_limit, gap, on_plan)
     raise ValueError(f"unknown engine {name!r}")
 
 
-def _cpsat_proto(model: WholeModel, hint: np.ndarray | None) -> cp_model.CpModel:
+def cpsat_model(model: WholeModel, hint: np.ndarray | None) -> cp_model.CpModel:
+    """``model`` as a CP-SAT model (written into its proto), with ``hint`` as its solution hint."""
     cp = cp_model.CpModel()
     proto = cp.proto
     for upper in model.col_upper.tolist():
@@ -114,16 +123,26 @@ class _Watcher(cp_model.CpSolverSolutionCallback):
         self.lock = threading.Lock()
 
     def on_solution_callback(self) -> None:
-        if self.on_plan is None:
-            return
         with self.lock:
-            if self.on_plan(self.objective_value, self.best_objective_bound, time.perf_counter() - self.started):
+            if _told(self.on_plan, self.objective_value, self.best_objective_bound, self.started):
                 self.stop_search()
+
+
+def _told(on_plan: OnPlan | None, objective: float, bound: float, started: float) -> bool:
+    """Tell ``on_plan`` of a plan; whether to stop. An exception must not reach the
+    engine (it would leave it in a broken state): it is logged, and the search goes on."""
+    if on_plan is None:
+        return False
+    try:
+        return bool(on_plan(objective, bound, time.perf_counter() - started))
+    except Exception:  # noqa: BLE001 - see above
+        log.exception("whole units: the progress callback failed")
+        return False
 
 
 def _cpsat(model: WholeModel, hint, time_limit: float, gap: float, on_plan) -> EngineResult:
     started = time.perf_counter()
-    cp = _cpsat_proto(model, hint)
+    cp = cpsat_model(model, hint)
     solver = cp_model.CpSolver()
     params = solver.parameters
     params.max_time_in_seconds = max(0.0, time_limit - (time.perf_counter() - started))
@@ -131,7 +150,6 @@ def _cpsat(model: WholeModel, hint, time_limit: float, gap: float, on_plan) -> E
     params.num_workers = CPSAT_WORKERS
     extra = os.environ.get("H17_P")
     if extra:
-        from google.protobuf import text_format
         for kv in extra.split(","):
             k, v = kv.split("=")
             setattr(params, k, type(getattr(params, k))(v) if not isinstance(getattr(params, k), bool) else v == "1")
@@ -154,37 +172,79 @@ def _cpsat_bound(solver: cp_model.CpSolver) -> float | None:
     return bound if np.isfinite(bound) else None
 
 
-def _mpsolver(backend: str, model: WholeModel, hint, time_limit: float, gap: float) -> EngineResult:
+def scip_model(model: WholeModel) -> model_pb2.ModelProto:
+    """``model`` as a MathOpt model proto: every column filled from the arrays in one go."""
+    proto = model_pb2.ModelProto()
+    n = model.num_vars
+    variables = proto.variables
+    variables.ids.extend(range(n))
+    variables.lower_bounds.extend(model.col_lower.astype(np.float64).tolist())
+    variables.upper_bounds.extend(model.col_upper.astype(np.float64).tolist())
+    variables.integers.extend([True] * n)
+    used = np.flatnonzero(model.c)
+    proto.objective.maximize = model.maximize
+    proto.objective.linear_coefficients.ids.extend(used.tolist())
+    proto.objective.linear_coefficients.values.extend(model.c[used].astype(np.float64).tolist())
+    rows = model.matrix.shape[0]
+    constraints = proto.linear_constraints
+    constraints.ids.extend(range(rows))
+    constraints.lower_bounds.extend(np.where(model.row_lower <= -INT_LIMIT, -np.inf, model.row_lower).tolist())
+    constraints.upper_bounds.extend(np.where(model.row_upper >= INT_LIMIT, np.inf, model.row_upper).tolist())
+    coo = model.matrix.tocoo()
+    order = np.lexsort((coo.col, coo.row))  # MathOpt wants row-major order
+    matrix = proto.linear_constraint_matrix
+    matrix.row_ids.extend(coo.row[order].tolist())
+    matrix.column_ids.extend(coo.col[order].tolist())
+    matrix.coefficients.extend(coo.data[order].astype(np.float64).tolist())
+    return proto
+
+
+def _scip(model: WholeModel, hint, time_limit: float, gap: float, on_plan) -> EngineResult:
     started = time.perf_counter()
-    mb = mbh.ModelBuilderHelper()
-    big = float(INT_LIMIT)
-    mb.fill_model_from_sparse_data(
-        model.col_lower.astype(np.float64), model.col_upper.astype(np.float64), model.c.astype(np.float64),
-        np.where(model.row_lower <= -INT_LIMIT, -np.inf, model.row_lower.astype(np.float64)),
-        np.where(model.row_upper >= INT_LIMIT, np.inf, model.row_upper.astype(np.float64)),
-        model.matrix.astype(np.float64))
-    for j in range(model.num_vars):
-        mb.set_var_integrality(j, True)
-    mb.set_maximize(model.maximize)
+    proto = scip_model(model)
+    left = max(0.01, time_limit - (time.perf_counter() - started))
+    params = parameters_pb2.SolveParametersProto()
+    own = max(0.01, left - min(SCIP_MARGIN, 0.2 * left))
+    params.time_limit.seconds, params.time_limit.nanos = int(own), int((own % 1) * 1e9)
+    params.relative_gap_tolerance = gap
+    params.absolute_gap_tolerance = 0.0
+    params.gscip.int_params["timing/clocktype"] = 2  # wall clock: SCIP counts CPU time by default
+    model_params = model_parameters_pb2.ModelSolveParametersProto()
     if hint is not None:
-        for j, v in enumerate(np.asarray(hint).tolist()):
-            mb.add_hint(j, float(v))
-    solver = mbh.ModelSolverHelper(backend)
-    solver.set_time_limit_in_seconds(max(0.01, time_limit - (time.perf_counter() - started)))
-    solver.set_solver_specific_parameters(f"limits/gap = {gap}")
-    solver.solve(mb)
+        values = model_params.solution_hints.add().variable_values
+        values.ids.extend(range(model.num_vars))
+        values.values.extend(np.asarray(hint, dtype=np.float64).tolist())
+    registration = callback_pb2.CallbackRegistrationProto()
+    registration.request_registration.append(callback_pb2.CALLBACK_EVENT_MIP_SOLUTION)
+
+    def callback(data):
+        # At a MIP_SOLUTION event the stats' primal bound is the new incumbent's value
+        # (infinite when SCIP reports before it has one).
+        stats = data.mip_stats
+        return callback_pb2.CallbackResultProto(terminate=_told(on_plan, stats.primal_bound, stats.dual_bound,
+                                                                started))
+
+    try:
+        result = mathopt.solve(proto, parameters_pb2.SOLVER_TYPE_GSCIP, parameters_pb2.SolverInitializerProto(),
+                               params, model_params, None, registration, callback, None)
+    except Exception as exc:  # noqa: BLE001 - pybind's StatusNotOk: an invalid model is our bug
+        raise SolverFailure(f"SCIP did not solve the model: {exc}") from None
     seconds = time.perf_counter() - started
-    status = solver.status()
-    name = getattr(status, "name", str(status))
-    if "INFEASIBLE" in name:
+    reason = result_pb2.TerminationReasonProto.Name(result.termination.reason)
+    if reason == "TERMINATION_REASON_INFEASIBLE":
         return EngineResult("infeasible", None, None, None, seconds)
-    bound = solver.best_objective_bound() if solver.has_response() else None
-    bound = bound if bound is not None and abs(bound) < big else None
-    if not solver.has_solution():
+    if reason in ("TERMINATION_REASON_NUMERICAL_ERROR", "TERMINATION_REASON_OTHER_ERROR", "TERMINATION_REASON_IMPRECISE",
+                  "TERMINATION_REASON_UNBOUNDED", "TERMINATION_REASON_INFEASIBLE_OR_UNBOUNDED"):
+        raise SolverFailure(f"SCIP stopped with {reason}: {result.termination.detail}")
+    bound = result.termination.objective_bounds.dual_bound
+    bound = bound if math.isfinite(bound) else None
+    if not result.solutions or not result.solutions[0].HasField("primal_solution"):
         return EngineResult("unknown", None, None, bound, seconds)
-    raw = np.asarray(solver.variable_values(), dtype=np.float64)
+    solution = result.solutions[0].primal_solution
+    raw = np.zeros(model.num_vars)
+    raw[np.asarray(solution.variable_values.ids, dtype=np.int64)] = solution.variable_values.values
     values = np.rint(raw)
     if np.abs(raw - values).max(initial=0.0) > ROUNDING_TOL:
-        raise SolverFailure(f"{backend} answered a value {np.abs(raw - values).max():g} away from a whole number")
-    return EngineResult("optimal" if name == "OPTIMAL" else "feasible", values.astype(np.int64),
-                        solver.objective_value(), bound, seconds)
+        raise SolverFailure(f"SCIP answered a value {np.abs(raw - values).max():g} away from a whole number")
+    return EngineResult("optimal" if reason == "TERMINATION_REASON_OPTIMAL" else "feasible", values.astype(np.int64),
+                        solution.objective_value, bound, seconds)

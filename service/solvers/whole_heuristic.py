@@ -3,6 +3,8 @@
 Commodities are routed one at a time, largest demand first, on what the earlier ones
 left of each shared capacity:
 
+0. *Keeping*: a commodity the LP plan already routes in whole units (single path: on
+   one unsplit simple path) keeps that route.
 1. *Rounding*: the commodity's own LP support, with each arc's room rounded up from
    its LP flow (``ceil(f_ka)``), routed as an exact integer min-cost flow (or, single
    path, the cheapest path with room for the whole demand).
@@ -51,7 +53,8 @@ class Plan:
         return np.concatenate([x, shipped])
 
 
-def route_greedily(data: WholeData, lp_flows: np.ndarray | None) -> Plan | None:
+def route_greedily(data: WholeData, lp_flows: np.ndarray | None = None,
+                   lp_delivered: np.ndarray | None = None) -> Plan | None:
     """A plan for every commodity in turn (see the module doc); None when a ``min-cost``
     commodity cannot be routed on what is left."""
     K, m = data.shape
@@ -60,8 +63,14 @@ def route_greedily(data: WholeData, lp_flows: np.ndarray | None) -> Plan | None:
     x = np.zeros((K, m), dtype=np.int64)
     delivered = np.zeros(K, dtype=np.int64)
     paths: list = [[] for _ in range(K)]
+    kept = _kept_from_lp(data, lp_flows, lp_delivered, ub) if lp_flows is not None else {}
+    for k, (units, shipped, path) in kept.items():
+        x[k], delivered[k], paths[k] = units, shipped, path
+        residual -= units * (data.demands[k] if data.single_path else 1)
+    if (residual[data.limited] < 0).any():  # round-off in the LP plan: start from nothing instead
+        return route_greedily(data, lp_flows)
     for k in np.argsort(-data.demands, kind="stable").tolist():
-        if data.demands[k] == 0:
+        if data.demands[k] == 0 or k in kept:
             continue
         support = None if lp_flows is None else lp_flows[k] > SUPPORT_TOL
         if data.single_path:
@@ -79,6 +88,35 @@ def route_greedily(data: WholeData, lp_flows: np.ndarray | None) -> Plan | None:
         if delivered[k] == 0 and not data.throughput:
             return None
     return Plan(x, delivered, paths if data.single_path else None)
+
+
+def _kept_from_lp(data: WholeData, lp_flows: np.ndarray, lp_delivered: np.ndarray | None, ub: np.ndarray) -> dict:
+    """Commodities the LP plan already routes in whole units (single path: unsplit, on
+    one simple path), within the model's bounds: ``{k: (x_k, delivered_k, path)}``.
+    Taken as they are, since together they fit (they are part of the LP plan)."""
+    if lp_delivered is None:
+        return {}
+    rounded = np.rint(lp_flows)
+    scale = np.maximum(1.0, data.demands.astype(np.float64))[:, None]
+    whole = (np.abs(lp_flows - rounded) <= 1e-6 * scale).all(axis=1)
+    shipped = np.rint(lp_delivered).astype(np.int64)
+    whole &= np.abs(lp_delivered - shipped) <= 1e-6 * scale[:, 0]
+    if data.single_path:
+        d = data.demands[:, None]
+        whole &= ((rounded == 0) | (rounded == d)).all(axis=1) & (shipped == data.demands)
+        units = (rounded > 0).astype(np.int64)
+    else:
+        units = rounded.astype(np.int64)
+    whole &= (units <= ub).all(axis=1) & (data.demands > 0)
+    kept = {}
+    for k in np.flatnonzero(whole).tolist():
+        path = None
+        if data.single_path:
+            path = simple_path(data, k, np.flatnonzero(units[k]))
+            if len(path) != int(units[k].sum()):  # the LP added a cycle: route it afresh
+                continue
+        kept[k] = (units[k], int(shipped[k]), path or [])
+    return kept
 
 
 def _route_units(data: WholeData, k: int, residual, ub, support, lp_flows):

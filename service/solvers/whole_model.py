@@ -83,7 +83,12 @@ class WholeData:
 
     @property
     def limited(self) -> np.ndarray:
-        return self.net.limited
+        """Boolean mask of the arcs with a capacity."""
+        return limited_mask(self.net)
+
+
+def limited_mask(net: Network) -> np.ndarray:
+    return np.ones(net.num_arcs, dtype=bool) if net.unlimited is None else ~net.unlimited
 
 
 def cost_scale(cost: np.ndarray) -> tuple[int, np.ndarray] | None:
@@ -96,6 +101,48 @@ def cost_scale(cost: np.ndarray) -> tuple[int, np.ndarray] | None:
     if scaled.size and int(np.abs(scaled).max()) >= INT_LIMIT:
         return None
     return places, scaled
+
+
+#: Largest objective magnitude (scaled cost of any plan) solved: float64 holds every
+#: integer up to here exactly, so the engines' objective values and bounds are exact.
+OBJECTIVE_LIMIT = 2**53
+
+
+def whole_data_issue(capacity: np.ndarray, limited: np.ndarray, cost: np.ndarray, demands: np.ndarray,
+                     single_path: bool) -> tuple[str, int, str] | None:
+    """The first value that whole-unit solving cannot take exactly, or None.
+
+    Returns
+    -------
+    (field, index, reason)
+        ``field`` is ``capacity`` or ``cost`` (``index`` an arc), ``demand`` (a
+        commodity), or ``objective`` (index -1: the costs times the flows could leave
+        the exact range).
+    """
+    for field, values, where in (("capacity", capacity, limited), ("demand", demands, None)):
+        values = np.asarray(values, dtype=np.float64)
+        bad = (values != np.trunc(values)) | (values > INT_LIMIT)
+        if where is not None:
+            bad &= where
+        if bad.any():
+            i = int(np.flatnonzero(bad)[0])
+            why = "whole number" if values[i] == np.trunc(values[i]) else None
+            return field, i, ("must be at most 2**50 for whole-unit plans" if why else
+                              "must be a whole number for whole-unit plans (integral or single_path)")
+    cost = np.asarray(cost, dtype=np.float64)
+    micro = cost * 1e6  # the rule of scaling.decimal_places at six decimals
+    bad = np.abs(micro - np.rint(micro)) > 1e-9 * np.maximum(1.0, np.abs(micro))
+    if bad.any():
+        return "cost", int(np.flatnonzero(bad)[0]), "must have at most 6 decimals for whole-unit plans"
+    if single_path and (cost < 0).any():
+        return "cost", int(np.flatnonzero(cost < 0)[0]), "must be >= 0 with single_path (a path cannot take a " \
+                                                          "detour to earn on a negative-cost lane)"
+    scaled = cost_scale(cost)
+    demand = float(np.sum(demands))
+    room = np.where(limited, np.minimum(np.asarray(capacity, dtype=np.float64), demand), demand)
+    if scaled is None or float(np.abs(scaled[1]).astype(np.float64) @ room) >= OBJECTIVE_LIMIT:
+        return "objective", -1, "the costs times the flows could exceed 2**53 (in the costs' smallest decimal)"
+    return None
 
 
 def flow_upper(data: WholeData) -> np.ndarray:
