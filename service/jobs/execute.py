@@ -10,7 +10,8 @@ from dataclasses import replace
 
 import orjson
 
-from ..kinds import Limits
+from ..kinds import KINDS, Limits
+from ..kinds.base import stop_grace
 from .model import CANCELLED, DONE, DUMP_OPTIONS, FAILED, problem_doc, time_limit_error
 from .runner import Cancelled, ChildLost, DeadlineExceeded, RemoteError, unpack
 
@@ -23,9 +24,12 @@ def execute(run, kind: str, body: bytes, limits: Limits, time_limit: float, on_t
     Parameters
     ----------
     run : callable
-        ``run(message, deadline=..., on_tick=...) -> reply``.
+        ``run(message, budget=..., on_tick=..., on_progress=...) -> reply``
+        (:meth:`SolverPool.run`, or a :meth:`SolverProcess.run` already started).
     time_limit : float
-        Seconds for the whole job (parse and solve); the process is killed after.
+        Seconds for the whole job (parse and solve); the process is killed after, or,
+        for a kind that stops itself at its limit, after a grace to answer
+        (:func:`~service.kinds.base.stop_grace`).
     on_tick : callable, optional
         Heartbeat, called every quarter second; returning true cancels the job.
     on_progress : callable, optional
@@ -36,9 +40,9 @@ def execute(run, kind: str, body: bytes, limits: Limits, time_limit: float, on_t
     (state, result_json or None, error document or None)
     """
     job_limits = replace(limits, time_limit=time_limit)
-    deadline = time.monotonic() + time_limit
+    budget = time_limit + stop_grace(KINDS.get(kind), time_limit)
     try:
-        result, _ = unpack(run(("job", kind, body, job_limits), deadline=deadline, on_tick=on_tick,
+        result, _ = unpack(run(("job", kind, body, job_limits), budget=budget, on_tick=on_tick,
                                on_progress=on_progress))
     except DeadlineExceeded:
         return FAILED, None, time_limit_error(time_limit)

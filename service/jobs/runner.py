@@ -128,7 +128,7 @@ class SolverProcess:
                 raise Cancelled()
 
     def run(self, message: tuple, *, deadline: float | None = None, on_tick=None, tick: float = 0.25,
-            on_progress=None):
+            on_progress=None, budget: float | None = None):
         """Send one message and wait for the reply.
 
         Parameters
@@ -136,7 +136,8 @@ class SolverProcess:
         message : tuple
             See :mod:`service.jobs.work`.
         deadline : float, optional
-            ``time.monotonic()`` value after which the child is killed.
+            ``time.monotonic()`` value after which the child is killed (or ``budget``:
+            seconds from now).
         on_tick : callable, optional
             Called every ``tick`` seconds while waiting (heartbeats); a true return
             value cancels: the child is killed.
@@ -153,6 +154,8 @@ class SolverProcess:
         DeadlineExceeded, Cancelled, ChildLost
             In each case the child is dead afterwards.
         """
+        if budget is not None:
+            deadline = time.monotonic() + budget
         try:
             write_frame(self.proc.stdin.fileno(), message)
         except (OSError, ValueError):  # the child has gone (ValueError: it was killed here before)
@@ -229,8 +232,11 @@ class SolverPool:
                 self._idle.append(proc)
 
     def run(self, message: tuple, *, deadline: float | None = None, on_tick=None, wait: float = 30.0,
-            on_progress=None):
+            on_progress=None, budget: float | None = None):
         """Run one message on a pooled child (see :meth:`SolverProcess.run`).
+
+        ``budget`` (seconds), instead of ``deadline``, starts counting once a child is
+        ready: a job's time limit does not pay for starting its solver process.
 
         Raises
         ------
@@ -241,6 +247,8 @@ class SolverPool:
             raise TimeoutError("every solver process is busy")
         try:
             proc = self._take()
+            if budget is not None:
+                deadline = time.monotonic() + budget
             try:
                 reply = proc.run(message, deadline=deadline, on_tick=on_tick, on_progress=on_progress)
             except (DeadlineExceeded, Cancelled, ChildLost):

@@ -74,6 +74,13 @@ def time_limit(options: dict, limits: Limits) -> float:
     return limits.time_limit if asked is None else min(float(asked), limits.time_limit)
 
 
+def stop_grace(kind, seconds: float) -> float:
+    """Seconds past its time limit before a solve is killed: a kind whose solver stops
+    itself at the limit (``honours_time_limit``: GLOP, the MIP engines) gets time to
+    return its own answer (``time_limit``, or a plan so far); the others are killed at it."""
+    return min(10.0, max(2.0, 0.5 * seconds)) if getattr(kind, "honours_time_limit", False) else 0.0
+
+
 def wants(options: dict, part: str) -> bool:
     detail = options.get("detail")
     return detail is None or part in detail

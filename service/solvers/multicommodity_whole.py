@@ -335,4 +335,4 @@ def _unbounded(data: WholeData, model: WholeModel, lp: MultiCommoditySolution, d
     plan = read_plan(data, values)
     _, _, figures = check_flows(data, plan.flows(data), plan.delivered, plan.paths)
     return WholeSolution("unbounded", unbounded=lp.unbounded,
-                         certificate={**lp.certificate, "plan": figures}, engine=engine_info(engine))
+                         certificate={**lp.certificate, "integral_plan": figures}, engine=engine_info(engine))

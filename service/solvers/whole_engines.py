@@ -16,6 +16,7 @@ from __future__ import annotations
 import logging
 import math
 import os
+import re
 import threading
 import time
 from dataclasses import dataclass
@@ -199,6 +200,40 @@ def scip_model(model: WholeModel) -> model_pb2.ModelProto:
     return proto
 
 
+class ScipTable:
+    """Reads SCIP's progress table from its log lines: ``rows`` of (seconds, primal,
+    dual) and the latest dual ``bound``. The columns are named in a header row."""
+
+    def __init__(self):
+        self.columns: tuple[int, int] | None = None
+        self.rows: list[tuple[float, float | None, float | None]] = []
+        self.bound: float | None = None
+
+    def read(self, lines: list[str]) -> None:
+        for line in lines:
+            cells = [c.strip() for c in line.split("|")]
+            if "dualbound" in cells and "primalbound" in cells:
+                self.columns = cells.index("dualbound"), cells.index("primalbound")
+                continue
+            if self.columns is None or len(cells) <= max(self.columns):
+                continue
+            seconds = re.search(r"([\d.]+)s$", cells[0])
+            if seconds is None:
+                continue
+            dual, primal = (_number(cells[i]) for i in self.columns)
+            self.rows.append((float(seconds.group(1)), primal, dual))
+            if dual is not None:
+                self.bound = dual
+
+
+def _number(text: str) -> float | None:
+    try:
+        value = float(text)
+    except ValueError:  # "--", "-", "inf"-like cells
+        return None
+    return value if math.isfinite(value) and abs(value) < 1e19 else None
+
+
 def _scip(model: WholeModel, hint, time_limit: float, gap: float, on_plan) -> EngineResult:
     started = time.perf_counter()
     proto = scip_model(model)
@@ -217,16 +252,21 @@ def _scip(model: WholeModel, hint, time_limit: float, gap: float, on_plan) -> En
     registration = callback_pb2.CallbackRegistrationProto()
     registration.request_registration.append(callback_pb2.CALLBACK_EVENT_MIP_SOLUTION)
 
+    cost = model.c.astype(np.float64)
+    log_rows = ScipTable()
+
     def callback(data):
-        # At a MIP_SOLUTION event the stats' primal bound is the new incumbent's value
-        # (infinite when SCIP reports before it has one).
-        stats = data.mip_stats
-        return callback_pb2.CallbackResultProto(terminate=_told(on_plan, stats.primal_bound, stats.dual_bound,
-                                                                started))
+        # The stats SCIP passes here are in its presolved space (an objective whose fixed
+        # part was moved out reads 0), so the plan is priced from its own values and the
+        # bound is the last one SCIP's log showed (the log prints original values).
+        plan = data.primal_solution_vector
+        objective = float(cost[np.asarray(plan.ids, dtype=np.int64)] @ np.asarray(plan.values, dtype=np.float64))
+        bound = log_rows.bound if log_rows.bound is not None else math.nan
+        return callback_pb2.CallbackResultProto(terminate=_told(on_plan, objective, bound, started))
 
     try:
         result = mathopt.solve(proto, parameters_pb2.SOLVER_TYPE_GSCIP, parameters_pb2.SolverInitializerProto(),
-                               params, model_params, None, registration, callback, None)
+                               params, model_params, log_rows.read, registration, callback, None)
     except Exception as exc:  # noqa: BLE001 - pybind's StatusNotOk: an invalid model is our bug
         raise SolverFailure(f"SCIP did not solve the model: {exc}") from None
     seconds = time.perf_counter() - started
