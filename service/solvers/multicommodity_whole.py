@@ -242,8 +242,10 @@ def _search(search: _Search, engine: str, hint, deadline: float) -> EngineResult
         search.report()
         return search.closed()
 
+    # Without a listener the engine's own gap test stops it (its bound is at least the
+    # LP's), so the callback, which costs SCIP an event handler, is only for progress.
     result = run_engine(engine, search.model, hint, time_limit=deadline - time.perf_counter(), gap=search.target,
-                        on_plan=on_plan)
+                        on_plan=on_plan if search.on_progress is not None else None)
     search.found = None
     search.tighten(_engine_bound(result.bound, search.model))
     if result.values is not None:

@@ -1,14 +1,17 @@
-"""The MIP engines that ship with OR-Tools, behind one call: CP-SAT and SCIP.
+"""The MIP engines that ship with OR-Tools, behind one call: SCIP and CP-SAT.
 
 ``run_engine(name, model, hint, ...)`` solves a :class:`~.whole_model.WholeModel`
-and answers an :class:`EngineResult`. CP-SAT is the service's engine (README,
-"Whole units": measured faster to a first plan and to a 1% gap on the benchmark, it
-reports every improving plan with its bound while it runs, and it works in exact
-integers). SCIP, through the MPSolver interface that ``pywraplp`` also wraps, is kept
-for the benchmark (``tests.perf whole_units``) and as a second opinion in tests.
+and answers an :class:`EngineResult`. SCIP is the service's engine: on the benchmark
+(``tests.perf whole_units``, README "Whole units") it closed the gap that CP-SAT left
+open, and, given no plan, found one where CP-SAT found none in 10 s. It is driven
+through MathOpt (OR-Tools' newer interface to the same bundled SCIP that ``pywraplp``
+wraps) because MathOpt takes the model as arrays and calls back on every improving
+plan, which MPSolver's Python interface cannot do. CP-SAT stays as the second opinion
+(tests) and for hosts with many cores, where its portfolio search gains most.
 
-CP-SAT's model is written straight into its proto (one ``extend`` per row): building
-it through ``LinearExpr`` objects took over a minute at 60k variables.
+Both models are written straight into the engines' protos (one ``extend`` per field
+or row): building CP-SAT's through ``LinearExpr`` objects took over a minute at 60k
+variables.
 """
 
 from __future__ import annotations
@@ -33,10 +36,10 @@ from .whole_model import INT_LIMIT, WholeModel
 
 log = logging.getLogger("sluice.solver")
 
-ENGINES = ("cp-sat", "scip")
+ENGINES = ("scip", "cp-sat")
 #: CP-SAT search workers: its portfolio (LNS, feasibility jump, core search) needs a
 #: few; more than the host's cores only time-slices them.
-CPSAT_WORKERS = int(os.environ.get("H17_W", max(1, min(8, os.cpu_count() or 1))))
+CPSAT_WORKERS = max(1, min(8, os.cpu_count() or 1))
 #: SCIP answers doubles: a value within this of an integer is that integer.
 ROUNDING_TOL = 1e-6
 #: SCIP checks its time limit between steps (a presolve round, a root LP) and frees a
@@ -149,11 +152,6 @@ def _cpsat(model: WholeModel, hint, time_limit: float, gap: float, on_plan) -> E
     params.max_time_in_seconds = max(0.0, time_limit - (time.perf_counter() - started))
     params.relative_gap_limit = gap
     params.num_workers = CPSAT_WORKERS
-    extra = os.environ.get("H17_P")
-    if extra:
-        for kv in extra.split(","):
-            k, v = kv.split("=")
-            setattr(params, k, type(getattr(params, k))(v) if not isinstance(getattr(params, k), bool) else v == "1")
     status = solver.solve(cp, _Watcher(on_plan, started))
     seconds = time.perf_counter() - started
     name = solver.status_name(status)
@@ -220,16 +218,17 @@ class ScipTable:
             seconds = re.search(r"([\d.]+)s$", cells[0])
             if seconds is None:
                 continue
-            dual, primal = (_number(cells[i]) for i in self.columns)
+            dual, primal = (number(cells[i]) for i in self.columns)
             self.rows.append((float(seconds.group(1)), primal, dual))
             if dual is not None:
                 self.bound = dual
 
 
-def _number(text: str) -> float | None:
+def number(text: str) -> float | None:
+    """A number in an engine's log, or None for "--", "-" and the like."""
     try:
         value = float(text)
-    except ValueError:  # "--", "-", "inf"-like cells
+    except ValueError:
         return None
     return value if math.isfinite(value) and abs(value) < 1e19 else None
 
@@ -250,7 +249,10 @@ def _scip(model: WholeModel, hint, time_limit: float, gap: float, on_plan) -> En
         values.ids.extend(range(model.num_vars))
         values.values.extend(np.asarray(hint, dtype=np.float64).tolist())
     registration = callback_pb2.CallbackRegistrationProto()
-    registration.request_registration.append(callback_pb2.CALLBACK_EVENT_MIP_SOLUTION)
+    if on_plan is not None:
+        # Only when someone listens: SCIP logs a harmless error when the event handler
+        # behind this callback is installed.
+        registration.request_registration.append(callback_pb2.CALLBACK_EVENT_MIP_SOLUTION)
 
     cost = model.c.astype(np.float64)
     log_rows = ScipTable()
@@ -266,15 +268,15 @@ def _scip(model: WholeModel, hint, time_limit: float, gap: float, on_plan) -> En
 
     try:
         result = mathopt.solve(proto, parameters_pb2.SOLVER_TYPE_GSCIP, parameters_pb2.SolverInitializerProto(),
-                               params, model_params, log_rows.read, registration, callback, None)
+                               params, model_params, log_rows.read, registration,
+                               callback if on_plan is not None else None, None)
     except Exception as exc:  # noqa: BLE001 - pybind's StatusNotOk: an invalid model is our bug
         raise SolverFailure(f"SCIP did not solve the model: {exc}") from None
     seconds = time.perf_counter() - started
-    reason = result_pb2.TerminationReasonProto.Name(result.termination.reason)
-    if reason == "TERMINATION_REASON_INFEASIBLE":
+    reason = result_pb2.TerminationReasonProto.Name(result.termination.reason).removeprefix("TERMINATION_REASON_")
+    if reason == "INFEASIBLE":
         return EngineResult("infeasible", None, None, None, seconds)
-    if reason in ("TERMINATION_REASON_NUMERICAL_ERROR", "TERMINATION_REASON_OTHER_ERROR", "TERMINATION_REASON_IMPRECISE",
-                  "TERMINATION_REASON_UNBOUNDED", "TERMINATION_REASON_INFEASIBLE_OR_UNBOUNDED"):
+    if reason not in ("OPTIMAL", "FEASIBLE", "NO_SOLUTION_FOUND"):  # numerical trouble, "unbounded" (bounded vars)
         raise SolverFailure(f"SCIP stopped with {reason}: {result.termination.detail}")
     bound = result.termination.objective_bounds.dual_bound
     bound = bound if math.isfinite(bound) else None
@@ -286,5 +288,5 @@ def _scip(model: WholeModel, hint, time_limit: float, gap: float, on_plan) -> En
     values = np.rint(raw)
     if np.abs(raw - values).max(initial=0.0) > ROUNDING_TOL:
         raise SolverFailure(f"SCIP answered a value {np.abs(raw - values).max():g} away from a whole number")
-    return EngineResult("optimal" if reason == "TERMINATION_REASON_OPTIMAL" else "feasible", values.astype(np.int64),
+    return EngineResult("optimal" if reason == "OPTIMAL" else "feasible", values.astype(np.int64),
                         solution.objective_value, bound, seconds)

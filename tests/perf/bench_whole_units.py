@@ -47,6 +47,7 @@ from service.solvers.whole_model import INT_LIMIT, WholeData, build_model, cost_
 from tests.perf.harness import table
 
 ONE_PERCENT = 0.01
+num = whole_engines.number
 
 
 def depot_network(seed: int, *, nodes: int = 200, arcs: int = 1500, commodities: int = 40, cap_low: int = 10,
@@ -144,42 +145,23 @@ def cold_cpsat(model, limit: float) -> tuple:
     return summary(points, plan, solver.best_objective_bound, time.perf_counter() - started, status)
 
 
-def _number(text: str):
-    text = text.strip().rstrip("%")
-    try:
-        value = float(text)
-    except ValueError:
-        return None
-    return value if abs(value) < 1e19 else None
-
-
-def _scip_table(lines: list, offset: float) -> list:
-    """(t, plan, bound) from SCIP's progress table (its columns are named in a header row)."""
-    points, columns = [], None
-    for line in lines:
-        cells = [c.strip() for c in line.split("|")]
-        if "dualbound" in cells and "primalbound" in cells:
-            columns = cells.index("dualbound"), cells.index("primalbound")
-        elif columns and len(cells) > max(columns) and (t := re.search(r"([\d.]+)s$", cells[0])):
-            points.append((offset + float(t.group(1)), _number(cells[columns[1]]), _number(cells[columns[0]])))
-    return points
-
-
 def cold_scip(model, limit: float) -> tuple:
     """SCIP through MathOpt (the service's adapter builds the same proto); its log's table."""
     started = time.perf_counter()
     proto = whole_engines.scip_model(model)
     params = parameters_pb2.SolveParametersProto()
     params.time_limit.seconds = int(limit)
-    lines: list = []
+    params.gscip.int_params["timing/clocktype"] = 2
+    log = whole_engines.ScipTable()
     built = time.perf_counter() - started
     result = mathopt.solve(proto, parameters_pb2.SOLVER_TYPE_GSCIP, parameters_pb2.SolverInitializerProto(), params,
-                           model_parameters_pb2.ModelSolveParametersProto(), lines.extend,
+                           model_parameters_pb2.ModelSolveParametersProto(), log.read,
                            callback_pb2.CallbackRegistrationProto(), None, None)
     bounds = result.termination.objective_bounds
     plan = bounds.primal_bound if result.solutions else None
     status = result_pb2.TerminationReasonProto.Name(result.termination.reason).replace("TERMINATION_REASON_", "")
-    return summary(_scip_table(lines, built), plan, bounds.dual_bound, time.perf_counter() - started, status)
+    points = [(built + t, primal, dual) for t, primal, dual in log.rows]
+    return summary(points, plan, bounds.dual_bound, time.perf_counter() - started, status)
 
 
 CBC_PLAN = re.compile(r"Integer solution of (\S+) found.*\(([\d.]+) seconds\)")
@@ -211,9 +193,9 @@ def cold_cbc(model, limit: float) -> tuple:
     points = []
     for line in log().splitlines():
         if (match := CBC_PLAN.search(line)) is not None:
-            points.append((built + float(match.group(2)), _number(match.group(1)), None))
+            points.append((built + float(match.group(2)), num(match.group(1)), None))
         elif (match := CBC_NODES.search(line)) is not None:
-            points.append((built + float(match.group(3)), _number(match.group(1)), _number(match.group(2))))
+            points.append((built + float(match.group(3)), num(match.group(1)), num(match.group(2))))
     names = {pywraplp.Solver.OPTIMAL: "OPTIMAL", pywraplp.Solver.FEASIBLE: "FEASIBLE",
              pywraplp.Solver.INFEASIBLE: "INFEASIBLE", pywraplp.Solver.NOT_SOLVED: "NOT_SOLVED"}
     has_plan = status in (pywraplp.Solver.OPTIMAL, pywraplp.Solver.FEASIBLE)
@@ -241,7 +223,7 @@ def cold_milp(model, limit: float) -> tuple:
         explored = next((i for i, tok in enumerate(tokens) if tok.endswith("%")), None)
         if explored is None or explored + 2 >= len(tokens):
             continue
-        points.append((float(tokens[-1][:-1]), _number(tokens[explored + 2]), _number(tokens[explored + 1])))
+        points.append((float(tokens[-1][:-1]), num(tokens[explored + 2]), num(tokens[explored + 1])))
     plan = res.fun if res.x is not None else None
     bound = getattr(res, "mip_dual_bound", None)
     return summary(points, plan, bound, time.perf_counter() - started, res.message.split(".")[0][:28])
