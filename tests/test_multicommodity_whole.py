@@ -415,16 +415,20 @@ def test_stored_network_what_if_and_batch_take_the_same_options(client):
     assert batch["results"][1]["errors"][0]["pointer"] == "/problem/options/gap"
 
 
-def test_a_job_reports_the_incumbent_and_the_gap_while_it_runs(client):
+def _benchmark_body() -> dict:
+    """The benchmark's single-path network as a request body (columnar arcs)."""
     net, com = depot_network(1, cap_low=30, cap_high=80, load=1.5)
     names = [f"site-{i}" for i in range(net.num_nodes)]
-    problem = {
+    return {
         "arcs": {"from": [names[t] for t in net.tail], "to": [names[h] for h in net.head],
                  "capacity": net.capacity.tolist(), "cost": net.cost.tolist()},
         "commodities": [{"id": f"order-{k}", "source": names[s], "sink": names[t], "demand": int(d)}
                         for k, (s, t, d) in enumerate(zip(com.sources, com.sinks, com.demands))],
-        "options": {"single_path": True, "time_limit": 6},
     }
+
+
+def test_a_job_reports_the_incumbent_and_the_gap_while_it_runs(client):
+    problem = {**_benchmark_body(), "options": {"single_path": True, "time_limit": 6}}
     r = client.post("/v1/jobs", json={"kind": "multicommodity", "problem": problem})
     assert r.status_code == 202
     seen = []
@@ -442,3 +446,73 @@ def test_a_job_reports_the_incumbent_and_the_gap_while_it_runs(client):
     assert set(last) == {"phase", "incumbent", "bound", "gap", "seconds"}
     assert last["incumbent"] is not None and 0 <= last["gap"] <= 1 and last["bound"] <= last["incumbent"]
     assert doc["result"]["status"] in ("optimal", "feasible") and "progress" not in doc
+
+
+def test_whole_unit_answers_match_the_published_schema(client):
+    """Every answer shape (optimal, feasible with a gap, infeasible by either proof) against
+    the OpenAPI document's MultiCommodityResponse (JSON Schema 2020-12, jsonschema)."""
+    from jsonschema import Draft202012Validator
+
+    from service.api.spec import build_spec
+
+    spec = build_spec()
+    validator = Draft202012Validator({"$ref": "#/components/schemas/MulticommodityResponse",
+                                      "components": spec["components"]})
+    bodies = [SCENARIO, {**SCENARIO, "options": {"single_path": True, "gap": 0.05}},
+              {**SCENARIO, "objective": "max-throughput", "options": {"single_path": True}},
+              {**SCENARIO, "commodities": [{**c, "demand": 31} for c in SCENARIO["commodities"]],
+               "options": {"single_path": True}},  # 31 > every 30-pallet direct lane and 25 on the ring
+              {**SCENARIO, "commodities": [{**c, "demand": 90} for c in SCENARIO["commodities"]]}]
+    statuses = set()
+    for body in bodies:
+        r = client.post("/v1/multicommodity", json=body)
+        assert r.status_code == 200
+        doc = r.get_json()
+        validator.validate(doc)
+        statuses.add((doc["status"], (doc.get("infeasibility") or {}).get("proof")))
+    assert statuses == {("optimal", None), ("infeasible", "solver"), ("infeasible", "lp-relaxation")}
+
+
+@pytest.mark.redis
+def test_a_redis_job_records_progress_while_it_runs(redis_url, redis_prefix):
+    from service.jobs.redis_backend import RedisJobs
+
+    backend = RedisJobs(redis_url, prefix=redis_prefix, queue=redis_prefix + "queue", lease=5.0)
+    try:
+        problem = {**_benchmark_body(), "options": {"single_path": True, "time_limit": 5}}
+        record = backend.submit("acme", "multicommodity", json.dumps(problem).encode(), time_limit=5)
+        import threading
+
+        worker = threading.Thread(target=backend.run, args=(record.id,))
+        worker.start()
+        seen = []
+        while worker.is_alive():
+            current = backend.get("acme", record.id)
+            if current.state == RUNNING and current.progress is not None:
+                seen.append(current.document()["progress"])
+            time.sleep(0.1)
+        worker.join()
+        final = backend.get("acme", record.id)
+        assert final.state == DONE, final.error
+        assert seen and seen[-1]["incumbent"] is not None and "progress" not in final.document()
+    finally:
+        backend.close()
+
+
+def test_a_jobs_file_from_before_progress_reports_gets_the_column(tmp_path):
+    import sqlite3
+
+    from service.jobs.sqlite_backend import SqliteJobs
+    from service.kinds import Limits
+
+    old = sqlite3.connect(tmp_path / "jobs.sqlite3")
+    old.execute("CREATE TABLE jobs (id TEXT PRIMARY KEY, tenant TEXT NOT NULL, kind TEXT NOT NULL, state TEXT NOT "
+                "NULL, body BLOB, result BLOB, error TEXT, created REAL NOT NULL, started REAL, finished REAL, "
+                "attempts INTEGER NOT NULL DEFAULT 0, time_limit REAL NOT NULL, cancel INTEGER NOT NULL DEFAULT 0, "
+                "owner TEXT, lease_until REAL)")
+    old.execute("INSERT INTO jobs (id, tenant, kind, state, created, time_limit) VALUES ('a' , 't', 'maxflow', "
+                "'queued', 0, 5)")
+    old.commit()
+    old.close()
+    jobs = SqliteJobs(str(tmp_path), limits=Limits(), workers=0)
+    assert jobs.get("t", "a").state == "queued" and jobs.get("t", "a").progress is None

@@ -63,7 +63,7 @@ def route_greedily(data: WholeData, lp_flows: np.ndarray | None = None,
     x = np.zeros((K, m), dtype=np.int64)
     delivered = np.zeros(K, dtype=np.int64)
     paths: list = [[] for _ in range(K)]
-    kept = _kept_from_lp(data, lp_flows, lp_delivered, ub) if lp_flows is not None else {}
+    kept = kept_from_lp(data, lp_flows, lp_delivered, ub) if lp_flows is not None else {}
     for k, (units, shipped, path) in kept.items():
         x[k], delivered[k], paths[k] = units, shipped, path
         residual -= units * (data.demands[k] if data.single_path else 1)
@@ -90,7 +90,7 @@ def route_greedily(data: WholeData, lp_flows: np.ndarray | None = None,
     return Plan(x, delivered, paths if data.single_path else None)
 
 
-def _kept_from_lp(data: WholeData, lp_flows: np.ndarray, lp_delivered: np.ndarray | None, ub: np.ndarray) -> dict:
+def kept_from_lp(data: WholeData, lp_flows: np.ndarray, lp_delivered: np.ndarray | None, ub: np.ndarray) -> dict:
     """Commodities the LP plan already routes in whole units (single path: unsplit, on
     one simple path), within the model's bounds: ``{k: (x_k, delivered_k, path)}``.
     Taken as they are, since together they fit (they are part of the LP plan)."""
