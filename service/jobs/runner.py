@@ -247,10 +247,8 @@ class SolverPool:
             raise TimeoutError("every solver process is busy")
         try:
             proc = self._take()
-            if budget is not None:
-                deadline = time.monotonic() + budget
             try:
-                reply = proc.run(message, deadline=deadline, on_tick=on_tick, on_progress=on_progress)
+                reply = proc.run(message, deadline=deadline, on_tick=on_tick, on_progress=on_progress, budget=budget)
             except (DeadlineExceeded, Cancelled, ChildLost):
                 self.warm(1)  # a fresh child replaces the killed one, off the request path
                 raise

@@ -56,6 +56,9 @@ BOUND_SLACK = 1e-9
 #: nothing better, so most of the time stays with the full model.
 FIX_SHARE = 0.25
 
+#: The certificate of an answer without a plan: nothing to check but the reason.
+NO_PLAN = {"checked": True, "reason": "no plan within the time limit"}
+
 #: ``on_progress(report)``: a dict with ``phase``, ``incumbent``, ``bound``, ``gap``, ``seconds``.
 OnProgress = Callable[[dict], None]
 
@@ -91,7 +94,8 @@ class _Search:
     value: int | None = None  # objective of ``plan``
     found: int | None = None  # the engine's incumbent while it runs
 
-    def _better(self, a: int | None, b: int | None) -> bool:
+    def better(self, a: int | None, b: int | None) -> bool:
+        """Whether objective ``a`` beats ``b`` (None: no plan)."""
         return b is None or (a is not None and (a > b if self.model.maximize else a < b))
 
     def tighten(self, bound: int | None) -> None:
@@ -100,7 +104,7 @@ class _Search:
 
     @property
     def best(self) -> int | None:
-        return self.found if self._better(self.found, self.value) else self.value
+        return self.found if self.better(self.found, self.value) else self.value
 
     @property
     def gap(self) -> float | None:
@@ -111,7 +115,7 @@ class _Search:
 
     def offer(self, plan: Plan) -> None:
         value = plan_value(self.data, self.model, plan)
-        if self._better(value, self.value):
+        if self.better(value, self.value):
             self.plan, self.value = plan, value
             self.report()
 
@@ -190,7 +194,7 @@ def whole_unit_flow(net: Network, com: Commodities, *, objective: str = "min-cos
         return _solver_infeasible(data, engine)
     if search.plan is None:
         return WholeSolution("time_limit", bound=_in_units(data, search.model, search.bound),
-                             certificate={"checked": True, "plan": False, "reason": "no plan within the time limit"},
+                             certificate=dict(NO_PLAN),
                              engine=engine_info(engine))
     cost_bound = _hold_delivery(search, engine, deadline) if data.throughput else None
     return _answer(data, search, cost_bound, engine)
@@ -286,7 +290,7 @@ def _search(search: _Search, engine: str, hint, deadline: float) -> EngineResult
         return None
 
     def on_plan(objective: float, bound: float, seconds: float) -> bool:
-        if math.isfinite(objective) and search._better(int(round(objective)), search.found):
+        if math.isfinite(objective) and search.better(int(round(objective)), search.found):
             search.found = int(round(objective))
         search.tighten(_engine_bound(bound, search.model))
         search.report()
@@ -380,9 +384,7 @@ def _unbounded(data: WholeData, model: WholeModel, lp: MultiCommoditySolution, d
         if result.status == "infeasible":
             return _solver_infeasible(data, engine)
         if result.values is None:
-            return WholeSolution("time_limit", certificate={"checked": True, "plan": False,
-                                                            "reason": "no plan within the time limit"},
-                                 engine=engine_info(engine))
+            return WholeSolution("time_limit", certificate=dict(NO_PLAN), engine=engine_info(engine))
         values = result.values
     plan = read_plan(data, values)
     _, _, figures = check_flows(data, plan.flows(data), plan.delivered, plan.paths)
