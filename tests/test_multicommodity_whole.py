@@ -415,9 +415,9 @@ def test_stored_network_what_if_and_batch_take_the_same_options(client):
     assert batch["results"][1]["errors"][0]["pointer"] == "/problem/options/gap"
 
 
-def _benchmark_body() -> dict:
+def _benchmark_body(load: float = 1.5) -> dict:
     """The benchmark's single-path network as a request body (columnar arcs)."""
-    net, com = depot_network(1, cap_low=30, cap_high=80, load=1.5)
+    net, com = depot_network(1, cap_low=30, cap_high=80, load=load)
     names = [f"site-{i}" for i in range(net.num_nodes)]
     return {
         "arcs": {"from": [names[t] for t in net.tail], "to": [names[h] for h in net.head],
@@ -516,3 +516,14 @@ def test_a_jobs_file_from_before_progress_reports_gets_the_column(tmp_path):
     old.close()
     jobs = SqliteJobs(str(tmp_path), limits=Limits(), workers=0)
     assert jobs.get("t", "a").state == "queued" and jobs.get("t", "a").progress is None
+
+
+def test_no_plan_within_the_time_limit_is_status_time_limit(client):
+    # Heavier demands, where routing largest-first on what is left finds no plan, and the
+    # shortest limit a client may ask: the LP does not finish, nor does any search start.
+    body = {**_benchmark_body(load=1.9), "options": {"single_path": True, "time_limit": 0.01}}
+    r = client.post("/v1/multicommodity", json=body)
+    doc = r.get_json()
+    assert r.status_code == 200 and doc["status"] == "time_limit", doc.get("status")
+    assert doc["gap"] is None and doc["bound"] == 0 and "flows" not in doc and "paths" not in doc
+    assert doc["certificate"] == {"checked": True, "reason": "no plan within the time limit"}
