@@ -245,8 +245,7 @@ def _fix_and_solve(search: _Search, lp: MultiCommoditySolution, engine: str, unt
     free = np.asarray([k for k in range(com.count) if k not in kept and data.demands[k] > 0], dtype=np.int64)
     if not kept or not free.size:
         return
-    weight = data.demands if data.single_path else np.ones(com.count, dtype=np.int64)
-    used = sum(units * weight[k] for k, (units, _, _) in kept.items())
+    used = sum(units * data.weight[k] for k, (units, _, _) in kept.items())
     room = np.where(data.limited, data.upper - used, 0)
     if (room < 0).any():
         return

@@ -36,7 +36,6 @@ from .whole_model import INT_LIMIT, WholeModel
 
 log = logging.getLogger("sluice.solver")
 
-ENGINES = ("scip", "cp-sat")
 #: CP-SAT search workers: its portfolio (LNS, feasibility jump, core search) needs a
 #: few; more than the host's cores only time-slices them.
 CPSAT_WORKERS = max(1, min(8, os.cpu_count() or 1))

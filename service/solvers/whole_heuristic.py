@@ -66,7 +66,7 @@ def route_greedily(data: WholeData, lp_flows: np.ndarray | None = None,
     kept = kept_from_lp(data, lp_flows, lp_delivered, ub) if lp_flows is not None else {}
     for k, (units, shipped, path) in kept.items():
         x[k], delivered[k], paths[k] = units, shipped, path
-        residual -= units * (data.demands[k] if data.single_path else 1)
+        residual -= units * data.weight[k]
     if (residual[data.limited] < 0).any():  # round-off in the LP plan: start from nothing instead
         return route_greedily(data, lp_flows)
     for k in np.argsort(-data.demands, kind="stable").tolist():

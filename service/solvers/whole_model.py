@@ -49,8 +49,6 @@ class WholeModel:
     col_lower: np.ndarray  # int64
     col_upper: np.ndarray
     maximize: bool
-    #: Row of the "deliver at least" constraint added for the second phase of max-throughput.
-    floor_row: int | None = None
 
     @property
     def num_vars(self) -> int:
@@ -72,6 +70,12 @@ class WholeData:
     @property
     def shape(self) -> tuple[int, int]:
         return self.com.count, self.net.num_arcs
+
+    @property
+    def weight(self) -> np.ndarray:
+        """Units per model unit of each commodity: its demand (single path: a column is
+        "on the path or not"), else 1."""
+        return self.demands if self.single_path else np.ones(self.com.count, dtype=np.int64)
 
     @property
     def upper(self) -> np.ndarray:
@@ -187,7 +191,7 @@ def build_model(data: WholeData) -> WholeModel:
     K, m = data.shape
     n = net.num_nodes
     ub = no_detours(data, flow_upper(data))
-    weight = data.demands if data.single_path else np.ones(K, dtype=np.int64)
+    weight = data.weight
     # Conservation, commodity-major: row k*n + v.
     incidence = incidence_matrix(n, net.tail, net.head)
     conservation = sp.kron(sp.identity(K, format="csr"), incidence, format="csr")
@@ -208,7 +212,6 @@ def build_model(data: WholeData) -> WholeModel:
     extra = K if data.throughput else 0
     capacity = sp.csr_matrix((vals, (rows, cols)), shape=(binding.size, K * m + extra))
     cap_upper = data.upper[binding]
-    flow_cost = (data.cost[None, :] * weight[:, None]).ravel()
     if data.throughput:
         # A x_k - t_k (e_s - e_t) = 0 for every k.
         deliver = sp.csr_matrix(
@@ -222,7 +225,7 @@ def build_model(data: WholeData) -> WholeModel:
         c = np.concatenate([np.zeros(K * m, dtype=np.int64), weight])
     else:
         col_upper = ub.ravel()
-        c = flow_cost
+        c = flow_costs(data)
     matrix = sp.vstack([conservation, capacity], format="csr")
     matrix.eliminate_zeros()  # self-loops cancel in the incidence matrix
     matrix.data = matrix.data.astype(np.int64)
@@ -237,22 +240,20 @@ def build_model(data: WholeData) -> WholeModel:
 
 def flow_costs(data: WholeData) -> np.ndarray:
     """Objective coefficients of the flow columns for the cost phase (scaled costs, per model unit)."""
-    K, m = data.shape
-    weight = data.demands if data.single_path else np.ones(K, dtype=np.int64)
-    return (data.cost[None, :] * weight[:, None]).ravel()
+    return (data.cost[None, :] * data.weight[:, None]).ravel()
 
 
 def cost_phase(model: WholeModel, data: WholeData, delivered: int) -> WholeModel:
     """The second phase of max-throughput: deliver at least ``delivered`` (model units,
     i.e. weighted by demand for single path), at least cost."""
     K, m = data.shape
-    weight = data.demands if data.single_path else np.ones(K, dtype=np.int64)
-    floor = sp.csr_matrix((weight, (np.zeros(K, dtype=np.int64), K * m + np.arange(K))), shape=(1, model.num_vars))
+    floor = sp.csr_matrix((data.weight, (np.zeros(K, dtype=np.int64), K * m + np.arange(K))),
+                          shape=(1, model.num_vars))
     return WholeModel(
         c=np.concatenate([flow_costs(data), np.zeros(K, dtype=np.int64)]),
         matrix=sp.vstack([model.matrix, floor], format="csr"),
         row_lower=np.append(model.row_lower, delivered), row_upper=np.append(model.row_upper, INT_LIMIT),
-        col_lower=model.col_lower, col_upper=model.col_upper, maximize=False, floor_row=model.matrix.shape[0],
+        col_lower=model.col_lower, col_upper=model.col_upper, maximize=False,
     )
 
 
