@@ -82,6 +82,13 @@ def digest_detail(options: dict, default) -> list | None:
     return None if detail is None or set(detail) == set(default) else detail
 
 
+def stop_grace(kind, seconds: float) -> float:
+    """Seconds past its time limit before a solve is killed: a kind whose solver stops
+    itself at the limit (``honours_time_limit``: GLOP, the MIP engines) gets time to
+    return its own answer (``time_limit``, or a plan so far); the others are killed at it."""
+    return min(10.0, max(2.0, 0.5 * seconds)) if getattr(kind, "honours_time_limit", False) else 0.0
+
+
 def wants(options: dict, part: str) -> bool:
     detail = options.get("detail")
     return detail is None or part in detail
