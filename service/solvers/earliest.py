@@ -18,8 +18,8 @@ only, in two steps:
    over ``q`` finds them all: solve the middle period, then contract its source side
    into the source for the earlier periods and its sink side into the sink for the
    later ones. The subproblems of one level split the nodes, so a level costs about
-   one max-flow; nodes later than the period solved can never reach the sink and sit
-   out the solve. The result is one label per expanded node, ``g = #{q : node in Y_q}``.
+   one max-flow; nodes that cannot reach a sink copy by the period solved (later
+   ones, and those whose least transit to the sink is too long) sit out the solve. The result is one label per expanded node, ``g = #{q : node in Y_q}``.
 2. **The flow.** ``H - g`` are optimal potentials of the min-cost program (the dual
    objective equals minus the sum of the cut capacities, the primal optimum of an
    earliest-arrival flow), so by complementary slackness a flow is optimal exactly
@@ -41,14 +41,22 @@ from ortools.graph.python import max_flow as ortools_max_flow
 
 from ..errors import SolverFailure
 
+#: A split that leaves fewer than 1/LATE_SPLIT of the solved nodes on one side
+#: changes which period the next subproblems solve first (see :func:`_next_periods`).
+LATE_SPLIT = 10
+
 
 @dataclass
 class FlowNetwork:
     """An expanded network with a super source and a super sink.
 
-    ``era`` of an arc is the period it arrives in (for an arc into the sink, the
-    period of the sink copy it leaves). ``period`` of a node is its period (the
-    super source and sink have none and are never part of a subproblem).
+    ``ready`` of a node is the first period whose sink copy it could reach at all
+    (its period plus the least transit to the sink; ``horizon`` or more when never):
+    in ``N(q)`` for an earlier ``q`` no flow passes it and nothing it reaches leads
+    to the sink, so it lies on the largest source side and sits out the solve. The
+    super source and sink have ``ready = -1`` (they are never part of a subproblem).
+    ``era`` of an arc is the ``ready`` of its head, and for an arc into the sink the
+    period of the sink copy it leaves: ``N(q)`` needs only the arcs with ``era <= q``.
     """
 
     num_nodes: int
@@ -56,7 +64,7 @@ class FlowNetwork:
     head: np.ndarray
     capacity: np.ndarray  # int64, stand-ins for no limit already in place
     era: np.ndarray
-    period: np.ndarray
+    ready: np.ndarray
     source: int
     sink: int
     horizon: int
@@ -96,12 +104,12 @@ def nested_labels(net: FlowNetwork) -> np.ndarray:
     owner[[net.source, net.sink]] = -1
     local = np.zeros(net.num_nodes, dtype=np.int64)
     first = np.flatnonzero(owner == 0)
-    stack = [(0, 0, horizon - 1, np.arange(net.tail.size), first)]
+    stack = [(0, 0, horizon - 1, np.arange(net.tail.size), first, "middle")]
     next_id = 1
     while stack:
-        pid, lo, hi, arcs, nodes = stack.pop()
-        mid = (lo + hi) // 2
-        below = _sink_side(net, pid, mid, arcs, nodes, owner, local)
+        pid, lo, hi, arcs, nodes, where = stack.pop()
+        mid = {"early": lo, "middle": (lo + hi) // 2, "late": hi}[where]
+        below, solved = _sink_side(net, pid, mid, arcs, nodes, owner, local)
         low_id, up_id = next_id, next_id + 1
         next_id += 2
         owner[nodes] = up_id
@@ -114,38 +122,64 @@ def nested_labels(net: FlowNetwork) -> np.ndarray:
         to_up = ((ah == up_id) & (at != low_id)) | (at == up_id)
         to_low = ((at == low_id) & (ah != up_id)) | (ah == low_id)
         upper = nodes[owner[nodes] == up_id]
-        for part, part_id, part_lo, part_hi, mask in ((upper, up_id, mid + 1, hi, to_up),
-                                                      (below, low_id, lo, mid - 1, to_low)):
+        upper_hint, lower_hint = _next_periods(below.size, solved)
+        for part, part_id, part_lo, part_hi, mask, hint in ((upper, up_id, mid + 1, hi, to_up, upper_hint),
+                                                            (below, low_id, lo, mid - 1, to_low, lower_hint)):
             if not part.size:
                 continue
             if part_lo > part_hi:
                 labels[part] = part_lo
             else:
-                stack.append((part_id, part_lo, part_hi, arcs[mask], part))
+                stack.append((part_id, part_lo, part_hi, arcs[mask], part, hint))
     return labels
 
 
+def _next_periods(sink_side: int, solved: int) -> tuple[str, str]:
+    """Which period the two subproblems of a split solve first.
+
+    Halving the range of periods bounds the depth, but the later periods'
+    subproblem keeps every node later than the period solved, so halving costs a
+    chain of large solves when one side of the cuts is nearly empty. A split that
+    left almost nothing on one side predicts the next cuts alike:
+
+    * almost nothing on the sink side (a bottleneck at the sink): the later periods'
+      cut likely holds almost everything too, so solve its last period first, and
+      its sink side is a small subproblem;
+    * almost nothing on the source side (a bottleneck at the source): every cut is
+      small, so step forward one period at a time; each solve then holds one period
+      of nodes and the small source side of the period before.
+
+    A wrong guess costs one solve out of place; the next split corrects it.
+    """
+    if sink_side * LATE_SPLIT < solved:
+        return "late", "middle"
+    if (solved - sink_side) * LATE_SPLIT < solved:
+        return "early", "early"
+    return "middle", "middle"
+
+
 def _sink_side(net: FlowNetwork, pid: int, mid: int, arcs: np.ndarray, nodes: np.ndarray, owner: np.ndarray,
-               local: np.ndarray) -> np.ndarray:
-    """The nodes of a subproblem that can still reach the sink after a max-flow of ``N(mid)``.
+               local: np.ndarray) -> tuple[np.ndarray, int]:
+    """The nodes of a subproblem that can still reach the sink after a max-flow of ``N(mid)``,
+    and how many nodes took part in the solve.
 
     Nodes outside the subproblem stand contracted into the source (arc tails) or the
-    sink (arc heads); nodes later than ``mid`` cannot reach the sink and are left out.
+    sink (arc heads); nodes not ready by ``mid`` cannot reach the sink and are left out.
     """
     active = arcs[net.era[arcs] <= mid]
+    inside = nodes[net.ready[nodes] <= mid]
     if not active.size:
-        return nodes[:0]
-    inside = nodes[net.period[nodes] <= mid]
+        return nodes[:0], inside.size
     local[inside] = np.arange(inside.size)
     src, snk = inside.size, inside.size + 1
     at, ah = net.tail[active], net.head[active]
     lt = np.where(owner[at] == pid, local[at], src)
     lh = np.where(owner[ah] == pid, local[ah], snk)
     if not (lh == snk).any():
-        return nodes[:0]
+        return nodes[:0], inside.size
     solver, _ = max_flow(inside.size + 2, lt, lh, net.capacity[active], src, snk)
     reach = np.asarray(solver.get_sink_side_min_cut(), dtype=np.int64)
-    return inside[reach[reach < inside.size]]
+    return inside[reach[reach < inside.size]], inside.size
 
 
 def earliest_arrival_flow(net: FlowNetwork, labels: np.ndarray, big: int) -> np.ndarray:

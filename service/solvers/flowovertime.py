@@ -141,12 +141,14 @@ def _common(arrays: dict):
 
 
 def through_network(x: Expansion, source: int, sink: int, big: int, horizon: int | None = None,
-                    cap: int | None = None) -> FlowNetwork:
+                    cap: int | None = None, x_net: TimedNetwork | None = None) -> FlowNetwork:
     """The expanded network with a super source feeding every source copy and every
     sink copy feeding a super sink, cut off after ``horizon`` periods.
 
     With ``cap``, a first node feeds the super source by one arc of that capacity
     (the amount of a quickest probe); the super source is then the node after it.
+    With ``x_net`` (the network expanded), nodes get their ``ready`` periods from the
+    least transit to the sink (for :func:`~service.solvers.earliest.nested_labels`).
     """
     n, h = x.num_nodes, x.horizon if horizon is None else horizon
     keep = slice(None) if h == x.horizon else (x.era < h)
@@ -161,15 +163,41 @@ def through_network(x: Expansion, source: int, sink: int, big: int, horizon: int
     caps = [capacity, np.full(h, big, np.int64), np.full(h, big, np.int64)]
     eras = [era, periods, periods]
     count = nodes + 2
+    least_transit = least_transit_to(x_net, sink) if x_net is not None else np.zeros(n, np.int64)
     if cap is not None:
         tails.append(np.array([count], np.int32))
         heads.append(np.array([S], np.int32))
         caps.append(np.array([cap], np.int64))
         eras.append(np.zeros(1, np.int64))
         count += 1
-    period = np.concatenate([np.arange(nodes, dtype=np.int64) // max(n, 1), [-1, -1] + ([-1] if cap is not None else [])])
-    return FlowNetwork(count, np.concatenate(tails), np.concatenate(heads), np.concatenate(caps),
-                       np.concatenate(eras), period, S if cap is None else count - 1, T, h)
+    ready = np.concatenate([np.arange(nodes, dtype=np.int64) // max(n, 1) + np.tile(least_transit, x.horizon),
+                            [-1, -1] + ([-1] if cap is not None else [])])
+    tail, head = np.concatenate(tails), np.concatenate(heads)
+    era = np.where(head == T, np.concatenate(eras), ready[head])
+    return FlowNetwork(count, tail, head, np.concatenate(caps), era, ready, S if cap is None else count - 1, T, h)
+
+
+def least_transit_to(net: TimedNetwork, sink: int) -> np.ndarray:
+    """Per node, the least total transit of a lane path to ``sink`` (``horizon`` when there is none
+    within it), over the lanes open in some period: a lower bound on when a unit there can arrive."""
+    cap = net.capacity if net.capacity.ndim == 1 else net.capacity.max(axis=1)
+    unl = None if net.unlimited is None else (net.unlimited if net.unlimited.ndim == 1 else net.unlimited.any(axis=1))
+    open_ = (cap > 0) if unl is None else (cap > 0) | unl
+    n = net.num_nodes
+    # Dijkstra on the reversed lanes; a zero transit must stay an edge, so each lane weighs
+    # transit * (n + 1) + 1 and the hop count (< n + 1) is dropped afterwards.
+    weight = net.transit[open_].astype(np.float64) * (n + 1) + 1
+    rows, cols = net.head[open_], net.tail[open_]
+    # Parallel lanes: keep the quickest (a sparse matrix would add their weights).
+    order = np.lexsort((weight, rows * n + cols))
+    first = np.r_[True, np.diff((rows * n + cols)[order]) != 0]
+    keep = order[first]
+    graph = sparse.csr_matrix((weight[keep], (rows[keep], cols[keep])), shape=(n, n))
+    dist = csgraph.dijkstra(graph, indices=sink, min_only=True)
+    least = np.full(n, net.horizon, dtype=np.int64)
+    found = np.isfinite(dist)
+    least[found] = np.minimum(dist[found] // (n + 1), net.horizon).astype(np.int64)
+    return least
 
 
 def max_by_horizon(net: TimedNetwork, source: int, sink: int) -> OverTimeSolution:
@@ -197,9 +225,10 @@ def max_by_horizon(net: TimedNetwork, source: int, sink: int) -> OverTimeSolutio
         return OverTimeSolution("unbounded", net.horizon, engine, unbounded_path=path,
                                 certificate={"checked": True, "unbounded_path_steps": len(path["dep_arc"])
                                              + len(path["hold_node"])})
-    fnet = through_network(x, source, sink, big)
+    fnet = through_network(x, source, sink, big, x_net=net)
     labels = nested_labels(fnet)
     flows = earliest_arrival_flow(fnet, labels, big)
+    release_late(flows, x.holdover_arcs(np.array([source])), source_arcs(fnet)[None, :])
     schedule = Schedule.from_flows(x, flows)
     arrivals = _arrivals(fnet, flows, sink, x.num_nodes)
     H = net.horizon
@@ -212,6 +241,30 @@ def max_by_horizon(net: TimedNetwork, source: int, sink: int) -> OverTimeSolutio
     certificate = {"checked": True, **certificate, "cut_capacity": cut["capacity"], "earliest_arrival": True,
                    "cumulative_arrivals": np.cumsum(arrivals), **profile, "tolerance": 0, **scale.describe()}
     return _through_answer(net, scale, engine, schedule, arrivals, cut, certificate, H)
+
+
+def source_arcs(fnet: FlowNetwork) -> np.ndarray:
+    """Indices of the arcs from the super source to each source copy, by period."""
+    arcs = np.flatnonzero(fnet.tail == fnet.source)
+    return arcs[np.argsort(fnet.head[arcs])]
+
+
+def release_late(flows: np.ndarray, hold: np.ndarray, release: np.ndarray) -> None:
+    """Let own stock wait in the stock, not in the node's holdover (in place).
+
+    A unit released in period ``p`` and held at its node into ``p + 1`` is the same
+    unit released in ``p + 1``: at no extra cost, and free of the holdover limit.
+    Rows are nodes; ``hold[:, p]`` the node's holdover arc from ``p`` (``-1``: none),
+    ``release[:, p]`` the arc releasing its stock in ``p``. One vectorised step per
+    period moves what can be moved.
+    """
+    for p in range(hold.shape[1]):
+        has = hold[:, p] >= 0
+        h, r, r_next = hold[has, p], release[has, p], release[has, p + 1]
+        shift = np.minimum(flows[h], flows[r])
+        flows[h] -= shift
+        flows[r] -= shift
+        flows[r_next] += shift
 
 
 def _finite_total(net: TimedNetwork) -> int:
@@ -412,6 +465,8 @@ def min_cost(net: TimedNetwork, supply: np.ndarray) -> OverTimeSolution:
     if status != solver.OPTIMAL:
         raise SolverFailure(f"OR-Tools min-cost flow returned status {status.name}")
     flows = np.asarray(solver.flows(handles), dtype=np.int64)
+    # Only holding without a holdover cost can be moved (anything else would not be optimal).
+    release_late(flows, x.holdover_arcs(sup), x.num_arcs + np.arange(sup.size * H).reshape(sup.size, H))
     schedule = Schedule.from_flows(x, flows)
     figures, balance = checks.check_supplies_met(net, schedule, supply)
     p = node_potentials(count, tail, head, cost, flows, capacity, unlimited)

@@ -135,6 +135,13 @@ class Expansion:
             return self.capacity
         return np.where(self.unlimited, big, self.capacity)
 
+    def holdover_arcs(self, nodes: np.ndarray) -> np.ndarray:
+        """Index of the holdover step of each given node from each period (``-1``: none), shape (k, H-1)."""
+        where = np.full((self.num_nodes, max(self.horizon - 1, 0)), -1, dtype=np.int64)
+        hold = np.flatnonzero(self.kind == HOLD)
+        where[self.ref[hold], self.period[hold]] = hold
+        return where[nodes]
+
     def node_period(self, expanded: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """(node, period) of expanded node indices."""
         return expanded % self.num_nodes, expanded // self.num_nodes
