@@ -6,11 +6,13 @@ object. See :mod:`service.kinds.base` for the interface.
 
 from .base import Kind, Limits
 from .assignment import KIND as ASSIGNMENT
+from .flowovertime import KIND as FLOWOVERTIME
 from .lp import KIND as LP
 from .maxflow import KIND as MAXFLOW
 from .mincostflow import KIND as MINCOSTFLOW
 from .multicommodity import KIND as MULTICOMMODITY
 
-KINDS: dict[str, Kind] = {kind.name: kind for kind in (MAXFLOW, MINCOSTFLOW, ASSIGNMENT, LP, MULTICOMMODITY)}
+KINDS: dict[str, Kind] = {kind.name: kind for kind in (MAXFLOW, MINCOSTFLOW, ASSIGNMENT, LP, MULTICOMMODITY,
+                                                        FLOWOVERTIME)}
 
 __all__ = ["KINDS", "Kind", "Limits"]

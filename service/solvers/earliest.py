@@ -19,7 +19,8 @@ only, in two steps:
    into the source for the earlier periods and its sink side into the sink for the
    later ones. The subproblems of one level split the nodes, so a level costs about
    one max-flow; nodes that cannot reach a sink copy by the period solved (later
-   ones, and those whose least transit to the sink is too long) sit out the solve. The result is one label per expanded node, ``g = #{q : node in Y_q}``.
+   ones, and those whose least transit to the sink is too long) sit out the solve.
+   The result is one label per expanded node, ``g = #{q : node in Y_q}``.
 2. **The flow.** ``H - g`` are optimal potentials of the min-cost program (the dual
    objective equals minus the sum of the cut capacities, the primal optimum of an
    earliest-arrival flow), so by complementary slackness a flow is optimal exactly

@@ -292,7 +292,7 @@ def _through_answer(net, scale, engine, schedule, arrivals, cut, certificate, ho
     if scale.quantity and "total_arrival_time" in certificate:
         certificate["total_arrival_time"] = scale.units(certificate["total_arrival_time"])
         certificate["min_total_arrival_time"] = scale.units(certificate["min_total_arrival_time"])
-    cut = {**cut, "capacity": scale.units(cut["capacity"])}
+    cut = {**cut, "capacity": scale.units(cut["capacity"]), "horizon": horizon}
     return OverTimeSolution("optimal", horizon, engine, value=scale.units(value), arrivals=scale.units(arrivals),
                             schedule=schedule, amounts=(scale.units(schedule.dep_amount),
                                                         scale.units(schedule.hold_amount)),
