@@ -175,6 +175,12 @@ class OverTimeCertificate(Schema):
     cost_scale = fields.Integer()
 
 
+class OverTimeEngineSchema(EngineSchema):
+    method = fields.String(metadata={"description": "nested minimum cuts (max-by-horizon: max-flows only), search "
+                                                    "over horizons (quickest), or the min-cost flow itself."})
+    cost_scale = fields.Integer()
+
+
 class FlowOverTimeResponse(Schema):
     status = fields.String(validate=validate.OneOf(["optimal", "infeasible", "unbounded"]))
     objective = fields.String(validate=validate.OneOf(OBJECTIVES))
@@ -199,7 +205,7 @@ class FlowOverTimeResponse(Schema):
     unbounded_path = fields.Nested(UnboundedOverTimeSchema)
     certificate = fields.Nested(OverTimeCertificate)
     digest = fields.String()
-    engine = fields.Nested(EngineSchema)
+    engine = fields.Nested(OverTimeEngineSchema)
     timing_ms = fields.Nested(TimingSchema)
 
 
@@ -252,9 +258,10 @@ def parse(body, limits: Limits) -> FlowOverTimeProblem:
     source, sink, amount = _ends(env, index, objective)
     supply = _supply(supply, nodes, objective, n)
     options = env["options"]
+    costs = (net.cost, net.holdover_cost) if objective == "min-cost" else (None, None)  # only they price anything
     digest = problem_digest(
         "flowovertime", ORTOOLS_VERSION, index.ids, net.tail, net.head, net.transit, net.capacity, net.unlimited,
-        net.cost, net.holdover, net.holdover_unlimited, net.holdover_cost, supply,
+        net.holdover, net.holdover_unlimited, *costs, supply,
         [horizon, objective, source, sink, amount, env["period"]], {"detail": options.get("detail")})
     return FlowOverTimeProblem(net, index, objective, source, sink, amount, supply, env["period"], options, digest,
                                horizon * (m + n))
