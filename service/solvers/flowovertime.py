@@ -151,7 +151,7 @@ def through_network(x: Expansion, source: int, sink: int, big: int, horizon: int
     least transit to the sink (for :func:`~service.solvers.earliest.nested_labels`).
     """
     n, h = x.num_nodes, x.horizon if horizon is None else horizon
-    keep = slice(None) if h == x.horizon else (x.era < h)
+    keep = slice(0, int(np.searchsorted(x.era, h)))  # arcs are sorted by era: a prefix, no copy
     tail, head = x.tail[keep], x.head[keep]
     capacity = x.capped(big)[keep]
     era = x.era[keep]
@@ -385,7 +385,7 @@ def quickest(net: TimedNetwork, source: int, sink: int, amount) -> OverTimeSolut
             hi = _last_arrival(fnet, flows, x.num_nodes) + 1
     h_best = hi
     _, fnet, flows = best
-    schedule = Schedule.from_flows(x, flows[: int((x.era < fnet.horizon).sum())])
+    schedule = Schedule.from_flows(x, flows[: int(np.searchsorted(x.era, fnet.horizon))])
     arrivals = _arrivals(fnet, flows, sink, x.num_nodes)[:h_best]
     certificate = checks.check_through_flow(net, schedule, source, sink, arrivals, h_best)
     if certificate["value"] != amount:
