@@ -386,3 +386,29 @@ def test_capacities_summing_past_64_bits_over_the_horizon_are_refused():
     with pytest.raises(InputError) as info:
         max_by_horizon(net, 0, 1)
     assert info.value.errors[0].pointer == "/horizon"
+
+
+def test_the_unbounded_path_check_fails_on_a_path_with_a_limit():
+    net = TimedNetwork(3, 4, np.array([0, 1]), np.array([1, 2]), np.array([1, 2]), np.array([0, 5]),
+                       np.array([True, False]))
+    path = {"dep_arc": np.array([0, 1]), "dep_period": np.array([0, 1]), "hold_node": np.zeros(0, np.int64),
+            "hold_period": np.zeros(0, np.int64)}
+    with pytest.raises(SelfCheckFailed, match="with a limit"):
+        checks.check_unlimited_path(net, path, 0, 2)
+    late = {**path, "dep_period": np.array([0, 2])}
+    with pytest.raises(SelfCheckFailed):
+        checks.check_unlimited_path(replace(net, unlimited=np.array([True, True])), late, 0, 2)
+
+
+@pytest.mark.parametrize("horizon", [1, 2])
+def test_edges_no_lanes_and_a_single_period(horizon):
+    empty = TimedNetwork(2, horizon, np.zeros(0, np.int64), np.zeros(0, np.int64), np.zeros(0, np.int64),
+                         np.zeros(0, np.int64))
+    sol = max_by_horizon(empty, 0, 1)
+    assert sol.value == 0 and sol.arrivals.tolist() == [0] * horizon and sol.cut["capacity"] == 0
+    assert quickest(empty, 0, 1, 1).status == "infeasible"
+    instant = TimedNetwork(2, horizon, np.array([0]), np.array([1]), np.array([0]), np.array([3]))
+    sol = max_by_horizon(instant, 0, 1)
+    assert sol.value == 3 * horizon and sol.arrivals.tolist() == [3] * horizon
+    q = quickest(instant, 0, 1, 3)
+    assert q.horizon == 1 and q.cut["horizon"] == 0 and q.cut["capacity"] == 0

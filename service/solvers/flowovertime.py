@@ -186,11 +186,15 @@ def least_transit_to(net: TimedNetwork, sink: int) -> np.ndarray:
     n = net.num_nodes
     # Dijkstra on the reversed lanes; a zero transit must stay an edge, so each lane weighs
     # transit * (n + 1) + 1 and the hop count (< n + 1) is dropped afterwards.
-    weight = net.transit[open_].astype(np.float64) * (n + 1) + 1
+    # Transit is clipped to the horizon (a longer lane is never usable) so that the sums stay
+    # exact in float64: at most n * horizon * (n + 1), below 2**53 within the size limit.
+    weight = np.minimum(net.transit[open_], net.horizon).astype(np.float64) * (n + 1) + 1
     rows, cols = net.head[open_], net.tail[open_]
     # Parallel lanes: keep the quickest (a sparse matrix would add their weights).
-    order = np.lexsort((weight, rows * n + cols))
-    first = np.r_[True, np.diff((rows * n + cols)[order]) != 0]
+    code = rows * n + cols
+    order = np.lexsort((weight, code))
+    first = np.ones(order.size, dtype=bool)
+    first[1:] = np.diff(code[order]) != 0
     keep = order[first]
     graph = sparse.csr_matrix((weight[keep], (rows[keep], cols[keep])), shape=(n, n))
     dist = csgraph.dijkstra(graph, indices=sink, min_only=True)
@@ -222,9 +226,9 @@ def max_by_horizon(net: TimedNetwork, source: int, sink: int) -> OverTimeSolutio
     path = unlimited_path(x, source, sink, net.horizon)
     engine = graph_engine("SimpleMaxFlow", method="nested minimum cuts", **scale.describe())
     if path is not None:
+        steps = checks.check_unlimited_path(net, path, source, sink)
         return OverTimeSolution("unbounded", net.horizon, engine, unbounded_path=path,
-                                certificate={"checked": True, "unbounded_path_steps": len(path["dep_arc"])
-                                             + len(path["hold_node"])})
+                                certificate={"checked": True, "unbounded_path_steps": steps})
     fnet = through_network(x, source, sink, big, x_net=net)
     labels = nested_labels(fnet)
     flows = earliest_arrival_flow(fnet, labels, big)
@@ -371,9 +375,9 @@ def quickest(net: TimedNetwork, source: int, sink: int, amount) -> OverTimeSolut
         return OverTimeSolution("infeasible", H, engine, value=scale.units(int(solver.optimal_flow())),
                                 cut={**cut, "capacity": scale.units(cut["capacity"]), "horizon": H},
                                 certificate=cert)
-    best = (H, fnet, np.asarray(solver.flows(arcs), dtype=np.int64))
+    best = (fnet, np.asarray(solver.flows(arcs), dtype=np.int64))
     lo, short = 0, None  # largest horizon known too short, and its cut's node-period set
-    hi = _last_arrival(best[1], best[2], x.num_nodes) + 1
+    hi = _last_arrival(*best, x.num_nodes) + 1
     while hi - lo > 1:
         h = (lo + hi) // 2
         fnet, solver, arcs = probe(h)
@@ -381,11 +385,13 @@ def quickest(net: TimedNetwork, source: int, sink: int, amount) -> OverTimeSolut
             lo, short = h, _source_side(fnet, solver, x, h)
         else:
             flows = np.asarray(solver.flows(arcs), dtype=np.int64)
-            best = (h, fnet, flows)
+            best = (fnet, flows)
             hi = _last_arrival(fnet, flows, x.num_nodes) + 1
     h_best = hi
-    _, fnet, flows = best
-    schedule = Schedule.from_flows(x, flows[: int(np.searchsorted(x.era, fnet.horizon))])
+    fnet, flows = best
+    # The probe may have had more periods than the answer needs: nothing it moved after
+    # h_best - 1 reaches the sink (time only runs forward), so those arcs are left out.
+    schedule = Schedule.from_flows(x, flows[: int(np.searchsorted(x.era, h_best))])
     arrivals = _arrivals(fnet, flows, sink, x.num_nodes)[:h_best]
     certificate = checks.check_through_flow(net, schedule, source, sink, arrivals, h_best)
     if certificate["value"] != amount:

@@ -337,3 +337,38 @@ def check_shortfall(net: TimedNetwork, members: np.ndarray, supply: np.ndarray) 
     if not net_supply > crossing["capacity"]:
         _fail(f"the shortfall set must send out {net_supply} but {crossing['capacity']} can leave it")
     return {"net_supply": net_supply, "outgoing_capacity": crossing["capacity"], **crossing}
+
+
+def check_unlimited_path(net: TimedNetwork, path: dict, source: int, sink: int) -> int:
+    """Prove a max-by-horizon problem unbounded: lane copies and holdover steps without
+    limits that lead, one after the other, from a source copy to a sink copy in time.
+
+    Returns
+    -------
+    int
+        The number of steps.
+    """
+    lane, dep = path["dep_arc"], path["dep_period"]
+    hold, held = path["hold_node"], path["hold_period"]
+    # Steps in time order: (period, then a holdover after the lanes of its period).
+    steps = sorted([(int(p), 0, int(a)) for a, p in zip(lane.tolist(), dep.tolist())]
+                   + [(int(p), 1, int(v)) for v, p in zip(hold.tolist(), held.tolist())])
+    here, now = source, steps[0][0] if steps else -1
+    for period, is_hold, ref in steps:
+        if period != now:
+            _fail("the unbounded path waits without a holdover step")
+        if is_hold:
+            limit, unl = net.holdover_limit(np.array([ref]))
+            if ref != here or not unl[0] or period + 1 > net.horizon - 1:
+                _fail("the unbounded path holds over where it is not, or within a limit")
+            now = period + 1
+        else:
+            cap, unl = net.lane_capacity(np.array([ref]), np.array([period]))
+            if int(net.tail[ref]) != here or not unl[0]:
+                _fail("the unbounded path takes a lane from elsewhere, or one with a limit")
+            here, now = int(net.head[ref]), period + int(net.transit[ref])
+            if now > net.horizon - 1:
+                _fail("the unbounded path arrives after the last period")
+    if here != sink or not steps:
+        _fail("the unbounded path does not reach the sink")
+    return len(steps)

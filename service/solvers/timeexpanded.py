@@ -153,9 +153,11 @@ def finite_total(net: TimedNetwork) -> int:
     Raises
     ------
     OverflowRisk
-        When the sum reaches ``2**60``: it bounds every flow value the solvers form,
-        and the earliest-arrival costs multiply it by the horizon.
+        When the sum reaches ``2**60`` (it bounds every flow value the solvers form),
+        or the node-periods would not fit the int32 indices of the expanded arrays.
     """
+    if net.num_nodes * net.horizon + 4 >= 2**31:
+        raise OverflowRisk("the time-expanded network would have more than 2**31 node-periods")
     usable = net.usable_periods()
     finite = net.capacity if net.unlimited is None else np.where(net.unlimited, 0, net.capacity)
     if finite.ndim == 2:
