@@ -277,3 +277,13 @@ def test_a_large_body_read_by_the_compiled_scanner_answers_as_the_ordinary_path(
     assert a["status"] == "optimal" and a["value"] > 0
     a.pop("timing_ms"), b.pop("timing_ms")
     assert a == b
+
+
+def test_a_scanned_body_with_lower_bounds_is_refused_as_on_the_ordinary_path(client):
+    arcs = [{"from": f"n{i % 50}", "to": f"n{(i * 7 + 1) % 50}", "capacity": 3, "lower": 1 if i == 40 else 0}
+            for i in range(900)]
+    body = {"horizon": 4, "source": "n0", "sink": "n1", "arcs": arcs}
+    r = post(client, body)
+    assert r.status_code == 422 and pointers(r) == ["/arcs/40/lower"]
+    small = {**body, "arcs": [{"from": "n0", "to": "n1", "lower": 1}]}
+    assert pointers(post(client, small)) == ["/arcs/0/lower"]

@@ -56,6 +56,7 @@ def read_arcs(raw: object, *, base: str = "/arcs", max_arcs: int | None = None,
         More than ``max_arcs`` arcs.
     """
     if isinstance(raw, ObjectArcs):
+        _foreign_columns(raw, base, fields)
         arcs = RawArcs({name: IdColumn(values, _object_where(base, name)) for name, values in raw.columns.items()},
                        raw.count, "objects")
     elif isinstance(raw, list):
@@ -70,6 +71,19 @@ def read_arcs(raw: object, *, base: str = "/arcs", max_arcs: int | None = None,
 
 
 _ABSENT = object()
+
+
+def _foreign_columns(raw: ObjectArcs, base: str, fields: tuple[str, ...]) -> None:
+    """A scanned column this kind does not take is an unknown field, as on the ordinary path.
+
+    The scanner fills an absent number with its default, so the arc named is the first
+    with a value other than 0 (the first arc when every value is 0).
+    """
+    for name in raw.columns:
+        if name not in fields:
+            values = np.asarray(getattr(raw.columns[name], "values", raw.columns[name]))
+            i = int(np.flatnonzero(values)[0]) if values.dtype.kind in "if" and values.any() else 0
+            raise InputError.at(f"{base}/{i}/{_escape(name)}", "unknown field")
 
 
 def _read_objects(raw: list, base: str, fields: tuple[str, ...] = ARC_FIELDS) -> RawArcs:
