@@ -27,6 +27,10 @@ class Limits:
     time_limit: float = 30.0
     max_commodities: int = 1_000
     max_batch_items: int = 100
+    #: Flows over time: horizon x (arcs + nodes), the size of the time-expanded network.
+    #: 5M is about four times a 10,000-lane network over 100 periods (a few seconds, a few
+    #: hundred MB); larger ones are refused with a 413 naming ``horizon``.
+    max_expanded: int = 5_000_000
 
 
 class Problem(Protocol):

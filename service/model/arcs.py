@@ -21,8 +21,8 @@ ARC_FIELDS = ("from", "to", "capacity", "cost", "lower", "key")
 EXPANSION_FIELDS = ("expand_cost", "expand_max", "expand_fixed")
 REQUIRED = ("from", "to")
 #: Value used for an absent optional field.
-DEFAULTS = {"capacity": None, "cost": 0, "lower": 0, "key": None, "expand_cost": None, "expand_max": None,
-            "expand_fixed": 0}
+DEFAULTS = {"capacity": None, "cost": 0, "lower": 0, "key": None, "transit": 0, "expand_cost": None,
+            "expand_max": None, "expand_fixed": 0}
 
 
 @dataclass(frozen=True)
@@ -46,11 +46,10 @@ class ObjectArcs:
 
 
 def read_arcs(raw: object, *, base: str = "/arcs", max_arcs: int | None = None,
-              extra_fields: tuple[str, ...] = ()) -> RawArcs:
+              fields: tuple[str, ...] = ARC_FIELDS) -> RawArcs:
     """Split the ``arcs`` member into columns, checking its shape.
 
-    ``extra_fields`` (from :data:`EXPANSION_FIELDS`) are accepted besides
-    :data:`ARC_FIELDS`, and become columns when any arc has them.
+    ``fields`` are the arc fields the problem kind takes (``from`` and ``to`` first).
 
     Raises
     ------
@@ -60,12 +59,13 @@ def read_arcs(raw: object, *, base: str = "/arcs", max_arcs: int | None = None,
         More than ``max_arcs`` arcs.
     """
     if isinstance(raw, ObjectArcs):
+        _foreign_columns(raw, base, fields)
         arcs = RawArcs({name: IdColumn(values, _object_where(base, name)) for name, values in raw.columns.items()},
                        raw.count, "objects")
     elif isinstance(raw, list):
-        arcs = _read_objects(raw, base, ARC_FIELDS + extra_fields)
+        arcs = _read_objects(raw, base, fields)
     elif isinstance(raw, dict):
-        arcs = _read_columns(raw, base, ARC_FIELDS + extra_fields)
+        arcs = _read_columns(raw, base, fields)
     else:
         raise InputError.at(base, "must be a list of arc objects or an object of columns")
     if max_arcs is not None and arcs.count > max_arcs:
@@ -76,7 +76,20 @@ def read_arcs(raw: object, *, base: str = "/arcs", max_arcs: int | None = None,
 _ABSENT = object()
 
 
-def _read_objects(raw: list, base: str, known: tuple[str, ...]) -> RawArcs:
+def _foreign_columns(raw: ObjectArcs, base: str, fields: tuple[str, ...]) -> None:
+    """A scanned column this kind does not take is an unknown field, as on the ordinary path.
+
+    The scanner fills an absent number with its default, so the arc named is the first
+    with a value other than 0 (the first arc when every value is 0).
+    """
+    for name in raw.columns:
+        if name not in fields:
+            values = np.asarray(getattr(raw.columns[name], "values", raw.columns[name]))
+            i = int(np.flatnonzero(values)[0]) if values.dtype.kind in "if" and values.any() else 0
+            raise InputError.at(f"{base}/{i}/{_escape(name)}", "unknown field")
+
+
+def _read_objects(raw: list, base: str, fields: tuple[str, ...] = ARC_FIELDS) -> RawArcs:
     if set(map(type, raw)) - {dict}:
         i = next(i for i, a in enumerate(raw) if type(a) is not dict)
         raise InputError.at(f"{base}/{i}", "must be an arc object")
@@ -84,7 +97,7 @@ def _read_objects(raw: list, base: str, known: tuple[str, ...]) -> RawArcs:
     # known field, or some arc carries an unknown one (then we go and find it).
     unaccounted = sum(map(len, raw))
     columns = {}
-    for name in known:
+    for name in fields:
         if name not in REQUIRED and unaccounted == 0:
             break
         values, present = _object_column(raw, name, base)
@@ -92,7 +105,7 @@ def _read_objects(raw: list, base: str, known: tuple[str, ...]) -> RawArcs:
             columns[name] = IdColumn(values, _object_where(base, name))
             unaccounted -= present
     if unaccounted:
-        i, key = next((i, k) for i, a in enumerate(raw) for k in a if k not in known)
+        i, key = next((i, k) for i, a in enumerate(raw) for k in a if k not in fields)
         raise InputError.at(f"{base}/{i}/{_escape(key)}", "unknown field")
     return RawArcs(columns, len(raw), "objects")
 
@@ -112,8 +125,8 @@ def _object_column(raw: list, name: str, base: str) -> tuple[list, int]:
     return [default if v is _ABSENT else v for v in values], present
 
 
-def _read_columns(raw: dict, base: str, known: tuple[str, ...]) -> RawArcs:
-    unknown = set(raw) - set(known)
+def _read_columns(raw: dict, base: str, fields: tuple[str, ...] = ARC_FIELDS) -> RawArcs:
+    unknown = set(raw) - set(fields)
     if unknown:
         raise InputError.at(f"{base}/{_escape(sorted(unknown)[0])}", "unknown field")
     for name in REQUIRED:
@@ -121,7 +134,7 @@ def _read_columns(raw: dict, base: str, known: tuple[str, ...]) -> RawArcs:
             raise InputError.at(f"{base}/{name}", "is required")
     count = None
     columns = {}
-    for name in known:
+    for name in fields:
         if name not in raw:
             continue
         values = raw[name]
@@ -205,7 +218,7 @@ def build_network(raw: RawArcs, declared: IdColumn, *, allow_lower: bool = True)
             raise InputError.at(cols["lower"].where(i), "lower bounds are not supported by this problem kind")
         else:
             _check_lower(lower, capacity, unlimited, cols["lower"])
-    keys = _keys(cols.get("key"))
+    keys = read_keys(cols.get("key"))
     return Network(nodes, tail, head, capacity, unlimited, cost, lower, keys)
 
 
@@ -246,7 +259,7 @@ def read_network_with(arcs_raw, nodes_raw, *, max_arcs: int, max_nodes: int, all
     """
     from .nodes import read_nodes
 
-    arcs = read_arcs(arcs_raw, max_arcs=max_arcs, extra_fields=arc_fields)
+    arcs = read_arcs(arcs_raw, max_arcs=max_arcs, fields=ARC_FIELDS + arc_fields)
     nodes = read_nodes(nodes_raw, extra_fields=node_fields)
     network = build_network(arcs, nodes.ids, allow_lower=allow_lower)
     if network.num_nodes > max_nodes:
@@ -276,7 +289,8 @@ def _check_lower(lower, capacity, unlimited, col: IdColumn) -> None:
         raise InputError([FieldError(col.where(int(i)), "must not exceed the arc's capacity") for i in idx])
 
 
-def _keys(col: IdColumn | None) -> list | None:
+def read_keys(col: IdColumn | None) -> list | None:
+    """Arc keys: strings of 1-200 characters or null, unique (None when the column is absent)."""
     if col is None:
         return None
     values = col.values

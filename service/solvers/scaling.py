@@ -76,7 +76,7 @@ def decimal_places(values: np.ndarray) -> int | None:
     >>> decimal_places(np.array([99999999.99]))
     2
     """
-    form = _decimal_form(values)
+    form = _decimal_form(np.asarray(values).reshape(-1))
     return None if form is None else form[0]
 
 
@@ -150,11 +150,14 @@ def common_scale(*arrays: np.ndarray | None) -> tuple[int, list] | None:
     >>> d, a.tolist()
     (1, [10000000005])
     """
-    forms = [None if a is None else _decimal_form(a) for a in arrays]
-    if any(a is not None and f is None for a, f in zip(arrays, forms)):
+    # Arrays of any shape (per-period capacities are 2-D): read flat, answered in shape.
+    flat = [None if a is None else np.asarray(a).reshape(-1) for a in arrays]
+    forms = [None if a is None else _decimal_form(a) for a in flat]
+    if any(a is not None and f is None for a, f in zip(flat, forms)):
         return None
     d = max((f[0] for f in forms if f is not None), default=0)
-    return d, [None if a is None else scale_to_int(a, d, f) for a, f in zip(arrays, forms)]
+    return d, [None if a is None else scale_to_int(a, d, f).reshape(np.shape(original))
+               for a, f, original in zip(flat, forms, arrays)]
 
 
 def binary_scale(values: np.ndarray) -> tuple[int, np.ndarray]:
