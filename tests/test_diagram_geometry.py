@@ -237,9 +237,16 @@ def random_body(seed: int, kind: str) -> dict:
             arc["cost"] = int(rng.integers(0, 12))
             if arc["capacity"] and rng.random() < 0.25:
                 arc["lower"] = int(rng.integers(1, arc["capacity"] + 1))
+        if kind == "expansion" and rng.random() < 0.5:
+            arc["expand_cost"], arc["expand_max"] = int(rng.integers(0, 9)), int(rng.integers(1, 60))
         arcs.append(arc)
+    ends = {"source": ids[0], "sink": ids[-1], "nodes": [{"id": i} for i in ids], "arcs": arcs}
     if kind == "maxflow":
-        return {"source": ids[0], "sink": ids[-1], "nodes": [{"id": i} for i in ids], "arcs": arcs}
+        return ends
+    if kind == "resilience":  # the worst closures marked, and their losses in the labels
+        return {**ends, "top": int(rng.integers(1, 6))}
+    if kind == "expansion":  # widened lanes with their additions, or the cut of an infeasible target
+        return {**ends, "target": int(rng.integers(0, 200))}
     supply = np.zeros(n, dtype=int)
     for _ in range(int(rng.integers(1, 4))):
         u, v, amount = int(rng.integers(n)), int(rng.integers(n)), int(rng.integers(1, 90))

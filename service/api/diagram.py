@@ -42,7 +42,7 @@ class DiagramRequest(Schema):
     class Meta:
         unknown = RAISE
 
-    kind = fields.String(required=True, metadata={"description": "maxflow or mincostflow."})
+    kind = fields.String(required=True, metadata={"description": "A drawn kind: " + ", ".join(DRAWERS) + "."})
     problem = fields.Dict(required=True, metadata={"description": "The request body of POST /v1/{kind}."})
 
 
@@ -63,9 +63,15 @@ def _floats(values) -> np.ndarray | None:
 
 
 def drawn_problem(problem) -> DrawnNetwork:
-    """A parsed max-flow or min-cost flow problem as a :class:`DrawnNetwork`."""
+    """A parsed problem of a drawn kind as a :class:`DrawnNetwork`."""
+    ends = _ends(problem)
     return drawn_network(problem.network, supply=getattr(problem, "supply", None),
-                         source=getattr(problem, "source", None), sink=getattr(problem, "sink", None))
+                         source=getattr(ends, "source", None), sink=getattr(ends, "sink", None))
+
+
+def _ends(problem):
+    """What holds the problem's source and sink (an expansion keeps them with its lanes)."""
+    return getattr(problem, "lanes", problem)
 
 
 def render_diagram(kind: str, body: dict, result: dict, *, max_nodes: int = 60, max_arcs: int = 200) -> str:
@@ -148,8 +154,8 @@ def drawing_record(kind_name: str, problem) -> bytes | None:
     body = export_network(network)
     ids = network.nodes.ids
     for end in ("source", "sink"):
-        if getattr(problem, end, None) is not None:
-            body[end] = ids[getattr(problem, end)]
+        if getattr(_ends(problem), end, None) is not None:
+            body[end] = ids[getattr(_ends(problem), end)]
     supply = getattr(problem, "supply", None)
     if supply is not None:
         body["nodes"] = {"id": list(ids), "supply": np.asarray(supply).tolist()}

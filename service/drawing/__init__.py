@@ -14,12 +14,14 @@ a JSON document) on a :class:`DrawnNetwork`. What differs between kinds is a
 from __future__ import annotations
 
 from .base import Drawer, DrawnNetwork, Marks
+from .expansion import DRAWER as EXPANSION
 from .maxflow import DRAWER as MAXFLOW
 from .mincostflow import DRAWER as MINCOSTFLOW
+from .resilience import DRAWER as RESILIENCE
 from .scene import draw as _draw
 
 #: The drawn kinds: kind name -> its drawer.
-DRAWERS: dict[str, Drawer] = {d.kind: d for d in (MAXFLOW, MINCOSTFLOW)}
+DRAWERS: dict[str, Drawer] = {d.kind: d for d in (MAXFLOW, MINCOSTFLOW, RESILIENCE, EXPANSION)}
 
 
 def draw(kind: str, network: DrawnNetwork, result: dict) -> str:

@@ -14,7 +14,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 #: Marks an arc can carry; each has a CSS class ``<mark>-arc``, a colour and a legend line.
-MARKS = ("cut", "binding", "proof")
+MARKS = ("cut", "binding", "proof", "closure", "widened")
 
 
 @dataclass(frozen=True)
@@ -72,10 +72,12 @@ class DrawnNetwork:
 @dataclass
 class Marks:
     """What a drawer marks: ``arcs`` maps an arc index to one of :data:`MARKS`;
-    ``side`` is per node, True on the source side of a cut (``None``: no cut)."""
+    ``side`` is per node, True on the source side of a cut (``None``: no cut);
+    ``notes`` maps an arc index to text its label ends with (`` −40``: a closure's loss)."""
 
     arcs: dict = field(default_factory=dict)
     side: np.ndarray | None = None
+    notes: dict = field(default_factory=dict)
 
 
 def fmt(x) -> str:
