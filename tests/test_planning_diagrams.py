@@ -78,3 +78,47 @@ def test_an_expansion_out_of_reach_marks_the_cut(client):
     marks, _ = arcs_by_class(svg)
     assert [a for a, m in sorted(marks.items()) if m == "cut-arc"] == sorted(answer["cut"]["arcs"])
     assert b"out of reach" in svg
+
+
+def _classes(svg: bytes, css: str) -> list:
+    return [r for r in ET.fromstring(svg).iter(f"{SVG}rect") if r.get("class") == css]
+
+
+@pytest.mark.parametrize("route", [0, 1], ids=["fresh", "cached"])
+def test_flowovertime_draws_departures_holdover_shut_periods_and_the_cut(client, route):
+    body = scenario("xdock-night-flowovertime.json")
+    answer = client.post("/v1/flowovertime", json=body).get_json()
+    svg = both_routes(client, "flowovertime", body)[route]
+    root = ET.fromstring(svg)
+    assert root.get("data-horizon") == "12"
+    assert len(_classes(svg, "departure")) == len(answer["departures"])
+    assert len(_classes(svg, "holdover")) == len(answer["holdover"]) > 0
+    cut = answer["cut"]
+    assert len(_classes(svg, "cut")) == len(cut["departures"]) + len(cut["holdover"])
+    closure = body["arcs"][3]["capacity"]
+    shut = [int(r.get("x").split(".")[0]) for r in _classes(svg, "shut")]
+    assert len(shut) == closure.count(0)
+    labels = [t.text for t in root.iter(f"{SVG}text") if t.get("class") == "node-label"]
+    assert "van-ormsby-night-closure (1)" in labels  # the lane's key and transit, on both routes
+    assert f"Most by the horizon: {answer['value']:g} units" in svg.decode()
+
+
+def test_the_timeline_check_can_fail(client):
+    from tests.test_diagram_geometry import arc_ends, check_timeline
+
+    body = scenario("xdock-night-flowovertime.json")
+    svg = client.post("/v1/diagram.svg", json={"kind": "flowovertime", "problem": body}).data
+    check_timeline(svg, arc_ends(body))
+    moved = svg.replace(b'class="departure" data-period="0"', b'class="departure" data-period="3"', 1)
+    with pytest.raises(AssertionError):
+        check_timeline(moved, arc_ends(body))
+    with pytest.raises(AssertionError):
+        check_timeline(svg, arc_ends(body)[:-1])
+
+
+def test_a_min_cost_schedule_is_drawn_with_its_deliveries(client):
+    body = scenario("xdock-night-flowovertime.json")
+    body = {k: v for k, v in body.items() if k not in ("source", "sink")} | {"objective": "min-cost", "options": {}}
+    body["nodes"][0]["supply"], body["nodes"][3]["supply"] = 50, -50
+    svg = both_routes(client, "flowovertime", body)[0]
+    assert b"Min-cost schedule: cost" in svg and b"demand met" in svg

@@ -37,6 +37,10 @@ class DrawnNetwork:
         Per node: supply (positive) or demand (negative).
     source, sink : int, optional
         Node indices of a max-flow question.
+    transit : ndarray of int, optional
+        Flows over time: periods per arc.
+    period_capacity : ndarray of float, optional
+        Flows over time: capacity per arc and departure period, shape (arcs, horizon).
     """
 
     ids: list
@@ -49,6 +53,8 @@ class DrawnNetwork:
     supply: np.ndarray | None = None
     source: int | None = None
     sink: int | None = None
+    transit: np.ndarray | None = None
+    period_capacity: np.ndarray | None = None
     _index: dict = field(default_factory=dict, init=False, repr=False, compare=False)
 
     @property

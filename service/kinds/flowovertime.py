@@ -242,6 +242,7 @@ class FlowOverTimeProblem:
     options: dict
     digest: str
     size: int  # expanded size: horizon x (arcs + nodes), for the inline/solver-process choice
+    keys: list | None = None  # the lanes' labels, for diagrams
 
 
 def parse(body, limits: Limits) -> FlowOverTimeProblem:
@@ -265,7 +266,7 @@ def parse(body, limits: Limits) -> FlowOverTimeProblem:
     if n > limits.max_nodes:
         raise ProblemTooLarge(FieldError("/nodes", f"has {n} nodes; the limit is {limits.max_nodes}"))
     _check_expanded(horizon, m, n, limits)
-    read_keys(cols.get("key"))
+    keys = read_keys(cols.get("key"))
     capacity = capacity_column(cols.get("capacity"), m, horizon)
     cost = None if "cost" not in cols else number_column(cols["cost"].values, cols["cost"].where, minimum=0).values
     declared = len(nodes.ids.values)
@@ -284,7 +285,7 @@ def parse(body, limits: Limits) -> FlowOverTimeProblem:
         net.holdover, net.holdover_unlimited, *costs, supply,
         [horizon, objective, source, sink, amount, env["period"]], {"detail": options.get("detail")})
     return FlowOverTimeProblem(net, index, objective, source, sink, amount, supply, env["period"], options, digest,
-                               horizon * (m + n))
+                               horizon * (m + n), keys)
 
 
 def from_network(network, query, limits: Limits) -> FlowOverTimeProblem:
