@@ -82,7 +82,7 @@ class _Chart:
                 holds.setdefault(k, [])
         self.holds = dict(sorted(holds.items()))
         self.peak = max([a for _, _, a in self.departures] + [a for v in self.holds.values() for _, a in v] + [1.0])
-        self.lane_labels = [_short(self._lane_label(a)) for a in range(m)]
+        self.lane_labels = [self._lane_label(a) for a in range(m)]
         self.node_labels = [_short(f"{net.ids[k]} (waits)") for k in self.holds]
         font = FONTS["node-label"]
         self.label_w = max([text_width(t, font) for t in self.lane_labels + self.node_labels] + [40.0]) + 16
@@ -94,7 +94,7 @@ class _Chart:
         net = self.net
         key = net.keys[a] if net.keys is not None and net.keys[a] is not None else None
         name = key if key else f"{net.ids[int(net.tail[a])]} → {net.ids[int(net.head[a])]}"
-        return f"{name} ({int(self.transit[a])})"
+        return f"{_short(name)} ({int(self.transit[a])})"  # the transit stays when a long name is cut
 
     def x(self, period: float) -> float:
         return self.x0 + period * self.period_w
