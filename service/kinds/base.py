@@ -96,3 +96,19 @@ def stop_grace(kind, seconds: float) -> float:
 def wants(options: dict, part: str) -> bool:
     detail = options.get("detail")
     return detail is None or part in detail
+
+
+def posted_whole(network, query, query_schema, *, arc_fields: tuple = (), node_fields: tuple = ()) -> dict:
+    """The body a client would post whole for a question about a stored network.
+
+    For kinds whose what-ifs read the stored network through their own parser (the
+    planning and over-time kinds), so the two answer alike by construction. The query
+    is checked first by ``query_schema`` (pointers relative to the query: ``/top``),
+    then joined with the network's ``nodes`` and ``arcs`` and the optional columns
+    ``arc_fields``/``node_fields`` it carries (:func:`service.model.stored.body_of`).
+    """
+    from ..model.schemas import load_envelope
+    from ..model.stored import body_of
+
+    load_envelope(query_schema, query)
+    return {**query, **body_of(network, arc_fields, node_fields)}
