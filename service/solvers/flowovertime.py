@@ -36,6 +36,7 @@ from scipy.sparse import csgraph
 from ..errors import FieldError, InputError, SolverFailure
 from . import overtime_checks as checks
 from .earliest import FlowNetwork, earliest_arrival_flow, max_flow, nested_labels
+from .graph import bfs_predecessors
 from .maxflow_graph import graph_engine
 from .mincost_graph import GraphRangeError, auxiliary_max_flow, solver_bounds
 from .potentials import node_potentials
@@ -314,8 +315,7 @@ def unlimited_path(x: Expansion, source: int, sink: int, horizon: int) -> dict |
     tails = np.concatenate([x.tail[arcs], np.full(horizon, root)])
     heads = np.concatenate([x.head[arcs], np.arange(horizon) * n + source])
     ids = np.concatenate([arcs, np.full(horizon, -1)])
-    graph = sparse.csr_matrix((np.ones(tails.size, bool), (tails, heads)), shape=(nodes + 1, nodes + 1))
-    _, pred = csgraph.breadth_first_order(graph, root, directed=True, return_predecessors=True)
+    pred = bfs_predecessors(nodes + 1, tails, heads, root)
     reached = np.flatnonzero(pred[np.arange(horizon) * n + sink] >= 0)
     if not reached.size:
         return None

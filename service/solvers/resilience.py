@@ -61,13 +61,12 @@ import time
 from dataclasses import dataclass, field
 
 import numpy as np
-import scipy.sparse as sp
 from ortools.graph.python import max_flow as ortools_max_flow
-from scipy.sparse import csgraph
 
 from ..errors import FieldError, InputError, SolverFailure, SolveTimeout
 from .certificates import check_max_flow, check_path
 from .closure_checks import ClosureChecks
+from .graph import components, pattern, reach_in, residual_arcs
 from .maxflow_graph import CapacityOverflow, check_capacity_sums, graph_engine, max_flow_graph
 from .mincost_graph import GraphRangeError, solve_balanced, solver_bounds
 from .scaling import common_scale
@@ -217,10 +216,8 @@ def closure_losses(num_nodes: int, tail: np.ndarray, head: np.ndarray, capacity:
     checks.witness(flows)
     loss = np.zeros(tail.size, dtype=np.int64)
     carrying = np.flatnonzero(flows > 0)
-    res_tail, res_head = _residual_arcs(tail, head, capacity, unlimited, flows)
-    count, comp = csgraph.connected_components(
-        sp.csr_matrix((np.ones(res_tail.size, np.int8), (res_tail, res_head)), shape=(num_nodes, num_nodes)),
-        directed=True, connection="strong")
+    res_tail, res_head = residual_arcs(tail, head, capacity, unlimited, flows)
+    count, comp = components(num_nodes, res_tail, res_head, strong=True)
     across = comp[tail[carrying]] != comp[head[carrying]]
     crossing, inside = carrying[across], carrying[~across]
     loss[crossing] = flows[crossing]
@@ -271,16 +268,6 @@ def _group_tests(solver, left, psi, value, loss, cuts, checks, deadline) -> int:
     return tests
 
 
-def _residual_arcs(tail, head, capacity, unlimited, flows):
-    """Tails and heads of the residual network's arcs (room forward, flow backward)."""
-    forward = flows < capacity
-    if unlimited is not None:
-        forward |= unlimited
-    backward = flows > 0
-    return (np.concatenate([tail[forward], head[backward]]).astype(np.int64),
-            np.concatenate([head[forward], tail[backward]]).astype(np.int64))
-
-
 def _crossing_cuts(crossing, tail, source, comp, count, res_tail, res_head, value_without, checks) -> dict:
     """Cuts for arcs between components: the nodes the residual network reaches from s and u.
 
@@ -291,22 +278,15 @@ def _crossing_cuts(crossing, tail, source, comp, count, res_tail, res_head, valu
     if not crossing.size:
         return cuts
     between = comp[res_tail] != comp[res_head]
-    dag = sp.csr_matrix((np.ones(int(between.sum()), np.int8), (comp[res_tail[between]], comp[res_head[between]])),
-                        shape=(count, count))
-    from_source = _reached(dag, comp[source], count)
+    dag = pattern(count, comp[res_tail[between]], comp[res_head[between]])
+    from_source = reach_in(dag, comp[source])
     by_start: dict[int, np.ndarray] = {}
     for e in crossing.tolist():
         start = int(comp[tail[e]])
         if start not in by_start:
-            by_start[start] = (from_source | _reached(dag, start, count))[comp]
+            by_start[start] = (from_source | reach_in(dag, start))[comp]
         cuts[e] = checks.cut(e, by_start[start], int(value_without[e]))
     return cuts
-
-
-def _reached(dag, start: int, count: int) -> np.ndarray:
-    mask = np.zeros(count, dtype=bool)
-    mask[csgraph.breadth_first_order(dag, start, directed=True, return_predecessors=False)] = True
-    return mask
 
 
 def _reroute_rounds(num_nodes, tail, head, capacity, unlimited, source, sink, value, flows, inside, checks):
