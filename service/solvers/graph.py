@@ -81,6 +81,13 @@ class Graph:
     def num_arcs(self) -> int:
         return int(self.tail.size)
 
+    @property
+    def limited(self) -> np.ndarray:
+        """Indices of the arcs with an upper bound."""
+        if self.unlimited is None:
+            return np.arange(self.num_arcs)
+        return np.flatnonzero(~self.unlimited)
+
     def balance(self, flows: np.ndarray) -> np.ndarray:
         """Inflow minus outflow at every node; see :func:`node_balance`."""
         return node_balance(self.num_nodes, self.tail, self.head, flows)
