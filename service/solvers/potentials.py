@@ -31,7 +31,7 @@ from __future__ import annotations
 import numpy as np
 
 from ..errors import SelfCheckFailed
-from .graph import bfs_predecessors, components, residual_masks, residual_reach  # noqa: F401  (residual_reach re-exported)
+from .graph import bfs_predecessors, components, residual_masks
 
 
 def node_potentials(num_nodes: int, tail: np.ndarray, head: np.ndarray, cost: np.ndarray, flows: np.ndarray,

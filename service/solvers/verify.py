@@ -43,13 +43,21 @@ from __future__ import annotations
 import numpy as np
 
 from .graph import bfs_tree, reach
-from .plan_checks import (  # noqa: F401  (re-exported: the public names of plan checks)
+from .plan_checks import (
     BACKWARD, FORWARD, MAX_LISTED_VIOLATIONS, RELATIVE_TOLERANCE, Residual, Verdict, _apply, _fail, _finite,
     _number, _unlimited_first, _walk, common_dtype, find_violations, node_balance, residual_network, tolerance_for,
 )
-from .verify_mincost import (  # noqa: F401
+from .verify_mincost import (
     check_negative_cycle, check_potentials, negative_cycle, parent_cycle, verify_min_cost_flow,
 )
+
+#: The public names of plan checks, max-flow and min-cost flow alike.
+__all__ = [
+    "BACKWARD", "FORWARD", "MAX_LISTED_VIOLATIONS", "RELATIVE_TOLERANCE", "Residual", "Verdict",
+    "check_augmenting_path", "check_cut_proof", "check_negative_cycle", "check_potentials", "common_dtype",
+    "find_violations", "negative_cycle", "node_balance", "parent_cycle", "residual_network", "tolerance_for",
+    "verify_max_flow", "verify_min_cost_flow",
+]
 
 # --- max-flow --------------------------------------------------------------------
 
