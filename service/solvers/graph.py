@@ -98,7 +98,7 @@ class Graph:
 
     def residual(self, flows: np.ndarray, lower: np.ndarray | None = None, tol=0.0) -> Residual:
         """The residual arcs of a feasible plan; see :func:`residual_network`."""
-        return residual_network(self.tail, self.head, self.capacity, self.unlimited, lower, flows, tol)
+        return residual_network(self.tail, self.head, self.capacity, self.unlimited, lower, flows, tol)[0]
 
     def residual_reach(self, flows: np.ndarray, start: int, slack=0) -> np.ndarray:
         """Nodes reachable from ``start`` in the residual network; see :func:`residual_reach`."""
