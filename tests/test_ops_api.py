@@ -213,7 +213,7 @@ def test_pooled_solve_equals_inline_solve(tmp_path):
 @pytest.mark.parametrize("name", sorted(KINDS))
 def test_every_kind_answers_the_same_in_a_solver_process(tmp_path, name):
     # The solver process gets the problem without the arcs' key labels
-    # (bounded.for_solver_process): no kind's answer may depend on them.
+    # (Kind.for_solver_process): no kind's answer may depend on them.
     body = json.loads((SCENARIOS / KINDS[name].example).read_text())
     if "arcs" in body and isinstance(body["arcs"], list):
         assert any("key" in arc for arc in body["arcs"]), "the scenario should label its lanes"

@@ -214,8 +214,8 @@ def _int_arg(name: str, default: int, low: int, high: int) -> int:
 
 
 def what_if_kinds() -> list[str]:
-    """Kinds that can be asked of a stored network (they implement ``from_network``)."""
-    return [name for name, kind in KINDS.items() if hasattr(kind, "from_network")]
+    """Kinds that can be asked of a stored network (they declare ``from_network``)."""
+    return [name for name, kind in KINDS.items() if kind.from_network is not None]
 
 
 def what_if(name: str, kind_name: str):

@@ -20,7 +20,7 @@ def limits() -> Limits:
 def _make_view(kind: Kind):
     def view():
         if jobs.prefers_async():  # Prefer: respond-async (RFC 7240): 202 and a job
-            return jobs.submit(kind, decode_body(kind.name))
+            return jobs.submit(kind, decode_body(kind.dimacs))
         started = perf_counter()
         # A byte-identical body seen before is answered before it is even decoded.
         key = cache.body_key(kind)
@@ -30,7 +30,7 @@ def _make_view(kind: Kind):
         # The decoded body of a large object-form request is millions of Python
         # objects; keep it alive until the response is sent so that freeing it does
         # not delay the answer.
-        keep = [decode_body(kind.name, arc_columns=True)]
+        keep = [decode_body(kind.dimacs, arc_columns=True)]
         problem = kind.parse(keep[0], limits())
         response = cache.answer(kind, problem, started=started, key=key)
         response.call_on_close(keep.clear)

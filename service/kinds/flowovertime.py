@@ -32,7 +32,7 @@ from ..model.schemas import ArcsField, NodeId, NodesField, OptionsSchema, Strict
 from ..solvers.flowovertime import OverTimeSolution, max_by_horizon, min_cost, quickest
 from ..solvers.timeexpanded import TimedNetwork
 from ..solvers.versions import ORTOOLS_VERSION
-from .base import Limits, ids_of, node_position
+from .base import Kind, Limits, ids_of, node_position, problem_size
 from .maxflow import EngineSchema, TimingSchema
 
 OBJECTIVES = ["max-by-horizon", "quickest", "min-cost"]
@@ -377,14 +377,13 @@ def _steps(nodes: NodeIndex, steps: dict) -> dict:
             "holdover": _node_entries(nodes, steps["hold_node"], steps["hold_period"])}
 
 
-class FlowOverTimeKind:
-    name = "flowovertime"
-    summary = "Flows over time: the most by a horizon (earliest arrival), the quickest, or the cheapest schedule"
-    request_schema = FlowOverTimeRequest
-    response_schema = FlowOverTimeResponse
-    example = "xdock-night-flowovertime.json"
-    parse = staticmethod(parse)
-    solve = staticmethod(solve)
-
-
-KIND = FlowOverTimeKind()
+KIND = Kind(
+    name="flowovertime",
+    summary="Flows over time: the most by a horizon (earliest arrival), the quickest, or the cheapest schedule",
+    request_schema=FlowOverTimeRequest,
+    response_schema=FlowOverTimeResponse,
+    example="xdock-night-flowovertime.json",
+    parse=parse,
+    solve=solve,
+    size=problem_size,
+)
