@@ -13,6 +13,7 @@ from ..model.dimacs import MEDIA_TYPE as DIMACS_MEDIA_TYPE
 from .batch import BatchItemSchema, BatchRequest, BatchResponse
 from .diagram import SVG_MEDIA_TYPE, DiagramRequest, diagram_kinds
 from .explorer import ScenarioListSchema
+from .solve import KindListSchema
 from .verify import verify_kinds
 
 DESCRIPTION = """
@@ -112,6 +113,12 @@ def add_paths(spec: APISpec) -> None:
     spec.components.schema("BatchResponse", schema=BatchResponse)
     spec.components.schema("DiagramRequest", schema=DiagramRequest)
     spec.components.schema("ScenarioList", schema=ScenarioListSchema)
+    spec.components.schema("KindList", schema=KindListSchema)
+    spec.path(path="/v1/kinds", operations={"get": {
+        "operationId": "list_kinds", "summary": "The problem kinds this service solves, and what each can do",
+        "responses": {"200": {"description": "Name, summary, endpoint, example and capabilities of each kind.",
+                              "content": {"application/json": {"schema": "KindList"}}}},
+    }})
     verify_example = json.loads(_scenario_text("verify-depots-maxflow.json"))
     spec.path(path="/v1/verify/{kind}", operations={"post": {
         "operationId": "verify_plan",
