@@ -126,3 +126,18 @@ def test_a_new_kind_needs_only_its_declaration_in_the_registry():
     assert out["batch"]["results"][0]["total"] == 2
     assert out["job"] == 202
     assert out["what_if"] == 404  # no from_network declared: no what-if route
+
+
+def test_limits_and_settings_agree_on_their_defaults(monkeypatch):
+    from dataclasses import fields
+
+    from service.config import Settings
+    from service.kinds import Limits
+
+    shared = [f.name for f in fields(Limits) if hasattr(Settings, f.name)]
+    assert {"max_arcs", "max_nodes", "time_limit", "max_commodities"} <= set(shared)
+    for name in shared:
+        assert getattr(Limits(), name) == getattr(Settings(), name), name
+    for var in [v for v in __import__("os").environ if v.startswith("SLUICE_")]:
+        monkeypatch.delenv(var)
+    assert Settings.from_env() == Settings()  # unset variables keep the one written default

@@ -20,13 +20,17 @@ from ..model.ids import NodeIndex, lookalike, shown_id
 
 @dataclass(frozen=True)
 class Limits:
-    """Size and time limits applied while parsing and solving."""
+    """Size and time limits applied while parsing and solving.
+
+    The service builds them from :class:`service.config.Settings` (whose defaults these
+    repeat for callers without settings, such as tests; ``tests/test_kinds.py`` keeps
+    the two equal).
+    """
 
     max_arcs: int = 5_000_000
     max_nodes: int = 5_000_000
     time_limit: float = 30.0
     max_commodities: int = 1_000
-    max_batch_items: int = 100
     #: Flows over time: horizon x (arcs + nodes), the size of the time-expanded network.
     #: 5M is about four times a 10,000-lane network over 100 periods (a few seconds, a few
     #: hundred MB); larger ones are refused with a 413 naming ``horizon``.
