@@ -18,7 +18,7 @@ import orjson
 from flask import Blueprint, Response, current_app
 from marshmallow import RAISE, Schema, fields
 
-from ..drawing import DRAWERS, DrawnNetwork, draw
+from ..drawing import DrawnNetwork, draw
 from ..errors import FieldError, InputError, ProblemTooLarge
 from ..kinds import KINDS
 from ..kinds.nested import under
@@ -32,8 +32,6 @@ from .networks import export_network
 bp = Blueprint("diagram", __name__, url_prefix="/v1")
 
 SVG_MEDIA_TYPE = "image/svg+xml"
-#: Kinds that can be drawn: their requests carry ``arcs`` (and ``nodes``).
-DIAGRAM_KINDS = tuple(DRAWERS)
 #: Suffix of the cache entry that keeps a small solved problem drawable by digest.
 DRAWING_SUFFIX = ":drawing"
 
@@ -42,7 +40,7 @@ class DiagramRequest(Schema):
     class Meta:
         unknown = RAISE
 
-    kind = fields.String(required=True, metadata={"description": "A drawn kind: " + ", ".join(DRAWERS) + "."})
+    kind = fields.String(required=True, metadata={"description": "A drawn kind: " + ", ".join(n for n, k in KINDS.items() if k.drawable) + "."})
     problem = fields.Dict(required=True, metadata={"description": "The request body of POST /v1/{kind}."})
 
 
@@ -145,9 +143,14 @@ def svg_response(svg: str) -> Response:
     return Response(svg, mimetype=SVG_MEDIA_TYPE, headers={"Cache-Control": "no-store"})
 
 
+def diagram_kinds() -> list[str]:
+    """The kinds declared ``drawable`` (each has a drawer in :data:`service.drawing.DRAWERS`)."""
+    return [name for name, kind in KINDS.items() if kind.drawable]
+
+
 def _check_drawn(kind: str) -> None:
-    if kind not in DRAWERS or kind not in KINDS:
-        raise InputError.at("/kind", f"diagrams are drawn for {' and '.join(k for k in DRAWERS if k in KINDS)}")
+    if kind not in diagram_kinds():
+        raise InputError.at("/kind", f"diagrams are drawn for {' and '.join(diagram_kinds())}")
 
 
 def solution_diagram(kind: str, problem_body: dict, result: dict) -> Response:
@@ -173,9 +176,9 @@ def drawing_record(kind_name: str, problem) -> bytes | None:
     keep only their size, ``{"kind", "too_large": {"nodes", "arcs"}}``, so the route can
     answer 413 rather than 404. ``None`` for kinds that are not drawn.
     """
-    network = getattr(problem, "network", None)
-    if kind_name not in DRAWERS or network is None:
+    if not KINDS[kind_name].drawable:
         return None
+    network = problem.network
     settings = current_app.extensions["sluice"].settings
     if network.num_nodes > settings.max_diagram_nodes or network.num_arcs > settings.max_diagram_arcs:
         return orjson.dumps({"kind": kind_name, "too_large": {"nodes": network.num_nodes, "arcs": network.num_arcs}})

@@ -239,8 +239,8 @@ def _int_arg(name: str, default: int, low: int, high: int) -> int:
 
 
 def what_if_kinds() -> list[str]:
-    """Kinds that can be asked of a stored network (they implement ``from_network``)."""
-    return [name for name, kind in KINDS.items() if hasattr(kind, "from_network")]
+    """Kinds that can be asked of a stored network (they declare ``from_network``)."""
+    return [name for name, kind in KINDS.items() if kind.from_network is not None]
 
 
 def what_if(name: str, kind_name: str):
@@ -254,7 +254,7 @@ def what_if(name: str, kind_name: str):
     query = {k: v for k, v in body.items() if k != "changes"}
     loaded = cache.get_store().load_network(cache.tenant(), name)
     network = apply_changes(loaded.network, body.get("changes"), key_index=loaded.key_index,
-                            periods=getattr(kind, "per_period_capacity", False))
+                            periods=kind.per_period_capacity)
     problem = kind.from_network(network, query, _limits())
     meta = loaded.meta
     return cache.answer(kind, problem, started=started,

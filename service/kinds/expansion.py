@@ -14,7 +14,7 @@ from ..model.digest import problem_digest
 from ..model.schemas import ArcsField, NodeId, NodesField, OptionsSchema, StrictNumber, detail_field, load_envelope
 from ..solvers.expansion import Lanes, cheapest_expansion
 from ..solvers.versions import ORTOOLS_VERSION
-from .base import Limits, ids_of, node_position, posted_whole, time_limit, wants
+from .base import Kind, Limits, ids_of, node_position, posted_whole, time_limit, wants, without_arc_keys
 from .maxflow import TimingSchema
 from .mincostflow import POTENTIAL_MEANING
 
@@ -252,16 +252,16 @@ def solve(problem: ExpansionProblem, limits: Limits) -> dict:
     return out
 
 
-class ExpansionKind:
-    name = "expansion"
-    summary = "The cheapest capacity to add to the lanes so that a target can move"
-    request_schema = ExpansionRequest
-    response_schema = ExpansionResponse
-    example = "night-pallets-expansion.json"
-    query_schema = ExpansionQuery
-    parse = staticmethod(parse)
-    solve = staticmethod(solve)
-    from_network = staticmethod(from_network)
-
-
-KIND = ExpansionKind()
+KIND = Kind(
+    name="expansion",
+    summary="The cheapest capacity to add to the lanes so that a target can move",
+    request_schema=ExpansionRequest,
+    response_schema=ExpansionResponse,
+    example="night-pallets-expansion.json",
+    parse=parse,
+    solve=solve,
+    query_schema=ExpansionQuery,
+    from_network=from_network,
+    drawable=True,
+    for_solver_process=without_arc_keys,
+)

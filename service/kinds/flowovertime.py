@@ -32,7 +32,7 @@ from ..model.schemas import ArcsField, NodeId, NodesField, OptionsSchema, Strict
 from ..solvers.flowovertime import OverTimeSolution, max_by_horizon, min_cost, quickest
 from ..solvers.timeexpanded import TimedNetwork
 from ..solvers.versions import ORTOOLS_VERSION
-from .base import Limits, ids_of, node_position, posted_whole
+from .base import Kind, Limits, ids_of, node_position, posted_whole, problem_size
 from .maxflow import EngineSchema, TimingSchema
 
 OBJECTIVES = ["max-by-horizon", "quickest", "min-cost"]
@@ -441,17 +441,17 @@ def _steps(nodes: NodeIndex, steps: dict) -> dict:
             "holdover": _node_entries(nodes, steps["hold_node"], steps["hold_period"])}
 
 
-class FlowOverTimeKind:
-    name = "flowovertime"
-    summary = "Flows over time: the most by a horizon (earliest arrival), the quickest, or the cheapest schedule"
-    request_schema = FlowOverTimeRequest
-    response_schema = FlowOverTimeResponse
-    example = "xdock-night-flowovertime.json"
-    query_schema = FlowOverTimeQuery
-    per_period_capacity = True  # what-if capacity changes may give one number per period
-    parse = staticmethod(parse)
-    solve = staticmethod(solve)
-    from_network = staticmethod(from_network)
-
-
-KIND = FlowOverTimeKind()
+KIND = Kind(
+    name="flowovertime",
+    summary="Flows over time: the most by a horizon (earliest arrival), the quickest, or the cheapest schedule",
+    request_schema=FlowOverTimeRequest,
+    response_schema=FlowOverTimeResponse,
+    example="xdock-night-flowovertime.json",
+    parse=parse,
+    solve=solve,
+    query_schema=FlowOverTimeQuery,
+    from_network=from_network,
+    drawable=True,
+    per_period_capacity=True,
+    size=problem_size,
+)

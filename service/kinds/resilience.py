@@ -13,7 +13,7 @@ from ..model.digest import problem_digest
 from ..model.schemas import NodeId, OptionsSchema, detail_field, load_envelope
 from ..solvers.resilience import arc_closures
 from ..solvers.versions import ORTOOLS_VERSION
-from .base import Limits, ids_of, node_position, posted_whole, time_limit, wants
+from .base import Kind, Limits, ids_of, node_position, posted_whole, time_limit, wants, without_arc_keys
 from .maxflow import CutSchema, EngineSchema, MaxFlowCertificate, MaxFlowRequest, TimingSchema, UnboundedPathSchema
 
 DETAIL = ["flows", "cut", "cuts"]
@@ -177,16 +177,16 @@ def solve(problem: ResilienceProblem, limits: Limits) -> dict:
     return out
 
 
-class ResilienceKind:
-    name = "resilience"
-    summary = "Which single lane closure lowers the maximum flow most, with each loss checked by a cut"
-    request_schema = ResilienceRequest
-    response_schema = ResilienceResponse
-    example = "night-pallets-resilience.json"
-    query_schema = ResilienceQuery
-    parse = staticmethod(parse)
-    solve = staticmethod(solve)
-    from_network = staticmethod(from_network)
-
-
-KIND = ResilienceKind()
+KIND = Kind(
+    name="resilience",
+    summary="Which single lane closure lowers the maximum flow most, with each loss checked by a cut",
+    request_schema=ResilienceRequest,
+    response_schema=ResilienceResponse,
+    example="night-pallets-resilience.json",
+    parse=parse,
+    solve=solve,
+    query_schema=ResilienceQuery,
+    from_network=from_network,
+    drawable=True,
+    for_solver_process=without_arc_keys,
+)
