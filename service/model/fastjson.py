@@ -1,6 +1,6 @@
 """A fast decode for columnar payloads of numbers, fractions included.
 
-The compiled scanner (:mod:`service.api.fastarcs`) takes most large bodies; this
+The compiled scanner (:mod:`service.model.fastarcs`) takes most large bodies; this
 path serves the numeric columnar ones it leaves aside (escapes, longer numbers) and
 callers that keep lists (jobs, which re-serialise the body). A columnar body with
 integer node ids is mostly long JSON arrays of numbers; simdjson parses the document
