@@ -40,18 +40,39 @@ class Network:
 
     @property
     def num_nodes(self) -> int:
+        """How many nodes the network has."""
         return len(self.nodes)
 
     @property
     def num_arcs(self) -> int:
+        """How many arcs the network has."""
         return int(self.tail.size)
 
     @property
     def integral(self) -> bool:
+        """Whether capacities, costs and lower bounds are all integers."""
         return all(a is None or a.dtype.kind == "i" for a in (self.capacity, self.cost, self.lower))
 
     def capacity_or(self, big) -> np.ndarray:
-        """Capacities with unlimited arcs set to ``big``."""
+        """Capacities with unlimited arcs set to ``big``.
+
+        Parameters
+        ----------
+        big : int or float
+            Stands for "no limit".
+
+        Returns
+        -------
+        ndarray
+            The capacities themselves when no arc is unlimited, else a copy.
+
+        Examples
+        --------
+        >>> net, _ = read_network({"from": [1, 2], "to": [2, 3], "capacity": [4, None]}, None,
+        ...                       max_arcs=9, max_nodes=9)
+        >>> net.capacity_or(100).tolist()
+        [4, 100]
+        """
         if self.unlimited is None or not self.unlimited.any():
             return self.capacity
         cap = self.capacity.astype(np.result_type(self.capacity.dtype, type(big)), copy=True)

@@ -48,12 +48,35 @@ class NumberColumn:
 
     @property
     def integral(self) -> bool:
+        """Whether the values are int64."""
         return self.values.dtype.kind == "i"
 
 
 def first_errors(col: list, bad: Callable[[object], bool], where: PointerFn,
                   detail: str | Callable[[object], str]) -> InputError:
-    """Name the first offending elements (``detail`` may depend on the value)."""
+    """Name the first offending elements of a column.
+
+    Parameters
+    ----------
+    col : sequence
+        The values.
+    bad : callable
+        Whether a value is wrong.
+    where : callable
+        Maps an element index to its JSON Pointer.
+    detail : str or callable
+        The message, or a function of the value giving it.
+
+    Returns
+    -------
+    InputError
+        At most ``MAX_REPORTED_ERRORS`` errors, in index order.
+
+    Examples
+    --------
+    >>> [e.pointer for e in first_errors([1, -2, 3, -4], lambda v: v < 0, lambda i: f"/c/{i}", "neg").errors]
+    ['/c/1', '/c/3']
+    """
     errors = []
     for i, v in enumerate(col):
         if bad(v):
@@ -79,6 +102,11 @@ def mask_errors(mask: np.ndarray, where: PointerFn, detail: str) -> InputError:
     -------
     InputError
         At most ``MAX_REPORTED_ERRORS`` errors, in index order.
+
+    Examples
+    --------
+    >>> [e.pointer for e in mask_errors(np.array([False, True]), lambda i: f"/c/{i}", "bad").errors]
+    ['/c/1']
     """
     idx = np.flatnonzero(mask)[:MAX_REPORTED_ERRORS]
     return InputError([FieldError(where(int(i)), detail) for i in idx])
@@ -153,6 +181,11 @@ def check_numbers(col: NumberColumn, where: PointerFn, *, allow_null: bool = Fal
         Naming the first offending elements, in this order of checks: entries that are
         no number (and nulls where not allowed), non-finite values, values beyond
         ``MAX_MAGNITUDE``, values below ``minimum``.
+
+    Examples
+    --------
+    >>> check_numbers(numbers_of([2.0, 3]), lambda i: f"/c/{i}").values
+    array([2, 3])
     """
     bad = col.invalid
     if not allow_null and col.null is not None:
@@ -224,6 +257,30 @@ def _check_range(values: np.ndarray, where: PointerFn, minimum: float | None) ->
 
 
 def number_value(value: object, ptr: str, *, minimum: float | None = None) -> int | float:
-    """Check one JSON number (same rules as :func:`number_column`)."""
+    """Check one JSON number (same rules as :func:`number_column`).
+
+    Parameters
+    ----------
+    value : object
+        The decoded JSON value.
+    ptr : str
+        Its JSON Pointer.
+    minimum : float, optional
+        Smallest allowed value.
+
+    Returns
+    -------
+    int or float
+
+    Raises
+    ------
+    InputError
+        At ``ptr``.
+
+    Examples
+    --------
+    >>> number_value(4.0, "/x")
+    4
+    """
     col = number_column([value], lambda _i: ptr, minimum=minimum)
     return col.values[0].item()

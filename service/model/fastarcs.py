@@ -57,7 +57,19 @@ _SEED = secrets.randbits(64)
 
 
 def available() -> bool:
-    """Whether the compiled scanner is installed."""
+    """Whether the compiled scanner is installed.
+
+    Returns
+    -------
+    bool
+        ``False`` where it could not be built (no C compiler): every body then takes
+        the ordinary path.
+
+    Examples
+    --------
+    >>> available() in (True, False)
+    True
+    """
     return _arcscan is not None
 
 

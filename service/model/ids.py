@@ -44,6 +44,23 @@ class NodeIndex:
         return {**self.__dict__, "lookup": None}
 
     def index_of(self, node_id: object) -> int | None:
+        """The index of a node id.
+
+        Parameters
+        ----------
+        node_id : object
+            A decoded JSON value.
+
+        Returns
+        -------
+        int or None
+            ``None`` when no node has that id (ids of the other kind included).
+
+        Examples
+        --------
+        >>> NodeIndex(["a", "b"], str).index_of("b"), NodeIndex([3, 5], int).index_of("5")
+        (1, None)
+        """
         if type(node_id) is not self.kind:
             return None
         if self.lookup is not None:
@@ -64,6 +81,15 @@ def shown_id(value: object) -> str:
     printable ASCII, its code points as JSON escapes, since two ids can look the same
     and differ there ("Zürich" as one code point or as "u" plus a combining diaeresis).
 
+    Parameters
+    ----------
+    value : object
+        The id as decoded.
+
+    Returns
+    -------
+    str
+
     Examples
     --------
     >>> shown_id("hub-a")
@@ -81,7 +107,24 @@ def shown_id(value: object) -> str:
 def lookalike(value: object, known) -> str:
     """A clause naming a known id that differs from ``value`` only in Unicode
     normalisation (NFKC), or ``""``. Ids are compared exactly, code point by code point;
-    this only explains an "unknown" error whose id prints like a known one."""
+    this only explains an "unknown" error whose id prints like a known one.
+
+    Parameters
+    ----------
+    value : object
+        The unknown id.
+    known : iterable
+        The known ids (the first ``LOOKALIKE_SCAN`` are searched).
+
+    Returns
+    -------
+    str
+
+    Examples
+    --------
+    >>> lookalike("Zu\u0308rich", ["Z\u00fcrich"]).startswith("; the known id")
+    True
+    """
     if not isinstance(value, str):
         return ""
     target, plain = unicodedata.normalize("NFKC", value), value.isascii()

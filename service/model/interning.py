@@ -45,11 +45,33 @@ class ArcEnds:
 
     @classmethod
     def empty(cls) -> ArcEnds:
-        """No arcs: no kind of id either."""
+        """The ends of no arcs (no kind of id either).
+
+        Returns
+        -------
+        ArcEnds
+
+        Examples
+        --------
+        >>> ArcEnds.empty().kinds()
+        set()
+        """
         return cls(np.zeros(0, dtype=np.int32), np.zeros(0, dtype=np.int32), [])
 
     def kinds(self) -> set:
-        """The Python types of the ids (empty when there are no arcs)."""
+        """The Python types of the ids.
+
+        Returns
+        -------
+        set
+            ``{int}`` or ``{str}``; empty when there are no arcs; several types (or
+            others) only for ids kept as decoded.
+
+        Examples
+        --------
+        >>> ends_of([1, "b"], [2, 3]).kinds() == {int, str}
+        True
+        """
         if not self.tail.size:
             return set()
         if self.names is not None:
@@ -57,7 +79,23 @@ class ArcEnds:
         return _end_kinds(self.tail) | _end_kinds(self.head)
 
     def columns(self, where_from: PointerFn, where_to: PointerFn) -> tuple[IdColumn, IdColumn]:
-        """Both ends as Python ids with their pointers: for naming errors only."""
+        """Both ends as Python ids with their pointers: for naming errors only.
+
+        Parameters
+        ----------
+        where_from, where_to : callable
+            Map an arc's index to the JSON Pointer of its ``from`` and ``to`` id.
+
+        Returns
+        -------
+        (IdColumn, IdColumn)
+
+        Examples
+        --------
+        >>> tails, heads = ends_of(["a"], ["b"]).columns(lambda i: f"/f/{i}", lambda i: f"/t/{i}")
+        >>> tails.values, heads.where(0)
+        (['a'], '/t/0')
+        """
         return IdColumn(self._python(self.tail), where_from), IdColumn(self._python(self.head), where_to)
 
     def _python(self, end: np.ndarray) -> list:
