@@ -326,9 +326,10 @@ def translate_errors(exc):
 def dimacs_response(network, fmt: str, *, source=None, sink=None, supply=None, title=None) -> Response:
     """A network as a DIMACS file (for ``GET /v1/networks/{name}`` with ``Accept: text/x-dimacs``).
 
-    See :func:`service.model.dimacs.to_dimacs`; ``source``/``sink`` are node indices.
+    See :func:`service.model.dimacs_write.to_dimacs`; ``source``/``sink`` are node indices.
     """
-    from ..model.dimacs import MEDIA_TYPE, to_dimacs
+    from ..model.dimacs import MEDIA_TYPE
+    from ..model.dimacs_write import to_dimacs
 
     text = to_dimacs(network, fmt, source=source, sink=sink, supply=supply, title=title)
     return Response(text, mimetype=MEDIA_TYPE)
