@@ -65,8 +65,12 @@ def read_variables(raw, *, max_count: int, base: str = "/variables"):
     upper = bound(records, "upper", np.inf, np.inf)
     crossed = lower > upper
     if crossed.any():
-        where = records.columns["lower"][1]
         idx = np.flatnonzero(crossed)[:MAX_REPORTED_ERRORS]
+        if "lower" not in records.columns:  # no variable gives one: the upper is below the default 0
+            where = records.columns["upper"][1]
+            raise InputError([FieldError(where(int(i)), "must be >= 0, the default lower bound "
+                                                        "(give lower to allow less)") for i in idx])
+        where = records.columns["lower"][1]
         raise InputError([FieldError(where(int(i)), "must not exceed upper") for i in idx])
     return names, lookup, lower, upper
 
