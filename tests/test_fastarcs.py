@@ -20,8 +20,9 @@ from hypothesis import strategies as st
 
 from service.model import fastarcs
 from service.model.fastarcs import MIN_BYTES, decode_arcs_body
+from service.model.fastjson import decode_columnar
 from service.errors import InputError
-from service.model.arccolumns import ArcColumns
+from service.model.arccolumns import ArcColumns, read_arcs
 from service.model.arcs import read_network
 
 LIMITS = {"max_arcs": 10**7, "max_nodes": 10**7}
@@ -134,6 +135,40 @@ def test_generated_bodies_decode_as_the_ordinary_path_does(dump, names):
         fast = assert_same_as_ordinary(dump(columnar(body)))
         assert isinstance(fast["arcs"], ArcColumns) and fast["arcs"].form == "columns"
         assert (fast["arcs"].ends.names is None) == (names is None)
+
+
+def column_form(arcs: ArcColumns):
+    """Everything an ArcColumns holds but its pointer style, as plain values."""
+    def mask(m):
+        return None if m is None else m.tolist()
+    numbers = {name: (col.values.dtype.str, col.values.tolist(), mask(col.null), mask(col.invalid))
+               for name, col in arcs.numbers.items()}
+    ends = (arcs.ends.tail.dtype.str, arcs.ends.tail.tolist(), arcs.ends.head.tolist(), arcs.ends.names)
+    return arcs.count, ends, numbers, arcs.keys
+
+
+@pytest.mark.parametrize("names", [None, NAME_STYLES["plain"]], ids=["integer ids", "string ids"])
+def test_every_decode_path_hands_the_model_the_same_columns(names):
+    # One column form: the scanner, simdjson and orjson (objects or columns) all end in
+    # an ArcColumns with the same typed content, so the model never asks which ran.
+    for seed in range(5):
+        body = random_body(seed, names, nulls=False, missing=False, fractions=False, keys=True)
+        body["arcs"] = [{**a, "capacity": a.get("capacity", 1), "cost": a.get("cost", 0)} for a in body["arcs"]]
+        objects, columns = orjson.dumps(body), orjson.dumps(columnar(body))
+        forms = {"orjson objects": read_arcs(orjson.loads(objects)["arcs"]),
+                 "orjson columns": read_arcs(orjson.loads(columns)["arcs"]),
+                 "scanner objects": decode_arcs_body(objects, min_bytes=0)["arcs"],
+                 "scanner columns": decode_arcs_body(columns, min_bytes=0)["arcs"]}
+        simd = decode_columnar(columns)
+        if names is None:
+            assert simd is not None  # numeric columns (the keys hold no "[")
+        if simd is not None:
+            forms["simdjson columns"] = read_arcs(simd["arcs"])
+        expected = column_form(forms["orjson objects"])
+        for path, arcs in forms.items():
+            assert isinstance(arcs, ArcColumns), path
+            assert column_form(arcs) == expected, path
+            assert arcs.form == path.split()[1], path
 
 
 def test_every_optional_field_absent_or_present_everywhere():
