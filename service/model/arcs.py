@@ -13,7 +13,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..errors import FieldError, InputError, ProblemTooLarge
-from .arccolumns import ArcColumns, read_arcs
+from .arccolumns import ARC_FIELDS, ArcColumns, read_arcs
 from .columns import MAX_REPORTED_ERRORS, NumberColumn, PointerFn, check_numbers
 from .ids import MAX_ID_LENGTH, IdColumn, NodeIndex, ids_of
 from .interning import intern_ids
@@ -37,6 +37,9 @@ class Network:
     cost: np.ndarray | None
     lower: np.ndarray | None
     keys: list | None
+    #: Optional per-arc and per-node columns of the planning and over-time kinds
+    #: (see :mod:`service.model.stored`); None when there are none.
+    extra: dict | None = None
 
     @property
     def num_nodes(self) -> int:
@@ -118,7 +121,7 @@ def build_network(arcs: ArcColumns, declared: IdColumn, *, allow_lower: bool = T
             i = int(np.flatnonzero(lower)[0])
             raise InputError.at(arcs.where("lower")(i), "lower bounds are not supported by this problem kind")
         _check_lower(lower, capacity, unlimited, arcs.where("lower"))
-    keys = _keys(arcs.keys, arcs.where("key"))
+    keys = read_keys(arcs.keys, arcs.where("key"))
     return Network(nodes, tail, head, capacity, unlimited, cost, lower, keys)
 
 
@@ -175,17 +178,40 @@ def read_network(arcs_raw, nodes_raw, *, max_arcs: int, max_nodes: int, allow_lo
     >>> net.nodes.ids, net.capacity.tolist()
     ([1, 2], [4])
     """
-    arcs = read_arcs(arcs_raw, max_arcs=max_arcs)
-    nodes = read_nodes(nodes_raw, extra_fields=node_fields)
+    network, nodes, _ = read_network_with(arcs_raw, nodes_raw, max_arcs=max_arcs, max_nodes=max_nodes,
+                                          allow_lower=allow_lower, node_fields=node_fields)
+    return network, nodes
+
+
+def read_network_with(arcs_raw, nodes_raw, *, max_arcs: int, max_nodes: int, allow_lower: bool = True,
+                      node_fields: tuple[str, ...] = ("supply",), arc_fields: tuple[str, ...] = (),
+                      node_defaults: dict | None = None):
+    """:func:`read_network`, also accepting the arc fields ``arc_fields`` (beyond ``ARC_FIELDS``).
+
+    Parameters
+    ----------
+    node_defaults : dict, optional
+        The value of a node field a node object leaves out (0 unless given).
+
+    Returns
+    -------
+    (Network, RawNodes, dict)
+        As :func:`read_network`, and the extra fields' columns as decoded, each an
+        :class:`~service.model.ids.IdColumn` with its pointers (those no arc has are
+        absent), for the kind to check.
+    """
+    arcs = read_arcs(arcs_raw, max_arcs=max_arcs, fields=ARC_FIELDS + arc_fields)
+    nodes = read_nodes(nodes_raw, extra_fields=node_fields, defaults=node_defaults)
     network = build_network(arcs, nodes.ids, allow_lower=allow_lower)
     if network.num_nodes > max_nodes:
         raise ProblemTooLarge(FieldError("/nodes", f"has {network.num_nodes} nodes; the limit is {max_nodes}"))
-    return network, nodes
+    return network, nodes, {name: arcs.column(name) for name in arc_fields if name in arcs.others}
 
 
 def export_network(net: Network) -> dict:
     """``nodes`` and columnar ``arcs`` of a network, as a request would give them: the
-    inverse of :func:`read_network` (reading the result back gives the same arrays).
+    inverse of :func:`read_network` (reading the result back gives the same arrays), with
+    the optional columns of a stored network (``net.extra``) as a PUT body gives them.
 
     Parameters
     ----------
@@ -218,6 +244,10 @@ def export_network(net: Network) -> dict:
     if net.keys is not None:
         arcs["key"] = net.keys
     nodes = np.asarray(net.nodes.ids, dtype=np.int64) if net.nodes.kind is int else net.nodes.ids
+    if net.extra is not None:  # the optional columns, so that a PUT of this gives the same digest
+        arcs.update(net.extra["arcs"])
+        if net.extra["nodes"]:
+            nodes = {"id": nodes, **net.extra["nodes"]}
     return {"nodes": nodes, "arcs": arcs}
 
 
@@ -243,7 +273,8 @@ def _check_lower(lower, capacity, unlimited, where: PointerFn) -> None:
         raise InputError([FieldError(where(int(i)), "must not exceed the arc's capacity") for i in idx])
 
 
-def _keys(values: list | None, where: PointerFn) -> list | None:
+def read_keys(values: list | None, where: PointerFn) -> list | None:
+    """Arc keys: strings of 1-200 characters or null, unique (None when the column is absent)."""
     if values is None:
         return None
     kinds = set(map(type, values))

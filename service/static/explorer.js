@@ -3,7 +3,7 @@
 // with POST /v1/diagram.svg and shows the equivalent curl command.
 "use strict";
 
-const DRAWN = ["maxflow", "mincostflow"];  // kinds the diagram endpoint draws
+const DRAWN = ["maxflow", "mincostflow", "resilience", "expansion", "flowovertime"];  // kinds the diagram endpoint draws
 const $ = (id) => document.getElementById(id);
 
 function headers() {
