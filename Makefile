@@ -10,7 +10,7 @@ $(BIN)/python:
 	$(BIN)/pip install --quiet --upgrade pip
 
 # What an install depends on: when none of it changed, an install does nothing.
-SOURCES = pyproject.toml setup.py service/api/_arcscan.pyx service/model/_firstseen.pyx
+SOURCES = pyproject.toml setup.py service/model/_arcscan.pyx service/model/_firstseen.pyx
 RUNTIME = $(VENV)/.installed-runtime
 TESTING = $(VENV)/.installed-test
 

@@ -1,6 +1,6 @@
 """Build the compiled modules; everything else is in pyproject.toml.
 
-- ``service.api._arcscan``: the request-body scanner (``service.api.fastarcs`` in front);
+- ``service.model._arcscan``: the request-body scanner (``service.model.fastarcs`` in front);
 - ``service.model._firstseen``: integer node ids numbered in one pass.
 
 Both are optional: where they cannot be built (no C compiler), the service still
@@ -13,7 +13,7 @@ from setuptools import Extension, setup
 
 setup(
     ext_modules=cythonize(
-        [Extension("service.api._arcscan", ["service/api/_arcscan.pyx"], extra_compile_args=["-O3"],
+        [Extension("service.model._arcscan", ["service/model/_arcscan.pyx"], extra_compile_args=["-O3"],
                    optional=True),
          Extension("service.model._firstseen", ["service/model/_firstseen.pyx"], extra_compile_args=["-O3"],
                    optional=True)],

@@ -6,7 +6,7 @@ import orjson
 import pytest
 
 from service.api import create_app
-from service.api.fastjson import decode_columnar
+from service.model.fastjson import decode_columnar
 from tests.conftest import SCENARIOS
 
 GOOD = json.loads((SCENARIOS / "depots-maxflow.json").read_text())

@@ -16,7 +16,8 @@ from service.api import create_app
 from service.errors import InputError, ProblemTooLarge
 from service.kinds import KINDS, Limits
 from service.kinds.verify import read_min_cost
-from service.model.dimacs import parse_dimacs, stand_in_capacity, to_dimacs
+from service.model.dimacs import parse_dimacs
+from service.model.dimacs_write import stand_in_capacity, to_dimacs
 from tests.conftest import SCENARIOS
 
 DEPOTS = json.loads((SCENARIOS / "depots-maxflow.json").read_text())

@@ -15,8 +15,8 @@ import sys
 import orjson
 import pytest
 
-from service.api.fastarcs import decode_arcs_body
-from service.api.fastjson import _count_lists, decode_columnar
+from service.model.fastarcs import decode_arcs_body
+from service.model.fastjson import _count_lists, decode_columnar
 from service.errors import InputError
 from service.kinds import KINDS
 from service.kinds.base import Limits

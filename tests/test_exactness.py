@@ -24,7 +24,7 @@ import pytest
 from hypothesis import HealthCheck, event, given, settings
 from hypothesis import strategies as st
 
-from service.api.fastarcs import decode_arcs_body
+from service.model.fastarcs import decode_arcs_body
 from service.kinds import KINDS
 from service.kinds.base import Limits
 

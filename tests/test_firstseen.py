@@ -8,7 +8,7 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-import service.model.ids as ids_module
+import service.model.interning as interning
 from service.model._firstseen import first_seen
 
 
@@ -21,16 +21,16 @@ def by_the_rule(declared, tails, heads):
 
 
 def numpy_path(declared, tails, heads):
-    saved, ids_module.first_seen = ids_module.first_seen, None
+    saved, interning.first_seen = interning.first_seen, None
     try:
-        return ids_module._intern_ints(declared, tails, heads)
+        return interning._intern_ints(declared, tails, heads)
     finally:
-        ids_module.first_seen = saved
+        interning.first_seen = saved
 
 
 def test_the_compiled_pass_is_installed():
     # `pip install` builds it; without it every integer-id payload takes the slower numpy path.
-    assert ids_module.first_seen is not None
+    assert interning.first_seen is not None
 
 
 @settings(max_examples=300, deadline=None)
@@ -41,7 +41,7 @@ def test_compiled_and_numpy_paths_follow_the_rule(declared, arcs):
     t = np.array([a for a, _ in arcs], dtype=np.int64)
     h = np.array([b for _, b in arcs], dtype=np.int64)
     expected = by_the_rule(declared, t.tolist(), h.tolist())
-    for ids, tail, head in (ids_module._intern_ints(d, t, h), numpy_path(d, t, h)):
+    for ids, tail, head in (interning._intern_ints(d, t, h), numpy_path(d, t, h)):
         assert (ids, tail.tolist(), head.tolist()) == expected
         assert tail.dtype == head.dtype == np.int32
 
@@ -50,7 +50,7 @@ def test_a_large_random_network_agrees_with_the_numpy_path():
     rng = np.random.default_rng(8)
     t, h = rng.integers(0, 50_000, 300_000), rng.integers(0, 50_000, 300_000)
     d = rng.permutation(80_000)[:500].astype(np.int64)  # some declared ids no arc mentions
-    fast, slow = ids_module._intern_ints(d, t, h), numpy_path(d, t, h)
+    fast, slow = interning._intern_ints(d, t, h), numpy_path(d, t, h)
     assert fast[0] == slow[0] and np.array_equal(fast[1], slow[1]) and np.array_equal(fast[2], slow[2])
 
 

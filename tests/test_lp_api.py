@@ -236,6 +236,17 @@ def test_coefficients_of_the_wrong_length(client):
     assert pointers(post(client, body)) == ["/objective/coefficients"]
 
 
+def test_an_upper_bound_below_the_default_lower_bound_is_a_422_naming_it(client):
+    # It was a 500: the check looked for the lower bound's pointer, and none was given.
+    for variables in ([{"id": "x", "upper": -2}], {"id": ["x"], "upper": [-2]}):
+        body = {"variables": variables, "objective": {"sense": "max", "terms": {"x": 1}}}
+        r = post(client, body)
+        assert r.status_code == 422
+        expected = "/variables/0/upper" if isinstance(variables, list) else "/variables/upper/0"
+        assert pointers(r) == [expected]
+        assert "default lower bound" in r.get_json()["errors"][0]["detail"]
+
+
 def test_non_finite_numbers():
     """JSON cannot carry NaN or Infinity (the decoder answers 400, below); a decoded
     body holding them (e.g. from a batch built in Python) is refused with a pointer."""

@@ -163,3 +163,21 @@ def test_idcolumn_where_is_used_for_declared_nodes():
     with pytest.raises(InputError) as exc:
         build_network(read_arcs({"from": ["a"], "to": ["b"]}), col)
     assert pointers(exc) == ["/nodes/1"]
+
+
+def test_a_kinds_further_fields_reach_it_as_decoded_with_their_pointers():
+    from service.model.arccolumns import ARC_FIELDS
+
+    fields = ARC_FIELDS + ("transit",)
+    objects = read_arcs([{"from": 1, "to": 2, "transit": 3, "capacity": [1, None]}], fields=fields,
+                        as_decoded=("capacity",))
+    columns = read_arcs({"from": [1], "to": [2], "transit": [3], "capacity": [[1, None]]}, fields=fields,
+                        as_decoded=("capacity",))
+    for arcs, at in ((objects, "/arcs/0/transit"), (columns, "/arcs/transit/0")):
+        assert arcs.column("transit").values == [3] and arcs.column("transit").where(0) == at
+        # The per-period list is the kind's to read: not typed as one number per arc.
+        assert "capacity" not in arcs.numbers and arcs.column("capacity").values == [[1, None]]
+    assert read_arcs([{"from": 1, "to": 2, "capacity": 4}]).column("capacity").values.values.tolist() == [4]
+    with pytest.raises(InputError) as exc:  # a kind that did not ask for it
+        read_arcs([{"from": 1, "to": 2, "transit": 3}])
+    assert pointers(exc) == ["/arcs/0/transit"]

@@ -22,12 +22,11 @@ from ..drawing import DrawnNetwork, draw
 from ..errors import FieldError, InputError, ProblemTooLarge
 from ..kinds import KINDS
 from ..kinds.nested import under
-from ..model.arcs import Network, read_network
+from ..model.arcs import Network, export_network, read_network
 from ..model.columns import number_column
 from ..model.schemas import load_envelope
 from .bounded import bounded_solve
 from .jsonio import read_json_body
-from .networks import export_network
 
 bp = Blueprint("diagram", __name__, url_prefix="/v1")
 

@@ -15,8 +15,8 @@ from flask.json.provider import JSONProvider
 
 from ..errors import BadRequest, FieldError, ProblemTooLarge, UnsupportedMediaType
 from ..intake import BODY_FINGERPRINT, BODY_STEPS, HASH_FROM
-from .fastarcs import decode_arcs_body
-from .fastjson import decode_columnar, looks_columnar
+from ..model.fastarcs import decode_arcs_body
+from ..model.fastjson import decode_columnar, looks_columnar
 
 DUMP_OPTIONS = orjson.OPT_SERIALIZE_NUMPY | orjson.OPT_NON_STR_KEYS
 
@@ -225,12 +225,11 @@ def read_json_body(arc_columns: bool = False):
     Parameters
     ----------
     arc_columns : bool
-        Whether a large ``arcs`` member may arrive as columns decoded straight from
-        the bytes (:func:`~service.api.fastarcs.decode_arcs_body`: an
-        :class:`~service.model.arcs.ObjectArcs`, or columns with interned string ids)
-        instead of lists. Only callers that hand ``arcs`` to
-        :func:`~service.model.arcs.read_network` and never re-serialise the body ask
-        for it.
+        Whether a large ``arcs`` member may arrive as the model's typed columns,
+        decoded straight from the bytes (:func:`~service.model.fastarcs.decode_arcs_body`:
+        an :class:`~service.model.arccolumns.ArcColumns`) instead of JSON values. Only
+        callers that hand ``arcs`` to :func:`~service.model.arcs.read_network` and
+        never re-serialise the body ask for it.
 
     Raises
     ------
@@ -326,9 +325,10 @@ def translate_errors(exc):
 def dimacs_response(network, fmt: str, *, source=None, sink=None, supply=None, title=None) -> Response:
     """A network as a DIMACS file (for ``GET /v1/networks/{name}`` with ``Accept: text/x-dimacs``).
 
-    See :func:`service.model.dimacs.to_dimacs`; ``source``/``sink`` are node indices.
+    See :func:`service.model.dimacs_write.to_dimacs`; ``source``/``sink`` are node indices.
     """
-    from ..model.dimacs import MEDIA_TYPE, to_dimacs
+    from ..model.dimacs import MEDIA_TYPE
+    from ..model.dimacs_write import to_dimacs
 
     text = to_dimacs(network, fmt, source=source, sink=sink, supply=supply, title=title)
     return Response(text, mimetype=MEDIA_TYPE)

@@ -11,15 +11,12 @@ from __future__ import annotations
 
 from time import perf_counter
 
-import numpy as np
 from flask import Blueprint, Response, current_app, request, url_for
 from marshmallow import RAISE, Schema, fields
 
 from ..errors import InputError
 from ..kinds import KINDS, Limits
-from ..kinds.base import ids_of
-from ..model.arcs import Network
-from ..model.arcs import read_network_with
+from ..model.arcs import Network, export_network, read_network_with
 from ..model.stored import DEFAULTS, STORED_ARC_FIELDS, STORED_NODE_FIELDS, read_extra
 from ..model.changes import apply_changes
 from ..model.schemas import ArcsField, NodesField, load_envelope
@@ -181,29 +178,6 @@ def _include() -> set:
     if parts - {"arcs"}:
         raise InvalidParameter("include", "the only value is arcs")
     return parts
-
-
-def export_network(net: Network) -> dict:
-    """``nodes`` and columnar ``arcs`` of a stored network, as a PUT body would give them."""
-    arcs: dict = {"from": ids_of(net.nodes, net.tail), "to": ids_of(net.nodes, net.head)}
-    if net.unlimited is None:
-        arcs["capacity"] = net.capacity
-    else:
-        capacity = net.capacity.astype(object)
-        capacity[net.unlimited] = None  # JSON null: no limit
-        arcs["capacity"] = capacity.tolist()
-    if net.cost is not None:
-        arcs["cost"] = net.cost
-    if net.lower is not None:
-        arcs["lower"] = net.lower
-    if net.keys is not None:
-        arcs["key"] = net.keys
-    nodes = np.asarray(net.nodes.ids, dtype=np.int64) if net.nodes.kind is int else net.nodes.ids
-    if net.extra is not None:  # the optional columns, so that a PUT of this gives the same digest
-        arcs.update(net.extra["arcs"])
-        if net.extra["nodes"]:
-            nodes = {"id": nodes, **net.extra["nodes"]}
-    return {"nodes": nodes, "arcs": arcs}
 
 
 @bp.delete("/<name>")

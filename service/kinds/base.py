@@ -9,13 +9,10 @@ go through this interface, so a new problem kind is one module here plus its ent
 from __future__ import annotations
 
 from dataclasses import dataclass, replace
-from operator import itemgetter
 from typing import Any, Callable, Protocol
 
-import numpy as np
-
 from ..errors import InputError
-from ..model.ids import NodeIndex, lookalike, shown_id
+from ..model.ids import NodeIndex, ids_of, lookalike, shown_id  # noqa: F401 - ids_of: the kinds take it from here
 
 
 @dataclass(frozen=True)
@@ -135,17 +132,6 @@ def without_arc_keys(problem):
 def problem_size(problem) -> int:
     """The ``size`` a problem carries (a field or property): for :attr:`Kind.size`."""
     return problem.size
-
-
-def ids_of(nodes: NodeIndex, indices: np.ndarray):
-    """Node ids for an array of node indices, without a per-node Python loop."""
-    if nodes.kind is int:
-        return np.asarray(nodes.ids, dtype=np.int64)[indices]
-    if indices.size == 0:
-        return []
-    if indices.size == 1:
-        return [nodes.ids[int(indices[0])]]
-    return list(itemgetter(*indices.tolist())(nodes.ids))
 
 
 def node_position(nodes: NodeIndex, node_id, ptr: str) -> int:

@@ -8,7 +8,8 @@ import numpy as np
 from marshmallow import RAISE, Schema, fields, validate
 
 from ..errors import FieldError, InputError
-from ..model.arcs import EXPANSION_FIELDS, Network, read_network_with
+from ..model.arccolumns import EXPANSION_FIELDS
+from ..model.arcs import Network, read_network_with
 from ..model.columns import MAX_REPORTED_ERRORS, number_column, number_value
 from ..model.digest import problem_digest
 from ..model.schemas import ArcsField, NodeId, NodesField, OptionsSchema, StrictNumber, detail_field, load_envelope

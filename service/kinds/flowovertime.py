@@ -15,10 +15,12 @@ import numpy as np
 from marshmallow import RAISE, Schema, ValidationError, fields, validate
 
 from ..errors import FieldError, InputError, ProblemTooLarge
-from ..model.arcs import read_arcs, read_keys
-from ..model.columns import number_column
+from ..model.arccolumns import read_arcs
+from ..model.arcs import read_keys
+from ..model.columns import check_numbers, number_column
 from ..model.digest import problem_digest
-from ..model.ids import NodeIndex, intern_ids
+from ..model.ids import NodeIndex
+from ..model.interning import intern_ids
 from ..model.nodes import read_nodes
 from ..model.overtime import (
     NODE_DEFAULTS,
@@ -258,23 +260,24 @@ def parse(body, limits: Limits) -> FlowOverTimeProblem:
     env = load_envelope(_REQUEST, body)
     horizon, objective = env["horizon"], env["objective"]
     _check_expanded(horizon, 0, 1, limits)
-    raw = read_arcs(env["arcs"], max_arcs=limits.max_arcs, fields=TIMED_ARC_FIELDS)
+    # A capacity may be a list per period: read here, not as one number per arc.
+    arcs = read_arcs(env["arcs"], max_arcs=limits.max_arcs, fields=TIMED_ARC_FIELDS, as_decoded=("capacity",))
     nodes = read_nodes(env["nodes"], extra_fields=NODE_FIELDS, defaults=NODE_DEFAULTS)
-    cols = raw.columns
-    index, tail, head = intern_ids(nodes.ids, cols["from"], cols["to"])
-    n, m = len(index), raw.count
+    index, tail, head = intern_ids(nodes.ids, arcs.ends, arcs.where("from"), arcs.where("to"))
+    n, m = len(index), arcs.count
     if n > limits.max_nodes:
         raise ProblemTooLarge(FieldError("/nodes", f"has {n} nodes; the limit is {limits.max_nodes}"))
     _check_expanded(horizon, m, n, limits)
-    keys = read_keys(cols.get("key"))
-    capacity = capacity_column(cols.get("capacity"), m, horizon)
-    cost = None if "cost" not in cols else number_column(cols["cost"].values, cols["cost"].where, minimum=0).values
+    keys = read_keys(arcs.keys, arcs.where("key"))
+    capacity = capacity_column(arcs.column("capacity"), m, horizon)
+    cost = None if "cost" not in arcs.numbers else \
+        check_numbers(arcs.numbers["cost"], arcs.where("cost"), minimum=0).values
     declared = len(nodes.ids.values)
     holdover, unlimited = node_column(nodes.fields, "holdover", declared, n, allow_null=True, minimum=0)
     holdover_cost, _ = node_column(nodes.fields, "holdover_cost", declared, n, minimum=0)
     supply, _ = node_column(nodes.fields, "supply", declared, n)
     net = TimedNetwork(n, horizon, tail.astype(np.int64), head.astype(np.int64),
-                       transit_column(cols.get("transit"), m), capacity.values, capacity.null, cost, holdover,
+                       transit_column(arcs.column("transit"), m), capacity.values, capacity.null, cost, holdover,
                        unlimited, holdover_cost)
     source, sink, amount = _ends(env, index, objective)
     supply = _supply(supply, nodes, objective, n)

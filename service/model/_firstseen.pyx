@@ -1,7 +1,7 @@
 # cython: language_level=3, boundscheck=False, wraparound=False, initializedcheck=False
 """Integer node ids numbered in order of first mention, in one pass (compiled).
 
-:func:`service.model.ids._intern_ints` calls it on the dense path and keeps a numpy
+:func:`service.model.interning._intern_ints` calls it on the dense path and keeps a numpy
 version for installs without a C compiler; the two must agree exactly (tested).
 """
 

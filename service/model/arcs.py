@@ -1,163 +1,23 @@
-"""Arcs in object form or columnar form, normalised into numpy arrays.
+"""A normalised network: dense node indices and one numpy array per arc field.
 
-Object form: ``[{"from": a, "to": b, "capacity": 80, ...}, ...]``.
-Columnar form: ``{"from": [...], "to": [...], "capacity": [...], ...}``.
-Both are read column by column: one C-level pass per field, never a per-arc schema.
+:func:`read_network` reads the ``arcs`` and ``nodes`` members of a request into a
+:class:`Network`, checking every value on the way, and :func:`export_network` is its
+inverse (the ``nodes`` and columnar ``arcs`` a stored network is read back as). Arcs
+arrive as :class:`~service.model.arccolumns.ArcColumns` whichever decoder read them.
 """
 
 from __future__ import annotations
 
 from dataclasses import dataclass
-from operator import itemgetter
 
 import numpy as np
 
 from ..errors import FieldError, InputError, ProblemTooLarge
-from .columns import MAX_REPORTED_ERRORS, NullableNumbers, NumberColumn, number_column
-from .ids import MAX_ID_LENGTH, IdColumn, InternedIds, NodeIndex, intern_ids
-
-ARC_FIELDS = ("from", "to", "capacity", "cost", "lower", "key")
-#: Arc fields only some kinds read (they ask for them by name): lane widening terms.
-EXPANSION_FIELDS = ("expand_cost", "expand_max", "expand_fixed")
-REQUIRED = ("from", "to")
-#: Value used for an absent optional field.
-DEFAULTS = {"capacity": None, "cost": 0, "lower": 0, "key": None, "transit": 0, "expand_cost": None,
-            "expand_max": None, "expand_fixed": 0}
-
-
-@dataclass(frozen=True)
-class RawArcs:
-    """The arcs' columns as decoded lists, each with its pointer function."""
-
-    columns: dict  # field -> IdColumn-like (values, where)
-    count: int
-    form: str  # "objects" or "columns"
-
-
-@dataclass(frozen=True)
-class ObjectArcs:
-    """Object-form arcs already split into columns (numpy arrays, :class:`NullableNumbers`
-    or :class:`~service.model.ids.InternedIds`) by the API's compiled body scanner.
-    Pointers still name ``/arcs/<i>/<field>``, as for the list of objects they came
-    from."""
-
-    columns: dict
-    count: int
-
-
-def read_arcs(raw: object, *, base: str = "/arcs", max_arcs: int | None = None,
-              fields: tuple[str, ...] = ARC_FIELDS) -> RawArcs:
-    """Split the ``arcs`` member into columns, checking its shape.
-
-    ``fields`` are the arc fields the problem kind takes (``from`` and ``to`` first).
-
-    Raises
-    ------
-    InputError
-        Wrong shape, unknown or missing fields, columns of unequal length.
-    ProblemTooLarge
-        More than ``max_arcs`` arcs.
-    """
-    if isinstance(raw, ObjectArcs):
-        _foreign_columns(raw, base, fields)
-        arcs = RawArcs({name: IdColumn(values, _object_where(base, name)) for name, values in raw.columns.items()},
-                       raw.count, "objects")
-    elif isinstance(raw, list):
-        arcs = _read_objects(raw, base, fields)
-    elif isinstance(raw, dict):
-        arcs = _read_columns(raw, base, fields)
-    else:
-        raise InputError.at(base, "must be a list of arc objects or an object of columns")
-    if max_arcs is not None and arcs.count > max_arcs:
-        raise ProblemTooLarge(FieldError(base, f"has {arcs.count} arcs; the limit is {max_arcs}"))
-    return arcs
-
-
-_ABSENT = object()
-
-
-def _foreign_columns(raw: ObjectArcs, base: str, fields: tuple[str, ...]) -> None:
-    """A scanned column this kind does not take is an unknown field, as on the ordinary path.
-
-    The scanner fills an absent number with its default, so the arc named is the first
-    with a value other than 0 (the first arc when every value is 0).
-    """
-    for name in raw.columns:
-        if name not in fields:
-            values = np.asarray(getattr(raw.columns[name], "values", raw.columns[name]))
-            i = int(np.flatnonzero(values)[0]) if values.dtype.kind in "if" and values.any() else 0
-            raise InputError.at(f"{base}/{i}/{_escape(name)}", "unknown field")
-
-
-def _read_objects(raw: list, base: str, fields: tuple[str, ...] = ARC_FIELDS) -> RawArcs:
-    if set(map(type, raw)) - {dict}:
-        i = next(i for i, a in enumerate(raw) if type(a) is not dict)
-        raise InputError.at(f"{base}/{i}", "must be an arc object")
-    # Count keys instead of collecting them: every key must be accounted for by a
-    # known field, or some arc carries an unknown one (then we go and find it).
-    unaccounted = sum(map(len, raw))
-    columns = {}
-    for name in fields:
-        if name not in REQUIRED and unaccounted == 0:
-            break
-        values, present = _object_column(raw, name, base)
-        if present or name in REQUIRED:  # an empty arc list still has its (empty) columns
-            columns[name] = IdColumn(values, _object_where(base, name))
-            unaccounted -= present
-    if unaccounted:
-        i, key = next((i, k) for i, a in enumerate(raw) for k in a if k not in fields)
-        raise InputError.at(f"{base}/{i}/{_escape(key)}", "unknown field")
-    return RawArcs(columns, len(raw), "objects")
-
-
-def _object_column(raw: list, name: str, base: str) -> tuple[list, int]:
-    """One field of every arc object, and how many arcs carry it."""
-    try:
-        return list(map(itemgetter(name), raw)), len(raw)
-    except KeyError:
-        pass
-    if name in REQUIRED:
-        missing = [i for i, a in enumerate(raw) if name not in a][:MAX_REPORTED_ERRORS]
-        raise InputError([FieldError(f"{base}/{i}/{name}", "is required") for i in missing])
-    values = [a.get(name, _ABSENT) for a in raw]
-    present = len(values) - values.count(_ABSENT)
-    default = DEFAULTS[name]
-    return [default if v is _ABSENT else v for v in values], present
-
-
-def _read_columns(raw: dict, base: str, fields: tuple[str, ...] = ARC_FIELDS) -> RawArcs:
-    unknown = set(raw) - set(fields)
-    if unknown:
-        raise InputError.at(f"{base}/{_escape(sorted(unknown)[0])}", "unknown field")
-    for name in REQUIRED:
-        if name not in raw:
-            raise InputError.at(f"{base}/{name}", "is required")
-    count = None
-    columns = {}
-    for name in fields:
-        if name not in raw:
-            continue
-        values = raw[name]
-        if not isinstance(values, (list, np.ndarray, InternedIds, NullableNumbers)):
-            raise InputError.at(f"{base}/{name}", "must be a list")
-        if count is None:
-            count = len(values)
-        elif len(values) != count:
-            raise InputError.at(f"{base}/{name}", f"has {len(values)} entries; {base}/from has {count}")
-        columns[name] = IdColumn(values, _column_where(base, name))
-    return RawArcs(columns, count or 0, "columns")
-
-
-def _escape(name: str) -> str:
-    return str(name).replace("~", "~0").replace("/", "~1")
-
-
-def _object_where(base: str, name: str):
-    return lambda i: f"{base}/{i}/{name}"
-
-
-def _column_where(base: str, name: str):
-    return lambda i: f"{base}/{name}/{i}"
+from .arccolumns import ARC_FIELDS, ArcColumns, read_arcs
+from .columns import MAX_REPORTED_ERRORS, NumberColumn, PointerFn, check_numbers
+from .ids import MAX_ID_LENGTH, IdColumn, NodeIndex, ids_of
+from .interning import intern_ids
+from .nodes import read_nodes
 
 
 @dataclass
@@ -183,18 +43,39 @@ class Network:
 
     @property
     def num_nodes(self) -> int:
+        """How many nodes the network has."""
         return len(self.nodes)
 
     @property
     def num_arcs(self) -> int:
+        """How many arcs the network has."""
         return int(self.tail.size)
 
     @property
     def integral(self) -> bool:
+        """Whether capacities, costs and lower bounds are all integers."""
         return all(a is None or a.dtype.kind == "i" for a in (self.capacity, self.cost, self.lower))
 
     def capacity_or(self, big) -> np.ndarray:
-        """Capacities with unlimited arcs set to ``big``."""
+        """Capacities with unlimited arcs set to ``big``.
+
+        Parameters
+        ----------
+        big : int or float
+            Stands for "no limit".
+
+        Returns
+        -------
+        ndarray
+            The capacities themselves when no arc is unlimited, else a copy.
+
+        Examples
+        --------
+        >>> net, _ = read_network({"from": [1, 2], "to": [2, 3], "capacity": [4, None]}, None,
+        ...                       max_arcs=9, max_nodes=9)
+        >>> net.capacity_or(100).tolist()
+        [4, 100]
+        """
         if self.unlimited is None or not self.unlimited.any():
             return self.capacity
         cap = self.capacity.astype(np.result_type(self.capacity.dtype, type(big)), copy=True)
@@ -202,38 +83,84 @@ class Network:
         return cap
 
 
-def build_network(raw: RawArcs, declared: IdColumn, *, allow_lower: bool = True) -> Network:
-    """Normalise decoded arcs and declared node ids into a :class:`Network`.
+def build_network(arcs: ArcColumns, declared: IdColumn, *, allow_lower: bool = True) -> Network:
+    """Check decoded arcs and declared node ids and normalise them into a :class:`Network`.
+
+    Parameters
+    ----------
+    arcs : ArcColumns
+        As :func:`~service.model.arccolumns.read_arcs` or a fast decoder made them.
+    declared : IdColumn
+        The request's ``nodes`` ids.
+    allow_lower : bool
+        Whether the problem kind takes lower bounds.
+
+    Returns
+    -------
+    Network
 
     Raises
     ------
     InputError
-        Any bad id or number, naming the field by JSON Pointer.
+        Any bad id or number, naming the field by JSON Pointer: the ids first, then
+        ``capacity``, ``cost``, ``lower`` and ``key``.
+
+    Examples
+    --------
+    >>> net = build_network(read_arcs({"from": ["a"], "to": ["b"]}), read_nodes(None).ids)
+    >>> net.nodes.ids, net.unlimited.tolist()
+    (['a', 'b'], [True])
     """
-    cols = raw.columns
-    nodes, tail, head = intern_ids(declared, cols["from"], cols["to"])
-    capacity, unlimited = _capacity(cols.get("capacity"), raw.count)
-    cost = zeros_as_absent(_optional(cols.get("cost"), minimum=None))
-    lower = zeros_as_absent(_optional(cols.get("lower"), minimum=0))
+    nodes, tail, head = intern_ids(declared, arcs.ends, arcs.where("from"), arcs.where("to"))
+    numbers = arcs.numbers
+    capacity, unlimited = _capacity(numbers.get("capacity"), arcs.where("capacity"), arcs.count)
+    cost = zeros_as_absent(_optional(numbers.get("cost"), arcs.where("cost"), minimum=None))
+    lower = zeros_as_absent(_optional(numbers.get("lower"), arcs.where("lower"), minimum=0))
     if lower is not None:
         if not allow_lower:
             i = int(np.flatnonzero(lower)[0])
-            raise InputError.at(cols["lower"].where(i), "lower bounds are not supported by this problem kind")
-        else:
-            _check_lower(lower, capacity, unlimited, cols["lower"])
-    keys = read_keys(cols.get("key"))
+            raise InputError.at(arcs.where("lower")(i), "lower bounds are not supported by this problem kind")
+        _check_lower(lower, capacity, unlimited, arcs.where("lower"))
+    keys = read_keys(arcs.keys, arcs.where("key"))
     return Network(nodes, tail, head, capacity, unlimited, cost, lower, keys)
 
 
 def zeros_as_absent(values: np.ndarray | None) -> np.ndarray | None:
     """``None`` for a column of zeros: an explicit default is the default left out, so
-    both normalise (and hash) alike."""
+    both normalise (and hash) alike.
+
+    Parameters
+    ----------
+    values : ndarray or None
+
+    Returns
+    -------
+    ndarray or None
+
+    Examples
+    --------
+    >>> zeros_as_absent(np.zeros(3)) is None
+    True
+    """
     return None if values is None or not values.any() else values
 
 
 def read_network(arcs_raw, nodes_raw, *, max_arcs: int, max_nodes: int, allow_lower: bool = True,
                  node_fields: tuple[str, ...] = ("supply",)):
     """Read, check and normalise the ``arcs`` and ``nodes`` members of a request.
+
+    Parameters
+    ----------
+    arcs_raw : list, dict or ArcColumns
+        The ``arcs`` member as decoded (see :func:`~service.model.arccolumns.read_arcs`).
+    nodes_raw : list, dict or None
+        The ``nodes`` member as decoded.
+    max_arcs, max_nodes : int
+        The size limits.
+    allow_lower : bool
+        Whether the problem kind takes lower bounds.
+    node_fields : tuple of str
+        Per-node fields besides ``id`` that ``nodes`` may carry.
 
     Returns
     -------
@@ -244,6 +171,12 @@ def read_network(arcs_raw, nodes_raw, *, max_arcs: int, max_nodes: int, allow_lo
     ------
     InputError, ProblemTooLarge
         Naming the offending field by JSON Pointer.
+
+    Examples
+    --------
+    >>> net, _ = read_network([{"from": 1, "to": 2, "capacity": 4}], None, max_arcs=10, max_nodes=10)
+    >>> net.nodes.ids, net.capacity.tolist()
+    ([1, 2], [4])
     """
     network, nodes, _ = read_network_with(arcs_raw, nodes_raw, max_arcs=max_arcs, max_nodes=max_nodes,
                                           allow_lower=allow_lower, node_fields=node_fields)
@@ -253,57 +186,103 @@ def read_network(arcs_raw, nodes_raw, *, max_arcs: int, max_nodes: int, allow_lo
 def read_network_with(arcs_raw, nodes_raw, *, max_arcs: int, max_nodes: int, allow_lower: bool = True,
                       node_fields: tuple[str, ...] = ("supply",), arc_fields: tuple[str, ...] = (),
                       node_defaults: dict | None = None):
-    """:func:`read_network`, also accepting the arc fields ``arc_fields``.
+    """:func:`read_network`, also accepting the arc fields ``arc_fields`` (beyond ``ARC_FIELDS``).
+
+    Parameters
+    ----------
+    node_defaults : dict, optional
+        The value of a node field a node object leaves out (0 unless given).
 
     Returns
     -------
     (Network, RawNodes, dict)
-        As :func:`read_network`, and the extra fields' columns as read (those no arc
-        has are absent), for the kind to check.
+        As :func:`read_network`, and the extra fields' columns as decoded, each an
+        :class:`~service.model.ids.IdColumn` with its pointers (those no arc has are
+        absent), for the kind to check.
     """
-    from .nodes import read_nodes
-
     arcs = read_arcs(arcs_raw, max_arcs=max_arcs, fields=ARC_FIELDS + arc_fields)
     nodes = read_nodes(nodes_raw, extra_fields=node_fields, defaults=node_defaults)
     network = build_network(arcs, nodes.ids, allow_lower=allow_lower)
     if network.num_nodes > max_nodes:
         raise ProblemTooLarge(FieldError("/nodes", f"has {network.num_nodes} nodes; the limit is {max_nodes}"))
-    return network, nodes, {name: arcs.columns[name] for name in arc_fields if name in arcs.columns}
+    return network, nodes, {name: arcs.column(name) for name in arc_fields if name in arcs.others}
 
 
-def _capacity(col: IdColumn | None, count: int):
+def export_network(net: Network) -> dict:
+    """``nodes`` and columnar ``arcs`` of a network, as a request would give them: the
+    inverse of :func:`read_network` (reading the result back gives the same arrays), with
+    the optional columns of a stored network (``net.extra``) as a PUT body gives them.
+
+    Parameters
+    ----------
+    net : Network
+
+    Returns
+    -------
+    dict
+        ``{"nodes": [...], "arcs": {"from": [...], "to": [...], "capacity": [...], ...}}``,
+        with numpy arrays where the values are numbers (orjson writes them as lists)
+        and ``null`` capacities for arcs without a limit.
+
+    Examples
+    --------
+    >>> net, _ = read_network([{"from": "a", "to": "b"}], None, max_arcs=10, max_nodes=10)
+    >>> export_network(net)
+    {'nodes': ['a', 'b'], 'arcs': {'from': ['a'], 'to': ['b'], 'capacity': [None]}}
+    """
+    arcs: dict = {"from": ids_of(net.nodes, net.tail), "to": ids_of(net.nodes, net.head)}
+    if net.unlimited is None:
+        arcs["capacity"] = net.capacity
+    else:
+        capacity = net.capacity.astype(object)
+        capacity[net.unlimited] = None  # JSON null: no limit
+        arcs["capacity"] = capacity.tolist()
+    if net.cost is not None:
+        arcs["cost"] = net.cost
+    if net.lower is not None:
+        arcs["lower"] = net.lower
+    if net.keys is not None:
+        arcs["key"] = net.keys
+    nodes = np.asarray(net.nodes.ids, dtype=np.int64) if net.nodes.kind is int else net.nodes.ids
+    if net.extra is not None:  # the optional columns, so that a PUT of this gives the same digest
+        arcs.update(net.extra["arcs"])
+        if net.extra["nodes"]:
+            nodes = {"id": nodes, **net.extra["nodes"]}
+    return {"nodes": nodes, "arcs": arcs}
+
+
+def _capacity(col: NumberColumn | None, where: PointerFn, count: int):
     if col is None:
         return np.zeros(count, dtype=np.int64), np.ones(count, dtype=bool)
-    checked: NumberColumn = number_column(col.values, col.where, allow_null=True, minimum=0)
+    checked = check_numbers(col, where, allow_null=True, minimum=0)
     return checked.values, checked.null
 
 
-def _optional(col: IdColumn | None, *, minimum):
+def _optional(col: NumberColumn | None, where: PointerFn, *, minimum):
     if col is None:
         return None
-    return number_column(col.values, col.where, minimum=minimum).values
+    return check_numbers(col, where, minimum=minimum).values
 
 
-def _check_lower(lower, capacity, unlimited, col: IdColumn) -> None:
+def _check_lower(lower, capacity, unlimited, where: PointerFn) -> None:
     bad = lower > capacity
     if unlimited is not None:
         bad &= ~unlimited
     if bad.any():
         idx = np.flatnonzero(bad)[:MAX_REPORTED_ERRORS]
-        raise InputError([FieldError(col.where(int(i)), "must not exceed the arc's capacity") for i in idx])
+        raise InputError([FieldError(where(int(i)), "must not exceed the arc's capacity") for i in idx])
 
 
-def read_keys(col: IdColumn | None) -> list | None:
+def read_keys(values: list | None, where: PointerFn) -> list | None:
     """Arc keys: strings of 1-200 characters or null, unique (None when the column is absent)."""
-    if col is None:
+    if values is None:
         return None
-    values = col.values
     kinds = set(map(type, values))
     if kinds <= {type(None)}:  # every label null: as if no arc had one
         return None
     if not kinds <= {str, type(None)}:
         i = next(i for i, v in enumerate(values) if v is not None and type(v) is not str)
-        raise InputError.at(col.where(i), "must be a string or null")
+        raise InputError.at(where(i), "must be a string or null")
     labels = [v for v in values if v is not None]
     if len(set(labels)) == len(labels) and all(1 <= len(v) <= MAX_ID_LENGTH for v in labels):
         return values
@@ -312,8 +291,8 @@ def read_keys(col: IdColumn | None) -> list | None:
         if v is None:
             continue
         if not 1 <= len(v) <= MAX_ID_LENGTH:
-            raise InputError.at(col.where(i), "must be 1-200 characters long")
+            raise InputError.at(where(i), "must be 1-200 characters long")
         if v in seen:
-            raise InputError.at(col.where(i), f"duplicate arc key {v!r} (first at arc {seen[v]})")
+            raise InputError.at(where(i), f"duplicate arc key {v!r} (first at arc {seen[v]})")
         seen[v] = i
     return values

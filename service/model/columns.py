@@ -26,36 +26,57 @@ MAX_REPORTED_ERRORS = 20
 
 
 @dataclass(frozen=True)
-class NullableNumbers:
-    """A typed column (int64, or float64 where a number has a fraction) with JSON nulls
-    marked (their value slot is 0), as the compiled body scanner hands it over."""
+class NumberColumn:
+    """A column of JSON numbers, typed: the one form every decoder hands the model.
+
+    ``values`` is int64, or float64 where a number has a fraction; an object array
+    only for integers beyond int64 (which :func:`check_numbers` then names). ``null``
+    marks JSON nulls and ``invalid`` the entries that are no number at all (strings,
+    booleans, lists, objects); both hold 0 in ``values``, and either is ``None`` when
+    it marks nothing. :func:`numbers_of` types a decoded JSON array; the compiled body
+    scanner makes the column directly. After :func:`check_numbers`, ``invalid`` is
+    ``None``, ``values`` int64 when every value is integral (floats such as ``4.0``
+    count as integral), and ``null`` set only when there is a null.
+    """
 
     values: np.ndarray
-    null: np.ndarray
+    null: np.ndarray | None = None
+    invalid: np.ndarray | None = None
 
     def __len__(self) -> int:
         return int(self.values.size)
 
-
-@dataclass(frozen=True)
-class NumberColumn:
-    """A checked numeric column.
-
-    ``values`` is int64 when every value is integral (floats such as ``4.0`` count as
-    integral), float64 otherwise; ``null`` marks JSON nulls (their value slot is 0).
-    """
-
-    values: np.ndarray
-    null: np.ndarray | None
-
     @property
     def integral(self) -> bool:
+        """Whether the values are int64."""
         return self.values.dtype.kind == "i"
 
 
 def first_errors(col: list, bad: Callable[[object], bool], where: PointerFn,
                   detail: str | Callable[[object], str]) -> InputError:
-    """Name the first offending elements (``detail`` may depend on the value)."""
+    """Name the first offending elements of a column.
+
+    Parameters
+    ----------
+    col : sequence
+        The values.
+    bad : callable
+        Whether a value is wrong.
+    where : callable
+        Maps an element index to its JSON Pointer.
+    detail : str or callable
+        The message, or a function of the value giving it.
+
+    Returns
+    -------
+    InputError
+        At most ``MAX_REPORTED_ERRORS`` errors, in index order.
+
+    Examples
+    --------
+    >>> [e.pointer for e in first_errors([1, -2, 3, -4], lambda v: v < 0, lambda i: f"/c/{i}", "neg").errors]
+    ['/c/1', '/c/3']
+    """
     errors = []
     for i, v in enumerate(col):
         if bad(v):
@@ -66,8 +87,123 @@ def first_errors(col: list, bad: Callable[[object], bool], where: PointerFn,
 
 
 def mask_errors(mask: np.ndarray, where: PointerFn, detail: str) -> InputError:
+    """Name the first offending elements of a boolean mask.
+
+    Parameters
+    ----------
+    mask : ndarray of bool
+        Where the column is wrong.
+    where : callable
+        Maps an element index to its JSON Pointer.
+    detail : str
+        The message for every named element.
+
+    Returns
+    -------
+    InputError
+        At most ``MAX_REPORTED_ERRORS`` errors, in index order.
+
+    Examples
+    --------
+    >>> [e.pointer for e in mask_errors(np.array([False, True]), lambda i: f"/c/{i}", "bad").errors]
+    ['/c/1']
+    """
     idx = np.flatnonzero(mask)[:MAX_REPORTED_ERRORS]
     return InputError([FieldError(where(int(i)), detail) for i in idx])
+
+
+_NUMBER_TYPES = (int, float)
+_JSON_NUMBER_OR_NULL = {int, float, type(None)}
+
+
+def numbers_of(values: list | np.ndarray) -> NumberColumn:
+    """A decoded JSON array as a typed :class:`NumberColumn`, checks left to
+    :func:`check_numbers`: what is no number is marked, never raised here.
+
+    Parameters
+    ----------
+    values : list or ndarray
+        The array as orjson decodes it, or as a typed array (the simdjson path and
+        DIMACS files give numeric columns so).
+
+    Returns
+    -------
+    NumberColumn
+
+    Examples
+    --------
+    >>> col = numbers_of([3, None, "x"])
+    >>> col.values.tolist(), col.null.tolist(), col.invalid.tolist()
+    ([3, 0, 0], [False, True, False], [False, False, True])
+    """
+    if isinstance(values, np.ndarray):
+        return NumberColumn(values)
+    kinds = set(map(type, values))
+    null = invalid = None
+    if not kinds <= set(_NUMBER_TYPES):
+        if type(None) in kinds:
+            null = np.fromiter((v is None for v in values), dtype=bool, count=len(values))
+        if not kinds <= _JSON_NUMBER_OR_NULL:
+            invalid = np.fromiter((type(v) not in _JSON_NUMBER_OR_NULL for v in values), dtype=bool,
+                                  count=len(values))
+        values = [v if type(v) in _NUMBER_TYPES else 0 for v in values]
+    try:
+        typed = np.asarray(values, dtype=np.float64 if float in kinds else np.int64)
+    except OverflowError:  # an integer beyond int64: kept exact for the range check to name
+        typed = np.asarray(values, dtype=object)
+    return NumberColumn(typed, null, invalid)
+
+
+def check_numbers(col: NumberColumn, where: PointerFn, *, allow_null: bool = False,
+                  minimum: float | None = None) -> NumberColumn:
+    """Check a typed column of numbers, whichever decoder made it.
+
+    Parameters
+    ----------
+    col : NumberColumn
+        As :func:`numbers_of` or a fast decoder made it.
+    where : callable
+        Maps an element index to its JSON Pointer, for error messages.
+    allow_null : bool
+        Whether ``null`` is allowed (it means "no limit" for capacities).
+    minimum : float, optional
+        Smallest allowed value.
+
+    Returns
+    -------
+    NumberColumn
+        ``values`` int64 when every value is integral, float64 otherwise; ``null``
+        only when some entry is null; ``invalid`` ``None``.
+
+    Raises
+    ------
+    InputError
+        Naming the first offending elements, in this order of checks: entries that are
+        no number (and nulls where not allowed), non-finite values, values beyond
+        ``MAX_MAGNITUDE``, values below ``minimum``.
+
+    Examples
+    --------
+    >>> check_numbers(numbers_of([2.0, 3]), lambda i: f"/c/{i}").values
+    array([2, 3])
+    """
+    bad = col.invalid
+    if not allow_null and col.null is not None:
+        bad = col.null if bad is None else bad | col.null
+    if bad is not None and bad.any():
+        raise mask_errors(bad, where, "must be a number or null" if allow_null else "must be a number")
+    values = col.values
+    if values.dtype.kind == "f":
+        non_finite = ~np.isfinite(values)
+        if non_finite.any():
+            raise mask_errors(non_finite, where, "must be a finite number")
+        _check_range(values, where, minimum)
+        if np.all(np.floor(values) == values) and np.all(np.abs(values) <= EXACT_FLOAT_INT):
+            values = values.astype(np.int64)
+    else:
+        _check_range(values, where, minimum)
+    null = col.null if col.null is not None and col.null.any() else None
+    return NumberColumn(values, null)
 
 
 def number_column(
@@ -78,6 +214,8 @@ def number_column(
     minimum: float | None = None,
 ) -> NumberColumn:
     """Check a list of JSON numbers and return it as a numpy array.
+
+    :func:`numbers_of`, then :func:`check_numbers`.
 
     Parameters
     ----------
@@ -105,52 +243,7 @@ def number_column(
     >>> number_column([3, None, 4.0], lambda i: f"/c/{i}", allow_null=True).values
     array([3, 0, 4])
     """
-    if isinstance(col, np.ndarray):
-        return _typed_column(col, where, minimum)
-    if isinstance(col, NullableNumbers):
-        if not allow_null and col.null.any():
-            raise mask_errors(col.null, where, "must be a number")
-        return NumberColumn(_typed_column(col.values, where, minimum).values, col.null if col.null.any() else None)
-    kinds = set(map(type, col))
-    allowed = {int, float, type(None)} if allow_null else {int, float}
-    if not kinds <= allowed:
-        wanted = "a number or null" if allow_null else "a number"
-        raise first_errors(col, lambda v: type(v) not in allowed, where, f"must be {wanted}")
-    null = None
-    if type(None) in kinds:
-        null = np.fromiter((v is None for v in col), dtype=bool, count=len(col))
-        col = [0 if v is None else v for v in col]
-    if float in kinds:
-        values = np.asarray(col, dtype=np.float64)
-        _check_range(values, where, minimum)
-        if np.all(np.floor(values) == values) and np.all(np.abs(values) <= EXACT_FLOAT_INT):
-            values = values.astype(np.int64)
-    else:
-        try:
-            values = np.asarray(col, dtype=np.int64)
-        except OverflowError:
-            raise first_errors(
-                col, lambda v: abs(v) > MAX_MAGNITUDE, where, f"must be at most {MAX_MAGNITUDE} in magnitude"
-            ) from None
-        if values.size == 0:
-            values = values.astype(np.int64)
-        _check_range(values, where, minimum)
-    return NumberColumn(values, null)
-
-
-def _typed_column(values: np.ndarray, where: PointerFn, minimum: float | None) -> NumberColumn:
-    """A column that arrived as a typed array (the columnar fast path): no type
-    checks needed, only range and finiteness."""
-    if values.dtype.kind == "f":
-        bad = ~np.isfinite(values)
-        if bad.any():
-            raise mask_errors(bad, where, "must be a finite number")
-        _check_range(values, where, minimum)
-        if np.all(np.floor(values) == values) and np.all(np.abs(values) <= EXACT_FLOAT_INT):
-            values = values.astype(np.int64)
-        return NumberColumn(values, None)
-    _check_range(values, where, minimum)
-    return NumberColumn(values, None)
+    return check_numbers(numbers_of(col), where, allow_null=allow_null, minimum=minimum)
 
 
 def _check_range(values: np.ndarray, where: PointerFn, minimum: float | None) -> None:
@@ -164,6 +257,30 @@ def _check_range(values: np.ndarray, where: PointerFn, minimum: float | None) ->
 
 
 def number_value(value: object, ptr: str, *, minimum: float | None = None) -> int | float:
-    """Check one JSON number (same rules as :func:`number_column`)."""
+    """Check one JSON number (same rules as :func:`number_column`).
+
+    Parameters
+    ----------
+    value : object
+        The decoded JSON value.
+    ptr : str
+        Its JSON Pointer.
+    minimum : float, optional
+        Smallest allowed value.
+
+    Returns
+    -------
+    int or float
+
+    Raises
+    ------
+    InputError
+        At ``ptr``.
+
+    Examples
+    --------
+    >>> number_value(4.0, "/x")
+    4
+    """
     col = number_column([value], lambda _i: ptr, minimum=minimum)
     return col.values[0].item()

@@ -11,35 +11,19 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 from itertools import chain, repeat
-from operator import is_not, methodcaller
 
 import numpy as np
 import scipy.sparse as sp
 
 from ..errors import FieldError, InputError, ProblemTooLarge, pointer
 from .columns import MAX_MAGNITUDE, MAX_REPORTED_ERRORS, number_column
-from .ids import MAX_ID_LENGTH, lookalike, shown_id
+from .ids import lookalike, shown_id
+from .records import ID, ID_ALIAS, Records, bound, fold_id_alias, present, read_records, record_ids
 
-#: Variables and constraints are named by ``id``, as nodes, arcs' ends and commodities
-#: are; ``name``, the first spelling, is still read as an alias of it.
-ID, ID_ALIAS = "id", "name"
 VARIABLE_FIELDS = (ID, ID_ALIAS, "lower", "upper")
 CONSTRAINT_FIELDS = (ID, ID_ALIAS, "terms", "lower", "upper", "equals")
 MATRIX_FIELDS = ("row", "column", "value")
-_ABSENT = object()
 _NO_TERMS: dict = {}
-
-
-def _numbers(values: list, where, *, allow_null: bool = False):
-    """:func:`number_column` plus a NaN guard (JSON cannot carry NaN, but a body decoded
-    elsewhere can, and NaN passes every comparison)."""
-    col = number_column(values, where, allow_null=allow_null)
-    if col.values.dtype.kind == "f":
-        nan = np.isnan(col.values)
-        if nan.any():
-            idx = np.flatnonzero(nan)[:MAX_REPORTED_ERRORS]
-            raise InputError([FieldError(where(int(i)), "must be a finite number") for i in idx])
-    return col
 
 
 @dataclass
@@ -58,126 +42,6 @@ class LinearModel:
     col_upper: np.ndarray
 
 
-@dataclass
-class _Records:
-    columns: dict  # field -> (values list, where)
-    count: int
-    form: str  # "objects" | "columns"
-
-
-def _read_records(raw, base: str, allowed: tuple, defaults: dict, what: str) -> _Records:
-    """Split a list of objects or an object of columns into per-field value lists."""
-    if isinstance(raw, list):
-        if set(map(type, raw)) - {dict}:
-            i = next(i for i, v in enumerate(raw) if type(v) is not dict)
-            raise InputError.at(f"{base}/{i}", f"must be a {what} object")
-        present = set(chain.from_iterable(raw))
-        unknown = present - set(allowed)
-        if unknown:
-            i, name = next((i, k) for i, v in enumerate(raw) for k in v if k in unknown)
-            raise InputError.at(pointer(base[1:], i, name), "unknown field")
-        columns = {}
-        for name in allowed:
-            if name in present:
-                values = list(map(methodcaller("get", name, defaults.get(name, _ABSENT)), raw))
-                columns[name] = (values, _object_where(base, name))
-        return _Records(columns, len(raw), "objects")
-    if isinstance(raw, dict):
-        unknown = set(raw) - set(allowed)
-        if unknown:
-            raise InputError.at(pointer(base[1:], sorted(unknown)[0]), "unknown field")
-        count = None
-        columns = {}
-        for name in allowed:
-            if name not in raw:
-                continue
-            values = raw[name]
-            if not isinstance(values, list):
-                raise InputError.at(f"{base}/{name}", "must be a list")
-            if count is None:
-                count, first = len(values), name
-            elif len(values) != count:
-                raise InputError.at(f"{base}/{name}", f"has {len(values)} entries; {base}/{first} has {count}")
-            columns[name] = (values, _column_where(base, name))
-        return _Records(columns, count or 0, "columns")
-    raise InputError.at(base, f"must be a list of {what} objects or an object of columns")
-
-
-def _object_where(base, name):
-    return lambda i: f"{base}/{i}/{name}"
-
-
-def _column_where(base, name):
-    return lambda i: f"{base}/{name}/{i}"
-
-
-def _fold_id_alias(records: _Records, base: str) -> _Records:
-    """Read ``name`` as ``id``: each record (or the columns) gives one of the two; error
-    pointers keep the spelling the client sent."""
-    if ID_ALIAS not in records.columns:
-        return records
-    names, name_where = records.columns.pop(ID_ALIAS)
-    if ID not in records.columns:
-        records.columns[ID] = (names, name_where)
-        return records
-    ids, id_where = records.columns[ID]
-    both = 0 if records.form == "columns" else next(
-        (i for i, (a, b) in enumerate(zip(ids, names)) if a is not _ABSENT and b is not _ABSENT), None)
-    if both is not None:
-        where = f"{base}/{ID_ALIAS}" if records.form == "columns" else name_where(both)
-        raise InputError.at(where, "give id or name (its older spelling), not both")
-    merged = [b if a is _ABSENT else a for a, b in zip(ids, names)]
-    records.columns[ID] = (merged, lambda i: (name_where if ids[i] is _ABSENT else id_where)(i))
-    return records
-
-
-def _names(records: _Records, base: str, what: str) -> tuple[list, dict]:
-    if ID not in records.columns:
-        where = (lambda i: f"{base}/{i}/{ID}") if records.form == "objects" else (lambda i: f"{base}/{ID}")
-        raise InputError.at(where(0), "is required")
-    names, where = records.columns[ID]
-    if _ABSENT in names:
-        i = next(i for i, v in enumerate(names) if v is _ABSENT)
-        raise InputError.at(where(i), "is required")
-    if set(map(type, names)) - {str}:
-        i = next(i for i, v in enumerate(names) if type(v) is not str)
-        raise InputError.at(where(i), f"must be a {what} id: a string of 1-{MAX_ID_LENGTH} characters")
-    lengths = np.fromiter(map(len, names), dtype=np.int64, count=len(names))
-    bad = (lengths < 1) | (lengths > MAX_ID_LENGTH)
-    if bad.any():
-        idx = np.flatnonzero(bad)[:MAX_REPORTED_ERRORS]
-        raise InputError([FieldError(where(int(i)), f"must be 1-{MAX_ID_LENGTH} characters long") for i in idx])
-    lookup = dict(zip(names, range(len(names))))
-    if len(lookup) < len(names):
-        seen: dict = {}
-        for i, v in enumerate(names):
-            if v in seen:
-                raise InputError.at(where(i), f"duplicate {what} id {v!r} (first at {seen[v]})")
-            seen[v] = i
-    return names, lookup
-
-
-def _bound(records: _Records, name: str, absent: float, null: float) -> np.ndarray:
-    """A bound column as float64: ``absent`` where the column is not given, ``null``
-    where an entry is JSON null (object-form defaults are filled in when reading)."""
-    if name not in records.columns:
-        return np.full(records.count, absent)
-    values, where = records.columns[name]
-    col = _numbers(values, where, allow_null=True)
-    out = col.values.astype(np.float64)
-    if col.null is not None:
-        out[col.null] = null
-    return out
-
-
-def _present(records: _Records, name: str) -> np.ndarray:
-    """Where a bound field holds a number (not absent, not null)."""
-    if name not in records.columns:
-        return np.zeros(records.count, dtype=bool)
-    values, _ = records.columns[name]
-    return np.fromiter(map(is_not, values, repeat(None)), dtype=bool, count=len(values))
-
-
 def read_variables(raw, *, max_count: int, base: str = "/variables"):
     """Variables: names, lower bounds (default 0, null = none) and upper bounds (default none).
 
@@ -190,19 +54,23 @@ def read_variables(raw, *, max_count: int, base: str = "/variables"):
     InputError
         Bad shape, names or numbers, or a lower bound above the upper bound.
     """
-    records = _fold_id_alias(_read_records(raw, base, VARIABLE_FIELDS, {"lower": 0, "upper": None}, "variable"),
-                             base)
+    records = fold_id_alias(read_records(raw, base, VARIABLE_FIELDS, {"lower": 0, "upper": None}, "variable"),
+                            base)
     if records.count == 0:
         raise InputError.at(base, "must hold at least one variable")
     if records.count > max_count:
         raise ProblemTooLarge(FieldError(base, f"has {records.count} variables; the limit is {max_count}"))
-    names, lookup = _names(records, base, "variable")
-    lower = _bound(records, "lower", 0.0, -np.inf)
-    upper = _bound(records, "upper", np.inf, np.inf)
+    names, lookup = record_ids(records, base, "variable")
+    lower = bound(records, "lower", 0.0, -np.inf)
+    upper = bound(records, "upper", np.inf, np.inf)
     crossed = lower > upper
     if crossed.any():
-        where = records.columns["lower"][1]
         idx = np.flatnonzero(crossed)[:MAX_REPORTED_ERRORS]
+        if "lower" not in records.columns:  # no variable gives one: the upper is below the default 0
+            where = records.columns["upper"][1]
+            raise InputError([FieldError(where(int(i)), "must be >= 0, the default lower bound "
+                                                        "(give lower to allow less)") for i in idx])
+        where = records.columns["lower"][1]
         raise InputError([FieldError(where(int(i)), "must not exceed upper") for i in idx])
     return names, lookup, lower, upper
 
@@ -231,23 +99,23 @@ def read_constraints(raw, lookup: dict, *, max_count: int, base: str = "/constra
     """
     if raw is None:
         raw = []
-    records = _fold_id_alias(_read_records(raw, base, CONSTRAINT_FIELDS,
-                                           {"terms": _NO_TERMS, "lower": None, "upper": None, "equals": None},
-                                           "constraint"), base)
+    records = fold_id_alias(read_records(raw, base, CONSTRAINT_FIELDS,
+                                          {"terms": _NO_TERMS, "lower": None, "upper": None, "equals": None},
+                                          "constraint"), base)
     if records.count > max_count:
         raise ProblemTooLarge(FieldError(base, f"has {records.count} constraints; the limit is {max_count}"))
     if records.form == "columns" and ID not in records.columns:
         raise InputError.at(f"{base}/{ID}", "is required")
     if records.count == 0:
         return [], np.empty(0), np.empty(0), _empty_entries()
-    names, _ = _names(records, base, "constraint")
+    names, _ = record_ids(records, base, "constraint")
     if "terms" in records.columns and records.form == "columns":
         raise InputError.at(f"{base}/terms", "columnar constraints take their coefficients from matrix")
-    lower = _bound(records, "lower", -np.inf, -np.inf)
-    upper = _bound(records, "upper", np.inf, np.inf)
-    equals = _bound(records, "equals", np.nan, np.nan)
-    has_eq = _present(records, "equals")
-    mixed = has_eq & (_present(records, "lower") | _present(records, "upper"))
+    lower = bound(records, "lower", -np.inf, -np.inf)
+    upper = bound(records, "upper", np.inf, np.inf)
+    equals = bound(records, "equals", np.nan, np.nan)
+    has_eq = present(records, "equals")
+    mixed = has_eq & (present(records, "lower") | present(records, "upper"))
     if mixed.any():
         where = records.columns["equals"][1]
         idx = np.flatnonzero(mixed)[:MAX_REPORTED_ERRORS]
@@ -273,7 +141,7 @@ def _empty_entries() -> _Entries:
     return _Entries(empty, empty, np.empty(0), lambda k: "")
 
 
-def _terms(records: _Records, lookup: dict, base: str) -> _Entries:
+def _terms(records: Records, lookup: dict, base: str) -> _Entries:
     terms, where = records.columns["terms"]
     if set(map(type, terms)) - {dict}:
         i = next(i for i, v in enumerate(terms) if type(v) is not dict)
@@ -287,7 +155,7 @@ def _terms(records: _Records, lookup: dict, base: str) -> _Entries:
 
     values = list(chain.from_iterable(map(dict.values, terms)))
     cols = _columns_of(keys, lookup, at)
-    coef = _numbers(values, at).values.astype(np.float64)
+    coef = number_column(values, at).values.astype(np.float64)
     return _Entries(rows, cols, coef, at)
 
 
@@ -308,7 +176,7 @@ def read_matrix(raw, num_rows: int, num_cols: int, *, max_count: int, base: str 
         return _empty_entries()
     if not isinstance(raw, dict):
         raise InputError.at(base, "must be an object with row, column and value lists")
-    records = _read_records(raw, base, MATRIX_FIELDS, {}, "entry")
+    records = read_records(raw, base, MATRIX_FIELDS, {}, "entry")
     for name in MATRIX_FIELDS:
         if name not in records.columns:
             raise InputError.at(f"{base}/{name}", "is required")
@@ -317,11 +185,11 @@ def read_matrix(raw, num_rows: int, num_cols: int, *, max_count: int, base: str 
     rows = _index_column(records, "row", num_rows, "constraints")
     cols = _index_column(records, "column", num_cols, "variables")
     values, at = records.columns["value"]
-    coef = _numbers(values, at).values.astype(np.float64)
+    coef = number_column(values, at).values.astype(np.float64)
     return _Entries(rows, cols, coef, at)
 
 
-def _index_column(records: _Records, name: str, size: int, what: str) -> np.ndarray:
+def _index_column(records: Records, name: str, size: int, what: str) -> np.ndarray:
     values, where = records.columns[name]
     if set(map(type, values)) - {int}:
         i = next(i for i, v in enumerate(values) if type(v) is not int)
@@ -352,7 +220,7 @@ def read_objective(objective: dict, lookup: dict, num_cols: int, base: str = "/o
             raise InputError.at(f"{base}/coefficients", "must be a list of numbers aligned with variables")
         if len(dense) != num_cols:
             raise InputError.at(f"{base}/coefficients", f"has {len(dense)} entries; there are {num_cols} variables")
-        return _numbers(dense, lambda i: f"{base}/coefficients/{i}").values.astype(np.float64)
+        return number_column(dense, lambda i: f"{base}/coefficients/{i}").values.astype(np.float64)
     if terms is None:
         raise InputError.at(f"{base}/terms", "is required (or coefficients): the objective is empty")
     if not isinstance(terms, dict):
@@ -365,7 +233,7 @@ def read_objective(objective: dict, lookup: dict, num_cols: int, base: str = "/o
         return pointer(base[1:], "terms", keys[k])
 
     cols = _columns_of(keys, lookup, at)
-    coef = _numbers(list(terms.values()), at).values.astype(np.float64)
+    coef = number_column(list(terms.values()), at).values.astype(np.float64)
     c = np.zeros(num_cols)
     c[cols] = coef
     return c

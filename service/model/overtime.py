@@ -1,6 +1,6 @@
 """Networks over time: lanes with transit times and per-period capacities, nodes with holdover.
 
-The arcs are read by :func:`service.model.arcs.read_arcs` (both forms) with the
+The arcs are read by :func:`service.model.arccolumns.read_arcs` (both forms) with the
 fields of this kind; this module checks the columns it adds:
 
 * ``transit``: whole periods ``>= 0`` (default 0);
@@ -20,7 +20,7 @@ from itertools import chain
 import numpy as np
 
 from ..errors import FieldError, InputError
-from .columns import MAX_REPORTED_ERRORS, NullableNumbers, number_column
+from .columns import MAX_REPORTED_ERRORS, NumberColumn, check_numbers, number_column
 from .ids import IdColumn
 
 #: The arc fields of a network over time (``lower`` bounds have no meaning per period here).
@@ -74,7 +74,10 @@ def capacity_column(col: IdColumn | None, count: int, horizon: int) -> Capacity:
     if col is None:
         return Capacity(np.zeros(count, dtype=np.int64), np.ones(count, dtype=bool))
     values = col.values
-    if isinstance(values, (np.ndarray, NullableNumbers)) or list not in set(map(type, values)):
+    if isinstance(values, NumberColumn):  # typed by a fast decoder: numbers and nulls only
+        checked = check_numbers(values, col.where, allow_null=True, minimum=0)
+        return Capacity(checked.values, checked.null)
+    if isinstance(values, np.ndarray) or list not in set(map(type, values)):
         checked = number_column(values, col.where, allow_null=True, minimum=0)
         return Capacity(checked.values, checked.null)
     rows = [i for i, v in enumerate(values) if type(v) is list]

@@ -17,7 +17,8 @@ from __future__ import annotations
 
 import numpy as np
 
-from .arcs import EXPANSION_FIELDS, Network
+from .arccolumns import EXPANSION_FIELDS
+from .arcs import Network
 from .columns import number_column
 from .ids import IdColumn
 from .overtime import transit_column

@@ -208,8 +208,8 @@ JSON_INT = 2**63
 def rescale(ints, numerator: int = 1, denominator: int = 1):
     """``ints * numerator / denominator`` in the caller's units, rounded once.
 
-    Integers stay integers when the denominator is 1 and they fit a JSON integer
-    (int64); anything else becomes float64 (arrays or one number).
+    Integers stay integers when the denominator is 1 (or, for one number, divides
+    it) and they fit a JSON integer (int64); anything else becomes float64.
     """
     if isinstance(ints, np.ndarray):
         if numerator != 1:
@@ -224,5 +224,8 @@ def rescale(ints, numerator: int = 1, denominator: int = 1):
         return float(ints) * numerator / denominator
     value = int(ints) * numerator
     if denominator != 1:
-        return value / denominator
+        whole, rest = divmod(value, denominator)
+        if rest:
+            return value / denominator
+        value = whole  # a whole answer stays exact (2**53 + 1 is not a double)
     return value if abs(value) < JSON_INT else float(value)

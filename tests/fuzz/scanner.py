@@ -12,8 +12,8 @@ import sys
 
 import orjson
 
-from service.api import fastarcs
-from service.api.fastarcs import decode_arcs_body
+from service.model import fastarcs
+from service.model.fastarcs import decode_arcs_body
 from tests.test_fastarcs import DUMPERS, NAME_STYLES, NASTY, SEED_BODIES, columnar, random_body
 
 

@@ -15,7 +15,7 @@ import time
 
 import numpy as np
 
-from service.api.fastjson import decode_columnar
+from service.model.fastjson import decode_columnar
 from service.jobs.runner import SolverPool, unpack
 from service.kinds import KINDS, Limits
 from tests.perf.bench_maxflow import bodies, random_network

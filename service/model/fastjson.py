@@ -1,8 +1,11 @@
 """A fast decode for columnar payloads of numbers, fractions included.
 
-The compiled scanner (:mod:`service.api.fastarcs`) takes most large bodies; this
+The compiled scanner (:mod:`service.model.fastarcs`) takes most large bodies; this
 path serves the numeric columnar ones it leaves aside (escapes, longer numbers) and
-callers that keep lists (jobs, which re-serialise the body). A columnar body with
+callers that keep JSON values (jobs, which re-serialise the body). It gives plain JSON
+values with numeric arrays as numpy arrays, which serialise back as JSON arrays;
+:func:`service.model.arccolumns.read_arcs` turns them into the model's column form
+without a copy. A columnar body with
 integer node ids is mostly long JSON arrays of numbers; simdjson parses the document
 once and hands each numeric array over as a typed buffer. Only such bodies take this
 path, and only when the result provably equals the ordinary decode (see
@@ -25,6 +28,20 @@ def looks_columnar(raw: bytes) -> bool:
     Looks only near the first ``"arcs"`` key (usually close to the start), so an
     object-form body is not scanned end to end; a wrong guess either way only costs
     speed, never correctness (see :func:`decode_columnar`).
+
+    Parameters
+    ----------
+    raw : bytes
+        The request body.
+
+    Returns
+    -------
+    bool
+
+    Examples
+    --------
+    >>> looks_columnar(b'{"arcs": {"from": [1], "to": [2]}}'), looks_columnar(b'{"arcs": [{"from": 1}]}')
+    (True, False)
     """
     at = raw.find(b'"arcs"')
     if at < 0 or raw[at + 6: at + 16].lstrip(b" \t\r\n:")[:1] != b"{":
@@ -75,10 +92,27 @@ def _python(value):
 
 def parse_envelope(raw: bytes, arcs_type):
     """simdjson's parse of a body that is an object with distinct top-level keys and an
-    ``arcs`` member of ``arcs_type``: ``(doc, keys, arcs)``, or None (any doubt).
+    ``arcs`` member of ``arcs_type``.
 
     simdjson skips a leading UTF-8 byte-order mark, which orjson refuses: such a body
     goes to orjson, so a BOM gets one verdict (400) whichever decoder would take it.
+
+    Parameters
+    ----------
+    raw : bytes
+        The request body.
+    arcs_type : type
+        ``simdjson.Object`` or ``simdjson.Array``.
+
+    Returns
+    -------
+    tuple or None
+        ``(doc, keys, arcs)``, or ``None`` at any doubt.
+
+    Examples
+    --------
+    >>> parse_envelope(b'{"arcs": {"from": [1]}}', simdjson.Object)[1]
+    ['arcs']
     """
     if raw.startswith(UTF8_BOM):
         return None
@@ -98,11 +132,25 @@ def parse_envelope(raw: bytes, arcs_type):
 def decode_columnar(raw: bytes):
     """Decode a columnar body, with numeric arc columns as numpy arrays.
 
-    Returns ``None`` when the body does not qualify or any doubt remains, so the
-    caller decodes it the ordinary way (which also produces the error messages).
     The result is trusted only if every ``[`` byte in the body is accounted for by an
     array we decoded: a bracket inside a string, a nested array inside a column or a
     duplicate key all make the counts differ and send the body down the ordinary path.
+
+    Parameters
+    ----------
+    raw : bytes
+        The request body.
+
+    Returns
+    -------
+    dict or None
+        The decoded body; ``None`` when it does not qualify or any doubt remains, so
+        the caller decodes it the ordinary way (which also writes the error messages).
+
+    Examples
+    --------
+    >>> decode_columnar(b'{"arcs": {"from": [1], "to": [2]}}')["arcs"]["to"]
+    array([2])
     """
     parsed = parse_envelope(raw, simdjson.Object)
     if parsed is None:

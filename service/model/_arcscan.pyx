@@ -1,7 +1,7 @@
 # cython: language_level=3, boundscheck=False, wraparound=False, initializedcheck=False, cdivision=True
 """One pass over a JSON request body that reads its ``arcs`` member into columns.
 
-Compiled at install time (Cython). :mod:`service.api.fastarcs` is the only caller
+Compiled at install time (Cython). :mod:`service.model.fastarcs` is the only caller
 and documents the subset of bodies taken; everything here either returns the
 columns of exactly that subset or ``None`` ("take the ordinary path").
 
@@ -747,7 +747,7 @@ def scan(bytes raw, unsigned long long seed):
     Returns
     -------
     tuple or None
-        ``None`` when the body is outside the subset (see :mod:`service.api.fastarcs`).
+        ``None`` when the body is outside the subset (see :mod:`service.model.fastarcs`).
         Otherwise ``(form, members, columns, names, fractions)``: ``form`` is
         ``"objects"`` or ``"columns"``; ``members`` lists ``(key, start, stop)`` byte
         spans of the other top-level members, in order; ``columns`` maps each field

@@ -3,7 +3,7 @@
 A body of 100k arcs holds 100k JSON objects (or 300k array elements) and, with
 string node ids, 200k strings. Decoding all of that into Python objects and then
 reading the fields back out costs several times the solve. The compiled scanner
-(:mod:`service.api._arcscan`, Cython, built at install time) walks the bytes once,
+(:mod:`service.model._arcscan`, Cython, built at install time) walks the bytes once,
 checks the JSON grammar as it goes and writes the arcs straight into int64 columns;
 string ids are interned on the way (one Python string per distinct id). The other
 top-level members (``source``, ``nodes``, ``options``, ...) are decoded by orjson from
@@ -15,7 +15,7 @@ ordinary decode (orjson, then the model reading the lists):
 * the body is one JSON object, with distinct top-level keys and one ``arcs`` member;
 * ``arcs`` is an array of flat arc objects or an object of flat arrays (columns),
   whose keys are ``from``, ``to``, ``capacity``, ``cost``, ``lower``, ``key``, each at
-  most once (and ``from`` and ``to`` in every arc object);
+  most once (and ``from`` and ``to`` in every arc object, or as columns of one length);
 * ``from``/``to`` are all integers or all strings without escapes;
 * ``capacity``, ``cost`` and ``lower`` are numbers (integers of at most 18 digits, or
   with a fraction or an exponent, of at most 64 bytes and within a double's range),
@@ -38,16 +38,16 @@ import secrets
 import numpy as np
 import orjson
 
-from ..model.arcs import ObjectArcs
-from ..model.columns import NullableNumbers
-from ..model.ids import InternedIds
+from .arccolumns import NUMBER_FIELDS, ArcColumns
+from .columns import NumberColumn
+from .interning import ArcEnds
 
 try:
     from . import _arcscan
 except ImportError:  # not built (no C compiler at install): every body takes the ordinary path
     _arcscan = None
 
-log = logging.getLogger("sluice.api")
+log = logging.getLogger("sluice.model")
 
 #: Below this size orjson and lists are as fast, and the ordinary path is the one
 #: small requests have always taken.
@@ -57,7 +57,19 @@ _SEED = secrets.randbits(64)
 
 
 def available() -> bool:
-    """Whether the compiled scanner is installed."""
+    """Whether the compiled scanner is installed.
+
+    Returns
+    -------
+    bool
+        ``False`` where it could not be built (no C compiler): every body then takes
+        the ordinary path.
+
+    Examples
+    --------
+    >>> available() in (True, False)
+    True
+    """
     return _arcscan is not None
 
 
@@ -74,20 +86,17 @@ def decode_arcs_body(raw: bytes, min_bytes: int = MIN_BYTES) -> dict | None:
     Returns
     -------
     dict or None
-        The decoded body. Object-form ``arcs`` become an
-        :class:`~service.model.arcs.ObjectArcs`, columnar ones a dict of columns;
-        columns are int64 arrays (float64 where a number has a fraction),
-        :class:`~service.model.columns.NullableNumbers` where a capacity is ``null`` or
-        absent, :class:`~service.model.ids.InternedIds` for string node ids, and a
-        list for ``key`` labels. ``None`` when the body is outside the subset (see the
-        module doc) or the scanner is not installed.
+        The decoded body, its ``arcs`` an :class:`~service.model.arccolumns.ArcColumns`
+        (numbers int64, float64 where one has a fraction; string node ids interned).
+        ``None`` when the body is outside the subset (see the module doc) or the
+        scanner is not installed.
 
     Examples
     --------
     >>> body = b'{"source": "a", "sink": "b", "arcs": [{"from": "a", "to": "b", "capacity": 5}]}'
     >>> decoded = decode_arcs_body(body, min_bytes=0)
-    >>> decoded["arcs"].columns["capacity"].tolist()
-    [5]
+    >>> decoded["arcs"].ends.names, decoded["arcs"].numbers["capacity"].values.tolist()
+    (['a', 'b'], [5])
     """
     if _arcscan is None or len(raw) < min_bytes or type(raw) is not bytes:
         return None
@@ -113,20 +122,19 @@ def _assemble(raw: bytes, form: str, members: list, columns: dict, names: list |
             out[name] = orjson.loads(view[start:stop])
         except (UnicodeDecodeError, orjson.JSONDecodeError):
             return None
-    arcs = {field: _column(field, data, names, fractions.get(field)) for field, data in columns.items()}
-    if form == "objects":
-        out["arcs"] = ObjectArcs(arcs, len(arcs["from"]))
-    else:
-        out["arcs"] = arcs
+    keys = columns.pop("key", None)
+    arrays = {field: np.frombuffer(data, dtype=np.int64) for field, data in columns.items()}
+    if "from" not in arrays or "to" not in arrays or len({a.size for a in arrays.values()}) > 1 or (
+            keys is not None and len(keys) != arrays["from"].size):
+        return None  # columns missing or of unequal lengths: the ordinary path names them
+    ends = ArcEnds(arrays["from"], arrays["to"]) if names is None else \
+        ArcEnds(arrays["from"].astype(np.int32), arrays["to"].astype(np.int32), names)
+    numbers = {field: _numbers(arrays[field], fractions.get(field)) for field in NUMBER_FIELDS if field in arrays}
+    out["arcs"] = ArcColumns(arrays["from"].size, ends, numbers, keys, form)
     return out
 
 
-def _column(field: str, data: bytearray | list, names: list | None, fractions: tuple | None):
-    if field == "key":
-        return data  # already the list of labels (str or None) the model checks
-    values = np.frombuffer(data, dtype=np.int64)
-    if field in ("from", "to"):
-        return values if names is None else InternedIds(values.astype(np.int32), names)
+def _numbers(values: np.ndarray, fractions: tuple | None) -> NumberColumn:
     null = values == _arcscan.NULL_VALUE
     if fractions is not None:
         # As the ordinary path's np.asarray of ints and floats: every value a double
@@ -136,5 +144,5 @@ def _column(field: str, data: bytearray | list, names: list | None, fractions: t
         values[np.frombuffer(rows, dtype=np.int64)] = np.frombuffer(parsed, dtype=np.float64)
     if null.any():
         values[null] = 0
-        return NullableNumbers(values, null)
-    return values
+        return NumberColumn(values, null)
+    return NumberColumn(values)
