@@ -90,7 +90,8 @@ class CertificateSchema(Schema):
                                                           "maximum."})
     net_supply = fields.Float()
     outgoing_capacity = fields.Float()
-    cycle_cost = fields.Float()
+    cycle_cost = fields.Float(metadata={"description": "Unbounded: the cost of one trip round the negative cycle."})
+    cycle_arcs = fields.Integer(metadata={"description": "Unbounded: the number of arcs on that cycle."})
     tolerance = fields.Float(metadata={"description": "0 for exact arithmetic."})
     decimal_scale = fields.Integer(metadata={"description": "Present when decimals were solved exactly as integers: "
                                                             "the factor applied to capacities, lower bounds and "
@@ -300,6 +301,7 @@ class MinCostFlowKind:
     request_schema = MinCostFlowRequest
     response_schema = MinCostFlowResponse
     example = "depots-mincostflow.json"
+    query_schema = MinCostFlowQuery
     parse = staticmethod(parse)
     solve = staticmethod(solve)
     from_network = staticmethod(from_network)

@@ -86,8 +86,16 @@ class MultiCommodityCertificate(Schema):
                                                             "provably unique."})
     degenerate = fields.Boolean()
     total_demand = fields.Float(metadata={"description": "Infeasible: the demand to meet."})
-    tolerance = fields.Float(metadata={"description": "Absolute tolerance of the flow checks (1e-6 relative to "
-                                                      "the largest capacity or demand)."})
+    tolerance = fields.Raw(metadata={"oneOf": [{"type": "number"}, {"type": "object"}],
+                                     "description": "Absolute tolerance of the flow checks (1e-6 relative to "
+                                                    "the largest capacity or demand). Unbounded: the LP "
+                                                    "check's {relative: 1e-6}."})
+    primal_residual_relative = fields.Float(metadata={"description": "Unbounded: the start point's largest "
+                                                                     "violation, relative to its row."})
+    direction_residual = fields.Float(metadata={"description": "Unbounded: how far the improving direction "
+                                                               "leaves a finite bound per unit step."})
+    improvement_per_step = fields.Float(metadata={"description": "Unbounded: cost saved per unit step along "
+                                                                 "the direction."})
     reason = fields.String()
 
 

@@ -1,0 +1,183 @@
+"""Every response the tests get, checked against the committed OpenAPI document.
+
+``openapi/openapi.yaml`` is what clients generate their code from, so a response it
+does not describe (an undocumented status, a body off its schema, another content
+type) is a bug of the service or of the document. The checks use openapi-core:
+
+* :class:`SpecClient` is the Flask test client of every app the tests make (conftest
+  installs it): each response it gets is checked before the test sees it.
+* :class:`SpecSession` is a ``requests`` session that does the same against a real
+  server; :func:`spec_session` makes one.
+* :func:`check_request_body` checks a body against the documented request schema (a
+  test fails when a route answers 200 to a body its own document refuses).
+
+Request bodies are not checked on the way out: some tests send bad input on purpose.
+"""
+
+from __future__ import annotations
+
+import gzip
+import json
+from dataclasses import dataclass, field
+from functools import lru_cache
+from pathlib import Path
+from urllib.parse import parse_qsl, urlsplit
+
+import requests
+import yaml
+from flask.testing import FlaskClient
+from openapi_core import Config, OpenAPI
+from openapi_core.contrib.requests import RequestsOpenAPIResponse
+from openapi_core.contrib.werkzeug import WerkzeugOpenAPIResponse
+from openapi_core.datatypes import RequestParameters
+from openapi_core.exceptions import OpenAPIError
+from openapi_core.templating.paths.exceptions import OperationNotFound, PathNotFound
+from openapi_schema_validator import OAS31Validator
+from werkzeug.datastructures import Headers, ImmutableMultiDict
+
+SPEC_FILE = Path(__file__).resolve().parents[1] / "openapi" / "openapi.yaml"
+
+
+def _text(data: bytes, **parameters) -> str:
+    return data.decode()
+
+
+#: Media types the document uses beyond openapi-core's own (JSON, plain text...).
+MEDIA_TYPES = {"application/problem+json": lambda data, **p: json.loads(data),
+               **dict.fromkeys(("text/x-dimacs", "image/svg+xml", "text/html", "text/plain", "text/javascript",
+                                "text/css"), _text)}
+
+#: Paths the document leaves out on purpose, each with the reason.
+UNDOCUMENTED = {
+    "/static/": "the explorer page's script and style: files for the page, not API",
+}
+
+#: Statuses a path the document does not list may answer: a route that is not there.
+NOT_A_ROUTE = {404, 405}
+
+
+@lru_cache(maxsize=None)
+def openapi() -> OpenAPI:
+    """The committed document, loaded once per test session."""
+    return OpenAPI.from_file_path(str(SPEC_FILE), config=Config(extra_media_type_deserializers=MEDIA_TYPES))
+
+
+@lru_cache(maxsize=None)
+def _problem_validator() -> OAS31Validator:
+    doc = yaml.safe_load(SPEC_FILE.read_text())
+    return OAS31Validator({**doc["components"]["schemas"]["Problem"], "components": doc["components"]})
+
+
+@dataclass
+class SpecRequest:
+    """What openapi-core reads of a request (its ``Request`` protocol)."""
+
+    method: str
+    path: str
+    body: bytes | None = None
+    content_type: str = "application/json"
+    query: list = field(default_factory=list)
+    headers: dict = field(default_factory=dict)
+    host_url: str = "http://localhost/"
+
+    @property
+    def parameters(self) -> RequestParameters:
+        return RequestParameters(query=ImmutableMultiDict(self.query), header=Headers(self.headers))
+
+
+class ContractBroken(AssertionError):
+    """A response (or a body the service took) that the OpenAPI document does not describe."""
+
+
+def check_response(request: SpecRequest, response) -> None:
+    """Raise :class:`ContractBroken` unless ``response`` is one the document describes.
+
+    ``response`` is an openapi-core response adapter. A path the document does not list
+    must be a route that is not there (404 or 405, with a problem body), or one of
+    :data:`UNDOCUMENTED`.
+    """
+    if request.method in ("head", "options") or request.path.startswith(tuple(UNDOCUMENTED)):
+        return  # HEAD and CORS preflights: answered by Flask and the CORS layer for any route
+    where = f"{request.method.upper()} {request.path} -> {response.status_code}"
+    try:
+        openapi().validate_response(request, response)
+    except (PathNotFound, OperationNotFound) as exc:
+        if response.status_code not in NOT_A_ROUTE:
+            raise ContractBroken(f"{where}: not in openapi.yaml ({exc})") from None
+        _check_problem(where, response)
+    except OpenAPIError as exc:
+        raise ContractBroken(f"{where} breaks openapi.yaml: {_reason(exc)}") from None
+
+
+def _check_problem(where: str, response) -> None:
+    if response.content_type.split(";")[0] != "application/problem+json":
+        raise ContractBroken(f"{where}: a missing route answers {response.content_type}, not problem+json")
+    errors = sorted(_problem_validator().iter_errors(json.loads(response.data)), key=str)
+    if errors:
+        raise ContractBroken(f"{where}: the problem breaks the Problem schema: {errors[0].message}")
+
+
+def _reason(exc: BaseException) -> str:
+    """The innermost schema errors of an openapi-core failure (its message alone says little)."""
+    parts = [str(exc)[:500]]
+    cause = exc.__cause__
+    for error in getattr(cause, "schema_errors", None) or ():
+        parts.append(f"at {'/'.join(map(str, error.absolute_path)) or '(root)'}: {error.message[:300]}")
+    return "; ".join(parts)
+
+
+def check_request_body(method: str, path: str, body, content_type: str = "application/json") -> None:
+    """Raise :class:`ContractBroken` when the document's request schema for
+    ``method path`` refuses ``body`` (a dict is sent as JSON, bytes and text as they are)."""
+    data = body.encode() if isinstance(body, str) else body if isinstance(body, bytes) else json.dumps(body).encode()
+    request = SpecRequest(method.lower(), path, data, content_type)
+    try:
+        openapi().validate_request(request)
+    except OpenAPIError as exc:
+        raise ContractBroken(f"{method.upper()} {path}: the documented request schema refuses the body: "
+                             f"{_reason(exc)}") from None
+
+
+class _DecodedResponse(WerkzeugOpenAPIResponse):
+    """A test response as a client reads it: a gzip ``Content-Encoding`` undone
+    (``requests`` does that itself)."""
+
+    @property
+    def data(self) -> bytes:
+        data = super().data
+        return gzip.decompress(data) if self.response.headers.get("Content-Encoding") == "gzip" else data
+
+
+class SpecClient(FlaskClient):
+    """Flask's test client, checking every response against the document."""
+
+    def open(self, *args, **kwargs):
+        response = super().open(*args, **kwargs)
+        sent = response.request
+        check_response(SpecRequest(sent.method.lower(), sent.path, query=list(sent.args.items(multi=True)),
+                                    headers=dict(sent.headers)), _DecodedResponse(response))
+        return response
+
+
+def unchecked_client(app) -> FlaskClient:
+    """A plain test client, for a surface the document does not describe (the metrics
+    port of ``SLUICE_METRICS=port:N``, which serves nothing but ``/metrics``)."""
+    return FlaskClient(app, app.response_class, use_cookies=True)
+
+
+class SpecSession(requests.Session):
+    """A ``requests`` session against a real server, checking every response it gets."""
+
+    def send(self, prepared, **kwargs):
+        response = super().send(prepared, **kwargs)
+        if kwargs.get("stream"):
+            return response  # the caller reads the body as it comes; nothing to check yet
+        url = urlsplit(prepared.url)
+        check_response(SpecRequest(prepared.method.lower(), url.path, query=parse_qsl(url.query),
+                                   headers=dict(prepared.headers)), RequestsOpenAPIResponse(response))
+        return response
+
+
+def spec_session() -> SpecSession:
+    """A new :class:`SpecSession` (use it as a context manager to close its connections)."""
+    return SpecSession()
