@@ -8,6 +8,8 @@ response the tests get is also checked against the OpenAPI document
 
 from __future__ import annotations
 
+import json
+
 import orjson
 import pytest
 
@@ -17,14 +19,24 @@ PROBLEM_BASE = "urn:sluice:problem:"
 
 
 def post(client, path: str, body, content_type: str = JSON, headers: dict | None = None, **kwargs):
-    """POST ``body`` to ``path``: bytes and text as they are, anything else as JSON (orjson).
+    """POST ``body`` to ``path``: bytes and text as they are, anything else as JSON.
+
+    JSON is written by orjson (NaN and infinities become ``null``: send those as text),
+    or by the standard library for integers beyond 64 bits, which orjson refuses.
 
     Examples
     --------
     >>> r = post(client, "/v1/maxflow", {"source": "a", "sink": "b", "arcs": []})  # doctest: +SKIP
     """
-    data = body if isinstance(body, (bytes, str)) else orjson.dumps(body)
+    data = body if isinstance(body, (bytes, str)) else _dumps(body)
     return client.post(path, data=data, headers={"Content-Type": content_type, **(headers or {})}, **kwargs)
+
+
+def _dumps(body) -> bytes:
+    try:
+        return orjson.dumps(body)
+    except TypeError:
+        return json.dumps(body).encode()
 
 
 def json_of(response):

@@ -12,6 +12,7 @@ from service.model.changes import apply_changes
 from service.model.nodes import read_nodes
 from service.store import decode_network, encode_network
 from tests.flowdata import depot_arcs, nx_max_flow, with_changes
+from tests.http import pointers
 
 
 def network_of(arcs, nodes=None):
@@ -26,10 +27,6 @@ ARCS = [
     {"from": "dock-a", "to": "dock-c", "capacity": 4, "lower": 2, "key": "lane-3"},
     {"from": "dock-c", "to": "dock-d", "capacity": 7, "key": None},
 ]
-
-
-def pointers(exc: pytest.ExceptionInfo) -> list[str]:
-    return [e.pointer for e in exc.value.errors]
 
 
 def test_changes_make_new_arrays_and_leave_the_stored_ones_alone():
