@@ -58,6 +58,13 @@ def max_flow_value(arcs, source, sink, nodes: Iterable = ()):
         return math.inf
 
 
+def max_flow_of(body: dict):
+    """:func:`max_flow_value` of a ``POST /v1/maxflow`` body (arcs in either form)."""
+    nodes = body.get("nodes")
+    ids = nodes["id"] if isinstance(nodes, dict) else [n["id"] if isinstance(n, dict) else n for n in nodes or ()]
+    return max_flow_value(body["arcs"], body["source"], body["sink"], ids)
+
+
 def max_flow(arcs, source, sink, nodes: Iterable = ()) -> tuple[float, list]:
     """A maximum flow by ``networkx.maximum_flow``: its value and the flow on each arc,
     in the order given (a merged arc's flow is handed back to its parallel arcs in order,
@@ -65,12 +72,13 @@ def max_flow(arcs, source, sink, nodes: Iterable = ()) -> tuple[float, list]:
 
     Raises ``networkx.NetworkXUnbounded`` when a path of unlimited arcs joins them.
     """
-    g = networkx_graph(arcs, nodes)
+    triples = arc_triples(arcs)
+    g = networkx_graph(triples, nodes)
     g.add_nodes_from([source, sink])
     value, flow = nx.maximum_flow(g, source, sink)
     left = {(u, v): f for u, targets in flow.items() for v, f in targets.items()}
     per_arc = []
-    for u, v, cap in arc_triples(arcs):
+    for u, v, cap in triples:
         share = 0 if u == v else left[u, v] if cap is None else min(cap, left[u, v])
         if u != v:
             left[u, v] -= share

@@ -10,8 +10,9 @@ import orjson
 from service.api import create_app
 from tests.checkers import assert_max_flow
 from tests.conftest import SCENARIOS
-from tests.flowdata import depot_arcs, nx_max_flow
+from tests.flowdata import depot_arcs
 from tests.http import post
+from tests.references import max_flow_value
 
 DEPOTS = json.loads((SCENARIOS / "depots-maxflow.json").read_text())
 
@@ -30,7 +31,7 @@ def test_second_identical_request_is_a_hit_with_the_same_certified_answer(store_
     assert without_timing(second) == without_timing(first)
     doc = second.get_json()
     # Reference: networkx.maximum_flow_value; and the hit's flows are a valid maximum flow.
-    assert doc["value"] == nx_max_flow(DEPOTS["arcs"], DEPOTS["source"], DEPOTS["sink"])
+    assert doc["value"] == max_flow_value(DEPOTS["arcs"], DEPOTS["source"], DEPOTS["sink"])
     assert doc["certificate"]["checked"] is True
     ids = {n: i for i, n in enumerate(dict.fromkeys(x for a in DEPOTS["arcs"] for x in (a["from"], a["to"])))}
     assert_max_flow(len(ids), [ids[a["from"]] for a in DEPOTS["arcs"]], [ids[a["to"]] for a in DEPOTS["arcs"]],
@@ -60,7 +61,7 @@ def test_a_body_one_byte_away_is_not_served_the_cached_answer(store_client):
     assert changed != raw
     got = post(store_client, "/v1/maxflow", changed)
     assert got.headers["Cache-Status"] == "sluice; fwd=miss; stored"
-    assert got.get_json()["value"] == nx_max_flow(orjson.loads(changed)["arcs"], "site-a0", "site-b0")
+    assert got.get_json()["value"] == max_flow_value(orjson.loads(changed)["arcs"], "site-a0", "site-b0")
 
 
 def test_refresh_and_bypass(store_client):
@@ -140,7 +141,7 @@ def test_an_unusable_data_dir_degrades_but_solves_still_answer(tmp_path):
     client = create_app({"data_dir": str(blocker / "data")}).test_client()
     r = post(client, "/v1/maxflow", DEPOTS)
     assert r.status_code == 200 and r.headers["Cache-Status"] == "sluice; fwd=bypass; detail=store-unavailable"
-    assert r.get_json()["value"] == nx_max_flow(DEPOTS["arcs"], DEPOTS["source"], DEPOTS["sink"])
+    assert r.get_json()["value"] == max_flow_value(DEPOTS["arcs"], DEPOTS["source"], DEPOTS["sink"])
     ready = client.get("/readyz")
     assert ready.status_code == 200 and ready.get_json()["status"] == "degraded"
     assert ready.get_json()["checks"]["store"] == "unavailable"
@@ -211,7 +212,7 @@ def test_a_large_body_is_a_hit_however_its_bytes_arrive(store_client):
     raw = big_body(11)
     first = post(store_client, "/v1/maxflow", raw)
     assert first.headers["Cache-Status"] == "sluice; fwd=miss; stored"
-    assert first.get_json()["value"] == nx_max_flow(orjson.loads(raw)["arcs"], "site-a0", "site-b0")
+    assert first.get_json()["value"] == max_flow_value(orjson.loads(raw)["arcs"], "site-a0", "site-b0")
     for most in (len(raw), 100_000):  # in one read; in short reads, as a slow input may
         again = store_client.post("/v1/maxflow", input_stream=TrickleStream(raw, most),
                                    content_type="application/json")
@@ -221,7 +222,7 @@ def test_a_large_body_is_a_hit_however_its_bytes_arrive(store_client):
     changed = raw[:at] + b"1" + raw[at:]  # the last arc's capacity c becomes 1c: another problem
     again = post(store_client, "/v1/maxflow", changed)
     assert again.headers["Cache-Status"] == "sluice; fwd=miss; stored"
-    assert again.get_json()["value"] == nx_max_flow(orjson.loads(changed)["arcs"], "site-a0", "site-b0")
+    assert again.get_json()["value"] == max_flow_value(orjson.loads(changed)["arcs"], "site-a0", "site-b0")
 
 
 def test_a_large_body_cut_short_is_refused_and_nothing_is_cached(store_client):

@@ -3,30 +3,16 @@
 import json
 import socket
 
-import networkx as nx
 import numpy as np
 import pytest
 import requests
 
 from tests.checkers import assert_cut, assert_max_flow
 from tests.conftest import SCENARIOS
+from tests.references import max_flow_of
 
 OBJECTS = json.loads((SCENARIOS / "depots-maxflow.json").read_text())
 COLUMNS = json.loads((SCENARIOS / "depots-maxflow-columns.json").read_text())
-
-
-def reference_value(body) -> float:
-    """networkx.maximum_flow_value on the same network (parallel arcs summed)."""
-    arcs = body["arcs"]
-    if isinstance(arcs, dict):
-        arcs = [dict(zip(arcs, vals)) for vals in zip(*arcs.values())]
-    g = nx.DiGraph()
-    for a in arcs:
-        cap = a.get("capacity")
-        cap = float("inf") if cap is None else cap
-        prev = g.get_edge_data(a["from"], a["to"], {}).get("capacity", 0)
-        g.add_edge(a["from"], a["to"], capacity=prev + cap)
-    return nx.maximum_flow_value(g, body["source"], body["sink"])
 
 
 def check_response(body, doc):
@@ -38,7 +24,7 @@ def check_response(body, doc):
     ids = sorted(set(tails) | set(heads), key=str)
     pos = {v: i for i, v in enumerate(ids)}
     assert doc["status"] == "optimal"
-    assert doc["value"] == reference_value(body)
+    assert doc["value"] == max_flow_of(body)
     assert len(doc["flows"]) == len(tails)  # aligned with the request's arcs
     assert_max_flow(len(ids), [pos[t] for t in tails], [pos[h] for h in heads], caps,
                     pos[body["source"]], pos[body["sink"]], doc["flows"], doc["value"])

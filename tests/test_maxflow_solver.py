@@ -4,7 +4,6 @@ References: networkx.maximum_flow, scipy.sparse.csgraph.maximum_flow, a textbook
 worked example, and the max-flow min-cut and integrality theorems as checks.
 """
 
-import networkx as nx
 import numpy as np
 import pytest
 import scipy.sparse as sp
@@ -15,6 +14,7 @@ from service.errors import InputError, SelfCheckFailed
 from service.solvers import maximum_flow
 from service.solvers.certificates import check_max_flow
 from tests.checkers import assert_cut, assert_integral, assert_max_flow
+from tests.references import max_flow_value
 
 ENGINES = ["graph", "lp"]
 
@@ -65,28 +65,13 @@ def random_arcs(rng, n, m, max_cap=20, unlimited_share=0.0):
     return arcs
 
 
-def networkx_value(n, arcs, s, t):
-    g = nx.DiGraph()
-    g.add_nodes_from(range(n))
-    for u, v, c in arcs:
-        if u == v:
-            continue
-        # networkx's DiGraph has no parallel arcs: sum them (same max-flow value).
-        prev = g.get_edge_data(u, v, {}).get("capacity", 0)
-        g.add_edge(u, v, capacity=float("inf") if c is None or prev == float("inf") else prev + c)
-    try:
-        return nx.maximum_flow_value(g, s, t)
-    except nx.NetworkXUnbounded:  # networkx's own verdict: an s-t path of infinite capacity
-        return float("inf")
-
-
 @pytest.mark.parametrize("seed", range(12))
 def test_random_graphs_match_networkx_and_scipy(seed):
     rng = np.random.default_rng(seed)
     n, m = int(rng.integers(3, 40)), int(rng.integers(1, 200))
     arcs = random_arcs(rng, n, m)
     solution, _ = solve(n, arcs, 0, n - 1)
-    assert solution.value == networkx_value(n, arcs, 0, n - 1)  # networkx.maximum_flow_value
+    assert solution.value == max_flow_value(arcs, 0, n - 1, range(n))  # networkx.maximum_flow_value
     tail, head, cap, _ = arrays(arcs)
     keep = tail != head
     graph = sp.csr_matrix((cap[keep].astype(np.int32), (tail[keep], head[keep])), shape=(n, n))
@@ -116,7 +101,7 @@ def test_property_value_equals_networkx_with_unlimited_arcs(data):
         st.tuples(st.integers(0, n - 1), st.integers(0, n - 1), st.one_of(st.none(), st.integers(0, 50))),
         max_size=40))
     solution, certificate = solve(n, arcs, 0, n - 1)
-    expected = networkx_value(n, arcs, 0, n - 1)
+    expected = max_flow_value(arcs, 0, n - 1, range(n))
     if expected == float("inf"):
         assert solution.status == "unbounded"
         path = solution.unbounded_path.tolist()
@@ -161,10 +146,7 @@ def test_huge_integer_capacities_on_the_lp_route_agree_with_networkx():
     arcs = [(int(a), int(b), int(c)) for a, b, c in
             zip(rng.integers(0, 30, 400), rng.integers(0, 30, 400), rng.integers(1, 10**18, 400)) if a != b]
     solution, certificate = solve(30, arcs, 0, 29)
-    g = nx.DiGraph()
-    for a, b, c in arcs:
-        g.add_edge(a, b, capacity=g.get_edge_data(a, b, {}).get("capacity", 0) + c)
-    exact = nx.maximum_flow_value(g, 0, 29)
+    exact = max_flow_value(arcs, 0, 29)
     assert solution.engine["kind"] == "lp" and certificate["checked"]
     assert abs(solution.value - exact) <= solution.tolerance
 
@@ -181,11 +163,7 @@ def test_fractional_capacities_spanning_many_decades_agree_with_networkx(seed):
     arcs = [(int(a), int(b), float(c)) for a, b, c in
             zip(rng.integers(0, n, m), rng.integers(0, n, m), np.floor(rng.random(m) * magnitude) + 0.25) if a != b]
     solution, certificate = solve(n, arcs, 0, n - 1)
-    g = nx.DiGraph()
-    g.add_nodes_from(range(n))
-    for a, b, c in arcs:
-        g.add_edge(a, b, capacity=g.get_edge_data(a, b, {}).get("capacity", 0) + c)
-    exact = nx.maximum_flow_value(g, 0, n - 1)
+    exact = max_flow_value(arcs, 0, n - 1, range(n))
     assert solution.engine["kind"] == "lp" and certificate["checked"]
     assert abs(solution.value - exact) <= solution.tolerance
 

@@ -5,7 +5,6 @@ from __future__ import annotations
 
 import json
 
-import networkx as nx
 import numpy as np
 import pytest
 from scipy.optimize import linprog
@@ -14,6 +13,7 @@ from service.errors import SelfCheckFailed
 from service.solvers.multicommodity import Commodities, Network, check_flows, multicommodity_flow
 from tests.checkers import assert_capacities, assert_conservation
 from tests.conftest import SCENARIOS
+from tests.references import max_flow_value
 
 
 # --------------------------------------------------------------------------- reference
@@ -246,14 +246,8 @@ def test_infeasible_min_cost_names_commodities_and_binding_arcs(client):
     assert out["status"] == "infeasible"
     info = out["infeasibility"]
     # networkx: which commodities exceed their own maximum flow, with the arcs to themselves
-    g = nx.MultiDiGraph()
-    simple = nx.DiGraph()
-    for a in body["arcs"]:
-        g.add_edge(a["from"], a["to"])
-        cap = simple.get_edge_data(a["from"], a["to"], {"capacity": 0})["capacity"] + a["capacity"]
-        simple.add_edge(a["from"], a["to"], capacity=cap)
     alone = [c["id"] for c in body["commodities"]
-             if nx.maximum_flow_value(simple, c["source"], c["sink"]) < c["demand"]]
+             if max_flow_value(body["arcs"], c["source"], c["sink"]) < c["demand"]]
     assert info["cannot_meet_alone"] == alone and alone
     assert set(alone) <= set(info["commodities"])
     names, arcs, commodities = indexed(body)

@@ -15,14 +15,14 @@ import pytest
 import requests
 
 from tests.conftest import SCENARIOS, RunningServer
-from tests.test_ops_api import depots_value
 from tests.opsutil import (alive, columnar_body, gunicorn_workers, layered, poll_job, scipy_max_flow,
                            solver_children, wait_for)
+from tests.references import max_flow_of
 
 pytestmark = pytest.mark.server
 
 DEPOTS = json.loads((SCENARIOS / "depots-maxflow.json").read_text())
-DEPOTS_VALUE = depots_value()  # networkx.maximum_flow_value
+DEPOTS_VALUE = max_flow_of(DEPOTS)  # networkx.maximum_flow_value
 JSON = {"Content-Type": "application/json"}
 _CACHE: dict = {}
 

@@ -21,8 +21,8 @@ import requests
 
 from tests.conftest import ROOT, SCENARIOS, RunningServer, free_port
 from tests.opsutil import alive, children, poll_job, wait_for
-from tests.test_ops_api import depots_value
 from tests.test_ops_processes import busy_solver, instance
+from tests.references import max_flow_of
 
 pytestmark = [pytest.mark.redis, pytest.mark.server]
 
@@ -73,7 +73,7 @@ def test_job_runs_on_a_worker_and_stays_with_its_tenant(cluster):
     location = r.headers["Location"]
     assert requests.get(server.url + location, headers=BOLT, timeout=5).status_code == 404
     doc = poll_job(server.url, location, headers=ACME, timeout=60)
-    assert doc["state"] == "done" and doc["result"]["value"] == depots_value()
+    assert doc["state"] == "done" and doc["result"]["value"] == max_flow_of(DEPOTS)
     assert requests.get(server.url + "/readyz", timeout=10).json()["checks"]["redis"] == "ok"
     assert "sluice_job_queue_depth 0.0" in requests.get(server.url + "/metrics", timeout=5).text
 
@@ -134,7 +134,7 @@ def test_synchronous_solves_keep_answering_when_redis_stops(private_redis, tmp_p
     server = RunningServer(env={"SLUICE_REDIS_URL": url, "SLUICE_RATE_LIMIT": "1000/minute"},
                            data_dir=str(tmp_path / "data"))
     try:
-        value = depots_value()
+        value = max_flow_of(DEPOTS)
         assert requests.post(server.url + "/v1/maxflow", json=DEPOTS, timeout=10).json()["value"] == value
         assert requests.post(server.url + "/v1/jobs", json={"kind": "maxflow", "problem": DEPOTS},
                              timeout=10).status_code == 202
