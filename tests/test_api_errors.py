@@ -7,10 +7,10 @@ import pytest
 
 from service.api import create_app
 from service.api.fastjson import decode_columnar
-from tests.conftest import SCENARIOS
+from tests.conftest import scenario
 from tests.http import assert_problem, post
 
-GOOD = json.loads((SCENARIOS / "depots-maxflow.json").read_text())
+GOOD = scenario("depots-maxflow")
 
 @pytest.mark.parametrize("raw, fragment", [
     (b"{", "not valid JSON"),

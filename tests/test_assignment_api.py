@@ -3,17 +3,16 @@
 from __future__ import annotations
 
 import copy
-import json
 
 import numpy as np
 import pytest
 import requests
 from scipy.optimize import linear_sum_assignment
 
-from tests.conftest import SCENARIOS
+from tests.conftest import scenario
 from tests.http import pointers, post
 
-SCENARIO = json.loads((SCENARIOS / "vans-assignment.json").read_text())
+SCENARIO = scenario("vans-assignment")
 
 
 def scipy_total(costs):

@@ -9,12 +9,12 @@ import orjson
 
 from service.api import create_app
 from tests.checkers import assert_max_flow
-from tests.conftest import SCENARIOS
+from tests.conftest import scenario
 from tests.flowdata import depot_arcs
 from tests.http import post
 from tests.references import max_flow_value
 
-DEPOTS = json.loads((SCENARIOS / "depots-maxflow.json").read_text())
+DEPOTS = scenario("depots-maxflow")
 
 
 def without_timing(response) -> dict:

@@ -6,7 +6,6 @@ recalled from memory) and networkx.maximum_flow_value for the same network.
 
 from __future__ import annotations
 
-import json
 
 import numpy as np
 import pytest
@@ -16,10 +15,10 @@ from service.errors import InputError, ProblemTooLarge
 from service.kinds import KINDS, Limits
 from service.kinds.verify import read_min_cost
 from service.model.dimacs import parse_dimacs, stand_in_capacity, to_dimacs
-from tests.conftest import SCENARIOS
+from tests.conftest import scenario
 from tests.references import max_flow_value
 
-DEPOTS = json.loads((SCENARIOS / "depots-maxflow.json").read_text())
+DEPOTS = scenario("depots-maxflow")
 DIMACS = "text/x-dimacs"
 
 FORMAT_EXAMPLE = """c This is a simple example file to demonstrate the DIMACS
@@ -80,7 +79,7 @@ def test_format_example_solves_to_its_published_value(client):
 
 
 def test_dimacs_and_json_bodies_give_the_same_answer(client):
-    text = (SCENARIOS / "depots-maxflow.dimacs").read_text()
+    text = scenario("depots-maxflow.dimacs")
     from_text = client.post("/v1/maxflow", data=text, content_type=DIMACS).get_json()
     from_json = client.post("/v1/maxflow", json=DEPOTS).get_json()
     assert from_text["value"] == from_json["value"] == 160 and from_text["flows"] == from_json["flows"]

@@ -21,6 +21,7 @@ from service.errors import InputError
 from service.kinds import KINDS
 from service.kinds.base import Limits
 from service.model.schemas import flatten_messages
+from tests.conftest import scenario
 from tests.http import post
 
 BOM = b"\xef\xbb\xbf"
@@ -285,12 +286,6 @@ def pinned_version(monkeypatch):
 
     for name in ("maxflow", "mincostflow", "multicommodity", "lp", "assignment"):
         monkeypatch.setattr(importlib.import_module(f"service.kinds.{name}"), "ORTOOLS_VERSION", "pinned")
-
-
-def scenario(name: str) -> dict:
-    from tests.conftest import SCENARIOS
-
-    return json.loads((SCENARIOS / name).read_text())
 
 
 def test_digests_of_problems_without_explicit_defaults_are_unchanged(pinned_version):

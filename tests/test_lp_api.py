@@ -13,13 +13,9 @@ from service.api import create_app
 from service.errors import InputError
 from service.kinds import Limits
 from service.kinds.lp import parse
-from tests.conftest import SCENARIOS
+from tests.conftest import scenario
 from tests.lp_reference import duality_figures, linprog_solve, random_model, to_request
 from tests.http import pointers, post
-
-
-def scenario(name: str) -> dict:
-    return json.loads((SCENARIOS / name).read_text())
 
 
 def scenario_as_model(body: dict) -> dict:

@@ -1,6 +1,5 @@
 """POST /v1/maxflow through the Flask test client and through a real `sluice serve`."""
 
-import json
 import socket
 
 import numpy as np
@@ -8,11 +7,11 @@ import pytest
 import requests
 
 from tests.checkers import assert_cut, assert_max_flow
-from tests.conftest import SCENARIOS
+from tests.conftest import scenario
 from tests.references import max_flow_of
 
-OBJECTS = json.loads((SCENARIOS / "depots-maxflow.json").read_text())
-COLUMNS = json.loads((SCENARIOS / "depots-maxflow-columns.json").read_text())
+OBJECTS = scenario("depots-maxflow")
+COLUMNS = scenario("depots-maxflow-columns")
 
 
 def check_response(body, doc):

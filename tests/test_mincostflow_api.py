@@ -13,10 +13,10 @@ from service.kinds import KINDS, Limits
 from service.model.arcs import build_network, read_arcs
 from service.model.nodes import read_nodes
 from tests.checkers import assert_capacities, assert_conservation
-from tests.conftest import SCENARIOS
+from tests.conftest import scenario
 from tests.http import pointers, post
 
-SCENARIO = json.loads((SCENARIOS / "depots-mincostflow.json").read_text())
+SCENARIO = scenario("depots-mincostflow")
 
 
 def test_scenario_is_solved_and_certified(client):

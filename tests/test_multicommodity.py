@@ -3,7 +3,6 @@ networkx max-flows, and LP duality (capacity prices are subgradients of the opti
 
 from __future__ import annotations
 
-import json
 
 import numpy as np
 import pytest
@@ -12,7 +11,7 @@ from scipy.optimize import linprog
 from service.errors import SelfCheckFailed
 from service.solvers.multicommodity import Commodities, Network, check_flows, multicommodity_flow
 from tests.checkers import assert_capacities, assert_conservation
-from tests.conftest import SCENARIOS
+from tests.conftest import scenario
 from tests.references import max_flow_value
 
 
@@ -205,7 +204,7 @@ def indexed(body: dict):
 
 
 def test_scenario_prices_and_bottlenecks(client):
-    body = json.loads((SCENARIOS / "depots-multicommodity.json").read_text())
+    body = scenario("depots-multicommodity")
     out = client.post("/v1/multicommodity", json=body).get_json()
     names, arcs, commodities = indexed(body)
     status, cost, _ = reference(len(names), arcs, commodities)
@@ -221,7 +220,7 @@ def test_scenario_prices_and_bottlenecks(client):
 def test_max_throughput_prices_bound_the_extra_delivery(client):
     """For max-throughput the price is extra delivery per unit of capacity: the most
     delivered is concave in the capacities, so D(u + 1) <= D(u) + p for every arc."""
-    body = json.loads((SCENARIOS / "depots-multicommodity.json").read_text())
+    body = scenario("depots-multicommodity")
     body["objective"] = "max-throughput"
     for c in body["commodities"]:
         c["demand"] *= 2
@@ -239,7 +238,7 @@ def test_max_throughput_prices_bound_the_extra_delivery(client):
 
 
 def test_infeasible_min_cost_names_commodities_and_binding_arcs(client):
-    body = json.loads((SCENARIOS / "depots-multicommodity.json").read_text())
+    body = scenario("depots-multicommodity")
     for c in body["commodities"]:
         c["demand"] *= 2
     out = client.post("/v1/multicommodity", json=body).get_json()

@@ -2,17 +2,16 @@
 
 from __future__ import annotations
 
-import json
 
 import orjson
 import pytest
 
 from service.kinds import KINDS
-from tests.conftest import SCENARIOS
+from tests.conftest import scenario
 from tests.flowdata import depot_arcs, with_changes
 from tests.references import max_flow_value
 
-DEPOTS = json.loads((SCENARIOS / "depots-maxflow.json").read_text())
+DEPOTS = scenario("depots-maxflow")
 SOURCE, SINK = DEPOTS["source"], DEPOTS["sink"]
 
 

@@ -6,7 +6,6 @@ The jobs here really run: the app's dispatcher thread starts a solver process
 
 from __future__ import annotations
 
-import json
 import logging
 import time
 
@@ -16,10 +15,10 @@ from prometheus_client.parser import text_string_to_metric_families
 from service.api import create_app
 from service.config import parse_api_keys
 from service.kinds import KINDS
-from tests.conftest import SCENARIOS
+from tests.conftest import scenario
 from tests.references import max_flow_of
 
-DEPOTS = json.loads((SCENARIOS / "depots-maxflow.json").read_text())
+DEPOTS = scenario("depots-maxflow")
 KEYS = "acme:acme-key-0001,bolt:bolt-key-0002,bolt:bolt-read-0003:read"
 ACME = {"Authorization": "Bearer acme-key-0001"}
 BOLT = {"Authorization": "Bearer bolt-key-0002"}
@@ -206,7 +205,7 @@ def test_pooled_solve_equals_inline_solve(tmp_path):
 def test_every_kind_answers_the_same_in_a_solver_process(tmp_path, name):
     # The solver process gets the problem without the arcs' key labels
     # (bounded.for_solver_process): no kind's answer may depend on them.
-    body = json.loads((SCENARIOS / KINDS[name].example).read_text())
+    body = scenario(KINDS[name].example)
     if "arcs" in body and isinstance(body["arcs"], list):
         assert any("key" in arc for arc in body["arcs"]), "the scenario should label its lanes"
     inline = create_app({"data_dir": str(tmp_path / "a")}).test_client().post(f"/v1/{name}", json=body)

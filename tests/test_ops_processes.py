@@ -6,7 +6,6 @@ the test; nothing is mocked. Reference values come from scipy.sparse.csgraph.max
 
 from __future__ import annotations
 
-import json
 import signal
 import threading
 import time
@@ -14,14 +13,14 @@ import time
 import pytest
 import requests
 
-from tests.conftest import SCENARIOS, RunningServer
+from tests.conftest import RunningServer, scenario
 from tests.opsutil import (alive, columnar_body, gunicorn_workers, layered, poll_job, scipy_max_flow,
                            solver_children, wait_for)
 from tests.references import max_flow_of
 
 pytestmark = pytest.mark.server
 
-DEPOTS = json.loads((SCENARIOS / "depots-maxflow.json").read_text())
+DEPOTS = scenario("depots-maxflow")
 DEPOTS_VALUE = max_flow_of(DEPOTS)  # networkx.maximum_flow_value
 JSON = {"Content-Type": "application/json"}
 _CACHE: dict = {}

@@ -13,12 +13,12 @@ import pytest
 
 from service.jobs.model import DONE
 from service.jobs.redis_backend import RedisJobs
-from tests.conftest import SCENARIOS
+from tests.conftest import scenario_bytes
 from tests.references import max_flow_of
 
 pytestmark = pytest.mark.redis
 
-DEPOTS_BODY = (SCENARIOS / "depots-maxflow.json").read_bytes()
+DEPOTS_BODY = scenario_bytes("depots-maxflow")
 
 
 def test_a_reader_polling_during_the_claim_never_sees_a_lost_worker(redis_url, redis_prefix):

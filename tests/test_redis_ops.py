@@ -7,7 +7,6 @@ stops that one (never the shared server).
 
 from __future__ import annotations
 
-import json
 import os
 import shutil
 import signal
@@ -19,14 +18,14 @@ import pytest
 import redis
 import requests
 
-from tests.conftest import ROOT, SCENARIOS, RunningServer, free_port
+from tests.conftest import ROOT, RunningServer, free_port, scenario
 from tests.opsutil import alive, children, poll_job, wait_for
 from tests.test_ops_processes import busy_solver, instance
 from tests.references import max_flow_of
 
 pytestmark = [pytest.mark.redis, pytest.mark.server]
 
-DEPOTS = json.loads((SCENARIOS / "depots-maxflow.json").read_text())
+DEPOTS = scenario("depots-maxflow")
 ACME = {"Authorization": "Bearer acme-key-0001"}
 BOLT = {"Authorization": "Bearer bolt-key-0002"}
 JSON = {"Content-Type": "application/json"}

@@ -10,7 +10,6 @@ done by the worker, from the other.
 
 from __future__ import annotations
 
-import json
 import os
 import shutil
 import subprocess
@@ -22,14 +21,14 @@ import pytest
 import redis
 import requests
 
-from tests.conftest import ROOT, SCENARIOS, RunningServer
+from tests.conftest import ROOT, RunningServer, scenario
 from tests.opsutil import poll_job
 from tests.test_redis_ops import stop
 
 pytestmark = [pytest.mark.redis, pytest.mark.server]
 
 README = (ROOT / "README.md").read_text()
-DEPOTS = json.loads((SCENARIOS / "depots-maxflow.json").read_text())
+DEPOTS = scenario("depots-maxflow")
 JSON = {"Content-Type": "application/json"}
 
 

@@ -21,7 +21,7 @@ from service.api import create_app
 from service.api.bounded import problem_size
 from service.jobs.runner import SolverPool, unpack
 from service.kinds import KINDS, Limits
-from tests.conftest import SCENARIOS, RunningServer
+from tests.conftest import RunningServer, scenario
 
 
 def multicommodity_body(arcs: int, commodities: int, nodes: int = 200, seed: int = 7) -> dict:
@@ -40,7 +40,7 @@ def multicommodity_body(arcs: int, commodities: int, nodes: int = 200, seed: int
 
 def parsed(name: str, body=None):
     kind = KINDS[name]
-    return kind.parse(body if body is not None else json.loads((SCENARIOS / kind.example).read_text()), Limits())
+    return kind.parse(body if body is not None else scenario(kind.example), Limits())
 
 
 def test_every_kind_reports_the_work_of_its_problem():

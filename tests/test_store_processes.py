@@ -17,11 +17,11 @@ import requests
 from service.api import create_app
 from service.errors import NotFound
 from service.store import network_digest, open_store
-from tests.conftest import ROOT, SCENARIOS, RunningServer
+from tests.conftest import ROOT, RunningServer, scenario
 from tests.flowdata import depot_arcs
 from tests.references import max_flow_value
 
-DEPOTS = json.loads((SCENARIOS / "depots-maxflow.json").read_text())
+DEPOTS = scenario("depots-maxflow")
 EMBEDDED = {"SLUICE_REDIS_URL": ""}  # whatever the caller's environment says
 
 

@@ -9,7 +9,6 @@ residual network has no negative-cost cycle (negative-cycle optimality condition
 
 from __future__ import annotations
 
-import json
 
 import networkx as nx
 import numpy as np
@@ -23,12 +22,12 @@ from service.solvers.verify import (
     verify_max_flow, verify_min_cost_flow,
 )
 from tests.checkers import assert_capacities, assert_conservation, assert_max_flow
-from tests.conftest import SCENARIOS
+from tests.conftest import scenario
 from tests.references import max_flow
 
-DEPOTS = json.loads((SCENARIOS / "depots-maxflow.json").read_text())
-PLAN = json.loads((SCENARIOS / "verify-depots-maxflow.json").read_text())
-MC_PLAN = json.loads((SCENARIOS / "verify-depots-mincostflow.json").read_text())
+DEPOTS = scenario("depots-maxflow")
+PLAN = scenario("verify-depots-maxflow")
+MC_PLAN = scenario("verify-depots-mincostflow")
 
 
 def networkx_max_flow(n, tail, head, cap):
