@@ -11,7 +11,6 @@ end compares with what chromium renders. Inputs: every scenario that can be draw
 
 from __future__ import annotations
 
-import json
 import os
 import re
 import xml.etree.ElementTree as ET
