@@ -22,7 +22,7 @@ import requests
 from flask import Flask
 
 from service.api import create_app
-from tests.contract import SpecClient
+from tests.contract import SpecClient, SpecSession
 
 ROOT = Path(__file__).resolve().parents[1]
 SCENARIOS = ROOT / "service" / "scenarios"
@@ -108,6 +108,25 @@ class RunningServer:
                 time.sleep(0.1)
         self.stop()
         raise RuntimeError("sluice serve did not become healthy in time")
+
+    def request(self, method: str, path: str, **kwargs) -> requests.Response:
+        """``requests.request`` to ``path`` on this server, the response checked against
+        the OpenAPI document (tests.contract). A new connection each time: servers
+        restart and workers are killed in these tests."""
+        with SpecSession() as session:
+            return session.request(method, self.url + path, **kwargs)
+
+    def get(self, path: str, **kwargs) -> requests.Response:
+        return self.request("GET", path, **kwargs)
+
+    def post(self, path: str, **kwargs) -> requests.Response:
+        return self.request("POST", path, **kwargs)
+
+    def put(self, path: str, **kwargs) -> requests.Response:
+        return self.request("PUT", path, **kwargs)
+
+    def delete(self, path: str, **kwargs) -> requests.Response:
+        return self.request("DELETE", path, **kwargs)
 
     def log_tail(self, size: int = 2000) -> str:
         self.log.seek(0)

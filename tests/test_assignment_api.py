@@ -6,7 +6,6 @@ import copy
 
 import numpy as np
 import pytest
-import requests
 from scipy.optimize import linear_sum_assignment
 
 from tests.conftest import scenario
@@ -114,9 +113,9 @@ def test_graph_engine_refuses_long_fractions(client):
 
 @pytest.mark.server
 def test_end_to_end_against_a_real_server(server):
-    r = requests.post(server.url + "/v1/assignment", json=SCENARIO, timeout=30)
+    r = server.post("/v1/assignment", json=SCENARIO, timeout=30)
     assert r.status_code == 200 and r.json()["total_cost"] == scipy_total(SCENARIO["costs"])
     bad = copy.deepcopy(SCENARIO)
     bad["costs"][2] = [1, 2]
-    r = requests.post(server.url + "/v1/assignment", json=bad, timeout=30)
+    r = server.post("/v1/assignment", json=bad, timeout=30)
     assert r.status_code == 422 and r.json()["errors"][0]["pointer"] == "/costs/2"

@@ -4,7 +4,6 @@ import socket
 
 import numpy as np
 import pytest
-import requests
 
 from tests.checkers import assert_cut, assert_max_flow
 from tests.conftest import scenario
@@ -98,7 +97,7 @@ def test_health_and_readiness(client):
 @pytest.mark.server
 @pytest.mark.parametrize("body", [OBJECTS, COLUMNS], ids=["objects", "columns"])
 def test_real_server_solves_both_forms(server, body):
-    r = requests.post(server.url + "/v1/maxflow", json=body, timeout=30)
+    r = server.post("/v1/maxflow", json=body, timeout=30)
     assert r.status_code == 200
     check_response(body, r.json())
 
@@ -110,14 +109,14 @@ def test_real_server_random_network_matches_networkx(server):
     body = {"source": "n0", "sink": f"n{n - 1}", "arcs": {
         "from": [f"n{i}" for i in rng.integers(0, n, m)], "to": [f"n{i}" for i in rng.integers(0, n, m)],
         "capacity": rng.integers(0, 50, m).tolist()}}
-    r = requests.post(server.url + "/v1/maxflow", json=body, timeout=30)
+    r = server.post("/v1/maxflow", json=body, timeout=30)
     assert r.status_code == 200
     check_response(body, r.json())
 
 
 @pytest.mark.server
 def test_real_server_errors_are_problems_and_it_keeps_answering(server):
-    r = requests.post(server.url + "/v1/maxflow", data=b"{nope", headers={"Content-Type": "application/json"},
+    r = server.post("/v1/maxflow", data=b"{nope", headers={"Content-Type": "application/json"},
                       timeout=10)
     assert r.status_code == 400 and r.headers["Content-Type"] == "application/problem+json"
     # Announce a 200 MB body and send none of it: the limit is enforced from the header.
@@ -126,8 +125,8 @@ def test_real_server_errors_are_problems_and_it_keeps_answering(server):
                      b"Content-Length: 209715200\r\n\r\n")
         head = conn.recv(4096).decode()
     assert head.startswith("HTTP/1.1 413") and "application/problem+json" in head
-    r = requests.post(server.url + "/v1/maxflow", json={**OBJECTS, "sink": "nowhere"}, timeout=10)
+    r = server.post("/v1/maxflow", json={**OBJECTS, "sink": "nowhere"}, timeout=10)
     assert r.status_code == 422 and r.json()["errors"][0]["pointer"] == "/sink"
-    r = requests.post(server.url + "/v1/maxflow", json=OBJECTS, timeout=10)
+    r = server.post("/v1/maxflow", json=OBJECTS, timeout=10)
     assert r.status_code == 200 and r.json()["value"] == 160
-    assert requests.get(server.url + "/openapi.json", timeout=10).json()["info"]["title"] == "Sluice"
+    assert server.get("/openapi.json", timeout=10).json()["info"]["title"] == "Sluice"

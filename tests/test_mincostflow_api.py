@@ -7,7 +7,6 @@ import json
 
 import numpy as np
 import pytest
-import requests
 
 from service.kinds import KINDS, Limits
 from service.model.arcs import build_network, read_arcs
@@ -189,13 +188,13 @@ def test_from_network_rejects_unknown_and_repeated_nodes():
 
 @pytest.mark.server
 def test_end_to_end_against_a_real_server(server):
-    r = requests.post(server.url + "/v1/mincostflow", json=SCENARIO, timeout=30)
+    r = server.post("/v1/mincostflow", json=SCENARIO, timeout=30)
     assert r.status_code == 200
     out = r.json()
     assert out["status"] == "optimal" and out["certificate"]["gap"] == 0
     bad = copy.deepcopy(SCENARIO)
     bad["arcs"][3]["lower"] = 99
-    r = requests.post(server.url + "/v1/mincostflow", json=bad, timeout=30)
+    r = server.post("/v1/mincostflow", json=bad, timeout=30)
     assert r.status_code == 422 and r.headers["Content-Type"].startswith("application/problem+json")
     assert r.json()["errors"][0]["pointer"] == "/arcs/3/lower"
 
@@ -213,7 +212,7 @@ def test_end_to_end_columnar_network_of_a_few_thousand_arcs(server):
                  "capacity": rng.integers(1, 20, m).tolist() + [None] * n,
                  "cost": rng.integers(0, 50, m).tolist() + [60] * n},
     }
-    r = requests.post(server.url + "/v1/mincostflow", json=body, timeout=60)
+    r = server.post("/v1/mincostflow", json=body, timeout=60)
     out = r.json()
     assert r.status_code == 200 and out["status"] == "optimal" and out["certificate"]["gap"] == 0
     assert_conservation(len(out["node_ids"]), [out["node_ids"].index(v) for v in body["arcs"]["from"]],
