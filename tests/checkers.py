@@ -64,3 +64,39 @@ def assert_cut(tails, heads, capacities, source_side: set, source, sink, value, 
 def assert_integral(values) -> None:
     """Integrality theorem: integer capacities admit an integral maximum flow."""
     assert all(float(v).is_integer() for v in values), "a flow is not integral"
+
+
+def assert_exact_max_flow(n_nodes, tails, heads, capacities, source, sink, flows, value, source_side,
+                          rounding: float = 0.0) -> None:
+    """The max-flow checks in exact rational arithmetic (fractions.Fraction of every
+    number), for answers at any magnitude. ``rounding`` allows each figure the relative
+    error of rounding exact values to doubles once (e.g. 2**-53 per number); 0 for
+    integer answers, which must hold exactly."""
+    from fractions import Fraction
+
+    def close(a, b, scale):
+        return abs(a - b) <= Fraction(rounding) * scale
+
+    flows = [Fraction(int(x)) if isinstance(x, (int, np.integer)) else Fraction(float(x)) for x in flows]
+    caps = [None if c is None else Fraction(c) for c in capacities]
+    net = [Fraction(0)] * n_nodes
+    through = [Fraction(0)] * n_nodes
+    for t, h, x, c in zip(tails, heads, flows, caps):
+        assert x >= 0 or close(x, 0, abs(x)), "a flow is negative"
+        assert c is None or x <= c or close(x, c, c), "a flow exceeds its capacity"
+        net[t] += x
+        net[h] -= x
+        through[t] += abs(x)
+        through[h] += abs(x)
+    for i in range(n_nodes):
+        if i not in (source, sink):
+            assert close(net[i], 0, 2 * through[i]), f"flow is not conserved at node {i}"
+    exact_value = Fraction(value)
+    assert close(net[source], exact_value, 2 * through[source] + abs(exact_value)), "net outflow at the source != value"
+    cut = Fraction(0)
+    for t, h, c in zip(tails, heads, caps):
+        if t in source_side and h not in source_side:
+            assert c is not None, "an unlimited arc crosses the cut"
+            cut += c
+    assert source in source_side and sink not in source_side
+    assert close(cut, exact_value, cut), f"cut capacity {cut} != flow value {value}"

@@ -4,16 +4,18 @@ References: networkx.maximum_flow, scipy.sparse.csgraph.maximum_flow, a textbook
 worked example, and the max-flow min-cut and integrality theorems as checks.
 """
 
+from fractions import Fraction
+
 import numpy as np
 import pytest
 import scipy.sparse as sp
 from hypothesis import given, settings, strategies as st
 from scipy.sparse.csgraph import maximum_flow as scipy_maximum_flow
 
-from service.errors import InputError, SelfCheckFailed
+from service.errors import SelfCheckFailed
 from service.solvers import maximum_flow
 from service.solvers.certificates import check_max_flow
-from tests.checkers import assert_cut, assert_integral, assert_max_flow
+from tests.checkers import assert_cut, assert_exact_max_flow, assert_integral, assert_max_flow
 from tests.references import max_flow_value
 
 ENGINES = ["graph", "lp"]
@@ -120,52 +122,63 @@ def test_decimals_are_solved_exactly_by_scaling():
     check_against_theorems(3, arcs, 0, 2, solution)
 
 
-def test_many_decimals_go_to_lp_or_are_refused_by_graph():
-    arcs = [(0, 1, 1 / 3), (1, 2, 2 / 3)]
+def exact_value(arcs, n, s, t, denominator=1):
+    """The reference value on Python integers (capacities times ``denominator``, exactly), as a Fraction."""
+    units = [(a, b, Fraction(c) * denominator) for a, b, c in arcs]
+    assert all(u.denominator == 1 for _, _, u in units)
+    return Fraction(max_flow_value([(a, b, int(u)) for a, b, u in units], s, t, range(n)), denominator)
+
+
+def test_fractions_beyond_nine_places_are_solved_exactly_by_their_binary_value():
+    arcs = [(0, 1, 1 / 3), (1, 2, 2 / 3), (0, 2, 0.1 / 3)]
     solution, certificate = solve(3, arcs, 0, 2)
-    assert solution.engine["kind"] == "lp" and solution.value == pytest.approx(1 / 3)
-    with pytest.raises(InputError) as exc:
-        solve(3, arcs, 0, 2, "graph")
-    assert exc.value.errors[0].pointer == "/arcs"
+    assert solution.engine["kind"] == "graph" and certificate["tolerance"] == 0
+    e = certificate["binary_exponent"]
+    assert solution.value == float(exact_value(arcs, 3, 0, 2, 2**e))  # the exact sum, rounded once
+    check_against_theorems(3, arcs, 0, 2, solution, tol=1e-15)
+    lp, lp_certificate = solve(3, arcs, 0, 2, "lp")
+    assert lp.engine["kind"] == "lp" and lp_certificate["relative_tolerance"] > 0
 
 
-def test_overflowing_sums_route_to_lp_or_are_refused():
+def test_overflowing_sums_are_solved_exactly_in_wide_integers():
     big = 2**62
     arcs = [(0, 1, big), (0, 1, big), (1, 2, big), (1, 2, big)]
-    solution, _ = solve(3, arcs, 0, 2)
-    assert solution.engine["kind"] == "lp" and solution.value == pytest.approx(2.0 * big * 2 / 2)
-    with pytest.raises(InputError):
-        solve(3, arcs, 0, 2, "graph")
+    for engine in ("auto", "graph"):
+        solution, certificate = solve(3, arcs, 0, 2, engine)
+        # 2**63 does not fit a JSON integer of int64: reported as the (exact) double.
+        assert solution.engine["kind"] == "graph" and solution.value == 2.0**63
+        assert certificate["tolerance"] == 0 and solution.flows.tolist() == [big] * 4
 
 
-def test_huge_integer_capacities_on_the_lp_route_agree_with_networkx():
-    # Found by the object-form decoder's HTTP test: capacities near 10**18 whose sums
-    # overflow int64 went to GLOP unscaled, and GLOP stopped ABNORMAL (a 500).
-    # networkx computes with Python integers, exactly.
+def test_huge_integer_capacities_agree_exactly_with_networkx():
+    # Capacities near 10**18 whose sums overflow int64 went to GLOP, and were first a
+    # 500 (ABNORMAL), then answers within 1e-6 of the largest capacity. networkx
+    # computes with Python integers, exactly.
     rng = np.random.default_rng(11)
     arcs = [(int(a), int(b), int(c)) for a, b, c in
             zip(rng.integers(0, 30, 400), rng.integers(0, 30, 400), rng.integers(1, 10**18, 400)) if a != b]
     solution, certificate = solve(30, arcs, 0, 29)
-    exact = max_flow_value(arcs, 0, 29)
-    assert solution.engine["kind"] == "lp" and certificate["checked"]
-    assert abs(solution.value - exact) <= solution.tolerance
+    exact = exact_value(arcs, 30, 0, 29)
+    assert solution.engine["kind"] == "graph" and certificate["checked"] and certificate["tolerance"] == 0
+    assert solution.value == (int(exact) if exact < 2**63 else float(exact))
+    side = set(np.flatnonzero(solution.source_side).tolist())
+    assert_exact_max_flow(30, *zip(*arcs), 0, 29, solution.flows.tolist(), exact, side)
 
 
 @pytest.mark.parametrize("seed", [3, 5, 12, 24, 25, 29, 34, 50])  # each failed before (49 of seeds 0-299 did)
-def test_fractional_capacities_spanning_many_decades_agree_with_networkx(seed):
-    # Found by the compiled scanner's HTTP test: capacities from 0.25 to ~10**18 + 0.25
-    # went to GLOP scaled by the largest, so the smallest fell below its absolute
-    # tolerances and it stopped ABNORMAL (a 500), or, without presolve, answered a flow
-    # its own cut contradicted. networkx computes on the same floats.
+def test_fractional_capacities_spanning_many_decades_agree_exactly_with_networkx(seed):
+    # Capacities from 0.25 to ~10**18 + 0.25 once went to GLOP scaled by the largest,
+    # and it stopped ABNORMAL (a 500) or answered a flow its own cut contradicted. Now
+    # they are decimals (two places), scaled by 100 past int64 and solved exactly;
+    # networkx checks on the same capacities times 4, as Python integers.
     rng = np.random.default_rng(seed)
     n, m = 40, 50
     magnitude = 10.0 ** rng.integers(0, 19, m)
     arcs = [(int(a), int(b), float(c)) for a, b, c in
             zip(rng.integers(0, n, m), rng.integers(0, n, m), np.floor(rng.random(m) * magnitude) + 0.25) if a != b]
     solution, certificate = solve(n, arcs, 0, n - 1)
-    exact = max_flow_value(arcs, 0, n - 1, range(n))
-    assert solution.engine["kind"] == "lp" and certificate["checked"]
-    assert abs(solution.value - exact) <= solution.tolerance
+    assert solution.engine["kind"] == "graph" and certificate["checked"] and certificate["tolerance"] == 0
+    assert solution.value == float(exact_value(arcs, n, 0, n - 1, 4))
 
 
 def test_unlimited_arcs_off_every_path_give_a_finite_answer():

@@ -326,15 +326,20 @@ def test_transportation_textbook_example():
     assert np.all(rc >= 0) and np.all(rc[sol.flows > 0] == 0)
 
 
-def test_int64_guard_routes_huge_costs_to_lp_or_refuses_graph():
+def test_huge_costs_are_solved_exactly_by_their_common_factor_or_refused_with_a_422():
     tail = np.array([0], np.int32)
     head = np.array([1], np.int32)
-    cost = np.array([2**60])
     sup = np.array([1, -1])
-    sol, cert = min_cost_flow(2, tail, head, np.array([1]), None, cost, None, sup)
-    assert sol.engine["kind"] == "lp" and sol.cost == pytest.approx(2.0**60)
+    sol, cert = min_cost_flow(2, tail, head, np.array([1]), None, np.array([2**60]), None, sup)
+    # 2**60 * (nodes + 1) overflows OR-Tools' int64 costs; divided by 2**60 it is 1.
+    assert sol.engine["kind"] == "graph" and sol.cost == 2**60 and cert["cost_factor"] == 2**60
+    assert cert["gap"] == 0 and cert["tolerance"] == 0
     from service.errors import InputError
 
-    with pytest.raises(InputError) as info:
-        min_cost_flow(2, tail, head, np.array([1]), None, cost, None, sup, engine="graph")
-    assert "64-bit" in str(info.value) or "too large" in str(info.value)
+    tail, head = np.array([0, 0], np.int32), np.array([1, 1], np.int32)
+    for engine in ("auto", "graph"):  # coprime costs: no common factor helps; never the LP engine
+        with pytest.raises(InputError) as info:
+            min_cost_flow(2, tail, head, np.array([1, 1]), None, np.array([2**60 + 1, 2**60 + 3]), None, sup,
+                          engine=engine)
+        error = info.value.errors[0]
+        assert error.pointer == "/arcs" and "arc 1's cost" in error.detail and "at most" in error.detail

@@ -306,7 +306,7 @@ def test_check_flows_fails_on_wrong_plans():
     solution = multicommodity_flow(net, com)
     good = solution.flows.copy()
     lp = {"primal_residual": 0.0, "dual_residual": 0.0, "dual_objective": 13.0, "gap": 0.0,
-          "duals_unique": False, "degenerate": False}
+          "duals_unique": False, "degenerate": False, "tolerance": {"gap": 1e-5}}
     prices = solution.capacity_prices
     assert check_flows(net, com, good, com.demands, prices, lp)["cost"] == pytest.approx(13)
     leaky = good.copy()

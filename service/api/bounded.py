@@ -31,7 +31,7 @@ from flask import Flask, current_app
 from ..config import Settings
 from ..errors import SolveTimeout, Unavailable
 from ..kinds import Kind, Limits
-from ..kinds.base import time_limit
+from ..kinds.base import stop_grace, time_limit
 from ..jobs.runner import Cancelled, ChildLost, DeadlineExceeded, SolverPool, unpack
 from .metrics import SOLVE_SECONDS, SOLVE_TIMEOUTS
 
@@ -64,10 +64,7 @@ class BoundedSolver:
             self._observe(kind, result, perf_counter() - started)
             return result
         seconds = time_limit(problem.options, limits)
-        # Kinds whose solver honours a time limit itself (GLOP) get a grace period to
-        # return their own time_limit answer; the uninterruptible ones are killed at it.
-        grace = min(10.0, max(2.0, 0.5 * seconds)) if getattr(kind, "honours_time_limit", False) else 0.0
-        hard = seconds + grace
+        hard = seconds + stop_grace(kind, seconds)
         try:
             reply = self.pool.run(("solve", kind.name, for_solver_process(problem), limits),
                                   deadline=time.monotonic() + hard,

@@ -48,7 +48,9 @@ class ScenarioListSchema(Schema):
 EXAMPLES = (
     "batch-depots.json", "depots-lp-matrix.json", "depots-lp.json", "depots-maxflow-columns.json",
     "depots-maxflow.dimacs", "depots-maxflow.json", "depots-mincostflow.json", "depots-multicommodity.json",
+    "depots-multicommodity-whole.json", "night-pallets-expansion.json", "night-pallets-resilience.json",
     "vans-assignment.json", "verify-depots-maxflow.json", "verify-depots-mincostflow.json",
+    "xdock-night-flowovertime.json",
 )
 
 

@@ -66,6 +66,11 @@ class JobSchema(Schema):
     attempts = fields.Integer(metadata={"description": "Times a worker started the job."})
     time_limit = fields.Float(metadata={"description": "Seconds the job may run."})
     cancel_requested = fields.Boolean(metadata={"description": "DELETE was asked; the process is being stopped."})
+    progress = fields.Dict(metadata={
+        "description": "While running, for kinds that report it (multicommodity with integral or single_path): "
+                       "the latest report, {phase, incumbent, bound, gap, seconds}: phase deliver or cost, "
+                       "incumbent the best plan's objective so far (null before the first), bound the best "
+                       "proven bound, gap as in the answer, seconds since the solve started."})
     result = fields.Dict(metadata={"description": "When done: the solve response of the job's kind."})
     error = fields.Dict(metadata={"description": "When failed: a problem object (type, title, status, detail)."})
 

@@ -11,6 +11,7 @@ import ctypes
 import os
 import signal
 import sys
+import threading
 
 PR_SET_PDEATHSIG = 1
 
@@ -39,14 +40,21 @@ def main() -> None:
     from .work import handle  # imports numpy, OR-Tools and the kinds once, before "ready"
 
     write_frame(out, ("ready", os.getpid()))
+    lock = threading.Lock()  # progress may be reported from a solver's own threads
+
+    def report(document: dict) -> None:
+        with lock:
+            write_frame(out, ("progress", document))
+
     while True:
         message = read_frame(inp)
         if message is None:
             return
-        reply = handle(message)
+        reply = handle(message, report)
         # Free the last problem before the next one is read, so its memory is reused.
         del message
-        write_frame(out, reply)
+        with lock:
+            write_frame(out, reply)
         del reply
 
 

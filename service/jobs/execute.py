@@ -10,33 +10,40 @@ from dataclasses import replace
 
 import orjson
 
-from ..kinds import Limits
+from ..kinds import KINDS, Limits
+from ..kinds.base import stop_grace
 from .model import CANCELLED, DONE, DUMP_OPTIONS, FAILED, problem_doc, time_limit_error
 from .runner import Cancelled, ChildLost, DeadlineExceeded, RemoteError, unpack
 
 log = logging.getLogger("sluice.jobs")
 
 
-def execute(run, kind: str, body: bytes, limits: Limits, time_limit: float, on_tick=None):
+def execute(run, kind: str, body: bytes, limits: Limits, time_limit: float, on_tick=None, on_progress=None):
     """Run a job through ``run`` (a :meth:`SolverPool.run` or :meth:`SolverProcess.run`).
 
     Parameters
     ----------
     run : callable
-        ``run(message, deadline=..., on_tick=...) -> reply``.
+        ``run(message, budget=..., on_tick=..., on_progress=...) -> reply``
+        (:meth:`SolverPool.run`, or a :meth:`SolverProcess.run` already started).
     time_limit : float
-        Seconds for the whole job (parse and solve); the process is killed after.
+        Seconds for the whole job (parse and solve); the process is killed after, or,
+        for a kind that stops itself at its limit, after a grace to answer
+        (:func:`~service.kinds.base.stop_grace`).
     on_tick : callable, optional
         Heartbeat, called every quarter second; returning true cancels the job.
+    on_progress : callable, optional
+        Called with each progress document the solve reports (see :class:`Progress`).
 
     Returns
     -------
     (state, result_json or None, error document or None)
     """
     job_limits = replace(limits, time_limit=time_limit)
-    deadline = time.monotonic() + time_limit
+    budget = time_limit + stop_grace(KINDS.get(kind), time_limit)
     try:
-        result, _ = unpack(run(("job", kind, body, job_limits), deadline=deadline, on_tick=on_tick))
+        result, _ = unpack(run(("job", kind, body, job_limits), budget=budget, on_tick=on_tick,
+                               on_progress=on_progress))
     except DeadlineExceeded:
         return FAILED, None, time_limit_error(time_limit)
     except Cancelled:
@@ -48,6 +55,25 @@ def execute(run, kind: str, body: bytes, limits: Limits, time_limit: float, on_t
     except RemoteError as exc:
         return FAILED, None, problem_doc(exc.status, exc.slug, exc.title, exc.detail, exc.extra())
     return DONE, orjson.dumps(result, option=DUMP_OPTIONS), None
+
+
+class Progress:
+    """The latest progress report of a running job, written to the job record at most
+    once per heartbeat (reports can come faster than a store write is worth)."""
+
+    def __init__(self):
+        self.latest: dict | None = None
+        self.written: dict | None = None
+
+    def __call__(self, document: dict) -> None:
+        self.latest = document
+
+    def pending(self) -> bytes | None:
+        """The report to write now as JSON, or None when nothing new came."""
+        if self.latest is None or self.latest is self.written:
+            return None
+        self.written = self.latest
+        return orjson.dumps(self.written, option=DUMP_OPTIONS)
 
 
 @contextmanager

@@ -75,6 +75,7 @@ class JobRecord:
     cancel_requested: bool = False
     result: bytes | None = field(default=None, repr=False)  # JSON of the solve response
     error: dict | None = None
+    progress: dict | None = None  # the latest report of a running solve that reports one
 
     def document(self) -> dict:
         """The public JSON document of ``GET /v1/jobs/{id}``."""
@@ -83,6 +84,8 @@ class JobRecord:
                "attempts": self.attempts, "time_limit": self.time_limit}
         if self.cancel_requested and self.state not in FINAL:
             doc["cancel_requested"] = True
+        if self.state == RUNNING and self.progress is not None:
+            doc["progress"] = self.progress
         if self.state == DONE and self.result is not None:
             doc["result"] = orjson.loads(self.result)
         if self.error is not None:

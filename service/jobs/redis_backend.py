@@ -21,7 +21,7 @@ import orjson
 import redis
 
 from ..kinds import Limits
-from .execute import execute, lease_keeper
+from .execute import Progress, execute, lease_keeper
 from .model import CANCELLED, FAILED, FINAL, QUEUED, RUNNING, JobRecord, JobsDown, new_job_id, worker_lost
 from .runner import SolverProcess
 
@@ -87,7 +87,8 @@ class RedisJobs:
         record = JobRecord(job_id, s["tenant"], s["kind"], s["state"], float(s["created"]), float(s["time_limit"]),
                            started=_f(s.get("started")), finished=_f(s.get("finished")),
                            attempts=int(s.get("attempts", 0)), cancel_requested=s.get("cancel") == "1",
-                           error=orjson.loads(s["error"]) if s.get("error") else None)
+                           error=orjson.loads(s["error"]) if s.get("error") else None,
+                           progress=orjson.loads(s["progress"]) if s.get("progress") else None)
         if record.state == RUNNING and not self.redis.exists(self._key(job_id, ":lease")):
             record = self._lost(record)
         return record
@@ -211,14 +212,19 @@ class RedisJobs:
             self.redis.set(lease_key, 1, px=int(self.lease * 1000))
             return True
 
+        progress = Progress()
+
         def tick() -> bool:
+            report = progress.pending()
+            if report is not None:
+                self.redis.hset(self._key(job_id), "progress", report)
             return self.redis.hget(self._key(job_id), "cancel") == b"1"
 
         started = time.monotonic()
         with lease_keeper(renew, self.lease / 3):
             proc = SolverProcess()
             try:
-                state, result, error = execute(proc.run, kind, body, self.limits, time_limit, tick)
+                state, result, error = execute(proc.run, kind, body, self.limits, time_limit, tick, progress)
             finally:
                 proc.kill()
         if result is not None:

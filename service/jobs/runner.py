@@ -109,7 +109,7 @@ class SolverProcess:
             except OSError:
                 pass
 
-    def _wait(self, deadline: float | None, on_tick, tick: float):
+    def _wait(self, deadline: float | None, on_tick, tick: float, on_progress=None):
         # Frames go through the descriptors (see frames); the unbuffered file objects
         # only own them, and fileno() refuses once kill() has closed them.
         fd = self.proc.stdout.fileno()
@@ -124,12 +124,17 @@ class SolverProcess:
                 if reply is None:
                     self.kill()
                     raise ChildLost(f"solver process {self.pid} exited with {self.proc.returncode}")
+                if isinstance(reply, tuple) and reply and reply[0] == "progress":
+                    if on_progress is not None:
+                        on_progress(reply[1])
+                    continue
                 return reply
             if on_tick is not None and on_tick():
                 self.kill()
                 raise Cancelled()
 
-    def run(self, message: tuple, *, deadline: float | None = None, on_tick=None, tick: float = 0.25):
+    def run(self, message: tuple, *, deadline: float | None = None, on_tick=None, tick: float = 0.25,
+            on_progress=None, budget: float | None = None):
         """Send one message and wait for the reply.
 
         Parameters
@@ -137,10 +142,13 @@ class SolverProcess:
         message : tuple
             See :mod:`service.jobs.work`.
         deadline : float, optional
-            ``time.monotonic()`` value after which the child is killed.
+            ``time.monotonic()`` value after which the child is killed (or ``budget``:
+            seconds from now).
         on_tick : callable, optional
             Called every ``tick`` seconds while waiting (heartbeats); a true return
             value cancels: the child is killed.
+        on_progress : callable, optional
+            Called with each progress document the child reports before its reply.
 
         Returns
         -------
@@ -152,12 +160,14 @@ class SolverProcess:
         DeadlineExceeded, Cancelled, ChildLost
             In each case the child is dead afterwards.
         """
+        if budget is not None:
+            deadline = time.monotonic() + budget
         try:
             write_frame(self.proc.stdin.fileno(), message)
         except (OSError, ValueError):  # the child has gone (ValueError: it was killed here before)
             self.kill()
             raise ChildLost(f"solver process {self.pid} exited with {self.proc.returncode}") from None
-        return self._wait(deadline, on_tick, tick)
+        return self._wait(deadline, on_tick, tick, on_progress)
 
 
 class _Spawner:
@@ -235,8 +245,12 @@ class SolverPool:
             else:
                 self._idle.append(proc)
 
-    def run(self, message: tuple, *, deadline: float | None = None, on_tick=None, wait: float = 30.0):
+    def run(self, message: tuple, *, deadline: float | None = None, on_tick=None, wait: float = 30.0,
+            on_progress=None, budget: float | None = None):
         """Run one message on a pooled child (see :meth:`SolverProcess.run`).
+
+        ``budget`` (seconds), instead of ``deadline``, starts counting once a child is
+        ready: a job's time limit does not pay for starting its solver process.
 
         Raises
         ------
@@ -248,7 +262,7 @@ class SolverPool:
         try:
             proc = self._take()
             try:
-                reply = proc.run(message, deadline=deadline, on_tick=on_tick)
+                reply = proc.run(message, deadline=deadline, on_tick=on_tick, on_progress=on_progress, budget=budget)
             except (DeadlineExceeded, Cancelled, ChildLost):
                 self.warm(1)  # a fresh child replaces the killed one, off the request path
                 raise

@@ -20,7 +20,7 @@ import time
 import orjson
 
 from ..kinds import Limits
-from .execute import execute, lease_keeper
+from .execute import Progress, execute, lease_keeper
 from .model import CANCELLED, FAILED, FINAL, QUEUED, RUNNING, JobRecord, new_job_id, worker_lost
 from .runner import SolverPool
 
@@ -42,18 +42,21 @@ CREATE TABLE IF NOT EXISTS jobs (
     time_limit REAL NOT NULL,
     cancel INTEGER NOT NULL DEFAULT 0,
     owner TEXT,
-    lease_until REAL
+    lease_until REAL,
+    progress TEXT
 );
 CREATE INDEX IF NOT EXISTS jobs_by_state ON jobs (state, created);
 """
 
-COLUMNS = "id, tenant, kind, state, result, error, created, started, finished, attempts, time_limit, cancel"
+COLUMNS = ("id, tenant, kind, state, result, error, created, started, finished, attempts, time_limit, cancel, "
+           "progress")
 
 
 def _record(row) -> JobRecord:
     return JobRecord(id=row[0], tenant=row[1], kind=row[2], state=row[3], result=row[4],
                      error=orjson.loads(row[5]) if row[5] else None, created=row[6], started=row[7],
-                     finished=row[8], attempts=row[9], time_limit=row[10], cancel_requested=bool(row[11]))
+                     finished=row[8], attempts=row[9], time_limit=row[10], cancel_requested=bool(row[11]),
+                     progress=orjson.loads(row[12]) if row[12] else None)
 
 
 class SqliteJobs:
@@ -76,6 +79,9 @@ class SqliteJobs:
         self.on_finish = None  # callable(kind, state, seconds): metrics hook of the API layer
         with self._db() as db:
             db.executescript(SCHEMA)
+            # A jobs file written before progress reports existed gets the column.
+            if "progress" not in {row[1] for row in db.execute("PRAGMA table_info(jobs)")}:
+                db.execute("ALTER TABLE jobs ADD COLUMN progress TEXT")
 
     # -- storage ----------------------------------------------------------------------
     def _connect(self) -> sqlite3.Connection:
@@ -188,13 +194,18 @@ class SqliteJobs:
                 "UPDATE jobs SET lease_until = ? WHERE id = ? AND owner = ? AND state = ?",
                 (time.time() + self.lease, job_id, owner, RUNNING)).rowcount)
 
+        progress = Progress()
         with lease_keeper(renew, self.lease / 3) as lost:
             def tick() -> bool:
+                report = progress.pending()
+                if report is not None:
+                    self._db().execute("UPDATE jobs SET progress = ? WHERE id = ? AND state = ?",
+                                       (report, job_id, RUNNING))
                 # Stop when cancelled, or when the lease was taken back (someone else runs it).
                 row = self._db().execute("SELECT cancel FROM jobs WHERE id = ?", (job_id,)).fetchone()
                 return lost.is_set() or bool(row and row[0])
 
-            state, result, error = execute(self._pool.run, kind, body, self.limits, time_limit, tick)
+            state, result, error = execute(self._pool.run, kind, body, self.limits, time_limit, tick, progress)
         self._db().execute(
             "UPDATE jobs SET state = ?, result = ?, error = ?, finished = ?, body = NULL, lease_until = NULL "
             "WHERE id = ? AND owner = ? AND state = ?",

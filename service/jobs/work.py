@@ -5,6 +5,8 @@ Messages: ``("solve", kind, problem, limits)`` for a problem parsed by the calle
 validated at submission; the stored JSON outlives any in-memory object). Replies:
 ``("ok", result, solve_seconds)``, ``("error", problem_fields)`` for a
 :class:`~service.errors.SluiceError`, or ``("crash", summary)`` for anything else.
+While a job runs, ``report`` may send ``("progress", document)`` frames before the
+reply (a kind that reports progress: :mod:`service.kinds.progress`).
 """
 
 from __future__ import annotations
@@ -17,7 +19,7 @@ from time import perf_counter
 import orjson
 
 from ..errors import SluiceError
-from ..kinds import KINDS
+from ..kinds import KINDS, progress
 
 log = logging.getLogger("sluice.solver")
 
@@ -28,13 +30,15 @@ def describe(exc: SluiceError) -> dict:
             "extra": exc.extra(), "headers": dict(exc.headers)}
 
 
-def handle(message: tuple) -> tuple:
+def handle(message: tuple, report=None) -> tuple:
     op, kind_name, payload, limits = message
     try:
         kind = KINDS[kind_name]
         problem = kind.parse(orjson.loads(payload), limits) if op == "job" else payload
         started = perf_counter()
-        result = kind.solve(problem, limits)
+        # Only jobs have someone to read progress (GET /v1/jobs/{id}).
+        with progress.reporting(report if op == "job" else None):
+            result = kind.solve(problem, limits)
         return ("ok", result, perf_counter() - started)
     except SluiceError as exc:
         return ("error", describe(exc))

@@ -27,6 +27,10 @@ class Limits:
     time_limit: float = 30.0
     max_commodities: int = 1_000
     max_batch_items: int = 100
+    #: Flows over time: horizon x (arcs + nodes), the size of the time-expanded network.
+    #: 5M is about four times a 10,000-lane network over 100 periods (a few seconds, a few
+    #: hundred MB); larger ones are refused with a 413 naming ``horizon``.
+    max_expanded: int = 5_000_000
 
 
 class Problem(Protocol):
@@ -80,6 +84,13 @@ def digest_detail(options: dict, default) -> list | None:
     parts (in any order), so asking for the default equals leaving it out."""
     detail = options.get("detail")
     return None if detail is None or set(detail) == set(default) else detail
+
+
+def stop_grace(kind, seconds: float) -> float:
+    """Seconds past its time limit before a solve is killed: a kind whose solver stops
+    itself at the limit (``honours_time_limit``: GLOP, the MIP engines) gets time to
+    return its own answer (``time_limit``, or a plan so far); the others are killed at it."""
+    return min(10.0, max(2.0, 0.5 * seconds)) if getattr(kind, "honours_time_limit", False) else 0.0
 
 
 def wants(options: dict, part: str) -> bool:

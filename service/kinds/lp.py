@@ -7,10 +7,11 @@ from dataclasses import dataclass
 import numpy as np
 from marshmallow import RAISE, Schema, fields, validate
 
+from ..errors import SolverFailure
 from ..model.digest import problem_digest
 from ..model.linear import LinearModel, read_linear_model
 from ..model.schemas import OptionsSchema, StrictBoolean, StrictNumber, detail_field, load_envelope
-from ..solvers.lp import LPModel, solve_certified
+from ..solvers.lp import LPModel, beyond_range, solve_certified
 from ..solvers.versions import ORTOOLS_VERSION
 from .base import Limits, digest_detail, time_limit, wants
 from .maxflow import EngineSchema, TimingSchema
@@ -227,7 +228,11 @@ def _named(names: list, values: np.ndarray) -> dict:
 def solve(problem: LPProblem, limits: Limits) -> dict:
     m = problem.model
     model = LPModel(m.c, m.matrix, m.row_lower, m.row_upper, m.col_lower, m.col_upper, m.maximize, m.constant)
-    result = solve_certified(model, time_limit=time_limit(problem.options, limits))
+    try:
+        result = solve_certified(model, time_limit=time_limit(problem.options, limits))
+    except SolverFailure as exc:  # abnormal stops and failed certificates: the data's range, said clearly
+        raise beyond_range(exc, "/constraints", objective=m.c, coefficients=m.matrix.data,
+                           bounds=np.concatenate([m.row_lower, m.row_upper, m.col_lower, m.col_upper])) from None
     out: dict = {"status": result.status, "objective": result.objective}
     options = problem.options
     if result.status == "optimal":

@@ -63,9 +63,17 @@ class MaxFlowCertificate(Schema):
     cut_capacity = fields.Float(metadata={"description": "Capacity of the returned cut, recomputed."})
     max_imbalance = fields.Float(metadata={"description": "Largest conservation violation at an inner node."})
     max_capacity_excess = fields.Float(metadata={"description": "Largest capacity violation on an arc."})
-    tolerance = fields.Float(metadata={"description": "0 for exact integer arithmetic."})
+    tolerance = fields.Float(metadata={"description": "0: the answer was solved and checked exactly in integers. "
+                                                      "Otherwise (options.engine 'lp') the largest absolute "
+                                                      "slack any check allowed."})
+    relative_tolerance = fields.Float(metadata={"description": "options.engine 'lp': each figure holds to this "
+                                                               "times its own magnitude (an arc's capacity, a "
+                                                               "node's throughput)."})
     decimal_scale = fields.Integer(metadata={"description": "Present when decimals were solved exactly as integers "
                                                             "scaled by this factor."})
+    binary_exponent = fields.Integer(metadata={"description": "Present when fractions that are not decimals of "
+                                                              "at most nine places were solved exactly on their "
+                                                              "binary values, as integers times 2**-exponent."})
     unbounded_path_arcs = fields.Integer()
 
 
@@ -74,7 +82,10 @@ class EngineSchema(Schema):
     solver = fields.String()
     version = fields.String()
     decimal_scale = fields.Integer()
-    tolerance = fields.Float()
+    binary_exponent = fields.Integer()
+    phases = fields.Integer(metadata={"description": "Present when sums beyond int64 were solved exactly in this "
+                                                     "many scaling phases."})
+    tolerance = fields.Float(metadata={"description": "LP engine: its relative tolerance."})
 
 
 class TimingSchema(Schema):

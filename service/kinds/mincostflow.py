@@ -92,15 +92,25 @@ class CertificateSchema(Schema):
     outgoing_capacity = fields.Float()
     cycle_cost = fields.Float(metadata={"description": "Unbounded: the cost of one trip round the negative cycle."})
     cycle_arcs = fields.Integer(metadata={"description": "Unbounded: the number of arcs on that cycle."})
-    tolerance = fields.Float(metadata={"description": "0 for exact arithmetic."})
+    tolerance = fields.Float(metadata={"description": "0: solved and checked exactly in integers. Otherwise "
+                                                      "(LP engine) the largest absolute slack any check allowed."})
+    relative_tolerance = fields.Float(metadata={"description": "LP engine: each figure holds to this times its own "
+                                                               "magnitude (an arc's bounds, a node's throughput "
+                                                               "and supply, the terms of the two objectives)."})
     decimal_scale = fields.Integer(metadata={"description": "Present when decimals were solved exactly as integers: "
                                                             "the factor applied to capacities, lower bounds and "
                                                             "supplies."})
     cost_scale = fields.Integer(metadata={"description": "Likewise, the factor applied to costs."})
+    quantity_factor = fields.Integer(metadata={"description": "Present when capacities, lower bounds and supplies "
+                                                              "were divided by this common factor to fit the exact "
+                                                              "solver (an equivalent problem)."})
+    cost_factor = fields.Integer(metadata={"description": "Likewise, the common factor the costs were divided by."})
 
 
 class MinCostEngineSchema(EngineSchema):
     cost_scale = fields.Integer(metadata={"description": "Factor applied to costs for exact scaling."})
+    quantity_factor = fields.Integer()
+    cost_factor = fields.Integer()
 
 
 class InfeasibilitySchema(Schema):

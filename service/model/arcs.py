@@ -17,9 +17,12 @@ from .columns import MAX_REPORTED_ERRORS, NullableNumbers, NumberColumn, number_
 from .ids import MAX_ID_LENGTH, IdColumn, InternedIds, NodeIndex, intern_ids
 
 ARC_FIELDS = ("from", "to", "capacity", "cost", "lower", "key")
+#: Arc fields only some kinds read (they ask for them by name): lane widening terms.
+EXPANSION_FIELDS = ("expand_cost", "expand_max", "expand_fixed")
 REQUIRED = ("from", "to")
 #: Value used for an absent optional field.
-DEFAULTS = {"capacity": None, "cost": 0, "lower": 0, "key": None}
+DEFAULTS = {"capacity": None, "cost": 0, "lower": 0, "key": None, "transit": 0, "expand_cost": None,
+            "expand_max": None, "expand_fixed": 0}
 
 
 @dataclass(frozen=True)
@@ -42,8 +45,11 @@ class ObjectArcs:
     count: int
 
 
-def read_arcs(raw: object, *, base: str = "/arcs", max_arcs: int | None = None) -> RawArcs:
+def read_arcs(raw: object, *, base: str = "/arcs", max_arcs: int | None = None,
+              fields: tuple[str, ...] = ARC_FIELDS) -> RawArcs:
     """Split the ``arcs`` member into columns, checking its shape.
+
+    ``fields`` are the arc fields the problem kind takes (``from`` and ``to`` first).
 
     Raises
     ------
@@ -53,12 +59,13 @@ def read_arcs(raw: object, *, base: str = "/arcs", max_arcs: int | None = None) 
         More than ``max_arcs`` arcs.
     """
     if isinstance(raw, ObjectArcs):
+        _foreign_columns(raw, base, fields)
         arcs = RawArcs({name: IdColumn(values, _object_where(base, name)) for name, values in raw.columns.items()},
                        raw.count, "objects")
     elif isinstance(raw, list):
-        arcs = _read_objects(raw, base)
+        arcs = _read_objects(raw, base, fields)
     elif isinstance(raw, dict):
-        arcs = _read_columns(raw, base)
+        arcs = _read_columns(raw, base, fields)
     else:
         raise InputError.at(base, "must be a list of arc objects or an object of columns")
     if max_arcs is not None and arcs.count > max_arcs:
@@ -69,7 +76,20 @@ def read_arcs(raw: object, *, base: str = "/arcs", max_arcs: int | None = None) 
 _ABSENT = object()
 
 
-def _read_objects(raw: list, base: str) -> RawArcs:
+def _foreign_columns(raw: ObjectArcs, base: str, fields: tuple[str, ...]) -> None:
+    """A scanned column this kind does not take is an unknown field, as on the ordinary path.
+
+    The scanner fills an absent number with its default, so the arc named is the first
+    with a value other than 0 (the first arc when every value is 0).
+    """
+    for name in raw.columns:
+        if name not in fields:
+            values = np.asarray(getattr(raw.columns[name], "values", raw.columns[name]))
+            i = int(np.flatnonzero(values)[0]) if values.dtype.kind in "if" and values.any() else 0
+            raise InputError.at(f"{base}/{i}/{_escape(name)}", "unknown field")
+
+
+def _read_objects(raw: list, base: str, fields: tuple[str, ...] = ARC_FIELDS) -> RawArcs:
     if set(map(type, raw)) - {dict}:
         i = next(i for i, a in enumerate(raw) if type(a) is not dict)
         raise InputError.at(f"{base}/{i}", "must be an arc object")
@@ -77,7 +97,7 @@ def _read_objects(raw: list, base: str) -> RawArcs:
     # known field, or some arc carries an unknown one (then we go and find it).
     unaccounted = sum(map(len, raw))
     columns = {}
-    for name in ARC_FIELDS:
+    for name in fields:
         if name not in REQUIRED and unaccounted == 0:
             break
         values, present = _object_column(raw, name, base)
@@ -85,7 +105,7 @@ def _read_objects(raw: list, base: str) -> RawArcs:
             columns[name] = IdColumn(values, _object_where(base, name))
             unaccounted -= present
     if unaccounted:
-        i, key = next((i, k) for i, a in enumerate(raw) for k in a if k not in ARC_FIELDS)
+        i, key = next((i, k) for i, a in enumerate(raw) for k in a if k not in fields)
         raise InputError.at(f"{base}/{i}/{_escape(key)}", "unknown field")
     return RawArcs(columns, len(raw), "objects")
 
@@ -105,8 +125,8 @@ def _object_column(raw: list, name: str, base: str) -> tuple[list, int]:
     return [default if v is _ABSENT else v for v in values], present
 
 
-def _read_columns(raw: dict, base: str) -> RawArcs:
-    unknown = set(raw) - set(ARC_FIELDS)
+def _read_columns(raw: dict, base: str, fields: tuple[str, ...] = ARC_FIELDS) -> RawArcs:
+    unknown = set(raw) - set(fields)
     if unknown:
         raise InputError.at(f"{base}/{_escape(sorted(unknown)[0])}", "unknown field")
     for name in REQUIRED:
@@ -114,7 +134,7 @@ def _read_columns(raw: dict, base: str) -> RawArcs:
             raise InputError.at(f"{base}/{name}", "is required")
     count = None
     columns = {}
-    for name in ARC_FIELDS:
+    for name in fields:
         if name not in raw:
             continue
         values = raw[name]
@@ -198,7 +218,7 @@ def build_network(raw: RawArcs, declared: IdColumn, *, allow_lower: bool = True)
             raise InputError.at(cols["lower"].where(i), "lower bounds are not supported by this problem kind")
         else:
             _check_lower(lower, capacity, unlimited, cols["lower"])
-    keys = _keys(cols.get("key"))
+    keys = read_keys(cols.get("key"))
     return Network(nodes, tail, head, capacity, unlimited, cost, lower, keys)
 
 
@@ -222,14 +242,29 @@ def read_network(arcs_raw, nodes_raw, *, max_arcs: int, max_nodes: int, allow_lo
     InputError, ProblemTooLarge
         Naming the offending field by JSON Pointer.
     """
+    network, nodes, _ = read_network_with(arcs_raw, nodes_raw, max_arcs=max_arcs, max_nodes=max_nodes,
+                                          allow_lower=allow_lower, node_fields=node_fields)
+    return network, nodes
+
+
+def read_network_with(arcs_raw, nodes_raw, *, max_arcs: int, max_nodes: int, allow_lower: bool = True,
+                      node_fields: tuple[str, ...] = ("supply",), arc_fields: tuple[str, ...] = ()):
+    """:func:`read_network`, also accepting the arc fields ``arc_fields``.
+
+    Returns
+    -------
+    (Network, RawNodes, dict)
+        As :func:`read_network`, and the extra fields' columns as read (those no arc
+        has are absent), for the kind to check.
+    """
     from .nodes import read_nodes
 
-    arcs = read_arcs(arcs_raw, max_arcs=max_arcs)
+    arcs = read_arcs(arcs_raw, max_arcs=max_arcs, fields=ARC_FIELDS + arc_fields)
     nodes = read_nodes(nodes_raw, extra_fields=node_fields)
     network = build_network(arcs, nodes.ids, allow_lower=allow_lower)
     if network.num_nodes > max_nodes:
         raise ProblemTooLarge(FieldError("/nodes", f"has {network.num_nodes} nodes; the limit is {max_nodes}"))
-    return network, nodes
+    return network, nodes, {name: arcs.columns[name] for name in arc_fields if name in arcs.columns}
 
 
 def _capacity(col: IdColumn | None, count: int):
@@ -254,7 +289,8 @@ def _check_lower(lower, capacity, unlimited, col: IdColumn) -> None:
         raise InputError([FieldError(col.where(int(i)), "must not exceed the arc's capacity") for i in idx])
 
 
-def _keys(col: IdColumn | None) -> list | None:
+def read_keys(col: IdColumn | None) -> list | None:
+    """Arc keys: strings of 1-200 characters or null, unique (None when the column is absent)."""
     if col is None:
         return None
     values = col.values

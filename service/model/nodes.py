@@ -16,8 +16,11 @@ class RawNodes:
     fields: dict  # extra field name -> IdColumn (values, where)
 
 
-def read_nodes(raw: object, *, extra_fields: tuple[str, ...] = (), base: str = "/nodes") -> RawNodes:
+def read_nodes(raw: object, *, extra_fields: tuple[str, ...] = (), base: str = "/nodes",
+               defaults: dict | None = None) -> RawNodes:
     """Read ``nodes`` given as a list of ids, a list of objects, or columns.
+
+    ``defaults``: the value of an extra field a node object leaves out (0 unless given).
 
     Raises
     ------
@@ -47,7 +50,7 @@ def read_nodes(raw: object, *, extra_fields: tuple[str, ...] = (), base: str = "
         i = next(i for i, v in enumerate(raw) if "id" not in v)
         raise InputError.at(f"{base}/{i}/id", "is required") from None
     extras = {
-        name: IdColumn([v.get(name, 0) for v in raw], _where(base, name, columns=False))
+        name: IdColumn([v.get(name, (defaults or {}).get(name, 0)) for v in raw], _where(base, name, columns=False))
         for name in extra_fields if name in present
     }
     return RawNodes(IdColumn(ids, lambda i: f"{base}/{i}/id"), extras)

@@ -77,6 +77,14 @@ class ArcSchema(Schema):
         allow_none=True,
         metadata={"description": "Client label, unique within the network; used to address the arc in changes."},
     )
+    expand_cost = fields.Float(allow_none=True, metadata={
+        "description": "Expansion only: cost per unit of capacity added to this lane; absent or null = the lane "
+                       "cannot be widened.", "minimum": 0})
+    expand_max = fields.Float(allow_none=True, metadata={
+        "description": "Expansion only: the most capacity that may be added; absent or null = no limit.",
+        "minimum": 0})
+    expand_fixed = fields.Float(metadata={
+        "description": "Expansion only: a one-off charge for widening this lane at all (default 0).", "minimum": 0})
 
 
 class ArcColumnsSchema(Schema):
@@ -88,6 +96,9 @@ class ArcColumnsSchema(Schema):
     cost = fields.List(fields.Float())
     lower = fields.List(fields.Float())
     key = fields.List(fields.String(allow_none=True))
+    expand_cost = fields.List(fields.Float(allow_none=True))
+    expand_max = fields.List(fields.Float(allow_none=True))
+    expand_fixed = fields.List(fields.Float())
 
 
 class OptionsSchema(Schema):
@@ -99,9 +110,11 @@ class OptionsSchema(Schema):
     engine = fields.String(
         load_default="auto",
         validate=validate.OneOf(["auto", "graph", "lp"]),
-        metadata={"description": "auto: exact graph solver when the data allows, else LP. graph: force the "
-                                 "OR-Tools graph solver (integers, or decimals with at most 6 places by exact "
-                                 "scaling). lp: force GLOP (fractional data, stated tolerance)."},
+        metadata={"description": "auto: the exact graph solver for integers and for decimals of at most 9 "
+                                 "places (as written; solved exactly by scaling), refusing with a 422 what it "
+                                 "cannot hold exactly; other fractions go to GLOP with a stated tolerance "
+                                 "(max-flow solves those exactly too, on their binary values). graph: the exact "
+                                 "solver only. lp: force GLOP (stated tolerance)."},
     )
     time_limit = StrictNumber(
         # A limit below 10 ms cannot cover even the dispatch to the solver process; with

@@ -35,7 +35,7 @@ from ..errors import FieldError, InputError, SelfCheckFailed, SolverFailure
 from . import mincost_checks as checks
 from .maxflow_graph import graph_engine
 from .mincost import min_cost_flow
-from .scaling import common_scale
+from .scaling import MAX_DECIMALS, common_scale, rescale
 
 #: From this size on a dense square matrix goes to SciPy's solver.
 SCIPY_FROM = 64
@@ -96,17 +96,75 @@ def solve_assignment(n_agents: int, n_tasks: int, rows: np.ndarray, cols: np.nda
     """
     need_agents, need_tasks = required_sides(n_agents, n_tasks, require)
     c = -cost if maximize else cost
-    if dense and need_agents and need_tasks and engine != "lp":
-        scaled = common_scale(c)
-        if scaled is not None:
-            d, (ints,) = scaled
-            answer = _square(n_agents, ints.reshape(n_agents, n_tasks), rows, cols)
-            if answer is not None:
-                return _finish(answer, rows, cols, cost, ints, 10**d, maximize, True, True)
-        elif engine == "graph":
-            raise InputError(FieldError("/costs", "costs with more than 6 decimal places cannot be solved exactly "
-                                                  "by the graph engine (use options.engine 'lp' or 'auto')"))
-    return _by_flow(n_agents, n_tasks, rows, cols, cost, c, maximize, need_agents, need_tasks, engine)
+    scaled = common_scale(c) if engine != "lp" else None
+    if scaled is None:
+        if engine == "graph":
+            raise InputError(FieldError("/costs", f"costs with more than {MAX_DECIMALS} decimal places cannot be "
+                                                  "solved exactly by the graph engine (use options.engine 'lp' "
+                                                  "or 'auto')"))
+        return _by_flow(n_agents, n_tasks, rows, cols, cost, c, None, maximize, need_agents, need_tasks, engine)
+    d, (ints,) = scaled
+    exact = _Exact(ints, 10**d, *_side_offsets(n_agents, n_tasks, rows, cols, ints, need_agents, need_tasks))
+    if dense and need_agents and need_tasks and n_agents == n_tasks:
+        answer = _square(n_agents, exact.reduced.reshape(n_agents, n_tasks), rows, cols)
+        if answer is not None:
+            return _finish(answer, rows, cols, cost, exact, maximize)
+    return _by_flow(n_agents, n_tasks, rows, cols, cost, exact.reduced, exact, maximize, need_agents, need_tasks,
+                    engine)
+
+
+@dataclass(frozen=True)
+class _Exact:
+    """Exact integer costs (``ints``, the caller's times ``factor``), and the same less a
+    constant per required agent (``agent_offset``) and task (``task_offset``): an
+    equivalent problem whose costs fit the solvers when the caller's are huge."""
+
+    ints: np.ndarray
+    factor: int
+    reduced: np.ndarray
+    agent_offset: np.ndarray | None
+    task_offset: np.ndarray | None
+
+    def duals(self, u: np.ndarray, v: np.ndarray):
+        """The reduced problem's duals as the original problem's (offsets added back)."""
+        if self.agent_offset is not None:
+            u = u.astype(object) + self.agent_offset
+        if self.task_offset is not None:
+            v = v.astype(object) + self.task_offset
+        return u, v
+
+
+def _side_offsets(k, t, rows, cols, ints, need_agents, need_tasks):
+    """Subtract each required agent's least cost, then each required task's, when the
+    costs are too large for the solvers' 64-bit arithmetic: every member of a required
+    side is assigned exactly once, so this shifts every assignment's cost by the same
+    constant (and the side's duals by its offsets)."""
+    if ints.dtype != object and (not ints.size or float(np.abs(ints).max()) * 4 * (max(k, t) + 2) ** 2 < 2.0**62):
+        return ints, None, None
+    reduced = ints
+    agent_offset = task_offset = None
+    if need_agents:
+        agent_offset = _least_per(rows, reduced, k)
+        reduced = reduced.astype(object) - agent_offset[rows]
+    if need_tasks:
+        task_offset = _least_per(cols, reduced, t)
+        reduced = reduced.astype(object) - task_offset[cols]
+    if reduced.dtype == object and max(abs(int(x)) for x in reduced.tolist()) < 2**62:
+        reduced = reduced.astype(np.int64)
+    return reduced, agent_offset, task_offset
+
+
+def _least_per(index: np.ndarray, values: np.ndarray, size: int) -> np.ndarray:
+    """Least value per index (0 where an index has none), as Python ints."""
+    if values.dtype != object:
+        least = np.full(size, np.iinfo(np.int64).max, dtype=np.int64)
+        np.minimum.at(least, index, values)
+        return np.where(least == np.iinfo(np.int64).max, 0, least).astype(object)
+    found: list = [None] * size
+    for i, v in zip(index.tolist(), values.tolist()):  # Python ints beyond int64: the rare exact path
+        if found[i] is None or v < found[i]:
+            found[i] = v
+    return np.array([0 if v is None else v for v in found], dtype=object)
 
 
 def _square(n: int, matrix: np.ndarray, left: np.ndarray, right: np.ndarray):
@@ -166,20 +224,22 @@ def _square_duals(matrix: np.ndarray, mate: np.ndarray):
     return u, v
 
 
-def _finish(answer, rows, cols, cost, ints, factor, maximize, need_agents, need_tasks):
+def _finish(answer, rows, cols, cost, exact: _Exact, maximize):
     mate, u, v, engine = answer
     n = mate.size
     chosen = np.arange(n, dtype=np.int64) * n + mate  # row-major position of (i, mate[i])
-    certificate = checks.check_assignment(n, n, rows, cols, ints, chosen, u, v, need_agents, need_tasks)
-    return _solution(engine, rows, cols, cost, chosen, u, v, certificate, factor, maximize, 0.0)
+    u, v = exact.duals(u, v)
+    certificate = checks.check_assignment(n, n, rows, cols, exact.ints, chosen, u, v, True, True)
+    return _solution(engine, rows, cols, cost, chosen, u, v, certificate, exact.factor, maximize, 0.0)
 
 
 def _solution(engine, rows, cols, cost, chosen, u, v, certificate, factor, maximize, tolerance):
     sign = -1 if maximize else 1
-    if factor != 1:
-        u, v = u / factor, v / factor
+    if u.dtype.kind != "f":  # exact integers: back in the caller's units, rounded once
+        u, v = rescale(u, 1, factor), rescale(v, 1, factor)
         for name in ("primal_cost", "dual_bound", "gap"):
-            certificate[name] = certificate[name] / factor
+            certificate[name] = rescale(certificate[name], 1, factor)
+    if factor != 1:
         certificate["decimal_scale"] = factor
         engine = dict(engine, decimal_scale=factor)
     total = sign * certificate["primal_cost"]
@@ -190,11 +250,15 @@ def _solution(engine, rows, cols, cost, chosen, u, v, certificate, factor, maxim
                               cost=cost[chosen], u=sign * u, v=sign * v, tolerance=tolerance), certificate
 
 
-def _by_flow(n_agents, n_tasks, rows, cols, cost, c, maximize, need_agents, need_tasks, engine):
-    """Any assignment as a min-cost flow; unassignable required sides give a Hall set."""
-    if (need_agents and n_agents > n_tasks) or (need_tasks and n_tasks > n_agents) or not _coverable(
-            n_agents, n_tasks, rows, cols, need_agents, need_tasks):
-        return _hall(n_agents, n_tasks, rows, cols, need_agents)
+def _by_flow(n_agents, n_tasks, rows, cols, cost, c, exact, maximize, need_agents, need_tasks, engine):
+    """Any assignment as a min-cost flow; unassignable required sides give a Hall set.
+
+    ``c`` is the (reduced) exact integer cost with ``exact`` describing it, or the
+    caller's floats with ``exact`` None (the LP engine's).
+    """
+    short = _short_side(n_agents, n_tasks, rows, cols, need_agents, need_tasks)
+    if short is not None:
+        return _hall(n_agents, n_tasks, rows, cols, short == "agents")
     k, t, m = n_agents, n_tasks, rows.size
     tasks0 = k
     extra = k + t
@@ -212,17 +276,14 @@ def _by_flow(n_agents, n_tasks, rows, cols, cost, c, maximize, need_agents, need
         tail.append(np.full(k, extra, dtype=np.int32))
         head.append(np.arange(k, dtype=np.int32))
     tail, head = np.concatenate(tail), np.concatenate(head)
-    # Scale decimals here, so that the duality check below is exact on integers.
-    scaled = common_scale(c) if engine != "lp" else None
-    factor = 1
-    if scaled is not None:
-        d, (c,) = scaled
-        factor = 10**d
     side_arcs = tail.size - m
     capacity = np.concatenate([np.zeros(m, dtype=np.int64), np.ones(side_arcs, dtype=np.int64)])
     unlimited = np.concatenate([np.ones(m, dtype=bool), np.zeros(side_arcs, dtype=bool)])
     flow_cost = np.concatenate([c, np.zeros(side_arcs, dtype=c.dtype)])
-    flow, _ = min_cost_flow(k + t + 1, tail, head, capacity, unlimited, flow_cost, None, supply, engine=engine)
+    try:
+        flow, _ = min_cost_flow(k + t + 1, tail, head, capacity, unlimited, flow_cost, None, supply, engine=engine)
+    except InputError as exc:
+        raise _refused(exc, m) from None
     if flow.status != "optimal":
         raise SolverFailure(f"the assignment's min-cost flow is {flow.status} although the side can be covered")
     p = flow.potentials
@@ -235,17 +296,44 @@ def _by_flow(n_agents, n_tasks, rows, cols, cost, c, maximize, need_agents, need
         u, v = np.minimum(px - pa, 0), pt - px
     chosen = np.flatnonzero(flow.flows[:m] > 0.5)
     tol = flow.tolerance * max(1, k + t)
-    certificate = checks.check_assignment(k, t, rows, cols, c, chosen, u, v, need_agents, need_tasks, tol)
-    return _solution(flow.engine, rows, cols, cost, chosen, u, v, certificate, factor, maximize, tol)
+    if exact is None:
+        certificate = checks.check_assignment(k, t, rows, cols, c, chosen, u, v, need_agents, need_tasks, tol)
+        return _solution(flow.engine, rows, cols, cost, chosen, u, v, certificate, 1, maximize, tol)
+    # The flow's potentials are exact integers of the reduced costs: check on the caller's.
+    u, v = exact.duals(_integers(u), _integers(v))
+    certificate = checks.check_assignment(k, t, rows, cols, exact.ints, chosen, u, v, need_agents, need_tasks)
+    engine = {name: value for name, value in flow.engine.items() if name not in ("decimal_scale", "cost_scale")}
+    return _solution(engine, rows, cols, cost, chosen, u, v, certificate, exact.factor, maximize, 0.0)
 
 
-def _coverable(k, t, rows, cols, need_agents, need_tasks) -> bool:
-    """Cheap necessary condition: every required member has at least one allowed pair."""
-    if need_agents and np.unique(rows).size < k:
-        return False
-    if need_tasks and np.unique(cols).size < t:
-        return False
-    return _matching_size(k, t, rows, cols, need_agents)[0] == (k if need_agents else t)
+def _integers(values: np.ndarray) -> np.ndarray:
+    """Exact potentials as integers again (the min-cost front reports integral ones as int64)."""
+    return values if values.dtype.kind in "iO" else values.astype(np.int64)
+
+
+def _refused(exc: InputError, pairs: int) -> InputError:
+    """A min-cost refusal in the assignment's terms: the costs, and which pair."""
+    culprit = getattr(exc, "culprit", None)
+    detail = exc.errors[0].detail
+    if culprit is not None and culprit[0] == "cost" and culprit[1] is not None and culprit[1] < pairs:
+        detail = detail.replace(f"arc {culprit[1]}'s cost", f"the cost of pair {culprit[1]}")
+    error = InputError(FieldError("/costs", detail))
+    error.culprit = culprit
+    return error
+
+
+def _short_side(k, t, rows, cols, need_agents, need_tasks) -> str | None:
+    """The required side that cannot be fully assigned ("agents" or "tasks"), or None."""
+    if need_agents and (k > t or np.unique(rows).size < k):
+        return "agents"
+    if need_tasks and (t > k or np.unique(cols).size < t):
+        return "tasks"
+    size = _matching_size(k, t, rows, cols, True)[0]
+    if need_agents and size < k:
+        return "agents"
+    if need_tasks and size < t:
+        return "tasks"
+    return None
 
 
 def _matching_size(k, t, rows, cols, by_agents):

@@ -1,4 +1,4 @@
-"""Engine choice and certification for every problem kind."""
+"""Engine choice and certification for max-flow."""
 
 from __future__ import annotations
 
@@ -6,19 +6,13 @@ from typing import Literal
 
 import numpy as np
 
-from ..errors import FieldError, InputError
 from . import certificates
 from .maxflow_graph import CapacityOverflow, MaxFlowSolution, check_capacity_sums, max_flow_graph
-from .maxflow_lp import max_flow_lp
-from .scaling import common_scale
+from .maxflow_lp import LP_TOLERANCE, max_flow_lp
+from .maxflow_wide import max_flow_wide
+from .scaling import binary_scale, common_scale, is_object, rescale
 
 EngineChoice = Literal["auto", "graph", "lp"]
-
-
-def _graph_refused(reason: str, pointer: str = "/arcs") -> InputError:
-    return InputError(
-        FieldError(pointer, f"{reason}; the graph engine cannot solve it exactly (use options.engine 'lp' or 'auto')"),
-    )
 
 
 def maximum_flow(
@@ -35,9 +29,12 @@ def maximum_flow(
 ) -> tuple[MaxFlowSolution, dict]:
     """Solve and certify a max-flow problem.
 
-    Engine choice: ``graph`` solves integers exactly and decimals with at most six
-    places by exact scaling; ``lp`` uses GLOP; ``auto`` takes the graph engine
-    whenever it can answer exactly and the LP engine otherwise.
+    Engine choice: ``auto`` and ``graph`` answer exactly whatever the numbers:
+    integers as they are, decimals (at most ``MAX_DECIMALS`` places as written) scaled
+    by ``10**d``, any other float64 by its exact binary value scaled by ``2**e``; on
+    OR-Tools in int64 when every sum fits, by wide-integer phases
+    (:mod:`service.solvers.maxflow_wide`) otherwise. ``lp`` uses GLOP, certified to
+    a tolerance relative to each arc's and node's own magnitude.
 
     Returns
     -------
@@ -46,58 +43,86 @@ def maximum_flow(
     Raises
     ------
     InputError
-        ``engine="graph"`` on data it cannot solve exactly.
+        ``engine="lp"`` on capacities whose range GLOP cannot certify.
     SelfCheckFailed
         When the answer fails its certificate (a bug).
     """
-    if engine != "lp":
-        answer = _graph_route(num_nodes, tail, head, capacity, unlimited, source, sink, forced=engine == "graph")
-        if answer is not None:
-            return answer
-    solution = max_flow_lp(num_nodes, tail, head, capacity, unlimited, source, sink, time_limit=time_limit)
-    return solution, certify_max_flow(solution, num_nodes, tail, head, capacity, unlimited, source, sink)
+    if engine == "lp":
+        solution = max_flow_lp(num_nodes, tail, head, capacity, unlimited, source, sink, time_limit=time_limit)
+        return solution, certify_max_flow(solution, num_nodes, tail, head, capacity, unlimited, source, sink)
+    return _exact_route(num_nodes, tail, head, capacity, unlimited, source, sink)
 
 
-def _graph_route(num_nodes, tail, head, capacity, unlimited, source, sink, *, forced: bool):
-    """Solve on integers (scaled from decimals when needed) and certify exactly."""
-    scaled = common_scale(capacity)
-    if scaled is None:
-        if forced:
-            raise _graph_refused("capacities have more than 6 decimal places or are too large once scaled")
-        return None
-    d, (int_capacity,) = scaled
-    try:
-        check_capacity_sums(int_capacity, unlimited)
-    except CapacityOverflow as exc:
-        if forced:
-            raise _graph_refused(str(exc)) from None
-        return None
-    solution = max_flow_graph(num_nodes, tail, head, int_capacity, unlimited, source, sink)
-    certificate = certify_max_flow(solution, num_nodes, tail, head, int_capacity, unlimited, source, sink)
-    if d:
-        _unscale(solution, certificate, 10**d)
+def exact_capacities(capacity: np.ndarray) -> tuple[np.ndarray, int, dict]:
+    """Capacities as exact integers, the denominator that gives them back, and how
+    they were scaled (for the certificate): decimals by ``10**d``, other fractions by
+    their binary exponent."""
+    decimal = common_scale(capacity)
+    if decimal is not None:
+        d, (ints,) = decimal
+        return ints, 10**d, ({"decimal_scale": 10**d} if d else {})
+    e, ints = binary_scale(capacity)
+    return ints, 2**e, {"binary_exponent": e}
+
+
+def _exact_route(num_nodes, tail, head, capacity, unlimited, source, sink):
+    solution, certificate, _, denominator, scaled = exact_max_flow(num_nodes, tail, head, capacity, unlimited,
+                                                                   source, sink)
+    _report(solution, certificate, denominator, scaled)
     return solution, certificate
 
 
-def _unscale(solution: MaxFlowSolution, certificate: dict, factor: int) -> None:
-    """Divide an exact integer answer by the decimal scale (one rounding per number)."""
-    solution.flows = solution.flows / factor
+def exact_max_flow(num_nodes, tail, head, capacity, unlimited, source, sink):
+    """Solve on exact integers and certify exactly (Python ints where int64 overflows).
+
+    Returns
+    -------
+    (solution, certificate, ints, denominator, scaled)
+        The answer and its certificate in the integers ``ints`` (the capacities times
+        ``denominator``), before any rounding; ``scaled`` names the scaling.
+    """
+    ints, denominator, scaled = exact_capacities(capacity)
+    if _fits_int64(ints, unlimited):
+        solution = max_flow_graph(num_nodes, tail, head, ints, unlimited, source, sink)
+    else:
+        ints = ints.astype(object)  # the certificate's sums in Python integers too
+        solution = max_flow_wide(num_nodes, tail, head, ints, unlimited, source, sink)
+    certificate = certify_max_flow(solution, num_nodes, tail, head, ints, unlimited, source, sink)
+    return solution, certificate, ints, denominator, scaled
+
+
+def _fits_int64(ints: np.ndarray, unlimited) -> bool:
+    if is_object(ints):
+        return False
+    try:
+        check_capacity_sums(ints, unlimited)
+    except CapacityOverflow:
+        return False
+    return True
+
+
+def _report(solution: MaxFlowSolution, certificate: dict, denominator: int, scaled: dict) -> None:
+    """The exact integer answer in the caller's units: divided by the scale (one
+    rounding per number), integers kept exact wherever JSON integers hold them."""
+    solution.flows = rescale(solution.flows, 1, denominator)
     if solution.value is not None:
-        solution.value = solution.value / factor
-    solution.engine = dict(solution.engine, decimal_scale=factor)
+        solution.value = rescale(solution.value, 1, denominator)
     for name in ("flow_value", "cut_capacity"):
         if name in certificate:
-            certificate[name] = certificate[name] / factor
-    certificate["decimal_scale"] = factor
+            certificate[name] = rescale(certificate[name], 1, denominator)
+    certificate.update(scaled)
+    solution.engine = dict(solution.engine, **scaled)
 
 
 def certify_max_flow(solution: MaxFlowSolution, num_nodes, tail, head, capacity, unlimited, source, sink) -> dict:
     if solution.status == "unbounded":
         certificates.check_path(tail, head, unlimited, source, sink, solution.unbounded_path)
         return {"checked": True, "unbounded_path_arcs": int(solution.unbounded_path.size)}
-    if solution.tolerance:
+    relative = 0.0
+    if solution.engine.get("kind") == "lp":
         capacity = capacity.astype(np.float64)  # LP answers: compare in floating point, never wrap int64
+        relative = LP_TOLERANCE
     return certificates.check_max_flow(
         num_nodes, tail, head, capacity, unlimited, source, sink,
-        solution.flows, solution.value, solution.source_side, solution.tolerance,
+        solution.flows, solution.value, solution.source_side, relative,
     )

@@ -42,7 +42,8 @@ def graph_engine(solver: str, **extra) -> dict:
     return {"kind": "graph", "solver": f"OR-Tools {solver}", "version": ORTOOLS_VERSION, **extra}
 
 
-def _solve(num_nodes, tail, head, capacity, source, sink):
+def run_max_flow(num_nodes, tail, head, capacity, source, sink):
+    """One OR-Tools max-flow solve on int64 capacities: ``(solver, arc handles)``."""
     solver = ortools_max_flow.SimpleMaxFlow()
     if num_nodes:
         # Make sure every node exists even when no arc touches it.
@@ -60,7 +61,7 @@ def unlimited_path(num_nodes, tail, head, unlimited, source, sink) -> np.ndarray
         return None
     # One unit of capacity per unlimited arc: flow > 0 iff such a path exists.
     probe = unlimited.astype(np.int64)
-    solver, arcs = _solve(num_nodes, tail, head, probe, source, sink)
+    solver, arcs = run_max_flow(num_nodes, tail, head, probe, source, sink)
     if solver.optimal_flow() == 0:
         return None
     used = np.flatnonzero(solver.flows(arcs) > 0)
@@ -151,7 +152,7 @@ def max_flow_graph(num_nodes, tail, head, capacity, unlimited, source, sink) -> 
                                graph_engine("SimpleMaxFlow"), unbounded_path=path)
     big = check_capacity_sums(capacity, unlimited)
     cap = capacity if unlimited is None or not unlimited.any() else np.where(unlimited, big, capacity)
-    solver, arcs = _solve(num_nodes, tail, head, cap.astype(np.int64, copy=False), source, sink)
+    solver, arcs = run_max_flow(num_nodes, tail, head, cap.astype(np.int64, copy=False), source, sink)
     flows = np.asarray(solver.flows(arcs), dtype=np.int64)
     source_side = np.zeros(num_nodes, dtype=bool)
     source_side[np.asarray(solver.get_source_side_min_cut(), dtype=np.int64)] = True

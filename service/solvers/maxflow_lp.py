@@ -1,18 +1,21 @@
-"""Maximum flow as a linear program on GLOP, for fractional data.
+"""Maximum flow as a linear program on GLOP (``options.engine = "lp"``).
 
-Answers hold to ``LP_TOLERANCE`` (relative to the largest capacity), which the
-certificate states.
+Answers hold to ``LP_TOLERANCE`` relative to each figure's own magnitude (an arc's
+capacity, a node's throughput), which the certificate states. The default engine
+answers every max-flow problem exactly (:mod:`service.solvers.front`); this one is
+there for callers who ask for it.
 """
 
 from __future__ import annotations
 
 import numpy as np
 import scipy.sparse as sp
-from scipy.sparse.csgraph import breadth_first_order
 
+from ..errors import FieldError, InputError, SelfCheckFailed, SolverFailure, SolveTimeout
+from . import certificates
 from .lp import incidence_matrix, solve_lp
 from .maxflow_graph import MaxFlowSolution, graph_engine, unlimited_path
-from ..errors import SolverFailure, SolveTimeout
+from .potentials import residual_reach
 
 LP_TOLERANCE = 1e-6
 
@@ -42,8 +45,6 @@ def max_flow_lp(num_nodes, tail, head, capacity, unlimited, source, sink, *, tim
     zeros = np.zeros(num_nodes)
     c = np.zeros(m + 1)
     c[m] = 1.0
-    # Answers hold to LP_TOLERANCE relative to the largest capacity, as stated.
-    tol = LP_TOLERANCE * max(1.0, float(cap.max()) if m else 1.0)
     failure = "no optimal answer"
     for scale in _scales(cap):
         try:
@@ -59,16 +60,29 @@ def max_flow_lp(num_nodes, tail, head, capacity, unlimited, source, sink, *, tim
             continue
         flows = np.clip(lp.x[:m] * scale, 0.0, upper)
         value = float(lp.x[m]) * scale
-        source_side = residual_reachable(num_nodes, tail, head, flows, upper, source, tol)
-        crossing = source_side[tail] & ~source_side[head]
+        # Open residual arcs: further than LP_TOLERANCE of their own capacity from a bound.
+        slack = LP_TOLERANCE * np.where(np.isfinite(upper), upper, abs(value))
+        source_side = residual_reach(num_nodes, tail, head, flows, upper, None, source, slack)
+        solution = MaxFlowSolution("optimal", value, flows, source_side, dict(lp.engine, tolerance=LP_TOLERANCE),
+                                   tolerance=LP_TOLERANCE)
         # GLOP's tolerances are absolute, so a scaling can lose small capacities or
-        # strain large ones: an answer whose residual cut does not match its value is
-        # not taken (the service's certificate checks the one taken in full).
-        if abs(float(upper[crossing].sum()) - value) <= tol * max(1, int(crossing.sum())):
-            engine = dict(lp.engine, tolerance=tol)
-            return MaxFlowSolution("optimal", value, flows, source_side, engine, tolerance=tol)
-        failure = f"the flow's value {value:g} and its residual cut differ (scaling {scale:g})"
-    raise SolverFailure(f"GLOP found no certified maximum flow at any scaling of the capacities: {failure}")
+        # strain large ones: only an answer that passes the certificate is taken.
+        try:
+            certificates.check_max_flow(num_nodes, tail, head, cap, unlimited, source, sink, flows, value,
+                                        source_side, LP_TOLERANCE)
+        except SelfCheckFailed as exc:
+            failure = f"{exc.detail} (scaling {scale:g})"
+            continue
+        return solution
+    low, high = _range(cap)
+    raise InputError(FieldError("/arcs", f"the LP engine found no maximum flow it could certify to a relative "
+                                         f"tolerance of {LP_TOLERANCE:g} for capacities from {low:g} to "
+                                         f"{high:g} ({failure}); options.engine 'auto' solves it exactly"))
+
+
+def _range(cap: np.ndarray) -> tuple[float, float]:
+    positive = cap[cap > 0]
+    return (float(positive.min()), float(positive.max())) if positive.size else (0.0, 0.0)
 
 
 def _scales(cap: np.ndarray) -> list[float]:
@@ -83,16 +97,3 @@ def _scales(cap: np.ndarray) -> list[float]:
     low, high = float(positive.min()), float(positive.max())
     scales = [max(1.0, float(np.sqrt(low) * np.sqrt(high))), max(1.0, high), 1.0]
     return list(dict.fromkeys(scales))
-
-
-def residual_reachable(num_nodes, tail, head, flows, upper, source, tol) -> np.ndarray:
-    """Nodes reachable from ``source`` in the residual network (boolean mask)."""
-    forward = flows < upper - tol
-    backward = flows > tol
-    rows = np.concatenate([tail[forward], head[backward]])
-    cols = np.concatenate([head[forward], tail[backward]])
-    graph = sp.csr_matrix((np.ones(rows.size), (rows, cols)), shape=(num_nodes, num_nodes))
-    reached = breadth_first_order(graph, source, directed=True, return_predecessors=False)
-    mask = np.zeros(num_nodes, dtype=bool)
-    mask[reached] = True
-    return mask

@@ -3,8 +3,12 @@
 Each checker recomputes its figures from the problem data and the answer alone
 (independently of the solver and of :mod:`service.solvers.potentials`) and raises
 :class:`~service.errors.SelfCheckFailed` when a condition fails. Integer data are
-compared exactly (int64, or Python integers where int64 could overflow); fractional
-data to the stated tolerance.
+compared exactly (int64, or Python integers where int64 could overflow). Answers of
+the LP engine hold to a relative tolerance, each figure against its own magnitude (an
+arc against its bounds, a node against its throughput and supply, a reduced cost
+against the cost and potentials it is made of, the gap against the terms of the two
+objectives); the certificate states it. Proofs (infeasible sets, negative cycles)
+are checked exactly on any data: floats by their correctly rounded exact sums.
 
 The optimality proof is LP duality. For ``min c.x`` subject to ``out(x) - in(x) =
 supply`` and ``lower <= x <= capacity``, any potentials ``p`` give the lower bound
@@ -18,10 +22,12 @@ optimal (weak duality); equality holds exactly when complementary slackness does
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
 
 from ..errors import SelfCheckFailed
-from .certificates import capacity_excess, node_balance
+from .certificates import arc_magnitude, beyond, capacity_excess, node_balance, throughput
 
 #: Above this magnitude int64 dot products switch to exact Python integers.
 _INT_SAFE = 2.0**62
@@ -41,9 +47,28 @@ def exact_dot(a: np.ndarray, b: np.ndarray):
         return float(a.astype(np.float64) @ b.astype(np.float64))
     if not a.size:
         return 0
-    if float(np.abs(a).max()) * float(np.abs(b).max()) * a.size < _INT_SAFE:
+    if a.dtype != object and b.dtype != object and \
+            float(np.abs(a).max()) * float(np.abs(b).max()) * a.size < _INT_SAFE:
         return int(a.astype(np.int64) @ b.astype(np.int64))
     return sum(x * y for x, y in zip(a.tolist(), b.tolist()))
+
+
+def exact_sum(a: np.ndarray):
+    """The sum of ``a``: exact for integers (Python ints past int64), correctly rounded for floats."""
+    if a.dtype.kind == "f":
+        return math.fsum(a.tolist())
+    if a.dtype != object and (not a.size or float(np.abs(a).max()) * a.size < _INT_SAFE):
+        return int(a.sum())
+    return sum(int(x) for x in a.tolist())
+
+
+def _exceeds(plus: list, minus: list) -> bool:
+    """Whether ``sum(plus) > sum(minus)``, decided exactly (the sign of a correctly
+    rounded float sum is exact; integer sums are exact)."""
+    arrays = list(plus) + [-a for a in minus]
+    if any(a.dtype.kind == "f" for a in arrays):
+        return math.fsum(np.concatenate([a.astype(np.float64) for a in arrays]).tolist()) > 0
+    return sum(exact_sum(a) for a in arrays) > 0
 
 
 def reduced_costs(cost: np.ndarray, potentials: np.ndarray, tail: np.ndarray, head: np.ndarray) -> np.ndarray:
@@ -52,7 +77,7 @@ def reduced_costs(cost: np.ndarray, potentials: np.ndarray, tail: np.ndarray, he
 
 
 def check_min_cost_flow(num_nodes, tail, head, capacity, unlimited, lower, cost, supply, flows, potentials,
-                        tolerance: float = 0.0) -> dict:
+                        relative: float = 0.0) -> dict:
     """Certify a min-cost flow: feasibility, reduced-cost optimality, zero duality gap.
 
     Parameters
@@ -65,14 +90,17 @@ def check_min_cost_flow(num_nodes, tail, head, capacity, unlimited, lower, cost,
         Required outflow minus inflow per node.
     flows, potentials : ndarray
         The answer: flows in the caller's terms, one potential per node.
-    tolerance : float
-        0 for integer data.
+    relative : float
+        0 for exact data (every comparison exact); for LP answers, the tolerance
+        relative to each figure's own magnitude (see the module doc).
 
     Returns
     -------
     dict
         ``checked``, ``primal_cost``, ``dual_bound``, ``gap``, ``max_imbalance``,
-        ``max_capacity_excess``, ``slackness_violations``, ``tolerance``.
+        ``max_capacity_excess``, ``slackness_violations``, ``tolerance`` (the largest
+        absolute allowance used; 0 for exact data) and, when ``relative`` is not 0,
+        ``relative_tolerance``.
 
     Raises
     ------
@@ -82,19 +110,28 @@ def check_min_cost_flow(num_nodes, tail, head, capacity, unlimited, lower, cost,
     """
     low = np.zeros_like(flows) if lower is None else lower
     excess = capacity_excess(flows, capacity, unlimited, low)
+    arcs = relative * arc_magnitude(capacity, unlimited, flows, lower) if relative else 0
+    bad = beyond(excess, arcs, relative)
+    if bad.any():
+        _fail(f"an arc carries flow outside [lower, capacity] by {_num(excess[bad].max())}")
     max_excess = _num(excess.max()) if excess.size else 0
-    if max_excess > tolerance:
-        _fail(f"an arc carries flow outside [lower, capacity] by {max_excess}")
     imbalance = -node_balance(num_nodes, tail, head, flows) - supply
-    max_imbalance = _num(np.abs(imbalance).max()) if imbalance.size else 0
-    if max_imbalance > tolerance:
-        _fail(f"flow is not conserved at a node (off by {max_imbalance})")
+    nodes = relative * (throughput(num_nodes, tail, head, flows) + np.abs(supply.astype(np.float64))) \
+        if relative else np.zeros(num_nodes)
+    off = beyond(abs(imbalance), nodes, relative)
+    if off.any():
+        _fail(f"flow is not conserved at a node (off by {_num(abs(imbalance[off]).max())})")
+    max_imbalance = _num(abs(imbalance).max()) if imbalance.size else 0
     rc = reduced_costs(cost, potentials, tail, head)
     limited = np.ones(flows.size, dtype=bool) if unlimited is None else ~unlimited
     # Complementary slackness: positive rc -> at the lower bound; negative -> at capacity.
-    above = flows > low + tolerance
-    below = (flows < capacity - tolerance) | ~limited
-    bad = ((rc > tolerance) & above) | ((rc < -tolerance) & below)
+    above = flows > low + arcs
+    below = (flows < capacity - arcs) | ~limited
+    prices = 0
+    if relative:
+        p = np.abs(potentials.astype(np.float64))
+        prices = relative * (np.abs(cost.astype(np.float64)) + p[tail] + p[head])
+    bad = ((rc > prices) & above) | ((rc < -prices) & below)
     violations = int(bad.sum())
     if violations:
         i = int(np.flatnonzero(bad)[0])
@@ -102,9 +139,11 @@ def check_min_cost_flow(num_nodes, tail, head, capacity, unlimited, lower, cost,
     primal = exact_dot(cost, flows)
     dual = _dual_bound(supply, potentials, rc, low, capacity, limited)
     gap = primal - dual
-    if abs(gap) > tolerance * max(1.0, abs(float(primal))):
+    gap_allowed = relative * _objective_terms(cost, flows, supply, potentials, rc, low, capacity, limited) \
+        if relative else 0.0
+    if beyond(abs(gap), gap_allowed, relative):
         _fail(f"flow cost {primal} differs from the dual bound {dual}")
-    return {
+    certificate = {
         "checked": True,
         "primal_cost": primal,
         "dual_bound": dual,
@@ -112,8 +151,20 @@ def check_min_cost_flow(num_nodes, tail, head, capacity, unlimited, lower, cost,
         "max_imbalance": max_imbalance,
         "max_capacity_excess": max_excess,
         "slackness_violations": violations,
-        "tolerance": tolerance,
+        "tolerance": max(float(np.max(arcs, initial=0.0)), float(nodes.max(initial=0.0)), gap_allowed),
     }
+    if relative:
+        certificate["relative_tolerance"] = relative
+    return certificate
+
+
+def _objective_terms(cost, flows, supply, potentials, rc, low, capacity, limited) -> float:
+    """The magnitude of the terms of both objectives: what their gap is measured against."""
+    f = np.float64
+    pos = np.maximum(rc, 0).astype(f)
+    neg = np.where(limited, np.maximum(-rc, 0), 0).astype(f)
+    return float(np.abs(cost.astype(f)) @ np.abs(flows.astype(f)) + np.abs(supply.astype(f)) @ np.abs(
+        potentials.astype(f)) + np.abs(low.astype(f)) @ pos + np.abs(np.where(limited, capacity, 0).astype(f)) @ neg)
 
 
 def _dual_bound(supply, potentials, rc, low, capacity, limited):
@@ -123,7 +174,7 @@ def _dual_bound(supply, potentials, rc, low, capacity, limited):
 
 
 def check_infeasible_set(tail, head, capacity, unlimited, lower, supply, members, optional: bool = False,
-                         demand_room=None, tolerance: float = 0.0) -> dict:
+                         demand_room=None) -> dict:
     """Certify that no flow can move the supply out of a node set.
 
     Every flow must move ``net_supply`` out of the set ``members``: its supply plus the
@@ -131,6 +182,7 @@ def check_infeasible_set(tail, head, capacity, unlimited, lower, supply, members
     unshipped and only the lower bounds count; ``demand_room`` then adds the demand
     the set may absorb to what can leave). The arcs leaving the set cannot carry more
     than their capacities, so ``net_supply > outgoing_capacity`` proves infeasibility.
+    The comparison is exact on any data (integers, or floats by their exact sums).
 
     Returns
     -------
@@ -146,18 +198,21 @@ def check_infeasible_set(tail, head, capacity, unlimited, lower, supply, members
     entering = ~members[tail] & members[head]
     if unlimited is not None and (leaving & unlimited).any():
         _fail("the infeasibility proof set has an arc without a capacity limit leaving it")
-    forced_in = 0 if lower is None else _num(lower[entering].sum())
-    net = forced_in if optional else _num(supply[members].sum()) + forced_in
-    out_cap = _num(capacity[leaving].sum())
+    must = [] if lower is None else [lower[entering]]
+    if not optional:
+        must.append(supply[members])
+    can = [capacity[leaving]]
     if demand_room is not None:
-        out_cap = out_cap + _num(demand_room[members].sum())
-    if not net > out_cap + tolerance:
+        can.append(demand_room[members])
+    net = sum(exact_sum(a) for a in must) if must else 0
+    out_cap = sum(exact_sum(a) for a in can)
+    if not must or not _exceeds(must, can):
         _fail(f"the infeasibility proof set has net supply {net}, not more than the {out_cap} that can leave")
     return {"net_supply": net, "outgoing_capacity": out_cap, "arcs": np.flatnonzero(leaving)}
 
 
-def check_negative_cycle(tail, head, unlimited, cost, cycle: np.ndarray, tolerance: float = 0.0):
-    """Certify a cycle of arcs without capacity limits whose cost is negative.
+def check_negative_cycle(tail, head, unlimited, cost, cycle: np.ndarray):
+    """Certify a cycle of arcs without capacity limits whose cost is negative (exactly).
 
     Returns
     -------
@@ -169,19 +224,21 @@ def check_negative_cycle(tail, head, unlimited, cost, cycle: np.ndarray, toleran
         _fail("the negative cycle is not a closed walk")
     if unlimited is None or not unlimited[cycle].all():
         _fail("the negative cycle uses an arc with a capacity limit")
-    total = _num(cost[cycle].sum())
-    if not total < -tolerance:
+    total = exact_sum(cost[cycle])
+    if not total < 0:
         _fail(f"the cycle's cost {total} is not negative")
     return total
 
 
 def check_shipped_cut(tail, head, capacity, unlimited, lower, members, source: int, sink: int, shipped,
-                      tolerance: float = 0.0):
+                      relative: float = 0.0, through=None):
     """Certify that ``shipped`` is the most that can move from ``source`` to ``sink``.
 
     For a node set containing the source but not the sink, no flow ships more than
     the capacity of the arcs leaving it minus the lower bounds of the arcs entering
-    it. Equality proves the amount maximum.
+    it. Equality proves the amount maximum: exactly, or for LP answers within
+    ``relative`` times the bounds of the arcs crossing the cut either way plus the
+    throughput (``through``, per node) of the set's nodes.
 
     Returns
     -------
@@ -193,8 +250,12 @@ def check_shipped_cut(tail, head, capacity, unlimited, lower, members, source: i
     entering = ~members[tail] & members[head]
     if unlimited is not None and (leaving & unlimited).any():
         _fail("the shipping cut has an arc without a capacity limit")
-    bound = _num(capacity[leaving].sum()) - (0 if lower is None else _num(lower[entering].sum()))
-    if abs(bound - shipped) > tolerance * max(1, int(leaving.sum())):
+    bound = exact_sum(capacity[leaving]) - (0 if lower is None else exact_sum(lower[entering]))
+    allowed = 0.0
+    if relative:
+        sizes = arc_magnitude(capacity, unlimited, np.zeros(capacity.size), lower)
+        allowed = relative * (float(sizes[leaving | entering].sum()) + float(through[members].sum()))
+    if beyond(abs(bound - shipped), allowed, relative):
         _fail(f"shipped {shipped} differs from the cut bound {bound}")
     return bound
 
@@ -259,12 +320,16 @@ def check_hall_violation(rows, cols, members: np.ndarray, partners: np.ndarray, 
 
 
 def check_feasible_flow(num_nodes, tail, head, capacity, unlimited, lower, supply, flows,
-                        tolerance: float = 0.0) -> dict:
-    """Certify that a flow respects every bound and conserves flow (supply = outflow - inflow)."""
+                        relative: float = 0.0) -> dict:
+    """Certify that a flow respects every bound and conserves flow (supply = outflow - inflow),
+    exactly, or within ``relative`` of each arc's bounds and each node's throughput and supply."""
     excess = capacity_excess(flows, capacity, unlimited, lower)
-    max_excess = _num(excess.max()) if excess.size else 0
     imbalance = -node_balance(num_nodes, tail, head, flows) - supply
-    max_imbalance = _num(np.abs(imbalance).max()) if imbalance.size else 0
-    if max_excess > tolerance or max_imbalance > tolerance:
+    arcs = relative * arc_magnitude(capacity, unlimited, flows, lower) if relative else 0
+    nodes = relative * (throughput(num_nodes, tail, head, flows) + np.abs(supply.astype(np.float64))) \
+        if relative else 0
+    max_excess = _num(excess.max()) if excess.size else 0
+    max_imbalance = _num(abs(imbalance).max()) if imbalance.size else 0
+    if beyond(excess, arcs, relative).any() or beyond(abs(imbalance), nodes, relative).any():
         _fail(f"the feasible flow is not feasible (excess {max_excess}, imbalance {max_imbalance})")
     return {"max_imbalance": max_imbalance, "max_capacity_excess": max_excess}

@@ -37,6 +37,7 @@ from .front import maximum_flow
 from .lp import (
     LPModel,
     LPResult,
+    beyond_range,
     deadline_after,
     incidence_matrix,
     lp_engine,
@@ -184,9 +185,18 @@ def multicommodity_flow(net: Network, com: Commodities, *, objective: str = "min
 
     Raises
     ------
-    SelfCheckFailed
-        When an answer fails its certificate (a bug).
+    InputError
+        When GLOP cannot solve or certify the data (their magnitudes span too far):
+        the spans, and the span it is measured to take.
     """
+    try:
+        return _solve(net, com, objective, time_limit)
+    except SolverFailure as exc:  # a failed certificate too: the data's range, said clearly
+        raise beyond_range(exc, "/arcs", capacities=net.capacity[net.limited].astype(np.float64),
+                           costs=net.cost, demands=com.demands) from None
+
+
+def _solve(net: Network, com: Commodities, objective: str, time_limit) -> MultiCommoditySolution:
     if objective == "max-throughput":
         return _max_throughput(net, com, time_limit)
     deadline = deadline_after(time_limit)
@@ -202,7 +212,7 @@ def multicommodity_flow(net: Network, com: Commodities, *, objective: str = "min
     if best.status != "optimal":
         return _delivery_model_failed(best)
     total = float(com.demands.sum())
-    if best.certificate["dual_objective"] < total - flow_tolerance(net, com):
+    if best.certificate["dual_objective"] < total - flow_tolerance(total):
         return _explain_infeasible(net, com, best, total)
     start = best.x[:com.count * net.num_arcs]
     settled = settle_feasible(model, start, deadline, said=result.status, dual_simplex=True)
@@ -279,10 +289,9 @@ def _prices(net: Network, row_prices: np.ndarray, certificate: dict) -> np.ndarr
     return np.maximum(prices, 0.0)
 
 
-def flow_tolerance(net: Network, com: Commodities) -> float:
-    cap = net.capacity[net.limited]
-    scale = max(float(cap.max()) if cap.size else 0.0, float(com.demands.max()) if com.count else 0.0)
-    return lp_checks.REL * (1.0 + scale)
+def flow_tolerance(total: float) -> float:
+    """Absolute slack of a total (of demand or delivery): ``REL`` times its magnitude."""
+    return lp_checks.REL * abs(total)
 
 
 def check_flows(net: Network, com: Commodities, flows: np.ndarray, delivered: np.ndarray, prices: np.ndarray,
@@ -292,54 +301,63 @@ def check_flows(net: Network, com: Commodities, flows: np.ndarray, delivered: np
     Conservation of every commodity at every node (net outflow = delivered at the
     source, -delivered at the sink, 0 elsewhere), non-negative flows, shared
     capacities, delivery within demand, the cost recomputed, and complementary
-    slackness of the capacity prices (a priced arc is full). The LP certificate
-    (residuals, duality gap) is merged in.
+    slackness of the capacity prices (a priced arc is full). Each holds to ``REL``
+    times its own magnitude: a commodity at a node against its throughput there and
+    its delivery, an arc against its capacity (or the flow it carries), a delivery
+    against its demand. The LP certificate (residuals, duality gap) is merged in.
 
     Raises
     ------
     SelfCheckFailed
     """
     K, n, m = com.count, net.num_nodes, net.num_arcs
-    tol = flow_tolerance(net, com)
+    rel = lp_checks.REL
     offset = (n * np.arange(K))[:, None]
-    balance = np.zeros(K * n)
-    np.add.at(balance, (offset + net.tail[None, :]).ravel(), flows.ravel())
-    np.subtract.at(balance, (offset + net.head[None, :]).ravel(), flows.ravel())
+    tails, heads = (offset + net.tail[None, :]).ravel(), (offset + net.head[None, :]).ravel()
+    balance = np.bincount(tails, flows.ravel(), K * n) - np.bincount(heads, flows.ravel(), K * n)
+    size = np.abs(flows.ravel())
+    through = np.maximum(np.bincount(tails, size, K * n), np.bincount(heads, size, K * n))
     expected = np.zeros(K * n)
     np.add.at(expected, n * np.arange(K) + com.sources, delivered)
     np.add.at(expected, n * np.arange(K) + com.sinks, -delivered)
-    imbalance = float(np.abs(balance - expected).max()) if balance.size else 0.0
+    node_allowed = rel * (through + np.abs(expected))
+    off = np.abs(balance - expected)
     total = flows.sum(axis=0)
     upper = net.capacity.astype(np.float64)
     if net.unlimited is not None:
         upper[net.unlimited] = np.inf
+    arc_size = np.where(np.isfinite(upper), upper, np.abs(flows).sum(axis=0))
+    arc_allowed = rel * arc_size
     over = lp_checks.bound_violation(total, np.zeros(m), upper)
-    negative = float(np.maximum(-flows, 0).max()) if flows.size else 0.0
-    excess = max(float(over.max()) if m else 0.0, negative)
+    negative = np.maximum(-flows, 0).max(axis=0) if flows.size else np.zeros(m)
     short = np.maximum(delivered - com.demands, 0.0)
-    if imbalance > tol:
-        raise SelfCheckFailed(f"self-check failed: a commodity's flow is not conserved (imbalance {imbalance:g})")
-    if excess > tol:
-        raise SelfCheckFailed(f"self-check failed: an arc's shared capacity is exceeded by {excess:g}")
-    if short.size and short.max() > tol:
+    if (off > node_allowed).any():
+        raise SelfCheckFailed(f"self-check failed: a commodity's flow is not conserved (imbalance "
+                              f"{float(off.max()):g})")
+    if (over > arc_allowed).any() or (negative > arc_allowed).any():
+        raise SelfCheckFailed(f"self-check failed: an arc's shared capacity is exceeded by "
+                              f"{float(max(over.max(), negative.max())):g}")
+    if (short > rel * com.demands).any():
         raise SelfCheckFailed("self-check failed: a commodity is delivered beyond its demand")
     priced = prices > 0
-    slack = np.abs(total - upper)[priced]
-    if slack.size and slack.max() > tol:
+    slack = np.abs(total - upper)
+    if (slack[priced] > arc_allowed[priced]).any():
         raise SelfCheckFailed("self-check failed: an arc with a positive capacity price is not full")
     cost = float(net.cost @ total)
     return {
         "checked": True,
         "cost": cost,
-        "max_imbalance": imbalance,
-        "max_capacity_excess": excess,
+        "max_imbalance": float(off.max()) if off.size else 0.0,
+        "max_capacity_excess": float(max(over.max(initial=0.0), negative.max(initial=0.0))),
         "primal_residual": lp_certificate["primal_residual"],
         "dual_residual": lp_certificate["dual_residual"],
         "dual_bound": lp_certificate["dual_objective"],
         "gap": lp_certificate["gap"],
         "duals_unique": lp_certificate["duals_unique"],
         "degenerate": lp_certificate["degenerate"],
-        "tolerance": tol,
+        "tolerance": max(float(node_allowed.max(initial=0.0)), float(arc_allowed.max(initial=0.0))),
+        "relative_tolerance": rel,
+        "cost_tolerance": lp_certificate["tolerance"]["gap"],
     }
 
 
@@ -360,8 +378,7 @@ def _explain_infeasible(net: Network, com: Commodities, best: LPResult, total: f
     best plan, which cannot be met even alone, and which arcs bind (positive price)."""
     K, m, n = com.count, net.num_arcs, net.num_nodes
     delivered = best.x[K * m:]
-    tol = flow_tolerance(net, com)
-    shortfall = np.where(com.demands - delivered > tol, com.demands - delivered, 0.0)
+    shortfall = np.where(com.demands - delivered > lp_checks.REL * com.demands, com.demands - delivered, 0.0)
     prices = _prices(net, best.duals[K * n:], best.certificate)
     short = np.flatnonzero(shortfall > 0)
     # Only a commodity left short in a best plan can fail on its own: one max-flow each.
@@ -369,14 +386,14 @@ def _explain_infeasible(net: Network, com: Commodities, best: LPResult, total: f
     for k in short.tolist():
         flow, _ = maximum_flow(n, net.tail, net.head, net.capacity, net.unlimited, int(com.sources[k]),
                                int(com.sinks[k]))
-        if flow.value is not None and flow.value < com.demands[k] - tol:
+        if flow.value is not None and flow.value < com.demands[k]:  # an exact max-flow
             alone.append(k)
     info = {"short": short, "shortfall": shortfall, "max_delivered": float(best.objective),
             "binding": np.flatnonzero(prices > 0), "alone": np.asarray(alone, dtype=np.int64)}
     lp = best.certificate
     certificate = {"checked": True, "total_demand": total, "delivery_bound": lp["dual_objective"],
                    "primal_residual": lp["primal_residual"], "dual_residual": lp["dual_residual"],
-                   "gap": lp["gap"], "tolerance": tol}
+                   "gap": lp["gap"], "tolerance": flow_tolerance(total), "relative_tolerance": lp_checks.REL}
     return MultiCommoditySolution("infeasible", infeasibility=info, certificate=certificate, engine=best.engine)
 
 

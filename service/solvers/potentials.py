@@ -44,6 +44,18 @@ def residual_masks(flows, capacity, unlimited, tol=0):
     return forward, backward
 
 
+def residual_reach(num_nodes, tail, head, flows, capacity, unlimited, start: int, slack=0) -> np.ndarray:
+    """Nodes reachable from ``start`` in the residual network (boolean mask); ``slack``
+    (a number or one per arc) is how far from a bound an arc must be to count as open."""
+    forward, backward = residual_masks(flows, capacity, unlimited, slack)
+    rows = np.concatenate([tail[forward], head[backward]])
+    cols = np.concatenate([head[forward], tail[backward]])
+    graph = sp.csr_matrix((np.ones(rows.size, dtype=np.int8), (rows, cols)), shape=(num_nodes, num_nodes))
+    mask = np.zeros(num_nodes, dtype=bool)
+    mask[csgraph.breadth_first_order(graph, start, directed=True, return_predecessors=False)] = True
+    return mask
+
+
 def node_potentials(num_nodes: int, tail: np.ndarray, head: np.ndarray, cost: np.ndarray, flows: np.ndarray,
                     capacity: np.ndarray, unlimited: np.ndarray | None) -> np.ndarray:
     """Potentials proving an integer flow optimal.
