@@ -16,7 +16,6 @@ import importlib
 import inspect
 import subprocess
 import sys
-from pathlib import Path
 
 import pytest
 import yaml
