@@ -79,10 +79,11 @@ class SpecRequest:
     query: list = field(default_factory=list)
     headers: dict = field(default_factory=dict)
     host_url: str = "http://localhost/"
+    parameters: RequestParameters = field(init=False)
 
-    @property
-    def parameters(self) -> RequestParameters:
-        return RequestParameters(query=ImmutableMultiDict(self.query), header=Headers(self.headers))
+    def __post_init__(self):
+        # A field, not a property: openapi-core writes the path's variables into it.
+        self.parameters = RequestParameters(query=ImmutableMultiDict(self.query), header=Headers(self.headers))
 
 
 class ContractBroken(AssertionError):
@@ -148,14 +149,62 @@ class _DecodedResponse(WerkzeugOpenAPIResponse):
         return gzip.decompress(data) if self.response.headers.get("Content-Encoding") == "gzip" else data
 
 
+#: Bodies up to this size that a route answered with success are checked against the
+#: documented request schema too (larger ones would make the suite slow: jsonschema
+#: walks every arc).
+CHECKED_BODY_BYTES = 256 * 1024
+
+#: Successes that take a body outside the request schema on purpose: ``(method, path)``
+#: with the reason.
+LENIENT: dict[tuple[str, str], str] = {}
+
+
+def check_accepted_body(request: SpecRequest, status: int) -> None:
+    """A body the route answered with success must be one its documented request schema
+    takes (else a client generated from the document cannot send it)."""
+    if not 200 <= status < 300 or request.body is None or len(request.body) > CHECKED_BODY_BYTES:
+        return
+    if request.method in ("get", "head", "options", "delete") or (request.method, request.path) in LENIENT:
+        return
+    if not request.content_type.startswith(("application/json", "text/x-dimacs")):
+        return  # e.g. a gzip-encoded body: the document describes what is inside
+    if request.headers.get("Content-Encoding", "identity") != "identity":
+        return
+    try:
+        openapi().validate_request(request)
+    except RecursionError:
+        return  # nested deeper than the standard library's decoder goes (the service's goes to 1,024)
+    except OpenAPIError as exc:
+        raise ContractBroken(f"{request.method.upper()} {request.path} answered {status} to a body its documented "
+                             f"request schema refuses: {_reason(exc)}") from None
+
+
+def _sent_body(kwargs: dict) -> tuple[bytes | None, str | None]:
+    """The body and content type of a test client call, from its keyword arguments."""
+    if "json" in kwargs:
+        return json.dumps(kwargs["json"]).encode(), "application/json"
+    data = kwargs.get("data")
+    if isinstance(data, str):
+        data = data.encode()
+    headers = dict(kwargs.get("headers") or {})
+    content_type = kwargs.get("content_type") or headers.get("Content-Type") or headers.get("content-type")
+    return (data, content_type) if isinstance(data, bytes) else (None, None)
+
+
 class SpecClient(FlaskClient):
-    """Flask's test client, checking every response against the document."""
+    """Flask's test client, checking every response against the document (and every
+    body the service took against the documented request schema)."""
 
     def open(self, *args, **kwargs):
         response = super().open(*args, **kwargs)
         sent = response.request
-        check_response(SpecRequest(sent.method.lower(), sent.path, query=list(sent.args.items(multi=True)),
-                                    headers=dict(sent.headers)), _DecodedResponse(response))
+        request = SpecRequest(sent.method.lower(), sent.path, query=list(sent.args.items(multi=True)),
+                              headers=dict(sent.headers))
+        check_response(request, _DecodedResponse(response))
+        body, content_type = _sent_body(kwargs)
+        if body is not None and content_type:
+            request.body, request.content_type = body, content_type
+            check_accepted_body(request, response.status_code)
         return response
 
 
@@ -173,8 +222,13 @@ class SpecSession(requests.Session):
         if kwargs.get("stream"):
             return response  # the caller reads the body as it comes; nothing to check yet
         url = urlsplit(prepared.url)
-        check_response(SpecRequest(prepared.method.lower(), url.path, query=parse_qsl(url.query),
-                                   headers=dict(prepared.headers)), RequestsOpenAPIResponse(response))
+        request = SpecRequest(prepared.method.lower(), url.path, query=parse_qsl(url.query),
+                              headers=dict(prepared.headers))
+        check_response(request, RequestsOpenAPIResponse(response))
+        body = prepared.body.encode() if isinstance(prepared.body, str) else prepared.body
+        if isinstance(body, bytes) and prepared.headers.get("Content-Type"):
+            request.body, request.content_type = body, prepared.headers["Content-Type"]
+            check_accepted_body(request, response.status_code)
         return response
 
 
