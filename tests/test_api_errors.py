@@ -94,10 +94,11 @@ def test_server_answers_correctly_after_errors(client):
 def test_unexpected_errors_are_500_problems_without_trace(app, monkeypatch):
     from service.kinds import maxflow
 
-    def boom(problem, limits):
+    def boom(*args, **kwargs):
         raise RuntimeError("secret internals")
 
-    monkeypatch.setattr(maxflow.KIND, "solve", boom)
+    # A kind is a frozen declaration: the unexpected error comes from the solver it calls.
+    monkeypatch.setattr(maxflow, "maximum_flow", boom)
     r = app.test_client().post("/v1/maxflow", data=orjson.dumps(GOOD), content_type="application/json")
     doc = assert_problem(r, 500)
     assert "secret" not in r.get_data(as_text=True) and "internal" in doc["type"]

@@ -168,6 +168,40 @@ def check_geometry(svg: bytes, arcs: list[tuple]) -> dict:
     return {"root": root, "texts": texts}
 
 
+def _rect(r) -> tuple:
+    x, y = float(r.get("x")), float(r.get("y"))
+    return x, y, x + float(r.get("width")), y + float(r.get("height"))
+
+
+def check_timeline(svg: bytes, arcs: list[tuple]) -> dict:
+    """Assert a lanes-against-periods picture (flows over time): one row per lane in
+    order, every bar, band, shut cell and cut outline inside its row and inside the
+    chart's periods, and no two texts meeting."""
+    root = ET.fromstring(svg)
+    horizon = int(root.get("data-horizon"))
+    rows = [g for g in root.iter(f"{SVG}g") if "row" in g.get("class", "").split()]
+    lanes = [g for g in rows if "lane" in g.get("class").split()]
+    assert [int(g.get("data-arc")) for g in lanes] == list(range(len(arcs)))
+    lines = [float(line.get("x1")) for line in root.find(f"{SVG}g[@class='periods']").iter(f"{SVG}line")]
+    assert len(lines) == horizon + 1
+    left, right = min(lines), max(lines)
+    period_w = (right - left) / horizon
+    for g in rows:
+        label_y = float(g.find(f"{SVG}text").get("y"))
+        for r in g.iter(f"{SVG}rect"):
+            x0, y0, x1, y1 = _rect(r)
+            assert left - 0.01 <= x0 < x1 <= right + 0.01, f"{r.get('class')} outside the periods"
+            assert y0 < label_y < y1 + 12 and y1 - y0 <= 30, f"{r.get('class')} outside its row"
+            period = r.get("data-period")
+            if period is not None and r.get("class") != "holdover":  # a band spans the boundary after it
+                assert left + int(period) * period_w - 0.01 <= x0 and x1 <= left + (int(period) + 1) * period_w + 0.01
+    texts = text_boxes(root)
+    for i, (_, t1, b1, _) in enumerate(texts):
+        for _, t2, b2, _ in texts[i + 1:]:
+            assert not meet(b1, b2), f"texts {t1!r} and {t2!r} meet"
+    return {"root": root}
+
+
 # --- the inputs -----------------------------------------------------------------------
 
 
@@ -236,9 +270,24 @@ def random_body(seed: int, kind: str) -> dict:
             arc["cost"] = int(rng.integers(0, 12))
             if arc["capacity"] and rng.random() < 0.25:
                 arc["lower"] = int(rng.integers(1, arc["capacity"] + 1))
+        if kind == "expansion" and rng.random() < 0.5:
+            arc["expand_cost"], arc["expand_max"] = int(rng.integers(0, 9)), int(rng.integers(1, 60))
         arcs.append(arc)
+    ends = {"source": ids[0], "sink": ids[-1], "nodes": [{"id": i} for i in ids], "arcs": arcs}
     if kind == "maxflow":
-        return {"source": ids[0], "sink": ids[-1], "nodes": [{"id": i} for i in ids], "arcs": arcs}
+        return ends
+    if kind == "resilience":  # the worst closures marked, and their losses in the labels
+        return {**ends, "top": int(rng.integers(1, 6))}
+    if kind == "expansion":  # widened lanes with their additions, or the cut of an infeasible target
+        return {**ends, "target": int(rng.integers(0, 200))}
+    if kind == "flowovertime":  # transit, shut periods, holdover limits; long ids in the row labels
+        horizon = int(rng.integers(1, 16))
+        for arc in arcs:
+            arc["transit"] = int(rng.integers(0, 4))
+            if rng.random() < 0.3:
+                arc["capacity"] = [int(c) for c in rng.integers(0, 40, horizon) * (rng.random(horizon) < 0.7)]
+        nodes = [{"id": i, "holdover": None if rng.random() < 0.5 else int(rng.integers(0, 30))} for i in ids]
+        return {**ends, "nodes": nodes, "horizon": horizon}
     supply = np.zeros(n, dtype=int)
     for _ in range(int(rng.integers(1, 4))):
         u, v, amount = int(rng.integers(n)), int(rng.integers(n)), int(rng.integers(1, 90))
@@ -267,16 +316,18 @@ def test_scenario_diagrams_route_around_nodes_and_keep_texts_apart(client, name,
             assert [e["pointer"] for e in r.get_json()["errors"]] == [
                 "/problem" + e["pointer"] for e in plain.get_json()["errors"]]
             return
-    check_geometry(draw(client, kind, body), arc_ends(body))
+    check = check_timeline if kind == "flowovertime" else check_geometry
+    check(draw(client, kind, body), arc_ends(body))
 
 
 @pytest.mark.parametrize("kind", sorted(DRAWERS))
 def test_random_networks_route_around_nodes_and_keep_texts_apart(client, kind):
     failures = []
+    check = check_timeline if kind == "flowovertime" else check_geometry
     for seed in range(SEEDS):
         body = random_body(seed, kind)
         try:
-            check_geometry(draw(client, kind, body), arc_ends(body))
+            check(draw(client, kind, body), arc_ends(body))
         except AssertionError as exc:
             failures.append(f"seed {seed}: {str(exc).splitlines()[0]}")
     assert not failures, f"{len(failures)} of {SEEDS} random networks:\n" + "\n".join(failures)

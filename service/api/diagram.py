@@ -18,7 +18,7 @@ import orjson
 from flask import Blueprint, Response, current_app
 from marshmallow import RAISE, Schema, fields
 
-from ..drawing import DRAWERS, DrawnNetwork, draw
+from ..drawing import DrawnNetwork, draw
 from ..errors import FieldError, InputError, ProblemTooLarge
 from ..kinds import KINDS
 from ..kinds.nested import under
@@ -32,8 +32,6 @@ from .networks import export_network
 bp = Blueprint("diagram", __name__, url_prefix="/v1")
 
 SVG_MEDIA_TYPE = "image/svg+xml"
-#: Kinds that can be drawn: their requests carry ``arcs`` (and ``nodes``).
-DIAGRAM_KINDS = tuple(DRAWERS)
 #: Suffix of the cache entry that keeps a small solved problem drawable by digest.
 DRAWING_SUFFIX = ":drawing"
 
@@ -42,7 +40,7 @@ class DiagramRequest(Schema):
     class Meta:
         unknown = RAISE
 
-    kind = fields.String(required=True, metadata={"description": "maxflow or mincostflow."})
+    kind = fields.String(required=True, metadata={"description": "A drawn kind: " + ", ".join(n for n, k in KINDS.items() if k.drawable) + "."})
     problem = fields.Dict(required=True, metadata={"description": "The request body of POST /v1/{kind}."})
 
 
@@ -63,9 +61,43 @@ def _floats(values) -> np.ndarray | None:
 
 
 def drawn_problem(problem) -> DrawnNetwork:
-    """A parsed max-flow or min-cost flow problem as a :class:`DrawnNetwork`."""
+    """A parsed problem of a drawn kind as a :class:`DrawnNetwork`."""
+    if hasattr(problem.network, "transit"):
+        return drawn_timed(timed_record(problem))
+    ends = _ends(problem)
     return drawn_network(problem.network, supply=getattr(problem, "supply", None),
-                         source=getattr(problem, "source", None), sink=getattr(problem, "sink", None))
+                         source=getattr(ends, "source", None), sink=getattr(ends, "sink", None))
+
+
+def timed_record(problem) -> dict:
+    """A flow-over-time problem as plain JSON values: what its lanes-against-periods
+    picture needs (ids, lanes, transit, capacity per period with null for no limit)."""
+    net = problem.network
+    m, horizon = net.num_arcs, net.horizon
+    capacity = np.broadcast_to(np.asarray(net.capacity, dtype=np.float64).reshape(m, -1), (m, horizon)).copy()
+    if net.unlimited is not None:
+        capacity[np.broadcast_to(net.unlimited.reshape(m, -1), (m, horizon))] = np.nan
+    ids = problem.nodes.ids
+    return {"ids": np.asarray(ids).tolist() if problem.nodes.kind is int else list(ids),
+            "tail": net.tail.tolist(), "head": net.head.tolist(), "transit": net.transit.tolist(),
+            "capacity": [[None if np.isnan(c) else c for c in row] for row in capacity.tolist()],
+            "keys": problem.keys,
+            "source": problem.source, "sink": problem.sink}
+
+
+def drawn_timed(record: dict) -> DrawnNetwork:
+    capacity = np.array([[np.inf if c is None else c for c in row] for row in record["capacity"]],
+                        dtype=np.float64).reshape(len(record["tail"]), -1)
+    return DrawnNetwork(record["ids"], np.asarray(record["tail"], dtype=np.int64),
+                        np.asarray(record["head"], dtype=np.int64),
+                        capacity.max(axis=1) if capacity.size else np.zeros(len(record["tail"])),
+                        keys=record["keys"], source=record["source"], sink=record["sink"],
+                        transit=np.asarray(record["transit"], dtype=np.int64), period_capacity=capacity)
+
+
+def _ends(problem):
+    """What holds the problem's source and sink (an expansion keeps them with its lanes)."""
+    return getattr(problem, "lanes", problem)
 
 
 def render_diagram(kind: str, body: dict, result: dict, *, max_nodes: int = 60, max_arcs: int = 200) -> str:
@@ -111,9 +143,14 @@ def svg_response(svg: str) -> Response:
     return Response(svg, mimetype=SVG_MEDIA_TYPE, headers={"Cache-Control": "no-store"})
 
 
+def diagram_kinds() -> list[str]:
+    """The kinds declared ``drawable`` (each has a drawer in :data:`service.drawing.DRAWERS`)."""
+    return [name for name, kind in KINDS.items() if kind.drawable]
+
+
 def _check_drawn(kind: str) -> None:
-    if kind not in DRAWERS or kind not in KINDS:
-        raise InputError.at("/kind", f"diagrams are drawn for {' and '.join(k for k in DRAWERS if k in KINDS)}")
+    if kind not in diagram_kinds():
+        raise InputError.at("/kind", f"diagrams are drawn for {' and '.join(diagram_kinds())}")
 
 
 def solution_diagram(kind: str, problem_body: dict, result: dict) -> Response:
@@ -139,17 +176,19 @@ def drawing_record(kind_name: str, problem) -> bytes | None:
     keep only their size, ``{"kind", "too_large": {"nodes", "arcs"}}``, so the route can
     answer 413 rather than 404. ``None`` for kinds that are not drawn.
     """
-    network = getattr(problem, "network", None)
-    if kind_name not in DRAWERS or network is None:
+    if not KINDS[kind_name].drawable:
         return None
+    network = problem.network
     settings = current_app.extensions["sluice"].settings
     if network.num_nodes > settings.max_diagram_nodes or network.num_arcs > settings.max_diagram_arcs:
         return orjson.dumps({"kind": kind_name, "too_large": {"nodes": network.num_nodes, "arcs": network.num_arcs}})
+    if hasattr(network, "transit"):  # flows over time: the drawn form itself (its body has no Network)
+        return orjson.dumps({"kind": kind_name, "timed": timed_record(problem)})
     body = export_network(network)
     ids = network.nodes.ids
     for end in ("source", "sink"):
-        if getattr(problem, end, None) is not None:
-            body[end] = ids[getattr(problem, end)]
+        if getattr(_ends(problem), end, None) is not None:
+            body[end] = ids[getattr(_ends(problem), end)]
     supply = getattr(problem, "supply", None)
     if supply is not None:
         body["nodes"] = {"id": list(ids), "supply": np.asarray(supply).tolist()}
@@ -165,6 +204,8 @@ def cached_diagram(record: bytes, result: bytes) -> Response:
         raise ProblemTooLarge(FieldError("", f"the problem has {size['nodes']} nodes and {size['arcs']} arcs; "
                                              f"diagrams are drawn for at most {settings.max_diagram_nodes} nodes "
                                              f"and {settings.max_diagram_arcs} arcs"))
+    if "timed" in doc:
+        return svg_response(draw(doc["kind"], drawn_timed(doc["timed"]), orjson.loads(result)))
     return solution_diagram(doc["kind"], doc["body"], orjson.loads(result))
 
 

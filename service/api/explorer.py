@@ -23,7 +23,6 @@ from marshmallow import Schema, fields
 
 from ..errors import NotFound
 from ..kinds import KINDS
-from ..kinds.verify import VERIFY_KINDS
 from .jsonio import json_response
 
 bp = Blueprint("explorer", __name__)
@@ -44,14 +43,12 @@ class ScenarioListSchema(Schema):
     scenarios = fields.List(fields.Nested(ScenarioSchema))
 
 
-#: The example files served (a file in service/scenarios/ not named here is not).
-EXAMPLES = (
-    "batch-depots.json", "depots-lp-matrix.json", "depots-lp.json", "depots-maxflow-columns.json",
-    "depots-maxflow.dimacs", "depots-maxflow.json", "depots-mincostflow.json", "depots-multicommodity.json",
-    "depots-multicommodity-whole.json", "night-pallets-expansion.json", "night-pallets-resilience.json",
-    "vans-assignment.json", "verify-depots-maxflow.json", "verify-depots-mincostflow.json",
-    "xdock-night-flowovertime.json",
-)
+#: The example files served (a file in service/scenarios/ not named here is not): each
+#: kind's ``example`` and these bodies of other requests.
+EXAMPLES = tuple(sorted({kind.example for kind in KINDS.values()} | {
+    "batch-depots.json", "depots-lp-matrix.json", "depots-maxflow-columns.json", "depots-maxflow.dimacs",
+    "depots-multicommodity-whole.json", "verify-depots-maxflow.json", "verify-depots-mincostflow.json",
+}))
 
 
 def _folder():
@@ -60,7 +57,7 @@ def _folder():
 
 def _describe(name: str, suffix: str) -> dict:
     words = name.removesuffix(".dimacs").split("-")
-    kind = next((w for w in words if w in KINDS or w in VERIFY_KINDS), None)
+    kind = next((w for w in words if w in KINDS), None)
     if words[0] == "verify":
         endpoint = f"/v1/verify/{kind}" if kind else None
     elif words[0] == "batch":

@@ -263,10 +263,6 @@ def read_json_body(arc_columns: bool = False):
 
 # --- bodies in other formats ------------------------------------------------------
 
-#: Kinds whose solve endpoint also takes a DIMACS text body (the ``p`` line must match).
-DIMACS_KINDS = {"maxflow": "max", "mincostflow": "min"}
-
-
 def _read_text() -> str:
     raw = raw_body()
     if not raw:
@@ -278,15 +274,18 @@ def _read_text() -> str:
         raise BadRequest(f"the body is not valid {charset} text: {exc}") from None
 
 
-def decode_body(purpose: str | None = None, arc_columns: bool = False):
+def decode_body(dimacs: str | None = None, arc_columns: bool = False):
     """Decode the request body by its media type: JSON, or a DIMACS text file.
 
     Parameters
     ----------
-    purpose : str, optional
-        ``"maxflow"`` or ``"mincostflow"`` (a solve endpoint: a DIMACS file must be
-        ``p max`` or ``p min`` respectively), ``"network"`` (a stored network: either
-        format, nodes and arcs only), or another kind name (JSON only).
+    dimacs : {"max", "min", "network"}, optional
+        The DIMACS body the endpoint also takes: a solve endpoint's format
+        (:attr:`~service.kinds.base.Kind.dimacs`: the file's ``p`` line must match),
+        ``"network"`` (a stored network: either format, nodes and arcs only), or None
+        (JSON only).
+    arc_columns : bool
+        Passed to :func:`read_json_body`.
 
     Returns
     -------
@@ -298,18 +297,18 @@ def decode_body(purpose: str | None = None, arc_columns: bool = False):
     Raises
     ------
     UnsupportedMediaType
-        Neither JSON nor ``text/x-dimacs`` (or DIMACS where the purpose takes JSON only).
+        Neither JSON nor ``text/x-dimacs`` (or DIMACS where the endpoint takes JSON only).
     BadRequest, InputError
         As :func:`read_json_body`; DIMACS errors name the line.
     """
     from ..model.dimacs import MEDIA_TYPE, parse_dimacs
 
     mimetype = request.mimetype or ""
-    takes_text = purpose in DIMACS_KINDS or purpose == "network"
+    takes_text = dimacs is not None
     if mimetype == MEDIA_TYPE and takes_text:
         limits = current_app.extensions["sluice"].limits
         doc = parse_dimacs(_read_text(), max_arcs=limits.max_arcs, max_nodes=limits.max_nodes)
-        body = doc.request(purpose)
+        body = doc.request(dimacs)
         g.sluice_translate_errors = doc.translate
         return body
     if not _is_json(mimetype) and takes_text:

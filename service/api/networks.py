@@ -1,8 +1,9 @@
 """Stored networks: upload once, then ask what-ifs without sending the arcs again.
 
 ``PUT/GET/DELETE /v1/networks/{name}``, ``GET /v1/networks`` (paged) and
-``POST /v1/networks/{name}/{kind}`` for every kind with ``from_network`` (maxflow,
-and mincostflow once that kind is registered). Versions carry ETags; ``If-Match``
+``POST /v1/networks/{name}/{kind}`` for every kind with ``from_network``. A stored
+network may carry the optional columns of the planning and over-time kinds
+(:mod:`service.model.stored`). Versions carry ETags; ``If-Match``
 makes a write conditional and the store checks it atomically (412 when stale).
 """
 
@@ -18,7 +19,8 @@ from ..errors import InputError
 from ..kinds import KINDS, Limits
 from ..kinds.base import ids_of
 from ..model.arcs import Network
-from ..model.arcs import read_network as normalise_network
+from ..model.arcs import read_network_with
+from ..model.stored import DEFAULTS, STORED_ARC_FIELDS, STORED_NODE_FIELDS, read_extra
 from ..model.changes import apply_changes
 from ..model.schemas import ArcsField, NodesField, load_envelope
 from ..store import InvalidParameter, NetworkMeta, Preconditions, check_name, network_digest
@@ -41,7 +43,11 @@ class NetworkRequest(Schema):
     nodes = NodesField(load_default=None, metadata={"description": "Optional node ids (or objects with id), "
                                                                    "to fix their order or add isolated nodes."})
     arcs = ArcsField(required=True, metadata={"description": "Arcs in object or columnar form; give key to "
-                                                             "address arcs by label in changes."})
+                                                             "address arcs by label in changes. Optional columns "
+                                                             "for the planning and over-time questions: "
+                                                             "expand_cost, expand_max, expand_fixed (expansion) "
+                                                             "and transit (flowovertime); nodes may carry "
+                                                             "holdover and holdover_cost."})
 
 
 class NetworkMetaSchema(Schema):
@@ -72,10 +78,22 @@ class ChangeSchema(Schema):
 
     arc = fields.Integer(metadata={"description": "Index of the arc in the stored network (0-based)."})
     key = fields.String(metadata={"description": "The arc's key, instead of arc."})
-    capacity = fields.Float(allow_none=True, metadata={"description": "New capacity (>= 0); null for no limit."})
+    capacity = fields.Raw(allow_none=True, metadata={"description": "New capacity (>= 0); null for no limit; for "
+                                                                    "flowovertime also a list of one capacity (or "
+                                                                    "null) per period."})
     cost = fields.Float(metadata={"description": "New cost per unit."})
     closed = fields.Boolean(metadata={"description": "true: the arc carries no flow (capacity and lower bound 0). "
                                                      "Cannot be combined with capacity."})
+    expand_cost = fields.Float(allow_none=True, metadata={"description": "expansion: cost per unit added (>= 0); "
+                                                                         "null: the lane cannot be widened."})
+    expand_max = fields.Float(allow_none=True, metadata={"description": "expansion: most units added; null: no limit."})
+    expand_fixed = fields.Float(metadata={"description": "expansion: one-off charge for widening the lane (>= 0)."})
+    transit = fields.Integer(metadata={"description": "flowovertime: whole periods on the lane (>= 0)."})
+    node = fields.Raw(metadata={"description": "A node id, instead of arc or key: a node change (flowovertime), "
+                                               "giving holdover or holdover_cost."})
+    holdover = fields.Float(allow_none=True, metadata={"description": "Units that may wait at the node from one "
+                                                                      "period to the next; null: no limit."})
+    holdover_cost = fields.Float(metadata={"description": "Per unit per period waiting at the node (>= 0)."})
 
 
 def _limits() -> Limits:
@@ -107,8 +125,11 @@ def read_network(body, limits: Limits) -> Network:
     envelope = load_envelope(NetworkRequest(), body)
     # Supplies belong to the question (POST .../mincostflow), not to the stored
     # network; a node's supply here (e.g. from a DIMACS min file) is not stored.
-    network, _ = normalise_network(envelope["arcs"], envelope["nodes"], max_arcs=limits.max_arcs,
-                                   max_nodes=limits.max_nodes)
+    network, nodes, arc_columns = read_network_with(
+        envelope["arcs"], envelope["nodes"], max_arcs=limits.max_arcs, max_nodes=limits.max_nodes,
+        node_fields=("supply",) + STORED_NODE_FIELDS, arc_fields=STORED_ARC_FIELDS, node_defaults=DEFAULTS)
+    node_columns = {name: nodes.fields[name] for name in STORED_NODE_FIELDS if name in nodes.fields}
+    network.extra = read_extra(arc_columns, node_columns, len(nodes.ids.values), network.num_nodes)
     return network
 
 
@@ -178,6 +199,10 @@ def export_network(net: Network) -> dict:
     if net.keys is not None:
         arcs["key"] = net.keys
     nodes = np.asarray(net.nodes.ids, dtype=np.int64) if net.nodes.kind is int else net.nodes.ids
+    if net.extra is not None:  # the optional columns, so that a PUT of this gives the same digest
+        arcs.update(net.extra["arcs"])
+        if net.extra["nodes"]:
+            nodes = {"id": nodes, **net.extra["nodes"]}
     return {"nodes": nodes, "arcs": arcs}
 
 
@@ -214,8 +239,8 @@ def _int_arg(name: str, default: int, low: int, high: int) -> int:
 
 
 def what_if_kinds() -> list[str]:
-    """Kinds that can be asked of a stored network (they implement ``from_network``)."""
-    return [name for name, kind in KINDS.items() if hasattr(kind, "from_network")]
+    """Kinds that can be asked of a stored network (they declare ``from_network``)."""
+    return [name for name, kind in KINDS.items() if kind.from_network is not None]
 
 
 def what_if(name: str, kind_name: str):
@@ -228,7 +253,8 @@ def what_if(name: str, kind_name: str):
         raise InputError.at("", "the request body must be a JSON object")
     query = {k: v for k, v in body.items() if k != "changes"}
     loaded = cache.get_store().load_network(cache.tenant(), name)
-    network = apply_changes(loaded.network, body.get("changes"), key_index=loaded.key_index)
+    network = apply_changes(loaded.network, body.get("changes"), key_index=loaded.key_index,
+                            periods=kind.per_period_capacity)
     problem = kind.from_network(network, query, _limits())
     meta = loaded.meta
     return cache.answer(kind, problem, started=started,

@@ -1,16 +1,40 @@
-"""Solve endpoints: one route per problem kind, ``POST /v1/<kind>``, behind the result cache."""
+"""Solve endpoints: one route per problem kind, ``POST /v1/<kind>``, behind the result cache,
+and ``GET /v1/kinds``, what each registered kind can do."""
 
 from __future__ import annotations
 
 from time import perf_counter
 
 from flask import Blueprint, current_app
+from marshmallow import Schema, fields
 
 from ..kinds import KINDS, Kind, Limits
 from . import cache, jobs
-from .jsonio import decode_body
+from .jsonio import decode_body, json_response
 
 bp = Blueprint("solve", __name__, url_prefix="/v1")
+
+
+class CapabilitiesSchema(Schema):
+    what_if = fields.Boolean(metadata={"description": "POST /v1/networks/{name}/{kind} asks it of a stored network."})
+    dimacs = fields.String(allow_none=True, metadata={
+        "description": "The DIMACS format (max or min) POST /v1/{kind} also takes as text/x-dimacs; null: JSON only."})
+    diagram = fields.Boolean(metadata={"description": "POST /v1/diagram.svg draws its answers."})
+    verify = fields.Boolean(metadata={"description": "POST /v1/verify/{kind} checks a client's plan."})
+    jobs = fields.Boolean(metadata={"description": "POST /v1/jobs takes it (and Prefer: respond-async)."})
+    batch = fields.Boolean(metadata={"description": "POST /v1/batch takes it as an item kind."})
+
+
+class KindSchema(Schema):
+    name = fields.String(metadata={"description": "The kind, also the path segment of POST /v1/{kind}."})
+    summary = fields.String()
+    endpoint = fields.String(metadata={"description": "Where to POST a problem of the kind."})
+    example = fields.String(metadata={"description": "Name of its example under GET /v1/scenarios/{name}."})
+    capabilities = fields.Nested(CapabilitiesSchema)
+
+
+class KindListSchema(Schema):
+    kinds = fields.List(fields.Nested(KindSchema))
 
 
 def limits() -> Limits:
@@ -20,7 +44,7 @@ def limits() -> Limits:
 def _make_view(kind: Kind):
     def view():
         if jobs.prefers_async():  # Prefer: respond-async (RFC 7240): 202 and a job
-            return jobs.submit(kind, decode_body(kind.name))
+            return jobs.submit(kind, decode_body(kind.dimacs))
         started = perf_counter()
         # A byte-identical body seen before is answered before it is even decoded.
         key = cache.body_key(kind)
@@ -30,7 +54,7 @@ def _make_view(kind: Kind):
         # The decoded body of a large object-form request is millions of Python
         # objects; keep it alive until the response is sent so that freeing it does
         # not delay the answer.
-        keep = [decode_body(kind.name, arc_columns=True)]
+        keep = [decode_body(kind.dimacs, arc_columns=True)]
         problem = kind.parse(keep[0], limits())
         response = cache.answer(kind, problem, started=started, key=key)
         response.call_on_close(keep.clear)
@@ -39,6 +63,15 @@ def _make_view(kind: Kind):
     view.__name__ = kind.name
     view.__doc__ = kind.summary
     return view
+
+
+@bp.get("/kinds")
+def list_kinds():
+    """What each registered kind can do, as its :class:`~service.kinds.base.Kind` declares it."""
+    return json_response({"kinds": [
+        {"name": kind.name, "summary": kind.summary, "endpoint": f"/v1/{kind.name}",
+         "example": kind.example.removesuffix(".json"), "capabilities": kind.capabilities()}
+        for kind in KINDS.values()]})
 
 
 for _kind in KINDS.values():

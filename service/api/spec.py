@@ -193,8 +193,7 @@ def _what_if_schemas(kind_name: str) -> tuple[type, type]:
 
     kind = KINDS[kind_name]
     title = kind_name.capitalize()
-    query = getattr(kind, "query_schema", None) or Schema
-    request_schema = type(f"{title}WhatIfRequest", (query,), {
+    request_schema = type(f"{title}WhatIfRequest", (kind.query_schema,), {
         "changes": fields.List(fields.Nested(ChangeSchema), allow_none=True, metadata={
             "description": "Changes to apply for this question only; each arc at most once."}),
     })

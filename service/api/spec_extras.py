@@ -8,12 +8,13 @@ from importlib import resources
 from apispec import APISpec
 
 from ..kinds import KINDS
-from ..kinds.verify import VERIFY_KINDS, VerifyRequest, VerifyResponse
+from ..kinds.verify import VerifyRequest, VerifyResponse
 from ..model.dimacs import MEDIA_TYPE as DIMACS_MEDIA_TYPE
 from .batch import BatchItemSchema, BatchRequest, BatchResponse
-from .diagram import DIAGRAM_KINDS, SVG_MEDIA_TYPE, DiagramRequest
+from .diagram import SVG_MEDIA_TYPE, DiagramRequest, diagram_kinds
 from .explorer import ScenarioListSchema
-from .jsonio import DIMACS_KINDS
+from .solve import KindListSchema
+from .verify import verify_kinds
 
 DESCRIPTION = """
 ## Text bodies: the DIMACS formats
@@ -93,13 +94,14 @@ def _problems(*codes: str) -> dict:
 
 def dimacs_content(kind_name: str) -> dict:
     """The extra ``requestBody.content`` entry of a solve endpoint that takes DIMACS."""
-    if kind_name not in DIMACS_KINDS:
+    fmt = KINDS[kind_name].dimacs
+    if fmt is None:
         return {}
     example = _scenario_text("depots-maxflow.dimacs") if kind_name == "maxflow" else (
         "c two depots, two stores\np min 4 4\nn 1 30\nn 2 20\nn 3 -25\nn 4 -25\n"
         "a 1 3 0 40 4\na 1 4 0 40 6\na 2 3 0 40 5\na 2 4 0 40 3\n")
     return {DIMACS_MEDIA_TYPE: {"schema": {"type": "string", "description": (
-        f"A DIMACS 'p {DIMACS_KINDS[kind_name]}' file; errors point at /line/<n>.")}, "example": example}}
+        f"A DIMACS 'p {fmt}' file; errors point at /line/<n>.")}, "example": example}}
 
 
 def add_paths(spec: APISpec) -> None:
@@ -111,12 +113,18 @@ def add_paths(spec: APISpec) -> None:
     spec.components.schema("BatchResponse", schema=BatchResponse)
     spec.components.schema("DiagramRequest", schema=DiagramRequest)
     spec.components.schema("ScenarioList", schema=ScenarioListSchema)
+    spec.components.schema("KindList", schema=KindListSchema)
+    spec.path(path="/v1/kinds", operations={"get": {
+        "operationId": "list_kinds", "summary": "The problem kinds this service solves, and what each can do",
+        "responses": {"200": {"description": "Name, summary, endpoint, example and capabilities of each kind.",
+                              "content": {"application/json": {"schema": "KindList"}}}},
+    }})
     verify_example = json.loads(_scenario_text("verify-depots-maxflow.json"))
     spec.path(path="/v1/verify/{kind}", operations={"post": {
         "operationId": "verify_plan",
         "summary": "Check a client's flows: feasibility, value or cost, optimality with an improving path or cycle",
         "parameters": [{"name": "kind", "in": "path", "required": True,
-                        "schema": {"type": "string", "enum": list(VERIFY_KINDS)}}],
+                        "schema": {"type": "string", "enum": verify_kinds()}}],
         "requestBody": {"required": True, "content": {"application/json": {
             "schema": "VerifyRequest", "example": verify_example}}},
         "responses": {"200": {"description": "The verdict (an infeasible plan is still a 200).",
@@ -132,7 +140,7 @@ def add_paths(spec: APISpec) -> None:
                               "content": {"application/json": {"schema": "BatchResponse"}}},
                       **_problems("400", "413", "415", "422")},
     }})
-    drawn = [k for k in DIAGRAM_KINDS if k in KINDS]
+    drawn = diagram_kinds()
     spec.path(path="/v1/diagram.svg", operations={"post": {
         "operationId": "draw_solution",
         "summary": f"Solve a small problem ({', '.join(drawn)}) and draw the answer as SVG",

@@ -15,11 +15,17 @@ from .solve import limits
 bp = Blueprint("verify", __name__, url_prefix="/v1/verify")
 
 
+def verify_kinds() -> list[str]:
+    """The ``{kind}`` of ``/v1/verify/{kind}``: the kinds declared ``verifiable``."""
+    return [name for name, kind in KINDS.items() if kind.verifiable]
+
+
 @bp.post("/<kind>")
 def verify(kind: str):
     """Check a client's flows for a problem: feasibility, value or cost, optimality."""
-    if kind not in verify_kind.VERIFY_KINDS:
-        raise NotFound(f"plans can be verified for {', '.join(verify_kind.VERIFY_KINDS)}; not for {kind!r}")
+    checked = verify_kinds()
+    if kind not in checked:
+        raise NotFound(f"plans can be verified for {', '.join(checked)}; not for {kind!r}")
     started = perf_counter()
     problem = verify_kind.parse(kind, read_json_body(), limits(), KINDS)
     parsed = perf_counter()

@@ -9,17 +9,25 @@ a JSON document) on a :class:`DrawnNetwork`. What differs between kinds is a
   how wide a text is);
 - :mod:`.svg` writes the document and keeps every id well-formed XML;
 - :mod:`.scene` puts the parts together.
+
+A drawer with a ``render(network, result)`` method draws the whole document itself
+(:mod:`.flowovertime`: lanes against periods, not a network picture).
 """
 
 from __future__ import annotations
 
 from .base import Drawer, DrawnNetwork, Marks
+from .expansion import DRAWER as EXPANSION
+from .flowovertime import DRAWER as FLOWOVERTIME
+from .flowovertime import FlowOverTimeDrawer
 from .maxflow import DRAWER as MAXFLOW
 from .mincostflow import DRAWER as MINCOSTFLOW
+from .resilience import DRAWER as RESILIENCE
 from .scene import draw as _draw
 
 #: The drawn kinds: kind name -> its drawer.
-DRAWERS: dict[str, Drawer] = {d.kind: d for d in (MAXFLOW, MINCOSTFLOW)}
+DRAWERS: dict[str, Drawer | FlowOverTimeDrawer] = {d.kind: d for d in (MAXFLOW, MINCOSTFLOW, RESILIENCE, EXPANSION,
+                                                       FLOWOVERTIME)}
 
 
 def draw(kind: str, network: DrawnNetwork, result: dict) -> str:
@@ -44,7 +52,10 @@ def draw(kind: str, network: DrawnNetwork, result: dict) -> str:
     KeyError
         ``kind`` is not drawn.
     """
-    return _draw(DRAWERS[kind], network, result)
+    drawer = DRAWERS[kind]
+    if hasattr(drawer, "render"):  # a picture of its own (flows over time: lanes against periods)
+        return drawer.render(network, result)
+    return _draw(drawer, network, result)
 
 
 __all__ = ["DRAWERS", "Drawer", "DrawnNetwork", "Marks", "draw"]

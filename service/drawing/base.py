@@ -14,7 +14,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 #: Marks an arc can carry; each has a CSS class ``<mark>-arc``, a colour and a legend line.
-MARKS = ("cut", "binding", "proof")
+MARKS = ("cut", "binding", "proof", "closure", "widened")
 
 
 @dataclass(frozen=True)
@@ -37,6 +37,10 @@ class DrawnNetwork:
         Per node: supply (positive) or demand (negative).
     source, sink : int, optional
         Node indices of a max-flow question.
+    transit : ndarray of int, optional
+        Flows over time: periods per arc.
+    period_capacity : ndarray of float, optional
+        Flows over time: capacity per arc and departure period, shape (arcs, horizon).
     """
 
     ids: list
@@ -49,6 +53,8 @@ class DrawnNetwork:
     supply: np.ndarray | None = None
     source: int | None = None
     sink: int | None = None
+    transit: np.ndarray | None = None
+    period_capacity: np.ndarray | None = None
     _index: dict = field(default_factory=dict, init=False, repr=False, compare=False)
 
     @property
@@ -72,10 +78,12 @@ class DrawnNetwork:
 @dataclass
 class Marks:
     """What a drawer marks: ``arcs`` maps an arc index to one of :data:`MARKS`;
-    ``side`` is per node, True on the source side of a cut (``None``: no cut)."""
+    ``side`` is per node, True on the source side of a cut (``None``: no cut);
+    ``notes`` maps an arc index to text its label ends with (`` −40``: a closure's loss)."""
 
     arcs: dict = field(default_factory=dict)
     side: np.ndarray | None = None
+    notes: dict = field(default_factory=dict)
 
 
 def fmt(x) -> str:

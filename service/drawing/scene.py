@@ -29,7 +29,11 @@ PINE_FILL, PINE = "#dcefe7", "#1f6f55"
 CLAY_FILL, CLAY = "#f6e7d6", "#9c5a1f"
 PLAIN_FILL, PLAIN = "#eef1f6", "#4a5a70"
 FLOW, IDLE = "#35598f", "#c5c8cc"
-MARK_COLOURS = {"cut": "#d1451b", "binding": "#7b3fa0", "proof": "#b8860b"}
+MARK_COLOURS = {"cut": "#d1451b", "binding": "#7b3fa0", "proof": "#b8860b", "closure": "#c0306a",
+                "widened": "#13877f"}
+#: Legend text of a mark shown beside a drawer's own (``Drawer.mark_legend``).
+MARK_TEXTS = {"cut": "minimum cut", "binding": "at capacity (binding)", "proof": "proof path",
+              "closure": "closure that lowers the value", "widened": "widened lane"}
 #: Marks drawn with two slashes across the arc as well as their colour.
 NOTCHED = ("cut", "binding")
 
@@ -63,7 +67,8 @@ def draw(drawer: Drawer, net: DrawnNetwork, result: dict) -> str:
     shapes = [_shape(drawer, net, v, potentials) for v in range(net.num_nodes)]
     widths = _stroke_widths(net, flows, marks)
     layer, rank = layered_layout(net.num_nodes, net.tail, net.head, *drawer.anchors(net))
-    texts = [drawer.arc_label(net, a, None if flows is None else flows[a]) for a in range(net.num_arcs)]
+    texts = [drawer.arc_label(net, a, None if flows is None else flows[a]) + marks.notes.get(a, "")
+             for a in range(net.num_arcs)]
     for spread in SPREADS:
         placed = place(layer, rank, [s.footprint for s in shapes], spread)
         routes = route_all(net.tail, net.head, placed, [s.footprint for s in shapes], spread)
@@ -253,8 +258,9 @@ def _node(net: DrawnNetwork, v: int, shape: NodeShape, x: float, y: float, side)
 def _legend(drawer: Drawer, net: DrawnNetwork, marks: Marks, shapes, y: float) -> tuple[str, float]:
     mark, mark_text = drawer.mark_legend
     lines = [(FLOW, "flow (width ∝ amount)", None), (IDLE, "no flow", "5 4"), (MARK_COLOURS[mark], mark_text, None)]
-    if any(m == "proof" for m in marks.arcs.values()):
-        lines.append((MARK_COLOURS["proof"], "proof path", None))
+    for other in MARK_TEXTS:
+        if other != mark and other in marks.arcs.values():
+            lines.append((MARK_COLOURS[other], MARK_TEXTS[other], None))
     font = FONTS["legend"]
     out, x = [f'<g class="legend" transform="translate({svg.num(MARGIN)},{svg.num(y)})">'], 0.0
     for colour, text, dash in lines:

@@ -240,6 +240,8 @@ def perform(job_id: str, prefix: str, limits: dict, lease: float, ttl: int) -> s
     """The RQ job function (runs in the work horse)."""
     from rq import get_current_job
 
-    backend = RedisJobs(prefix=prefix, limits=Limits(**limits), lease=lease, ttl=ttl,
+    known = {f.name for f in dataclasses.fields(Limits)}  # a job queued by an older version may carry more
+    backend = RedisJobs(prefix=prefix, limits=Limits(**{k: v for k, v in limits.items() if k in known}),
+                        lease=lease, ttl=ttl,
                         connection=get_current_job().connection)
     return backend.run(job_id)

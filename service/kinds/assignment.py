@@ -16,7 +16,7 @@ from ..model.ids import MAX_ID_LENGTH
 from ..model.schemas import NODE_ID_MESSAGE, NodeId, OptionsSchema, StrictBoolean, load_envelope
 from ..solvers.assignment import solve_assignment
 from ..solvers.versions import ORTOOLS_VERSION
-from .base import Limits
+from .base import Kind, Limits, problem_size
 from .maxflow import EngineSchema, TimingSchema
 
 PAIR_FIELDS = ("agent", "task", "cost")
@@ -303,14 +303,13 @@ def _unassigned(ids: list, used: list) -> list:
     return [v for i, v in enumerate(ids) if i not in taken]
 
 
-class AssignmentKind:
-    name = "assignment"
-    summary = "Assignment of agents to tasks at least (or most) total cost, with duals"
-    request_schema = AssignmentRequest
-    response_schema = AssignmentResponse
-    example = "vans-assignment.json"
-    parse = staticmethod(parse)
-    solve = staticmethod(solve)
-
-
-KIND = AssignmentKind()
+KIND = Kind(
+    name="assignment",
+    summary="Assignment of agents to tasks at least (or most) total cost, with duals",
+    request_schema=AssignmentRequest,
+    response_schema=AssignmentResponse,
+    example="vans-assignment.json",
+    parse=parse,
+    solve=solve,
+    size=problem_size,
+)

@@ -8,9 +8,9 @@ go through this interface, so a new problem kind is one module here plus its ent
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from operator import itemgetter
-from typing import Any, Protocol
+from typing import Any, Callable, Protocol
 
 import numpy as np
 
@@ -20,13 +20,17 @@ from ..model.ids import NodeIndex, lookalike, shown_id
 
 @dataclass(frozen=True)
 class Limits:
-    """Size and time limits applied while parsing and solving."""
+    """Size and time limits applied while parsing and solving.
+
+    The service builds them from :class:`service.config.Settings` (whose defaults these
+    repeat for callers without settings, such as tests; ``tests/test_kinds.py`` keeps
+    the two equal).
+    """
 
     max_arcs: int = 5_000_000
     max_nodes: int = 5_000_000
     time_limit: float = 30.0
     max_commodities: int = 1_000
-    max_batch_items: int = 100
     #: Flows over time: horizon x (arcs + nodes), the size of the time-expanded network.
     #: 5M is about four times a 10,000-lane network over 100 periods (a few seconds, a few
     #: hundred MB); larger ones are refused with a 413 naming ``horizon``.
@@ -38,21 +42,99 @@ class Problem(Protocol):
     options: dict
 
 
-class Kind(Protocol):
+@dataclass(frozen=True)
+class Kind:
+    """Everything the service knows about one problem kind, declared in one place.
+
+    Routes, the OpenAPI document, batches, jobs, DIMACS bodies, diagrams, plan checks,
+    stored-network what-ifs and ``GET /v1/kinds`` are all derived from these fields;
+    a capability a kind lacks is a field left at its empty default.
+
+    Attributes
+    ----------
+    name : str
+        The path segment under ``/v1/`` and the ``kind`` of batch items and jobs.
+    summary : str
+        One line for the spec and ``GET /v1/kinds``.
+    request_schema, response_schema : type
+        Marshmallow schemas of ``POST /v1/{name}`` (documentation; ``parse`` validates).
+    example : str
+        File name of the scenario under ``service/scenarios`` shown as the example.
+    parse : callable
+        ``parse(body, limits) -> Problem``; raises :class:`~service.errors.InputError`.
+    solve : callable
+        ``solve(problem, limits) -> dict``, the response document.
+    query_schema : type, optional
+        Schema of the question about a stored network (``POST /v1/networks/{n}/{name}``,
+        without ``changes``); given together with ``from_network``.
+    from_network : callable, optional
+        ``from_network(network, query, limits) -> Problem`` for a stored network.
+    dimacs : {"max", "min"}, optional
+        The DIMACS ``p`` format the solve endpoint also takes as ``text/x-dimacs``.
+    drawable : bool
+        ``service.drawing`` has a drawer for the kind (``POST /v1/diagram.svg``).
+    verifiable : bool
+        Clients' plans can be checked (``POST /v1/verify/{name}``, :mod:`.verify`).
+    size : callable, optional
+        ``size(problem) -> int``, the work a problem holds; at most
+        ``SLUICE_INLINE_MAX_ARCS`` it is solved on the request thread. ``None``: always
+        in a solver process.
+    honours_time_limit : bool
+        The solver stops itself at ``options.time_limit`` and answers (GLOP, the MIP
+        engines), so a solver process gets a grace period before it is killed
+        (:func:`stop_grace`).
+    per_period_capacity : bool
+        What-if ``capacity`` changes may give one number per period (flows over time).
+    for_solver_process : callable, optional
+        ``for_solver_process(problem) -> Problem``: the problem without what its solve
+        does not read, before it is pickled to a solver process (:func:`without_arc_keys`
+        for the kinds whose solve never reads the arcs' ``key`` labels). ``None``: as is.
+    """
+
     name: str
     summary: str
     request_schema: type
     response_schema: type
-    example: str  # scenario file name
+    example: str
+    parse: Callable[[Any, Limits], Problem]
+    solve: Callable[[Problem, Limits], dict]
+    query_schema: type | None = None
+    from_network: Callable[[Any, Any, Limits], Problem] | None = None
+    dimacs: str | None = None
+    drawable: bool = False
+    verifiable: bool = False
+    size: Callable[[Problem], int] | None = None
+    honours_time_limit: bool = False
+    per_period_capacity: bool = False
+    for_solver_process: Callable[[Problem], Problem] | None = None
 
-    def parse(self, body: Any, limits: Limits) -> Problem: ...
+    def __post_init__(self):
+        if (self.query_schema is None) != (self.from_network is None):
+            raise TypeError(f"kind {self.name!r}: query_schema and from_network go together")
+        if self.dimacs not in (None, "max", "min"):
+            raise TypeError(f"kind {self.name!r}: dimacs must be 'max', 'min' or None")
 
-    def solve(self, problem: Problem, limits: Limits) -> dict: ...
+    def capabilities(self) -> dict:
+        """What the kind can do beyond ``POST /v1/{name}``, as ``GET /v1/kinds`` lists it."""
+        return {"what_if": self.from_network is not None, "dimacs": self.dimacs, "diagram": self.drawable,
+                "verify": self.verifiable, "jobs": True, "batch": True}
 
-    # Optional, for kinds that can be asked of a stored network (maxflow, mincostflow):
-    # build a problem from an already-normalised Network and a query body (source/sink,
-    # or supplies, plus options) without re-parsing the arcs.
-    # def from_network(self, network: Network, query: Any, limits: Limits) -> Problem: ...
+
+def without_arc_keys(problem):
+    """The problem with its network's arc ``key`` labels dropped: for :attr:`Kind.for_solver_process`.
+
+    A list of labels pickles one string at a time: at 1M labelled arcs that took about
+    430 ms both ways, more than the solve (measured in-process; the arrays themselves
+    cross in about 40 ms).
+    """
+    if problem.network.keys is None:
+        return problem
+    return replace(problem, network=replace(problem.network, keys=None))
+
+
+def problem_size(problem) -> int:
+    """The ``size`` a problem carries (a field or property): for :attr:`Kind.size`."""
+    return problem.size
 
 
 def ids_of(nodes: NodeIndex, indices: np.ndarray):
@@ -86,13 +168,29 @@ def digest_detail(options: dict, default) -> list | None:
     return None if detail is None or set(detail) == set(default) else detail
 
 
-def stop_grace(kind, seconds: float) -> float:
+def stop_grace(kind: Kind | None, seconds: float) -> float:
     """Seconds past its time limit before a solve is killed: a kind whose solver stops
     itself at the limit (``honours_time_limit``: GLOP, the MIP engines) gets time to
     return its own answer (``time_limit``, or a plan so far); the others are killed at it."""
-    return min(10.0, max(2.0, 0.5 * seconds)) if getattr(kind, "honours_time_limit", False) else 0.0
+    return min(10.0, max(2.0, 0.5 * seconds)) if kind is not None and kind.honours_time_limit else 0.0
 
 
 def wants(options: dict, part: str) -> bool:
     detail = options.get("detail")
     return detail is None or part in detail
+
+
+def posted_whole(network, query, query_schema, *, arc_fields: tuple = (), node_fields: tuple = ()) -> dict:
+    """The body a client would post whole for a question about a stored network.
+
+    For kinds whose what-ifs read the stored network through their own parser (the
+    planning and over-time kinds), so the two answer alike by construction. The query
+    is checked first by ``query_schema`` (pointers relative to the query: ``/top``),
+    then joined with the network's ``nodes`` and ``arcs`` and the optional columns
+    ``arc_fields``/``node_fields`` it carries (:func:`service.model.stored.body_of`).
+    """
+    from ..model.schemas import load_envelope
+    from ..model.stored import body_of
+
+    load_envelope(query_schema, query)
+    return {**query, **body_of(network, arc_fields, node_fields)}

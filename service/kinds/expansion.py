@@ -14,7 +14,7 @@ from ..model.digest import problem_digest
 from ..model.schemas import ArcsField, NodeId, NodesField, OptionsSchema, StrictNumber, detail_field, load_envelope
 from ..solvers.expansion import Lanes, cheapest_expansion
 from ..solvers.versions import ORTOOLS_VERSION
-from .base import Limits, ids_of, node_position, time_limit, wants
+from .base import Kind, Limits, ids_of, node_position, posted_whole, time_limit, wants, without_arc_keys
 from .maxflow import TimingSchema
 from .mincostflow import POTENTIAL_MEANING
 
@@ -48,8 +48,22 @@ class ExpansionRequest(Schema):
     options = fields.Nested(ExpansionOptions, load_default=lambda: ExpansionOptions().load({}))
 
 
+class ExpansionQuery(Schema):
+    """An expansion question about a stored network: its arcs carry capacity and the
+    expand_* columns (stored with the network, or set by changes)."""
+
+    class Meta:
+        unknown = RAISE
+
+    source = ExpansionRequest._declared_fields["source"]
+    sink = ExpansionRequest._declared_fields["sink"]
+    target = ExpansionRequest._declared_fields["target"]
+    options = ExpansionRequest._declared_fields["options"]
+
+
 #: Reused across requests: building a schema deep-copies its fields.
 _REQUEST = ExpansionRequest()
+_QUERY = ExpansionQuery()
 
 
 class ExpansionCutSchema(Schema):
@@ -163,6 +177,11 @@ def parse(body, limits: Limits) -> ExpansionProblem:
     return ExpansionProblem(network, lanes, options, digest_of(network, lanes, options))
 
 
+def from_network(network: Network, query, limits: Limits) -> ExpansionProblem:
+    """An expansion question about a stored network, read as the same request posted whole."""
+    return parse(posted_whole(network, query, _QUERY, arc_fields=EXPANSION_FIELDS), limits)
+
+
 def _lanes(network: Network, extra: dict, source: int, sink: int, target) -> Lanes:
     m = network.num_arcs
     cost_col = extra.get("expand_cost")
@@ -233,14 +252,16 @@ def solve(problem: ExpansionProblem, limits: Limits) -> dict:
     return out
 
 
-class ExpansionKind:
-    name = "expansion"
-    summary = "The cheapest capacity to add to the lanes so that a target can move"
-    request_schema = ExpansionRequest
-    response_schema = ExpansionResponse
-    example = "night-pallets-expansion.json"
-    parse = staticmethod(parse)
-    solve = staticmethod(solve)
-
-
-KIND = ExpansionKind()
+KIND = Kind(
+    name="expansion",
+    summary="The cheapest capacity to add to the lanes so that a target can move",
+    request_schema=ExpansionRequest,
+    response_schema=ExpansionResponse,
+    example="night-pallets-expansion.json",
+    parse=parse,
+    solve=solve,
+    query_schema=ExpansionQuery,
+    from_network=from_network,
+    drawable=True,
+    for_solver_process=without_arc_keys,
+)

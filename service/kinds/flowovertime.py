@@ -32,7 +32,7 @@ from ..model.schemas import ArcsField, NodeId, NodesField, OptionsSchema, Strict
 from ..solvers.flowovertime import OverTimeSolution, max_by_horizon, min_cost, quickest
 from ..solvers.timeexpanded import TimedNetwork
 from ..solvers.versions import ORTOOLS_VERSION
-from .base import Limits, ids_of, node_position
+from .base import Kind, Limits, ids_of, node_position, posted_whole, problem_size
 from .maxflow import EngineSchema, TimingSchema
 
 OBJECTIVES = ["max-by-horizon", "quickest", "min-cost"]
@@ -92,8 +92,28 @@ class FlowOverTimeRequest(Schema):
     options = fields.Nested(FlowOverTimeOptions, load_default=lambda: dict(_DEFAULT_OPTIONS))
 
 
+class FlowOverTimeQuery(Schema):
+    """A flow-over-time question about a stored network: its arcs may carry transit and
+    its nodes holdover and holdover_cost (stored with the network, or set by changes)."""
+
+    class Meta:
+        unknown = RAISE
+
+    horizon = FlowOverTimeRequest._declared_fields["horizon"]
+    period = FlowOverTimeRequest._declared_fields["period"]
+    objective = FlowOverTimeRequest._declared_fields["objective"]
+    source = FlowOverTimeRequest._declared_fields["source"]
+    sink = FlowOverTimeRequest._declared_fields["sink"]
+    amount = FlowOverTimeRequest._declared_fields["amount"]
+    supplies = fields.Raw(load_default=None, metadata={
+        "description": "min-cost: supplies for this query, in the nodes form: [{\"id\": \"depot\", \"supply\": 40}, "
+                       "...] (or columns {\"id\": [...], \"supply\": [...]}); nodes not listed have supply 0."})
+    options = FlowOverTimeRequest._declared_fields["options"]
+
+
 _DEFAULT_OPTIONS = FlowOverTimeOptions().load({})
 _REQUEST = FlowOverTimeRequest()
+_QUERY = FlowOverTimeQuery()
 
 
 class LanePeriodSchema(Schema):
@@ -222,6 +242,7 @@ class FlowOverTimeProblem:
     options: dict
     digest: str
     size: int  # expanded size: horizon x (arcs + nodes), for the inline/solver-process choice
+    keys: list | None = None  # the lanes' labels, for diagrams
 
 
 def parse(body, limits: Limits) -> FlowOverTimeProblem:
@@ -245,7 +266,7 @@ def parse(body, limits: Limits) -> FlowOverTimeProblem:
     if n > limits.max_nodes:
         raise ProblemTooLarge(FieldError("/nodes", f"has {n} nodes; the limit is {limits.max_nodes}"))
     _check_expanded(horizon, m, n, limits)
-    read_keys(cols.get("key"))
+    keys = read_keys(cols.get("key"))
     capacity = capacity_column(cols.get("capacity"), m, horizon)
     cost = None if "cost" not in cols else number_column(cols["cost"].values, cols["cost"].where, minimum=0).values
     declared = len(nodes.ids.values)
@@ -264,7 +285,50 @@ def parse(body, limits: Limits) -> FlowOverTimeProblem:
         net.holdover, net.holdover_unlimited, *costs, supply,
         [horizon, objective, source, sink, amount, env["period"]], {"detail": options.get("detail")})
     return FlowOverTimeProblem(net, index, objective, source, sink, amount, supply, env["period"], options, digest,
-                               horizon * (m + n))
+                               horizon * (m + n), keys)
+
+
+def from_network(network, query, limits: Limits) -> FlowOverTimeProblem:
+    """A flow-over-time question about a stored network, read as the same request posted whole.
+
+    Raises
+    ------
+    InputError
+        Naming the field of the query (``/supplies/0/id``) or of the stored network.
+    """
+    if network.lower is not None:
+        raise InputError.at("", "the stored network has lower bounds on some arcs; flows over time do not "
+                                "support them")
+    body = posted_whole(network, query, _QUERY, arc_fields=("transit",), node_fields=("holdover", "holdover_cost"))
+    _check_period_changes(network, body["horizon"])
+    supplies = body.pop("supplies", None)
+    if supplies is not None:
+        supply = _stored_supply(network, supplies)
+        nodes = body["nodes"] if isinstance(body["nodes"], dict) else {"id": body["nodes"]}
+        body["nodes"] = {**nodes, "supply": supply}
+    return parse(body, limits)
+
+
+def _check_period_changes(network, horizon: int) -> None:
+    """A what-if's per-period capacity list needs one entry per period (named at its change)."""
+    where = (network.extra or {}).get("period_where", {})
+    wrong = [(at, len(network.extra["periods"][arc])) for arc, at in where.items()
+             if len(network.extra["periods"][arc]) != horizon]
+    if wrong:
+        raise InputError([FieldError(at, f"has {n} entries; a capacity list needs one per period: horizon is "
+                                         f"{horizon}") for at, n in wrong])
+
+
+def _stored_supply(network, supplies) -> list:
+    raw = read_nodes(supplies, extra_fields=("supply",), base="/supplies")
+    supply = [0] * network.num_nodes
+    column = raw.fields.get("supply")
+    values = None if column is None else number_column(column.values, column.where).values.tolist()
+    for i, node_id in enumerate(raw.ids.values):
+        at = node_position(network.nodes, node_id, raw.ids.where(i))
+        if values is not None:
+            supply[at] = values[i]
+    return supply
 
 
 def _check_expanded(horizon: int, arcs: int, nodes: int, limits: Limits) -> None:
@@ -377,14 +441,17 @@ def _steps(nodes: NodeIndex, steps: dict) -> dict:
             "holdover": _node_entries(nodes, steps["hold_node"], steps["hold_period"])}
 
 
-class FlowOverTimeKind:
-    name = "flowovertime"
-    summary = "Flows over time: the most by a horizon (earliest arrival), the quickest, or the cheapest schedule"
-    request_schema = FlowOverTimeRequest
-    response_schema = FlowOverTimeResponse
-    example = "xdock-night-flowovertime.json"
-    parse = staticmethod(parse)
-    solve = staticmethod(solve)
-
-
-KIND = FlowOverTimeKind()
+KIND = Kind(
+    name="flowovertime",
+    summary="Flows over time: the most by a horizon (earliest arrival), the quickest, or the cheapest schedule",
+    request_schema=FlowOverTimeRequest,
+    response_schema=FlowOverTimeResponse,
+    example="xdock-night-flowovertime.json",
+    parse=parse,
+    solve=solve,
+    query_schema=FlowOverTimeQuery,
+    from_network=from_network,
+    drawable=True,
+    per_period_capacity=True,
+    size=problem_size,
+)

@@ -13,7 +13,7 @@ from ..model.linear import LinearModel, read_linear_model
 from ..model.schemas import OptionsSchema, StrictBoolean, StrictNumber, detail_field, load_envelope
 from ..solvers.lp import LPModel, beyond_range, solve_certified
 from ..solvers.versions import ORTOOLS_VERSION
-from .base import Limits, digest_detail, time_limit, wants
+from .base import Kind, Limits, digest_detail, problem_size, time_limit, wants
 from .maxflow import EngineSchema, TimingSchema
 
 DETAIL = ["values", "duals", "reduced_costs"]
@@ -260,16 +260,15 @@ def solve(problem: LPProblem, limits: Limits) -> dict:
     return out
 
 
-class LPKind:
-    name = "lp"
+KIND = Kind(
+    name="lp",
+    summary="Linear program (min or max) with shadow prices and reduced costs, certified",
+    request_schema=LPRequest,
+    response_schema=LPResponse,
+    example="depots-lp.json",
+    parse=parse,
+    solve=solve,
+    size=problem_size,
     #: GLOP stops itself at options.time_limit and answers status "time_limit".
-    honours_time_limit = True
-    summary = "Linear program (min or max) with shadow prices and reduced costs, certified"
-    request_schema = LPRequest
-    response_schema = LPResponse
-    example = "depots-lp.json"
-    parse = staticmethod(parse)
-    solve = staticmethod(solve)
-
-
-KIND = LPKind()
+    honours_time_limit=True,
+)

@@ -20,7 +20,7 @@ from ..model.schemas import (
 from ..solvers import maximum_flow
 from ..solvers.versions import ORTOOLS_VERSION
 from ..errors import InputError, ProblemTooLarge, FieldError
-from .base import Limits, digest_detail, ids_of, node_position, time_limit, wants
+from .base import Kind, Limits, digest_detail, ids_of, node_position, problem_size, time_limit, wants, without_arc_keys
 
 DETAIL = ["flows", "cut"]
 
@@ -208,16 +208,19 @@ def solve(problem: MaxFlowProblem, limits: Limits) -> dict:
     return out
 
 
-class MaxFlowKind:
-    name = "maxflow"
-    summary = "Maximum flow from a source to a sink, with a minimum cut"
-    request_schema = MaxFlowRequest
-    response_schema = MaxFlowResponse
-    example = "depots-maxflow.json"
-    query_schema = MaxFlowQuery
-    parse = staticmethod(parse)
-    solve = staticmethod(solve)
-    from_network = staticmethod(from_network)
-
-
-KIND = MaxFlowKind()
+KIND = Kind(
+    name="maxflow",
+    summary="Maximum flow from a source to a sink, with a minimum cut",
+    request_schema=MaxFlowRequest,
+    response_schema=MaxFlowResponse,
+    example="depots-maxflow.json",
+    parse=parse,
+    solve=solve,
+    query_schema=MaxFlowQuery,
+    from_network=from_network,
+    dimacs="max",
+    drawable=True,
+    verifiable=True,
+    size=problem_size,
+    for_solver_process=without_arc_keys,
+)

@@ -16,7 +16,7 @@ from ..model.nodes import read_nodes
 from ..model.schemas import ArcsField, NodeId, NodesField, OptionsSchema, detail_field, load_envelope
 from ..solvers.mincost import imbalance, min_cost_flow
 from ..solvers.versions import ORTOOLS_VERSION
-from .base import Limits, digest_detail, ids_of, time_limit, wants
+from .base import Kind, Limits, digest_detail, ids_of, problem_size, time_limit, wants, without_arc_keys
 from .maxflow import EngineSchema, TimingSchema
 
 DETAIL = ["flows", "potentials", "reduced_costs"]
@@ -305,16 +305,19 @@ def solve(problem: MinCostFlowProblem, limits: Limits) -> dict:
     return out
 
 
-class MinCostFlowKind:
-    name = "mincostflow"
-    summary = "Minimum-cost flow from supplies to demands, with node potentials and proofs"
-    request_schema = MinCostFlowRequest
-    response_schema = MinCostFlowResponse
-    example = "depots-mincostflow.json"
-    query_schema = MinCostFlowQuery
-    parse = staticmethod(parse)
-    solve = staticmethod(solve)
-    from_network = staticmethod(from_network)
-
-
-KIND = MinCostFlowKind()
+KIND = Kind(
+    name="mincostflow",
+    summary="Minimum-cost flow from supplies to demands, with node potentials and proofs",
+    request_schema=MinCostFlowRequest,
+    response_schema=MinCostFlowResponse,
+    example="depots-mincostflow.json",
+    parse=parse,
+    solve=solve,
+    query_schema=MinCostFlowQuery,
+    from_network=from_network,
+    dimacs="min",
+    drawable=True,
+    verifiable=True,
+    size=problem_size,
+    for_solver_process=without_arc_keys,
+)

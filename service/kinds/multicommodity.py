@@ -26,7 +26,7 @@ from ..solvers.multicommodity_whole import whole_unit_flow
 from ..solvers.versions import ORTOOLS_VERSION
 from ..solvers.whole_model import whole_data_issue
 from . import progress
-from .base import Limits, digest_detail, node_position, time_limit, wants
+from .base import Kind, Limits, digest_detail, node_position, problem_size, time_limit, wants, without_arc_keys
 from .maxflow import EngineSchema, TimingSchema
 
 DETAIL = ["flows", "capacity_prices"]
@@ -442,19 +442,19 @@ def _solve_whole(problem: MultiCommodityProblem, flow_net: FlowNetwork, limits: 
     return out
 
 
-class MultiCommodityKind:
-    name = "multicommodity"
+KIND = Kind(
+    name="multicommodity",
+    summary="Multi-commodity flow: shared capacities, min-cost or max-throughput, with capacity prices",
+    request_schema=MultiCommodityRequest,
+    response_schema=MultiCommodityResponse,
+    example="depots-multicommodity.json",
+    parse=parse,
+    solve=solve,
+    query_schema=MultiCommodityQuery,
+    from_network=from_network,
+    size=problem_size,
     #: GLOP and the MIP engines stop themselves at options.time_limit (the MIP with its
     #: plan so far: status "feasible").
-    honours_time_limit = True
-    summary = "Multi-commodity flow: shared capacities, min-cost or max-throughput, with capacity prices"
-    request_schema = MultiCommodityRequest
-    response_schema = MultiCommodityResponse
-    example = "depots-multicommodity.json"
-    query_schema = MultiCommodityQuery
-    parse = staticmethod(parse)
-    solve = staticmethod(solve)
-    from_network = staticmethod(from_network)
-
-
-KIND = MultiCommodityKind()
+    honours_time_limit=True,
+    for_solver_process=without_arc_keys,
+)

@@ -13,7 +13,7 @@ from ..model.digest import problem_digest
 from ..model.schemas import NodeId, OptionsSchema, detail_field, load_envelope
 from ..solvers.resilience import arc_closures
 from ..solvers.versions import ORTOOLS_VERSION
-from .base import Limits, ids_of, node_position, time_limit, wants
+from .base import Kind, Limits, ids_of, node_position, posted_whole, time_limit, wants, without_arc_keys
 from .maxflow import CutSchema, EngineSchema, MaxFlowCertificate, MaxFlowRequest, TimingSchema, UnboundedPathSchema
 
 DETAIL = ["flows", "cut", "cuts"]
@@ -35,8 +35,21 @@ class ResilienceRequest(MaxFlowRequest):
     options = fields.Nested(ResilienceOptions, load_default=lambda: ResilienceOptions().load({}))
 
 
+class ResilienceQuery(Schema):
+    """A resilience question about a stored network (the arcs come from the store)."""
+
+    class Meta:
+        unknown = RAISE
+
+    source = ResilienceRequest._declared_fields["source"]
+    sink = ResilienceRequest._declared_fields["sink"]
+    top = ResilienceRequest._declared_fields["top"]
+    options = ResilienceRequest._declared_fields["options"]
+
+
 #: Reused across requests: building a schema deep-copies its fields.
 _REQUEST = ResilienceRequest()
+_QUERY = ResilienceQuery()
 
 
 class FailureSchema(Schema):
@@ -119,6 +132,12 @@ def parse(body, limits: Limits) -> ResilienceProblem:
                              digest_of(network, source, sink, top, options))
 
 
+def from_network(network: Network, query, limits: Limits) -> ResilienceProblem:
+    """A resilience question about a stored network (``source``, ``sink``, ``top``, ``options``),
+    read as the same request posted whole."""
+    return parse(posted_whole(network, query, _QUERY), limits)
+
+
 def digest_of(network: Network, source: int, sink: int, top, options: dict) -> str:
     return problem_digest(
         "resilience", ORTOOLS_VERSION, network.nodes.ids, network.tail, network.head, network.capacity,
@@ -158,14 +177,16 @@ def solve(problem: ResilienceProblem, limits: Limits) -> dict:
     return out
 
 
-class ResilienceKind:
-    name = "resilience"
-    summary = "Which single lane closure lowers the maximum flow most, with each loss checked by a cut"
-    request_schema = ResilienceRequest
-    response_schema = ResilienceResponse
-    example = "night-pallets-resilience.json"
-    parse = staticmethod(parse)
-    solve = staticmethod(solve)
-
-
-KIND = ResilienceKind()
+KIND = Kind(
+    name="resilience",
+    summary="Which single lane closure lowers the maximum flow most, with each loss checked by a cut",
+    request_schema=ResilienceRequest,
+    response_schema=ResilienceResponse,
+    example="night-pallets-resilience.json",
+    parse=parse,
+    solve=solve,
+    query_schema=ResilienceQuery,
+    from_network=from_network,
+    drawable=True,
+    for_solver_process=without_arc_keys,
+)

@@ -27,10 +27,6 @@ from ..solvers.verify import FORWARD, Verdict, verify_max_flow, verify_min_cost_
 from .base import Limits, ids_of, time_limit
 from .nested import under
 
-#: Kinds whose plans can be checked, i.e. the ``{kind}`` of ``/v1/verify/{kind}``.
-VERIFY_KINDS = ("maxflow", "mincostflow")
-
-
 class VerifyRequest(Schema):
     class Meta:
         unknown = RAISE

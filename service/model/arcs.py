@@ -177,6 +177,9 @@ class Network:
     cost: np.ndarray | None
     lower: np.ndarray | None
     keys: list | None
+    #: Optional per-arc and per-node columns of the planning and over-time kinds
+    #: (see :mod:`service.model.stored`); None when there are none.
+    extra: dict | None = None
 
     @property
     def num_nodes(self) -> int:
@@ -248,7 +251,8 @@ def read_network(arcs_raw, nodes_raw, *, max_arcs: int, max_nodes: int, allow_lo
 
 
 def read_network_with(arcs_raw, nodes_raw, *, max_arcs: int, max_nodes: int, allow_lower: bool = True,
-                      node_fields: tuple[str, ...] = ("supply",), arc_fields: tuple[str, ...] = ()):
+                      node_fields: tuple[str, ...] = ("supply",), arc_fields: tuple[str, ...] = (),
+                      node_defaults: dict | None = None):
     """:func:`read_network`, also accepting the arc fields ``arc_fields``.
 
     Returns
@@ -260,7 +264,7 @@ def read_network_with(arcs_raw, nodes_raw, *, max_arcs: int, max_nodes: int, all
     from .nodes import read_nodes
 
     arcs = read_arcs(arcs_raw, max_arcs=max_arcs, fields=ARC_FIELDS + arc_fields)
-    nodes = read_nodes(nodes_raw, extra_fields=node_fields)
+    nodes = read_nodes(nodes_raw, extra_fields=node_fields, defaults=node_defaults)
     network = build_network(arcs, nodes.ids, allow_lower=allow_lower)
     if network.num_nodes > max_nodes:
         raise ProblemTooLarge(FieldError("/nodes", f"has {network.num_nodes} nodes; the limit is {max_nodes}"))

@@ -22,8 +22,14 @@ import numpy as np
 from ..errors import FieldError, InputError
 from .arcs import Network, zeros_as_absent
 from .columns import EXACT_FLOAT_INT, MAX_REPORTED_ERRORS, number_column
+from .ids import IdColumn
+from .stored import DEFAULTS, STORED_ARC_FIELDS, STORED_NODE_FIELDS, arc_column, as_json, checked_column, node_column
 
-CHANGE_FIELDS = ("arc", "key", "capacity", "cost", "closed")
+#: Arc changes: capacity, cost, closed and the optional columns (expand_*, transit).
+ARC_EFFECTS = ("capacity", "cost", "closed") + STORED_ARC_FIELDS
+#: Node changes (``node`` names the node): the over-time node columns.
+NODE_EFFECTS = STORED_NODE_FIELDS
+CHANGE_FIELDS = ("arc", "key") + ARC_EFFECTS + ("node",) + NODE_EFFECTS
 
 
 def apply_changes(
@@ -32,6 +38,7 @@ def apply_changes(
     *,
     key_index: dict | Callable[[], dict] | None = None,
     base: str = "/changes",
+    periods: bool = False,
 ) -> Network:
     """Return ``network`` with ``changes`` applied, as a new :class:`Network`.
 
@@ -45,6 +52,10 @@ def apply_changes(
         ``{arc key: arc index}``; a callable is only called when a change uses ``key``.
     base : str
         JSON Pointer of the ``changes`` member, for error messages.
+    periods : bool
+        Whether ``capacity`` may be a list of per-period capacities (flows over time);
+        those go to ``extra["periods"]`` (arc -> list), with the change's pointer in
+        ``extra["period_where"]`` for the kind's length check.
 
     Returns
     -------
@@ -77,19 +88,100 @@ def apply_changes(
     unknown = set(chain.from_iterable(changes)) - set(CHANGE_FIELDS)
     if unknown:
         i, name = next((i, k) for i, c in enumerate(changes) for k in c if k in unknown)
-        raise InputError.at(f"{base}/{i}/{_escape(name)}", "unknown field: a change has arc or key, and capacity, "
-                                                           "cost or closed")
-    cols = _Columns(changes, base)
+        raise InputError.at(f"{base}/{i}/{_escape(name)}", "unknown field: a change has arc or key, and "
+                                                           f"{', '.join(ARC_EFFECTS)}; or node, and "
+                                                           f"{' or '.join(NODE_EFFECTS)}")
+    on_node = [i for i, c in enumerate(changes) if "node" in c]
+    on_arc = [i for i, c in enumerate(changes) if "node" not in c]
+    extra = _copy_extra(network.extra)
+    if on_node:
+        _node_changes(network, _Columns([changes[i] for i in on_node], base, on_node), extra)
+    if on_arc:
+        network = _arc_changes(network, [changes[i] for i in on_arc], base, on_arc, key_index, periods, extra)
+    return replace(network, extra=extra if any(extra.values()) else None)
+
+
+def _copy_extra(extra: dict | None) -> dict:
+    """A what-if's own copy of the optional columns (the stored lists are shared until changed)."""
+    extra = extra or {}
+    return {"arcs": dict(extra.get("arcs", {})), "nodes": dict(extra.get("nodes", {}))}
+
+
+def _arc_changes(network: Network, changes: list, base: str, rows: list, key_index, periods: bool,
+                 extra: dict) -> Network:
+    changes = _split_period_capacity(changes, base, rows, periods)
+    cols = _Columns(changes, base, rows)
     target = _targets(cols, network, key_index)
     _reject_repeats(cols, target)
     cap = cols.numbers("capacity", allow_null=True, minimum=0)
     cost = cols.numbers("cost")
     closed = cols.booleans("closed")
     _check_effect(cols)
+    for name in STORED_ARC_FIELDS:
+        _set_column(extra["arcs"], name, cols, target, arc_column(network, name), network.num_arcs)
+    listed, values = cols.values("capacity_periods")
+    if listed.size:
+        extra["periods"] = dict(zip(target[listed].tolist(), values))
+        extra["period_where"] = {int(target[j]): cols.at(j, "capacity") for j in listed}
     capacity, unlimited, lower = _new_capacity(network, cols, target, cap, closed)
     new_cost = network.cost if cost is None else \
         zeros_as_absent(_assign(network.cost, network.num_arcs, target[cost[0]], cost[1]))
     return replace(network, capacity=capacity, unlimited=unlimited, cost=new_cost, lower=lower)
+
+
+def _split_period_capacity(changes: list, base: str, rows: list, periods: bool) -> list:
+    """Changes with a list ``capacity`` get it checked and moved to ``capacity_periods``."""
+    listed = [j for j, c in enumerate(changes) if type(c.get("capacity")) is list]
+    if not listed:
+        return changes
+    where = f"{base}/{rows[listed[0]]}/capacity"
+    if not periods:
+        raise InputError.at(where, "must be a number or null: per-period capacities are for flows over time")
+    changes = list(changes)
+    for j in listed:
+        change = dict(changes[j])
+        values = change.pop("capacity")
+        at = f"{base}/{rows[j]}/capacity"
+        checked = number_column(values, lambda k, at=at: f"{at}/{k}", allow_null=True, minimum=0)
+        change["capacity_periods"] = as_json(checked.values, checked.null)
+        changes[j] = change
+    return changes
+
+
+def _set_column(columns: dict, name: str, cols: "_Columns", target: np.ndarray, current: list | None,
+                count: int) -> None:
+    rows, values = cols.values(name)
+    if not rows.size:
+        return
+    checked = checked_column(name, IdColumn(values, cols.where(name, rows)))
+    column = list(current) if current is not None else [DEFAULTS[name]] * count
+    for at, value in zip(target[rows].tolist(), checked):
+        column[at] = value
+    columns[name] = column
+
+
+def _node_changes(network: Network, cols: "_Columns", extra: dict) -> None:
+    """``{"node": id, "holdover": ...}`` changes: the node columns of flows over time."""
+    for j, change in enumerate(cols.changes):
+        wrong = [k for k in change if k not in ("node",) + NODE_EFFECTS]
+        if wrong:
+            raise InputError.at(cols.at(j, _escape(wrong[0])), "a node change gives only "
+                                                              f"{' or '.join(NODE_EFFECTS)}")
+        if len(change) == 1:
+            raise InputError.at(cols.at(j), f"must give {' or '.join(NODE_EFFECTS)}")
+    _, ids = cols.values("node")
+    found = [network.nodes.index_of(v) if isinstance(v, (str, int)) and type(v) is not bool else None for v in ids]
+    if None in found:
+        j = found.index(None)
+        raise InputError.at(cols.at(j, "node"), "no node of the stored network has this id")
+    target = np.asarray(found, dtype=np.int64)
+    order = np.argsort(target, kind="stable")
+    repeat = np.flatnonzero(target[order][1:] == target[order][:-1])
+    if repeat.size:
+        first, again = int(order[repeat[0]]), int(order[repeat[0] + 1])
+        raise InputError.at(cols.at(again, "node"), f"this node is already changed by {cols.at(first)}")
+    for name in NODE_EFFECTS:
+        _set_column(extra["nodes"], name, cols, target, node_column(network, name), network.num_nodes)
 
 
 def _escape(name: str) -> str:
@@ -99,10 +191,11 @@ def _escape(name: str) -> str:
 class _Columns:
     """The changes split into columns, with presence masks (one C-level pass each)."""
 
-    def __init__(self, changes: list, base: str):
+    def __init__(self, changes: list, base: str, rows: list | None = None):
         self.changes = changes
         self.base = base
         self.count = len(changes)
+        self.rows = rows  # each change's index in the request (when these are some of them)
         self._has: dict = {}
 
     def has(self, name: str) -> np.ndarray:
@@ -116,10 +209,11 @@ class _Columns:
         return np.flatnonzero(has), list(compress(map(methodcaller("get", name), self.changes), has))
 
     def where(self, name: str, rows: np.ndarray):
-        return lambda j: f"{self.base}/{int(rows[j])}/{name}"
+        return lambda j: self.at(rows[j], name)
 
     def at(self, row: int, name: str | None = None) -> str:
-        return f"{self.base}/{int(row)}" + (f"/{name}" if name else "")
+        row = int(row) if self.rows is None else self.rows[int(row)]
+        return f"{self.base}/{row}" + (f"/{name}" if name else "")
 
     def numbers(self, name: str, **kwargs):
         rows, values = self.values(name)
@@ -201,10 +295,12 @@ def _reject_repeats(cols: _Columns, target: np.ndarray) -> None:
 
 
 def _check_effect(cols: _Columns) -> None:
-    none = np.flatnonzero(~(cols.has("capacity") | cols.has("cost") | cols.has("closed")))
+    effects = np.logical_or.reduce([cols.has(name) for name in ARC_EFFECTS + ("capacity_periods",)])
+    none = np.flatnonzero(~effects)
     if none.size:
-        raise _errors(none, None, "must give capacity, cost or closed", cols)
-    both = np.flatnonzero(cols.has("capacity") & cols.has("closed"))
+        raise _errors(none, None, f"must give {', '.join(ARC_EFFECTS)}", cols)
+    capacity = cols.has("capacity") | cols.has("capacity_periods")
+    both = np.flatnonzero(capacity & cols.has("closed"))
     if both.size:
         raise _errors(both, "closed", "cannot be combined with capacity (a closed arc has capacity 0)", cols)
 

@@ -79,17 +79,18 @@ class DimacsFile:
     designator_lines: dict = field(default_factory=dict)  # "s"/"t" -> line
 
     def request(self, purpose: str | None = None) -> dict:
-        """The request dict for ``purpose``: ``"maxflow"``, ``"mincostflow"``, ``"network"``
-        (nodes and arcs only, as a stored network takes them; node supplies, when a
-        ``p min`` file has any, as a ``supply`` column of ``nodes``) or None (the
-        format's own solve request).
+        """The request dict for ``purpose``: ``"max"`` or ``"min"`` (the solve request of
+        a kind that takes that format: the file must be of it), ``"network"`` (nodes and
+        arcs only, as a stored network takes them; node supplies, when a ``p min`` file
+        has any, as a ``supply`` column of ``nodes``) or None (the format's own solve
+        request).
 
         Raises
         ------
         InputError
             At the ``p`` line when the format does not fit the purpose.
         """
-        wanted = {"maxflow": "max", "mincostflow": "min"}.get(purpose or "")
+        wanted = purpose if purpose in FORMATS else None
         if wanted and wanted != self.format:
             _fail(self.problem_line, f"this endpoint takes 'p {wanted}', the file is 'p {self.format}'")
         ids = list(range(1, self.num_nodes + 1))

@@ -25,116 +25,20 @@ Decimals with at most six places are solved exactly as integers: quantities
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field, replace
-from typing import Any
-
 import numpy as np
-from ortools.graph.python import min_cost_flow as ortools_min_cost_flow
 from scipy import sparse
 from scipy.sparse import csgraph
 
-from ..errors import FieldError, InputError, SolverFailure
 from . import overtime_checks as checks
 from .earliest import FlowNetwork, earliest_arrival_flow, max_flow, nested_labels
+from .graph import bfs_predecessors
 from .maxflow_graph import graph_engine
-from .mincost_graph import GraphRangeError, auxiliary_max_flow, solver_bounds
-from .potentials import node_potentials
-from .scaling import common_scale
-from .timeexpanded import Expansion, OverflowRisk, Schedule, TimedNetwork, expand, finite_total
+from .overtime_common import OverTimeSolution, _finite_total, release_late, to_integers
+from .overtime_mincost import min_cost
+from .timeexpanded import Expansion, Schedule, TimedNetwork, expand
 
-
-@dataclass
-class OverTimeSolution:
-    """A solved flow-over-time problem, in the lanes' own terms (already unscaled).
-
-    ``status``: ``optimal``, ``infeasible`` (quickest or min-cost) or ``unbounded``
-    (max-by-horizon along lanes without limits). ``cut``: dict with ``dep_arc``,
-    ``dep_period``, ``hold_node``, ``hold_period``, ``capacity`` (and ``horizon``,
-    the periods of the network it cuts).
-    """
-
-    status: str
-    horizon: int
-    engine: dict
-    value: Any = None
-    cost: Any = None
-    arrivals: np.ndarray | None = None
-    schedule: Schedule | None = None
-    amounts: tuple | None = None  # (departure amounts, holdover amounts) in the caller's units
-    cut: dict | None = None
-    deliveries: dict | None = None
-    releases: dict | None = None
-    infeasibility: dict | None = None
-    unbounded_path: dict | None = None
-    certificate: dict = field(default_factory=dict)
-
-
-# --- scaling --------------------------------------------------------------------------
-
-
-@dataclass(frozen=True)
-class Scale:
-    quantity: int = 0  # decimal places of capacities, holdover, supplies, amount
-    cost: int = 0
-
-    def units(self, x):
-        """Scaled integers back to the caller's units."""
-        if not self.quantity:
-            return x
-        return x / 10.0**self.quantity if isinstance(x, np.ndarray) else x / 10**self.quantity
-
-    def money(self, x):
-        places = self.quantity + self.cost
-        return x if not places else x / 10**places
-
-    def describe(self) -> dict:
-        out = {}
-        if self.quantity:
-            out["decimal_scale"] = 10**self.quantity
-        if self.cost:
-            out["cost_scale"] = 10**self.cost
-        return out
-
-
-def to_integers(net: TimedNetwork, supply=None, amount=None):
-    """Scale decimal data to exact integers.
-
-    Returns
-    -------
-    (TimedNetwork, supply, amount, Scale)
-
-    Raises
-    ------
-    InputError
-        When some value needs more than nine decimals (naming the field).
-    """
-    quantities = {"capacity": net.capacity, "holdover": net.holdover, "supply": supply,
-                  "amount": None if amount is None else np.asarray([amount])}
-    costs = {"cost": net.cost, "holdover_cost": net.holdover_cost}
-    if all(a is None or a.dtype.kind == "i" for a in (*quantities.values(), *costs.values())):
-        return net, supply, amount, Scale()
-    scaled_q = _common(quantities)
-    scaled_c = _common(costs)
-    d, (capacity, holdover, supply, amount_arr) = scaled_q
-    e, (cost, holdover_cost) = scaled_c
-    net = replace(net, capacity=capacity, holdover=holdover, cost=cost, holdover_cost=holdover_cost)
-    return net, supply, None if amount_arr is None else int(amount_arr[0]), Scale(d, e)
-
-
-#: Where each scaled field lives in a request, for the error that names it.
-_FIELD_POINTERS = {"capacity": "/arcs", "cost": "/arcs", "holdover": "/nodes", "holdover_cost": "/nodes",
-                   "supply": "/nodes", "amount": "/amount"}
-
-
-def _common(arrays: dict):
-    found = common_scale(*arrays.values())
-    if found is None:
-        name = next((k for k, a in arrays.items() if a is not None and common_scale(a) is None), None)
-        name = name or next(k for k, a in arrays.items() if a is not None)
-        raise InputError(FieldError(_FIELD_POINTERS[name],
-                                    f"{name} values need more than 9 decimal places, or are too large once scaled "
-                                    "to integers; round them"))
-    return found
+__all__ = ["OverTimeSolution", "least_transit_to", "max_by_horizon", "min_cost", "quickest", "through_network",
+           "unlimited_path"]
 
 
 # --- max by horizon -------------------------------------------------------------------
@@ -253,32 +157,6 @@ def source_arcs(fnet: FlowNetwork) -> np.ndarray:
     return arcs[np.argsort(fnet.head[arcs])]
 
 
-def release_late(flows: np.ndarray, hold: np.ndarray, release: np.ndarray) -> None:
-    """Let own stock wait in the stock, not in the node's holdover (in place).
-
-    A unit released in period ``p`` and held at its node into ``p + 1`` is the same
-    unit released in ``p + 1``: at no extra cost, and free of the holdover limit.
-    Rows are nodes; ``hold[:, p]`` the node's holdover arc from ``p`` (``-1``: none),
-    ``release[:, p]`` the arc releasing its stock in ``p``. One vectorised step per
-    period moves what can be moved.
-    """
-    for p in range(hold.shape[1]):
-        has = hold[:, p] >= 0
-        h, r, r_next = hold[has, p], release[has, p], release[has, p + 1]
-        shift = np.minimum(flows[h], flows[r])
-        flows[h] -= shift
-        flows[r] -= shift
-        flows[r_next] += shift
-
-
-def _finite_total(net: TimedNetwork) -> int:
-    try:
-        return finite_total(net)
-    except OverflowRisk as exc:
-        raise InputError.at("/horizon", f"{exc}: too large for exact 64-bit arithmetic; shorten the horizon "
-                                        "or lower the capacities") from None
-
-
 def _arrivals(fnet: FlowNetwork, flows: np.ndarray, sink: int, n: int) -> np.ndarray:
     into = np.flatnonzero(fnet.head == fnet.sink)
     arrivals = np.zeros(fnet.horizon, np.int64)
@@ -314,8 +192,7 @@ def unlimited_path(x: Expansion, source: int, sink: int, horizon: int) -> dict |
     tails = np.concatenate([x.tail[arcs], np.full(horizon, root)])
     heads = np.concatenate([x.head[arcs], np.arange(horizon) * n + source])
     ids = np.concatenate([arcs, np.full(horizon, -1)])
-    graph = sparse.csr_matrix((np.ones(tails.size, bool), (tails, heads)), shape=(nodes + 1, nodes + 1))
-    _, pred = csgraph.breadth_first_order(graph, root, directed=True, return_predecessors=True)
+    pred = bfs_predecessors(nodes + 1, tails, heads, root)
     reached = np.flatnonzero(pred[np.arange(horizon) * n + sink] >= 0)
     if not reached.size:
         return None
@@ -420,100 +297,3 @@ def _source_side(fnet: FlowNetwork, solver, x: Expansion, h: int) -> np.ndarray:
     side = np.ones(nodes, bool)
     side[reach[reach < nodes]] = False
     return side.reshape(h, x.num_nodes).T
-
-
-# --- min cost -------------------------------------------------------------------------
-
-
-def min_cost(net: TimedNetwork, supply: np.ndarray) -> OverTimeSolution:
-    """The cheapest schedule releasing every supply and meeting every demand by the last period.
-
-    Parameters
-    ----------
-    supply : ndarray, shape (n,)
-        Positive supply, negative demand; sums to 0.
-
-    Returns
-    -------
-    OverTimeSolution
-        ``cost``, the schedule, releases and deliveries per node and period; or
-        ``status: infeasible`` with a node-period set that proves the demand cannot be
-        met in time.
-    """
-    net, supply, _, scale = to_integers(net, supply=np.asarray(supply))
-    _finite_total(net)
-    x = expand(net, with_cost=True)
-    H, n = net.horizon, net.num_nodes
-    nodes = n * H
-    sup, dem = np.flatnonzero(supply > 0), np.flatnonzero(supply < 0)
-    own = nodes + np.arange(sup.size)  # each supply node's own stock
-    sink = nodes + sup.size + np.arange(dem.size)  # each demand node's deliveries
-    periods = np.arange(H)
-    tail = np.concatenate([x.tail, np.repeat(own, H), (periods[None, :] * n + dem[:, None]).ravel()])
-    head = np.concatenate([x.head, (periods[None, :] * n + sup[:, None]).ravel(), np.repeat(sink, H)])
-    count = nodes + sup.size + dem.size
-    node_supply = np.concatenate([np.zeros(nodes, np.int64), supply[sup], supply[dem]]).astype(np.int64)
-    unlimited = np.concatenate([x.unlimited, np.ones((sup.size + dem.size) * H, bool)])
-    capacity = np.concatenate([x.capacity, np.zeros((sup.size + dem.size) * H, np.int64)])
-    cost = np.concatenate([x.cost, np.zeros((sup.size + dem.size) * H, np.int64)])
-    engine = graph_engine("SimpleMinCostFlow", **scale.describe())
-    try:
-        # Stand-ins for the unlimited arcs (and any capacity too large for int64 sums);
-        # costs are >= 0 here, so no cycle needs them.
-        cap = solver_bounds(count, tail, head, capacity, unlimited, cost, node_supply).caps
-    except GraphRangeError as exc:
-        raise InputError.at("", f"{exc}; lower the costs or capacities, or shorten the horizon") from None
-    solver = ortools_min_cost_flow.SimpleMinCostFlow()
-    handles = solver.add_arcs_with_capacity_and_unit_cost(tail.astype(np.int32), head.astype(np.int32), cap, cost)
-    solver.set_nodes_supplies(np.arange(count, dtype=np.int32), node_supply)
-    status = solver.solve()
-    if status == solver.INFEASIBLE:
-        return _shortfall(net, supply, count, tail, head, cap, node_supply, engine, scale)
-    if status != solver.OPTIMAL:
-        raise SolverFailure(f"OR-Tools min-cost flow returned status {status.name}")
-    flows = np.asarray(solver.flows(handles), dtype=np.int64)
-    # Only holding without a holdover cost can be moved (anything else would not be optimal).
-    release_late(flows, x.holdover_arcs(sup), x.num_arcs + np.arange(sup.size * H).reshape(sup.size, H))
-    schedule = Schedule.from_flows(x, flows)
-    figures, balance = checks.check_supplies_met(net, schedule, supply)
-    p = node_potentials(count, tail, head, cost, flows, capacity, unlimited)
-    release_price = np.zeros(n, np.int64)
-    release_price[sup] = p[own]
-    delivery_price = np.zeros(n, np.int64)
-    delivery_price[dem] = p[sink]
-    duals = checks.check_min_cost_duals(net, schedule, supply, balance, p[:nodes].reshape(H, n).T, release_price,
-                                        delivery_price)
-    certificate = {"checked": True, **duals, **figures, "tolerance": 0, **scale.describe()}
-    for name in ("primal_cost", "dual_bound", "gap"):
-        certificate[name] = scale.money(certificate[name])
-    releases = _per_node(-balance, sup, scale)
-    deliveries = _per_node(balance, dem, scale)
-    return OverTimeSolution("optimal", H, engine, cost=certificate["primal_cost"], value=scale.units(
-        int(supply[sup].sum())), schedule=schedule, amounts=(scale.units(schedule.dep_amount),
-                                                             scale.units(schedule.hold_amount)),
-        releases=releases, deliveries=deliveries, certificate=certificate)
-
-
-def _per_node(amounts: np.ndarray, rows: np.ndarray, scale: Scale) -> dict:
-    """Non-zero (node, period, amount) entries of the given rows, sorted by period then node."""
-    sub = amounts[rows]
-    r, p = np.nonzero(sub)
-    order = np.lexsort((rows[r], p))
-    return {"node": rows[r][order], "period": p[order], "amount": scale.units(sub[r, p][order])}
-
-
-def _shortfall(net, supply, count, tail, head, cap, node_supply, engine, scale):
-    # The stand-ins exceed the total supply, so no minimum cut crosses one.
-    value, _, side = auxiliary_max_flow(count, tail, head, cap, node_supply)
-    nodes = net.num_nodes * net.horizon
-    members = side[:nodes].reshape(net.horizon, net.num_nodes).T
-    proof = checks.check_shortfall(net, members, supply)
-    member_node, member_period = np.nonzero(members)
-    order = np.lexsort((member_node, member_period))
-    infeasibility = {**proof, "member_node": member_node[order], "member_period": member_period[order]}
-    for name in ("net_supply", "outgoing_capacity"):
-        infeasibility[name] = scale.units(infeasibility[name])
-    certificate = {"checked": True, "net_supply": infeasibility["net_supply"],
-                   "outgoing_capacity": infeasibility["outgoing_capacity"], "shippable": scale.units(value),
-                   "tolerance": 0, **scale.describe()}
-    return OverTimeSolution("infeasible", net.horizon, engine, infeasibility=infeasibility, certificate=certificate)

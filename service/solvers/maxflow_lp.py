@@ -13,9 +13,9 @@ import scipy.sparse as sp
 
 from ..errors import FieldError, InputError, SelfCheckFailed, SolverFailure, SolveTimeout
 from . import certificates
+from .graph import residual_reach
 from .lp import incidence_matrix, solve_lp
 from .maxflow_graph import MaxFlowSolution, graph_engine, unlimited_path
-from .potentials import residual_reach
 
 LP_TOLERANCE = 1e-6
 

@@ -19,8 +19,8 @@ from __future__ import annotations
 
 import numpy as np
 
+from .graph import node_balance, residual_reach
 from .maxflow_graph import MaxFlowSolution, graph_engine, run_max_flow, unlimited_path
-from .potentials import residual_reach
 
 
 def max_flow_wide(num_nodes, tail, head, capacity, unlimited, source, sink) -> MaxFlowSolution:
@@ -51,10 +51,7 @@ def max_flow_wide(num_nodes, tail, head, capacity, unlimited, source, sink) -> M
         flows = flows + _augment(num_nodes, tail, head, cap >> shift, flows, m * ((1 << drop) - 1), source, sink)
         phases += 1
     side = residual_reach(num_nodes, tail, head, flows, cap, None, source)
-    balance = np.zeros(num_nodes, dtype=object)
-    np.subtract.at(balance, tail, flows)
-    np.add.at(balance, head, flows)
-    return MaxFlowSolution("optimal", int(balance[sink]), flows, side,
+    return MaxFlowSolution("optimal", int(node_balance(num_nodes, tail, head, flows)[sink]), flows, side,
                            graph_engine("SimpleMaxFlow", phases=phases))
 
 

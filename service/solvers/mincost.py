@@ -34,17 +34,12 @@ against one more unit of supply at ``i``).
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
-from typing import Any
 
 import numpy as np
 
-from ..errors import FieldError, InputError, SolverFailure, SolveTimeout
+from ..errors import FieldError, InputError, SolverFailure
 from . import mincost_checks as checks
-from .certificates import throughput
-from .front import exact_max_flow
-from .lp import beyond_range, incidence_matrix, solve_lp
-from .maxflow_lp import LP_TOLERANCE
+from .graph import residual_reach
 from .mincost_graph import (
     GraphRangeError,
     SolverBounds,
@@ -54,47 +49,13 @@ from .mincost_graph import (
     solve_balanced,
     solver_bounds,
 )
-from .potentials import node_potentials, residual_reach
-from .scaling import MAX_DECIMALS, common_scale, is_object, rescale
-
-#: Relative slack of a flow rounded once from an exact answer (conservation over many arcs).
-ROUNDING = 1e-9
-
-
-@dataclass
-class MinCostSolution:
-    """A solved min-cost flow problem, in the caller's terms.
-
-    ``status`` is ``optimal``, ``infeasible`` or ``unbounded``. ``infeasibility``
-    holds ``members`` (bool mask over nodes), ``arcs``, ``net_supply``,
-    ``outgoing_capacity`` and ``side`` (``supply``: the set cannot send out what it
-    must; ``demand``: it cannot receive what it must, with the arcs entering it).
-    """
-
-    status: str
-    engine: dict
-    cost: Any = None
-    shipped: Any = None
-    flows: np.ndarray | None = None
-    potentials: np.ndarray | None = None
-    reduced_costs: np.ndarray | None = None
-    unmet: np.ndarray | None = None
-    infeasibility: dict | None = None
-    negative_cycle: np.ndarray | None = None
-    tolerance: float = 0.0
-    extra: dict = field(default_factory=dict)
-
-
-@dataclass
-class _Net:
-    n: int
-    tail: np.ndarray
-    head: np.ndarray
-    cap: np.ndarray
-    unl: np.ndarray | None
-    cost: np.ndarray
-    low: np.ndarray | None
-    sup: np.ndarray
+from .potentials import node_potentials
+from .scaling import MAX_DECIMALS, common_scale, is_object
+from .mincost_lp import _lp_route
+from .mincost_net import (
+    MinCostSolution, _augment, _infeasible, _lower_bounds_infeasible, _max_flow_solution, _Net, _plus_lower,
+    _report, _return_arc, _transform, _unbounded,
+)
 
 
 def imbalance(supply: np.ndarray):
@@ -255,23 +216,6 @@ def _range_error(exc: GraphRangeError, n: int, dq: int, dc: int, gq: int, gc: in
     return InputError(FieldError("/arcs", f"{exc}; {exact}"))
 
 
-def _transform(net: _Net):
-    """Remove lower bounds: capacities ``u - l`` and supplies ``b - out(l) + in(l)``."""
-    if net.low is None:
-        return net.cap, net.sup.copy()
-    cap = net.cap - net.low
-    if net.unl is not None:
-        cap = np.where(net.unl, 0, cap)
-    sup = net.sup.copy() if is_object(net.sup) or is_object(net.low) else net.sup.astype(np.int64, copy=True)
-    np.subtract.at(sup, net.tail, net.low)
-    np.add.at(sup, net.head, net.low)
-    return cap, sup
-
-
-def _plus_lower(flows, low):
-    return flows if low is None else flows + low
-
-
 def _negative_stand_ins(cost: np.ndarray, bounds: SolverBounds) -> bool:
     """Whether a negative-cost arc has a stand-in capacity (no limit, or a huge one)."""
     return bounds.stand_in is not None and bool((bounds.stand_in & (cost < 0)).any()) or \
@@ -320,48 +264,6 @@ def _solve_reject(net: _Net):
     return solution, certificate
 
 
-def _infeasible(net: _Net, side: np.ndarray, *, optional: bool = False, demand_room=None):
-    proof = checks.check_infeasible_set(net.tail, net.head, net.cap, net.unl, net.low, net.sup, side,
-                                        optional=optional, demand_room=demand_room)
-    proof.update(members=side, side="supply")
-    certificate = {"checked": True, "net_supply": proof["net_supply"],
-                   "outgoing_capacity": proof["outgoing_capacity"], "tolerance": 0.0}
-    return MinCostSolution("infeasible", mincost_engine(), infeasibility=proof), certificate
-
-
-def _unbounded(net: _Net, cycle: np.ndarray, feasible_flow: np.ndarray | None, relative: float = 0.0):
-    total = checks.check_negative_cycle(net.tail, net.head, net.unl, net.cost, cycle)
-    certificate = {"checked": True, "cycle_cost": total, "cycle_arcs": int(cycle.size), "tolerance": 0.0}
-    if feasible_flow is not None:
-        certificate.update(checks.check_feasible_flow(net.n, net.tail, net.head, net.cap, net.unl, net.low,
-                                                      net.sup, feasible_flow, relative))
-        if relative:  # a flow rounded once from an exact one: checked to that rounding
-            certificate["relative_tolerance"] = relative
-    solution = MinCostSolution("unbounded", mincost_engine(), negative_cycle=cycle)
-    solution.extra["cycle_cost"] = total
-    return solution, certificate
-
-
-def _augment(net: _Net):
-    """The max-flow-mode network: super source S -> supply nodes, demand nodes -> super sink T."""
-    s, t = net.n, net.n + 1
-    src = np.flatnonzero(net.sup > 0)
-    dst = np.flatnonzero(net.sup < 0)
-    k = src.size + dst.size
-    zeros = np.zeros(k, dtype=net.cost.dtype)
-    aug = _Net(
-        net.n + 2,
-        np.concatenate([net.tail, np.full(src.size, s, net.tail.dtype), dst.astype(net.tail.dtype)]),
-        np.concatenate([net.head, src.astype(net.head.dtype), np.full(dst.size, t, net.head.dtype)]),
-        np.concatenate([net.cap, net.sup[src], -net.sup[dst]]),
-        None if net.unl is None else np.concatenate([net.unl, np.zeros(k, dtype=bool)]),
-        np.concatenate([net.cost, zeros]),
-        None if net.low is None else np.concatenate([net.low, np.zeros(k, dtype=net.low.dtype)]),
-        np.zeros(net.n + 2, dtype=net.sup.dtype),
-    )
-    return aug, src, dst
-
-
 def _solve_max_flow(net: _Net):
     aug, src, dst = _augment(net)
     s, t = net.n, net.n + 1
@@ -394,18 +296,6 @@ def _solve_max_flow(net: _Net):
     return _max_flow_solution(net, aug, src, dst, flows, p, shipped, certificate), certificate
 
 
-def _max_flow_solution(net, aug, src, dst, flows, p, shipped, certificate, engine=None):
-    m = net.tail.size
-    unmet = net.sup.copy()
-    unmet[src] -= flows[m:m + src.size]
-    unmet[dst] += flows[m + src.size:]
-    pn = p[:net.n]
-    return MinCostSolution(
-        "optimal", engine or mincost_engine(), cost=certificate["primal_cost"], shipped=shipped, flows=flows[:m],
-        potentials=pn, reduced_costs=checks.reduced_costs(net.cost, pn, net.tail, net.head), unmet=unmet,
-        tolerance=certificate["tolerance"])
-
-
 def _most_shippable(aug: _Net, bounds: SolverBounds, e, total):
     """The largest amount S can ship to T while every lower bound holds; None if they cannot."""
     s, t = aug.n - 2, aug.n - 1
@@ -424,243 +314,8 @@ def _most_shippable(aug: _Net, bounds: SolverBounds, e, total):
     return None if flows is None else int(flows[-1])
 
 
-def _return_arc(aug: _Net):
-    """The augmented network's arcs plus a return arc T -> S without a limit."""
-    s, t = aug.n - 2, aug.n - 1
-    tail = np.concatenate([aug.tail, [t]]).astype(np.int32)
-    head = np.concatenate([aug.head, [s]]).astype(np.int32)
-    unl = np.concatenate([np.zeros(aug.tail.size, bool) if aug.unl is None else aug.unl, [True]])
-    return tail, head, unl
-
-
 def _lower_bounds_side(aug: _Net, bounds: SolverBounds, e) -> np.ndarray:
     """A minimum cut of the auxiliary network of the circulation with a return arc."""
     tail, head, _ = _return_arc(aug)
     _, _, side = auxiliary_max_flow(aug.n, tail, head, np.append(bounds.caps, bounds.big), e)
     return side
-
-
-def _lower_bounds_infeasible(net, side):
-    """Proof that the lower bounds cannot hold even when shipping is optional.
-
-    On the network with a return arc T -> S, a minimum cut X of the auxiliary network
-    proves it. When X holds neither S nor T (or S only), its real nodes receive more
-    through lower bounds than can leave them or be absorbed by their demand. When X
-    holds both, the real nodes outside X must send out more through lower bounds than
-    can enter them or be supplied inside.
-    """
-    s, t = net.n, net.n + 1
-    demand_room = np.maximum(-net.sup, 0)
-    supply_room = np.maximum(net.sup, 0)
-    if side[s] and side[t]:
-        members = ~side[:net.n]
-        flipped = _Net(net.n, net.head, net.tail, net.cap, net.unl, net.cost, net.low, -net.sup)
-        solution, certificate = _infeasible(flipped, members, optional=True, demand_room=supply_room)
-        solution.infeasibility["side"] = "demand"
-        return solution, certificate
-    return _infeasible(net, side[:net.n].copy(), optional=True, demand_room=demand_room)
-
-
-def _report(solution: MinCostSolution, certificate: dict, quantities: tuple[int, int], costs: tuple[int, int]):
-    """The exact integer answer in the caller's units: times the common factors, divided
-    by the decimal scales, rounded once per number (integers kept where JSON holds them)."""
-    totals = (quantities[0] * costs[0], quantities[1] * costs[1])
-    for name in ("flows", "unmet", "shipped"):
-        if getattr(solution, name) is not None:
-            setattr(solution, name, rescale(getattr(solution, name), *quantities))
-    for name in ("potentials", "reduced_costs"):
-        if getattr(solution, name) is not None:
-            setattr(solution, name, rescale(getattr(solution, name), *costs))
-    if solution.cost is not None:
-        solution.cost = rescale(solution.cost, *totals)
-    if solution.infeasibility:
-        for name in ("net_supply", "outgoing_capacity"):
-            solution.infeasibility[name] = rescale(solution.infeasibility[name], *quantities)
-    if "cycle_cost" in solution.extra:
-        solution.extra["cycle_cost"] = rescale(solution.extra["cycle_cost"], *costs)
-    for names, factor in ((("primal_cost", "dual_bound", "gap"), totals),
-                          (("net_supply", "outgoing_capacity", "shipped_bound"), quantities),
-                          (("cycle_cost",), costs)):
-        for name in names:
-            if name in certificate:
-                certificate[name] = rescale(certificate[name], *factor)
-    scaled = {}
-    if quantities[1] != 1 or costs[1] != 1:
-        scaled.update(decimal_scale=quantities[1], cost_scale=costs[1])
-    if quantities[0] != 1:
-        scaled["quantity_factor"] = rescale(quantities[0])  # a double past int64 (it only informs)
-    if costs[0] != 1:
-        scaled["cost_factor"] = rescale(costs[0])
-    certificate.update(scaled)
-    solution.engine = dict(solution.engine, **scaled)
-
-
-# -------------------------------------------------------------------------------- lp
-
-
-def _float(a):
-    return None if a is None else a.astype(np.float64)
-
-
-def _lp_route(net: _Net, shortage: str, time_limit):
-    net = _Net(net.n, net.tail, net.head, _float(net.cap), net.unl, _float(net.cost), _float(net.low),
-               _float(net.sup))
-    try:
-        if shortage == "reject":
-            return _lp_reject(net, time_limit)
-        return _lp_max_flow(net, time_limit)
-    except SolverFailure as exc:  # a failed certificate too: GLOP could not reach the tolerance here
-        capacities = net.cap if net.unl is None else net.cap[~net.unl]
-        raise beyond_range(exc, "/arcs", capacities=capacities, costs=net.cost, supplies=net.sup) from None
-
-
-def _lp_engine():
-    return {"kind": "lp", "solver": "OR-Tools GLOP", "version": mincost_engine()["version"],
-            "tolerance": LP_TOLERANCE}
-
-
-def _float_negative_cycle(net: _Net):
-    """A negative unlimited cycle for fractional costs, found on the costs rounded to a
-    grid of 2**-bits of the largest (as many bits as OR-Tools takes for this many
-    nodes) and kept only when its exact cost is negative."""
-    if net.unl is None or not (net.unl & (net.cost < 0)).any():
-        return None
-    top = float(np.abs(net.cost[net.unl]).max())
-    bits = min(40, 58 - (net.n + 4).bit_length())
-    ints = np.rint(np.ldexp(np.where(net.unl, net.cost, 0.0), bits - int(np.frexp(top)[1]))).astype(np.int64)
-    try:
-        cycle = negative_unlimited_cycle(net.n, net.tail, net.head, ints, net.unl)
-    except GraphRangeError as exc:
-        raise SolverFailure(f"no negative-cycle search fits these costs ({exc})") from None
-    if cycle is None or not checks.exact_sum(net.cost[cycle]) < 0:
-        return None
-    return cycle
-
-
-def _lp(net: _Net, supply, c, time_limit):
-    upper = net.cap if net.unl is None else np.where(net.unl, np.inf, net.cap)
-    low = np.zeros(net.tail.size) if net.low is None else net.low
-    lp = solve_lp(c, incidence_matrix(net.n, net.tail, net.head), supply, supply, low, upper,
-                  time_limit=time_limit)
-    if lp.status == "time_limit":
-        raise SolveTimeout("the LP engine hit the time limit")
-    return lp, low, upper
-
-
-def _lp_certified(net: _Net, lp, low, upper):
-    """Flows and potentials of an optimal LP answer, with their certificate.
-
-    GLOP's duals of the conservation rows, negated, are the potentials of the
-    reduced-cost convention (cost + p[from] - p[to]).
-    """
-    flows = np.clip(lp.x, low, upper)
-    p = -lp.row_duals
-    certificate = checks.check_min_cost_flow(net.n, net.tail, net.head, net.cap, net.unl, net.low, net.cost,
-                                             net.sup, flows, p, LP_TOLERANCE)
-    return flows, p, certificate
-
-
-def _exact_auxiliary(n, tail, head, cap, unl, supply, low=None):
-    """Exact maximum flow of the auxiliary network (super source to the supplies,
-    demands to a super sink) on the data's binary values: ``(source_side or None when
-    every supply moves, flows on the given arcs rounded once plus ``low``)``."""
-    s, t = n, n + 1
-    src, dst = np.flatnonzero(supply > 0), np.flatnonzero(supply < 0)
-    m = tail.size
-    all_tail = np.concatenate([tail, np.full(src.size, s), dst]).astype(np.int32)
-    all_head = np.concatenate([head, src, np.full(dst.size, t)]).astype(np.int32)
-    all_cap = np.concatenate([cap, supply[src], -supply[dst]])
-    all_unl = None if unl is None else np.concatenate([unl, np.zeros(src.size + dst.size, bool)])
-    solution, _, ints, denominator, _ = exact_max_flow(n + 2, all_tail, all_head, all_cap, all_unl, s, t)
-    if solution.value < checks.exact_sum(ints[m:m + src.size]):
-        return solution.source_side[:n].copy(), None
-    flows = rescale(solution.flows[:m], 1, denominator)
-    return None, flows if low is None else flows + low
-
-
-def _lp_reject(net: _Net, time_limit):
-    cap_t, sup_t = _transform_float(net)
-    cycle = _float_negative_cycle(net)
-    if cycle is not None:
-        # GLOP's presolve may call an unbounded model infeasible: decide feasibility by an exact max-flow.
-        side, feasible = _exact_auxiliary(net.n, net.tail, net.head, cap_t, net.unl, sup_t, net.low)
-        if side is not None:
-            return _lp_infeasible(net, side)
-        solution, certificate = _unbounded(net, cycle, feasible, ROUNDING)
-        solution.engine = _lp_engine()
-        return solution, certificate
-    lp, low, upper = _lp(net, net.sup, net.cost, time_limit)
-    if lp.status == "infeasible":
-        side, _ = _exact_auxiliary(net.n, net.tail, net.head, cap_t, net.unl, sup_t)
-        if side is None:
-            raise SolverFailure("GLOP called the model infeasible, yet an exact max-flow moves every supply")
-        return _lp_infeasible(net, side)
-    if lp.status != "optimal":
-        raise SolverFailure(f"GLOP returned {lp.status} for a model without a negative unlimited cycle")
-    flows, p, certificate = _lp_certified(net, lp, low, upper)
-    solution = MinCostSolution("optimal", _lp_engine(), cost=certificate["primal_cost"],
-                               shipped=checks.exact_sum(net.sup[net.sup > 0]), flows=flows, potentials=p,
-                               reduced_costs=checks.reduced_costs(net.cost, p, net.tail, net.head),
-                               tolerance=certificate["tolerance"])
-    return solution, certificate
-
-
-def _lp_infeasible(net: _Net, side):
-    """Proof set from the minimum cut of the auxiliary network (exact)."""
-    solution, certificate = _infeasible(net, side)
-    solution.engine = _lp_engine()
-    return solution, certificate
-
-
-def _transform_float(net: _Net):
-    if net.low is None:
-        return net.cap, net.sup
-    cap = net.cap - net.low
-    if net.unl is not None:
-        cap = np.where(net.unl, 0, cap)
-    sup = net.sup - np.bincount(net.tail, net.low, net.n) + np.bincount(net.head, net.low, net.n)
-    return cap, sup
-
-
-def _lp_max_flow(net: _Net, time_limit):
-    aug, src, dst = _augment(net)
-    s, t = net.n, net.n + 1
-    if aug.low is not None:
-        # Whether the lower bounds can hold at all, decided exactly (GLOP's word on
-        # infeasibility depends on its tolerances).
-        cap_t, e = _transform_float(aug)
-        tail, head, unl = _return_arc(aug)
-        side, _ = _exact_auxiliary(aug.n, tail, head, np.append(cap_t, 0.0), unl, e)
-        if side is not None:
-            solution, certificate = _lower_bounds_infeasible(net, side)
-            solution.engine = _lp_engine()
-            return solution, certificate
-    total = float(net.sup[src].sum())
-    # Phase 1: the largest shipment, as a circulation with a return arc T -> S worth -1 per unit.
-    ret = _Net(aug.n, np.append(aug.tail, t), np.append(aug.head, s), np.append(aug.cap, total),
-               None if aug.unl is None else np.append(aug.unl, False), None,
-               None if aug.low is None else np.append(aug.low, 0.0), aug.sup)
-    c = np.zeros(ret.tail.size)
-    c[-1] = -1.0
-    lp, _, _ = _lp(ret, aug.sup, c, time_limit)
-    if lp.status != "optimal":
-        raise SolverFailure(f"GLOP returned {lp.status} for the largest shipment")
-    cycle = _float_negative_cycle(net)
-    if cycle is not None:
-        solution, certificate = _unbounded(net, cycle, None)
-        solution.engine = _lp_engine()
-        return solution, certificate
-    shipped = float(lp.x[-1])
-    aug.sup[s], aug.sup[t] = shipped, -shipped
-    lp, low, upper = _lp(aug, aug.sup, aug.cost, time_limit)
-    if lp.status != "optimal":
-        raise SolverFailure(f"GLOP returned {lp.status} for the min-cost largest shipment")
-    flows, p, certificate = _lp_certified(aug, lp, low, upper)
-    room = upper - low
-    slack = LP_TOLERANCE * np.where(np.isfinite(room), room, abs(shipped))
-    side = residual_reach(aug.n, aug.tail, aug.head, flows - low, room, aug.unl, s, slack)
-    through = throughput(aug.n, aug.tail, aug.head, flows)
-    certificate["shipped_bound"] = checks.check_shipped_cut(aug.tail, aug.head, aug.cap, aug.unl, aug.low, side,
-                                                            s, t, shipped, LP_TOLERANCE, through)
-    solution = _max_flow_solution(net, aug, src, dst, flows, p, shipped, certificate, _lp_engine())
-    return solution, certificate

@@ -34,6 +34,7 @@ import scipy.sparse as sp
 from ..errors import SelfCheckFailed, SolverFailure
 from . import lp_checks
 from .front import maximum_flow
+from .graph import Graph
 from .lp import (
     LPModel,
     LPResult,
@@ -61,24 +62,8 @@ class Commodities:
         return int(self.sources.size)
 
 
-@dataclass
-class Network:
-    num_nodes: int
-    tail: np.ndarray
-    head: np.ndarray
-    capacity: np.ndarray  # 0 where unlimited
-    unlimited: np.ndarray | None
-    cost: np.ndarray  # float64
-
-    @property
-    def num_arcs(self) -> int:
-        return int(self.tail.size)
-
-    @property
-    def limited(self) -> np.ndarray:
-        if self.unlimited is None:
-            return np.arange(self.num_arcs)
-        return np.flatnonzero(~self.unlimited)
+#: The shared network: capacity 0 where unlimited, cost float64 (the solvers' one graph type).
+Network = Graph
 
 
 @dataclass

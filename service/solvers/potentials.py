@@ -29,31 +29,9 @@ cost of every arc and the duality gap before an answer leaves the service.
 from __future__ import annotations
 
 import numpy as np
-import scipy.sparse as sp
-from scipy.sparse import csgraph
 
 from ..errors import SelfCheckFailed
-
-
-def residual_masks(flows, capacity, unlimited, tol=0):
-    """Which arcs are residual forward (room to add flow) and backward (flow to remove)."""
-    forward = flows < capacity - tol
-    if unlimited is not None:
-        forward |= unlimited
-    backward = flows > tol
-    return forward, backward
-
-
-def residual_reach(num_nodes, tail, head, flows, capacity, unlimited, start: int, slack=0) -> np.ndarray:
-    """Nodes reachable from ``start`` in the residual network (boolean mask); ``slack``
-    (a number or one per arc) is how far from a bound an arc must be to count as open."""
-    forward, backward = residual_masks(flows, capacity, unlimited, slack)
-    rows = np.concatenate([tail[forward], head[backward]])
-    cols = np.concatenate([head[forward], tail[backward]])
-    graph = sp.csr_matrix((np.ones(rows.size, dtype=np.int8), (rows, cols)), shape=(num_nodes, num_nodes))
-    mask = np.zeros(num_nodes, dtype=bool)
-    mask[csgraph.breadth_first_order(graph, start, directed=True, return_predecessors=False)] = True
-    return mask
+from .graph import bfs_predecessors, components, residual_masks
 
 
 def node_potentials(num_nodes: int, tail: np.ndarray, head: np.ndarray, cost: np.ndarray, flows: np.ndarray,
@@ -133,8 +111,7 @@ def free_components(num_nodes: int, ft: np.ndarray, fh: np.ndarray, fc: np.ndarr
     code = rows * num_nodes + cols
     code, first = np.unique(code, return_index=True)  # parallel copies would be summed by scipy
     rows, cols, weights = rows[first], cols[first], weights[first]
-    graph = sp.csr_matrix((np.ones(rows.size, dtype=np.int8), (rows, cols)), shape=(num_nodes, num_nodes))
-    count, labels = csgraph.connected_components(graph, directed=False)
+    count, labels = components(num_nodes, rows, cols)
     parent = _bfs_parents(rows, cols, labels, count, num_nodes)
     # Weight of the tree arc parent[v] -> v, found in the sorted codes.
     child = np.arange(num_nodes, dtype=np.int64)
@@ -151,10 +128,7 @@ def _bfs_parents(rows, cols, labels: np.ndarray, count: int, num_nodes: int) -> 
     np.minimum.at(reps, labels, np.arange(num_nodes, dtype=np.int64))
     # A virtual root joined to one representative per component gives one BFS for all.
     root = np.full(count, num_nodes, dtype=np.int64)
-    rooted = sp.csr_matrix(
-        (np.ones(rows.size + count, dtype=np.int8), (np.concatenate([rows, root]), np.concatenate([cols, reps]))),
-        shape=(num_nodes + 1, num_nodes + 1))
-    _, pred = csgraph.breadth_first_order(rooted, num_nodes, directed=True, return_predecessors=True)
+    pred = bfs_predecessors(num_nodes + 1, np.concatenate([rows, root]), np.concatenate([cols, reps]), num_nodes)
     parent = pred[:num_nodes].astype(np.int64)
     parent[reps] = reps
     return parent

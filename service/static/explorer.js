@@ -3,7 +3,7 @@
 // with POST /v1/diagram.svg and shows the equivalent curl command.
 "use strict";
 
-const DRAWN = ["maxflow", "mincostflow"];  // kinds the diagram endpoint draws
+const DRAWN = new Set();  // kinds the diagram endpoint draws: GET /v1/kinds says which
 const $ = (id) => document.getElementById(id);
 
 function headers() {
@@ -29,7 +29,7 @@ function updateCurl() {
   const auth = $("apikey").value.trim() ? ' -H "Authorization: Bearer $SLUICE_KEY"' : "";
   const base = window.location.origin;
   let text = `curl -s ${base}/v1/${kind} -H 'Content-Type: application/json'${auth} \\\n     -d ${shellQuote(body)}`;
-  if (DRAWN.includes(kind)) {
+  if (DRAWN.has(kind)) {
     const wrapped = JSON.stringify({ kind: kind, problem: JSON.parse(body) });
     text += `\n\n# the diagram, as SVG\ncurl -s ${base}/v1/diagram.svg -H 'Content-Type: application/json'${auth} \\\n` +
             `     -d ${shellQuote(wrapped)} -o answer.svg`;
@@ -139,8 +139,9 @@ function showSummary(kind, doc, cacheStatus) {
 
 async function drawDiagram(kind, problem) {
   const box = $("diagram");
-  if (!DRAWN.includes(kind)) {
-    box.innerHTML = '<p class="hint">Diagrams are drawn for max-flow and min-cost flow problems.</p>';
+  if (!DRAWN.has(kind)) {
+    box.innerHTML = '<p class="hint"></p>';
+    box.firstChild.textContent = `Diagrams are drawn for ${[...DRAWN].join(" and ") || "no kind"} problems.`;
     return;
   }
   const r = await fetch("/v1/diagram.svg", { method: "POST", headers: headers(),
@@ -215,26 +216,28 @@ async function copyCurl() {
   setTimeout(() => { $("copy-curl").textContent = "Copy"; }, 1500);
 }
 
-let scenariosListed = false;  // with API keys the list needs one: it loads once a key works
+let scenariosListed = false;  // with API keys the lists need one: they load once a key works
 
 async function listScenarios() {
   if (scenariosListed) return;
-  const listed = await fetch("/v1/scenarios", { headers: headers() });
-  if (!listed.ok || scenariosListed) return;
+  const [listed, known] = await Promise.all([fetch("/v1/scenarios", { headers: headers() }),
+                                             fetch("/v1/kinds", { headers: headers() })]);
+  if (!listed.ok || !known.ok || scenariosListed) return;
   scenariosListed = true;
+  for (const kind of (await known.json()).kinds) {
+    $("kind").add(new Option(kind.name, kind.name));
+    if (kind.capabilities.diagram) DRAWN.add(kind.name);
+  }
   for (const s of (await listed.json()).scenarios) {
     if (!s.endpoint || s.endpoint !== `/v1/${s.kind}` || s.media_type !== "application/json") continue;
     const option = new Option(`${s.kind}: ${s.title}`, s.name);
     option.dataset.kind = s.kind;
     $("scenario").add(option);
   }
+  updateCurl();
 }
 
 async function start() {
-  const spec = await (await fetch("/openapi.json")).json();
-  const kinds = Object.values(spec.paths).map((p) => p.post && p.post.operationId)
-    .filter((id) => id && id.startsWith("solve_")).map((id) => id.slice(6));
-  for (const kind of kinds) $("kind").add(new Option(kind, kind));
   await listScenarios();
   $("scenario").addEventListener("change", pickScenario);
   $("kind").addEventListener("change", updateCurl);

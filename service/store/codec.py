@@ -73,6 +73,8 @@ def encode_network(network: Network) -> bytes:
         sections.append(({"name": "ids", "format": "json"}, orjson.dumps(network.nodes.ids)))
     if network.keys is not None:
         sections.append(({"name": "keys", "format": "json"}, orjson.dumps(network.keys)))
+    if network.extra is not None:
+        sections.append(({"name": "extra", "format": "json"}, orjson.dumps(network.extra)))
     offset = 0
     chunks = []
     for meta, data in sections:
@@ -129,7 +131,7 @@ def decode_network(blob: bytes, *, verify: bool = True) -> Network:
     else:
         nodes = NodeIndex(parts["ids"], str)
     return Network(nodes, parts["tail"], parts["head"], parts["capacity"], parts.get("unlimited"),
-                   parts.get("cost"), parts.get("lower"), parts.get("keys"))
+                   parts.get("cost"), parts.get("lower"), parts.get("keys"), parts.get("extra"))
 
 
 def network_nbytes(network: Network) -> int:
@@ -137,10 +139,14 @@ def network_nbytes(network: Network) -> int:
     total = sum(getattr(network, n).nbytes for n in _ARRAYS if getattr(network, n) is not None)
     # A short Python str costs about 60 bytes; ids and keys dominate for string ids.
     total += 64 * len(network.nodes) + (64 * len(network.keys) if network.keys is not None else 0)
+    if network.extra is not None:
+        total += 32 * sum(map(len, (*network.extra["arcs"].values(), *network.extra["nodes"].values())))
     return total
 
 
 def network_digest(network: Network) -> str:
     """Content hash of a stored network (ids, arrays and keys), ``sha256:<hex>``."""
-    return problem_digest("network", network.nodes.ids, network.tail, network.head, network.capacity,
-                          network.unlimited, network.cost, network.lower, network.keys)
+    parts = (network.nodes.ids, network.tail, network.head, network.capacity, network.unlimited, network.cost,
+             network.lower, network.keys)
+    # The optional columns enter only when present: older networks keep their digests.
+    return problem_digest("network", *parts, *(() if network.extra is None else (network.extra,)))

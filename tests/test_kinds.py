@@ -1,0 +1,143 @@
+"""A kind declares what it can do in one place (service/kinds/base.py: Kind), and the
+service derives its routes, spec entries, capabilities and the page's lists from KINDS."""
+
+from __future__ import annotations
+
+import json
+import subprocess
+import sys
+import textwrap
+from pathlib import Path
+
+import pytest
+
+from service.drawing import DRAWERS
+from service.kinds import KINDS
+from service.kinds.base import Kind
+
+ROOT = Path(__file__).resolve().parent.parent
+
+
+def test_every_registered_kind_is_one_declaration():
+    for name, kind in KINDS.items():
+        assert isinstance(kind, Kind) and kind.name == name
+        assert (ROOT / "service" / "scenarios" / kind.example).is_file()
+    # a drawable kind must have a drawer; the drawing room may hold drawers not yet declared
+    assert {k.name for k in KINDS.values() if k.drawable} <= set(DRAWERS)
+
+
+def test_a_half_declared_what_if_is_refused():
+    maxflow = KINDS["maxflow"]
+    with pytest.raises(TypeError, match="go together"):
+        Kind(**{**maxflow.__dict__, "query_schema": None})
+    with pytest.raises(TypeError, match="dimacs"):
+        Kind(**{**maxflow.__dict__, "dimacs": "max-flow"})
+
+
+def test_kinds_endpoint_lists_each_declaration(client):
+    r = client.get("/v1/kinds")
+    assert r.status_code == 200
+    listed = {k["name"]: k for k in r.get_json()["kinds"]}
+    assert list(listed) == list(KINDS)
+    for name, kind in KINDS.items():
+        caps = listed[name]["capabilities"]
+        assert listed[name]["endpoint"] == f"/v1/{name}" and listed[name]["summary"] == kind.summary
+        assert caps["what_if"] == (kind.from_network is not None) and caps["dimacs"] == kind.dimacs
+        assert caps["diagram"] == kind.drawable and caps["verify"] == kind.verifiable
+        assert client.get(f"/v1/scenarios/{listed[name]['example']}").status_code == 200
+    # what the capabilities say holds: a what-if route where declared, none elsewhere
+    rules = {r.rule for r in client.application.url_map.iter_rules()}
+    for name, kind in KINDS.items():
+        assert (f"/v1/networks/<name>/{name}" in rules) == (kind.from_network is not None), name
+    assert listed["maxflow"]["capabilities"]["dimacs"] == "max"
+    assert client.post("/v1/verify/lp", json={}).status_code == 404  # lp declares no verifier
+
+
+def test_the_page_has_no_list_of_kinds():
+    script = (ROOT / "service" / "static" / "explorer.js").read_text()
+    assert "/v1/kinds" in script
+    for name in KINDS:
+        assert f'"{name}"' not in script, f"explorer.js names the kind {name!r}: it should come from /v1/kinds"
+
+
+# A throwaway kind, registered before the HTTP layer is imported (in a fresh
+# interpreter, so the real registry is untouched): its route, spec entry, listing,
+# batch items and job submissions appear with no other file changed.
+THROWAWAY = textwrap.dedent('''
+    import json, sys, tempfile
+    from dataclasses import dataclass
+    from marshmallow import RAISE, Schema, fields
+    from service.errors import InputError
+    from service.kinds import KINDS
+    from service.kinds.base import Kind
+
+    class SumRequest(Schema):
+        class Meta:
+            unknown = RAISE
+        values = fields.List(fields.Integer(), required=True)
+
+    class SumResponse(Schema):
+        total = fields.Integer()
+
+    @dataclass
+    class SumProblem:
+        values: list
+        options: dict
+        digest: str
+
+    def parse(body, limits):
+        if not isinstance(body, dict) or not isinstance(body.get("values"), list):
+            raise InputError.at("/values", "is required: a list of integers")
+        return SumProblem(body["values"], {}, "sha256:" + "0" * 63 + str(len(body["values"]) % 10))
+
+    def solve(problem, limits):
+        return {"total": sum(problem.values), "digest": problem.digest}
+
+    KINDS["sum"] = Kind(name="sum", summary="Adds whole numbers (a throwaway kind of a test)",
+                        request_schema=SumRequest, response_schema=SumResponse, example="depots-maxflow.json",
+                        parse=parse, solve=solve, size=lambda p: len(p.values))
+
+    from service.api import create_app
+    from service.api.spec import build_spec
+
+    client = create_app({"data_dir": tempfile.mkdtemp()}).test_client()
+    spec = build_spec()
+    out = {
+        "solve": client.post("/v1/sum", json={"values": [2, 3, 4]}).get_json(),
+        "refused": client.post("/v1/sum", json={}).status_code,
+        "listed": [k["name"] for k in client.get("/v1/kinds").get_json()["kinds"]],
+        "spec": spec["paths"]["/v1/sum"]["post"]["operationId"],
+        "spec_schema": "SumRequest" in spec["components"]["schemas"],
+        "job_enum": "sum" in spec["components"]["schemas"]["JobRequest"]["properties"]["kind"]["enum"],
+        "batch": client.post("/v1/batch", json={"items": [{"kind": "sum", "problem": {"values": [1, 1]}}]}).get_json(),
+        "job": client.post("/v1/jobs", json={"kind": "sum", "problem": {"values": [5]}}).status_code,
+        "what_if": client.post("/v1/networks/x/sum", json={}).status_code,
+    }
+    json.dump(out, sys.stdout)
+''')
+
+
+def test_a_new_kind_needs_only_its_declaration_in_the_registry():
+    run = subprocess.run([sys.executable, "-c", THROWAWAY], cwd=ROOT, capture_output=True, text=True, timeout=120)
+    assert run.returncode == 0, run.stderr[-3000:]
+    out = json.loads(run.stdout.strip().splitlines()[-1])
+    assert out["solve"]["total"] == 9 and out["refused"] == 422
+    assert out["listed"][-1] == "sum" and out["spec"] == "solve_sum" and out["spec_schema"] and out["job_enum"]
+    assert out["batch"]["results"][0]["total"] == 2
+    assert out["job"] == 202
+    assert out["what_if"] == 404  # no from_network declared: no what-if route
+
+
+def test_limits_and_settings_agree_on_their_defaults(monkeypatch):
+    from dataclasses import fields
+
+    from service.config import Settings
+    from service.kinds import Limits
+
+    shared = [f.name for f in fields(Limits) if hasattr(Settings, f.name)]
+    assert {"max_arcs", "max_nodes", "time_limit", "max_commodities"} <= set(shared)
+    for name in shared:
+        assert getattr(Limits(), name) == getattr(Settings(), name), name
+    for var in [v for v in __import__("os").environ if v.startswith("SLUICE_")]:
+        monkeypatch.delenv(var)
+    assert Settings.from_env() == Settings()  # unset variables keep the one written default

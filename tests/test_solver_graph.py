@@ -1,0 +1,96 @@
+"""The solvers' one graph type (service.solvers.graph) against outside references.
+
+References: networkx (descendants, strongly/weakly connected components, shortest
+path lengths for breadth-first layers) and the definition of the residual network
+(an arc with room left is residual forward; one carrying flow is residual backward).
+"""
+
+from __future__ import annotations
+
+import networkx as nx
+import numpy as np
+import pytest
+
+from service.solvers.graph import (
+    BACKWARD, FORWARD, Graph, bfs_predecessors, bfs_tree, components, max_degree, node_balance, reach,
+    residual_arcs, residual_network, residual_reach,
+)
+
+
+def random_arcs(seed: int, n: int = 40, m: int = 120):
+    rng = np.random.default_rng(seed)
+    tail, head = rng.integers(0, n, m), rng.integers(0, n, m)  # parallel arcs and loops included
+    return n, tail.astype(np.int64), head.astype(np.int64), rng
+
+
+def digraph(n, src, dst) -> nx.MultiDiGraph:
+    g = nx.MultiDiGraph()
+    g.add_nodes_from(range(n))
+    g.add_edges_from(zip(src.tolist(), dst.tolist()))
+    return g
+
+
+@pytest.mark.parametrize("seed", range(6))
+def test_reach_and_both_searches_agree_with_networkx(seed):
+    n, tail, head, _ = random_arcs(seed)
+    g = digraph(n, tail, head)
+    expected = {0} | nx.descendants(g, 0)
+    assert set(np.flatnonzero(reach(n, tail, head, 0)).tolist()) == expected
+    parent, reached = bfs_tree(n, tail, head, 0)
+    assert set(np.flatnonzero(reached).tolist()) == expected
+    depth = nx.single_source_shortest_path_length(g, 0)
+    for v in expected - {0}:  # each tree arc ends at v and starts one layer closer
+        k = int(parent[v])
+        assert head[k] == v and depth[int(tail[k])] == depth[v] - 1
+    pred = bfs_predecessors(n, tail, head, 0)
+    for v in expected - {0}:
+        assert depth[int(pred[v])] == depth[v] - 1 and g.has_edge(int(pred[v]), v)
+    assert all(pred[v] < 0 for v in set(range(n)) - expected)
+
+
+def test_bfs_tree_stops_at_its_target():
+    tail, head = np.array([0, 1, 2]), np.array([1, 2, 3])
+    _, reached = bfs_tree(4, tail, head, 0, target=1)
+    assert reached.tolist() == [True, True, False, False]
+
+
+@pytest.mark.parametrize("seed", range(4))
+def test_components_agree_with_networkx(seed):
+    n, tail, head, _ = random_arcs(seed, m=60)
+    g = digraph(n, tail, head)
+    for strong, reference in ((True, nx.strongly_connected_components(g)), (False, nx.weakly_connected_components(g))):
+        count, labels = components(n, tail, head, strong=strong)
+        groups = {frozenset(np.flatnonzero(labels == c).tolist()) for c in range(count)}
+        assert groups == {frozenset(c) for c in reference}
+
+
+def test_node_balance_and_degree_by_hand():
+    # 0 -> 1 carries 3, 1 -> 2 carries 2, 0 -> 2 carries 1: node 1 keeps 1, node 2 gets 3.
+    tail, head, flows = np.array([0, 1, 0]), np.array([1, 2, 2]), np.array([3, 2, 1])
+    assert node_balance(3, tail, head, flows).tolist() == [-4, 1, 3]
+    big = np.array([2**70, 2**70, 0], dtype=object)  # exact beyond int64
+    assert node_balance(3, tail, head, big).tolist() == [-2**70, 0, 2**70]
+    assert max_degree(3, tail, head) == 2 and max_degree(3, tail[:0], head[:0]) == 0
+    g = Graph(3, tail, head, np.array([3, 5, 1]), np.array([False, False, True]))
+    assert g.balance(flows).tolist() == [-4, 1, 3] and g.max_degree() == 2 and g.limited.tolist() == [0, 1]
+
+
+@pytest.mark.parametrize("seed", range(4))
+def test_residual_network_follows_its_definition(seed):
+    n, tail, head, rng = random_arcs(seed)
+    capacity = rng.integers(0, 5, tail.size)
+    flows = np.minimum(capacity, rng.integers(0, 5, tail.size))
+    unlimited = rng.random(tail.size) < 0.1
+    res, _ = residual_network(tail, head, capacity, unlimited, None, flows)
+    expected = {(e, FORWARD) for e in range(tail.size) if flows[e] < capacity[e] or unlimited[e]}
+    expected |= {(e, BACKWARD) for e in range(tail.size) if flows[e] > 0}
+    assert set(zip(res.arc.tolist(), res.direction.tolist())) == expected
+    forward = res.direction == FORWARD
+    assert (res.src[forward] == tail[res.arc[forward]]).all() and (res.src[~forward] == head[res.arc[~forward]]).all()
+    assert np.isinf(res.room[forward & unlimited[res.arc]]).all()
+    src, dst = residual_arcs(tail, head, capacity, unlimited, flows)
+    assert sorted(zip(src.tolist(), dst.tolist())) == sorted(zip(res.src.tolist(), res.dst.tolist()))
+    g = Graph(n, tail, head, capacity, unlimited)
+    assert (g.residual_reach(flows, 0) == reach(n, res.src, res.dst, 0)).all()
+    assert (g.residual(flows).arc == res.arc).all()
+    assert (residual_reach(n, tail, head, flows, capacity, unlimited, 0) == g.residual_reach(flows, 0)).all()
