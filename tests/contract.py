@@ -63,8 +63,14 @@ def openapi() -> OpenAPI:
 
 
 @lru_cache(maxsize=None)
+def document() -> dict:
+    """The committed document as plain data (do not change it: it is shared)."""
+    return yaml.safe_load(SPEC_FILE.read_text())
+
+
+@lru_cache(maxsize=None)
 def _problem_validator() -> OAS31Validator:
-    doc = yaml.safe_load(SPEC_FILE.read_text())
+    doc = document()
     return OAS31Validator({**doc["components"]["schemas"]["Problem"], "components": doc["components"]})
 
 
@@ -125,6 +131,45 @@ def _reason(exc: BaseException) -> str:
     for error in getattr(cause, "schema_errors", None) or ():
         parts.append(f"at {'/'.join(map(str, error.absolute_path)) or '(root)'}: {error.message[:300]}")
     return "; ".join(parts)
+
+
+def what_if_request_schema(kind: str) -> dict | None:
+    """The documented body of ``POST /v1/networks/{name}/<kind>`` (None: no such route)."""
+    doc = document()
+    path = doc["paths"].get(f"/v1/networks/{{name}}/{kind}")
+    if path is None:
+        return None
+    ref = path["post"]["requestBody"]["content"]["application/json"]["schema"]["$ref"]
+    return doc["components"]["schemas"][ref.rsplit("/", 1)[1]]
+
+
+def as_stored_question(kind: str, body: dict) -> tuple[dict, dict]:
+    """A problem body as a client splits it for a stored network: ``(network, question)``.
+
+    The network keeps the arcs and the nodes' own fields; what a stored network holds
+    one value of per arc arrives as a change when the body gives a list (a capacity
+    per period); the nodes' supplies move to the question's ``supplies`` when the
+    what-if takes them. Posting the question to the stored network must answer as
+    posting ``body`` whole.
+    """
+    arcs, changes = [], []
+    for i, arc in enumerate(body["arcs"]):
+        lists = {k: v for k, v in arc.items() if isinstance(v, list)}
+        arcs.append({k: v for k, v in arc.items() if k not in lists})
+        if lists:
+            changes.append({"arc": i, **lists})
+    network = {"arcs": arcs}
+    nodes = body.get("nodes") or []
+    if nodes:
+        own = [{k: v for k, v in n.items() if k != "supply"} if isinstance(n, dict) else {"id": n} for n in nodes]
+        network["nodes"] = own if any(len(n) > 1 for n in own) else [n["id"] for n in own]
+    question = {k: v for k, v in body.items() if k not in ("arcs", "nodes")}
+    supplies = [{"id": n["id"], "supply": n["supply"]} for n in nodes if isinstance(n, dict) and "supply" in n]
+    if supplies and "supplies" in what_if_request_schema(kind)["properties"]:
+        question["supplies"] = supplies
+    if changes:
+        question["changes"] = changes
+    return network, question
 
 
 def check_request_body(method: str, path: str, body, content_type: str = "application/json") -> None:

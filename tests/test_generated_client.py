@@ -5,7 +5,8 @@ session, into a scratch folder); the tests then drive ``sluice serve`` through i
 client team would. Every kind in :data:`service.kinds.KINDS` is called with its
 scenario (``POST /v1/<kind>``), and every kind that can be asked of a stored network
 with the same problem split into a stored network and a question
-(``PUT /v1/networks/{name}``, then ``POST /v1/networks/{name}/<kind>``). What the
+(``PUT /v1/networks/{name}``, then ``POST /v1/networks/{name}/<kind>``, split as
+tests.contract.as_stored_question says). What the
 generated models let through is compared with what the scenario holds: a field the
 document forgets is one the generated client silently drops.
 """
@@ -18,16 +19,15 @@ import subprocess
 import sys
 
 import pytest
-import yaml
 
 from service.kinds import KINDS
-from tests.contract import SPEC_FILE
+from tests.contract import SPEC_FILE, as_stored_question, document
 from tests.conftest import scenario
 
 pytestmark = pytest.mark.server
 
 PACKAGE = "sluice_generated_client"
-DOCUMENT = yaml.safe_load(SPEC_FILE.read_text())
+DOCUMENT = document()
 
 
 @pytest.fixture(scope="session")
@@ -106,22 +106,8 @@ def test_the_generated_client_solves_every_kind(generated, api, server, name):
     assert got == direct
 
 
-def split(body: dict, request_schema: dict) -> tuple[dict, dict]:
-    """A problem body as a stored network and a question about it: the nodes' supplies
-    move to the question's ``supplies`` when the what-if takes them."""
-    nodes = body.get("nodes") or []
-    network = {"arcs": body["arcs"]}
-    if nodes:
-        network["nodes"] = [n["id"] if isinstance(n, dict) else n for n in nodes]
-    question = {k: v for k, v in body.items() if k not in ("arcs", "nodes")}
-    if "supplies" in request_schema["properties"]:
-        question["supplies"] = [{"id": n["id"], "supply": n["supply"]} for n in nodes
-                                if isinstance(n, dict) and n.get("supply")]
-    return network, question
-
-
 def test_what_if_kinds_are_the_kinds_that_say_so():
-    assert what_if_kinds() == sorted(n for n, kind in KINDS.items() if hasattr(kind, "from_network"))
+    assert what_if_kinds() == sorted(n for n, kind in KINDS.items() if kind.from_network is not None)
     assert "mincostflow" in what_if_kinds()
 
 
@@ -131,8 +117,7 @@ def test_the_generated_client_asks_a_stored_network(generated, api, name):
     mincostflow: supplies in the question): the answer equals the direct solve's."""
     body = scenario(KINDS[name].example)
     path = f"/v1/networks/{{name}}/{name}"
-    ref = DOCUMENT["paths"][path]["post"]["requestBody"]["content"]["application/json"]["schema"]["$ref"]
-    network, question = split(body, DOCUMENT["components"]["schemas"][ref.rsplit("/", 1)[1]])
+    network, question = as_stored_question(name, body)
     stored = call(generated, api, "/v1/networks/{name}", "put", network, name=f"generated-{name}")
     assert stored.status_code in (200, 201), stored.content
     assert stored.parsed.arc_count == len(body["arcs"])
@@ -146,7 +131,7 @@ def test_a_what_if_with_supplies_and_changes(generated, api):
     """Min-cost flow on a stored network with supplies and a closed lane, through the
     generated client; the reference is the direct solve of the changed problem."""
     body = scenario(KINDS["mincostflow"].example)
-    network, question = split(body, DOCUMENT["components"]["schemas"]["MincostflowWhatIfRequest"])
+    network, question = as_stored_question("mincostflow", body)
     assert question["supplies"], "the scenario has supplies to send"
     call(generated, api, "/v1/networks/{name}", "put", network, name="generated-closed")
     closed = next(i for i, a in enumerate(body["arcs"]) if not a.get("lower"))
