@@ -1,7 +1,14 @@
-"""Shared fixtures: the Flask app and client (as in Flask's tutorial), and a real server."""
+"""Shared fixtures: the Flask app and client (as in Flask's tutorial), a real server, and
+the scenario files.
+
+Every Flask test client the tests make checks each response against
+``openapi/openapi.yaml`` (:mod:`tests.contract`); ``spec_session()`` does the same for
+requests to a real server.
+"""
 
 from __future__ import annotations
 
+import json
 import os
 import socket
 import subprocess
@@ -12,11 +19,39 @@ from pathlib import Path
 
 import pytest
 import requests
+from flask import Flask
 
 from service.api import create_app
+from tests.contract import SpecClient, SpecSession
 
 ROOT = Path(__file__).resolve().parents[1]
 SCENARIOS = ROOT / "service" / "scenarios"
+
+
+def scenario(name: str):
+    """A scenario of ``service/scenarios``, a fresh copy on every call.
+
+    ``name`` without a suffix (or ending ``.json``) is a JSON file, decoded; a name
+    ending ``.dimacs`` is DIMACS text. :func:`scenario_bytes` gives the file's bytes.
+    """
+    if name.endswith(".dimacs"):
+        return (SCENARIOS / name).read_text()
+    return json.loads(scenario_bytes(name))
+
+
+def scenario_bytes(name: str) -> bytes:
+    """The bytes of a scenario file (``.json`` added when ``name`` has no suffix)."""
+    path = SCENARIOS / name
+    return (path if path.suffix in (".json", ".dimacs") else path.with_name(path.name + ".json")).read_bytes()
+
+
+@pytest.fixture(autouse=True, scope="session")
+def _responses_follow_the_spec():
+    """Every app's test client checks its responses against the OpenAPI document."""
+    before = Flask.test_client_class
+    Flask.test_client_class = SpecClient
+    yield
+    Flask.test_client_class = before
 
 
 @pytest.fixture
@@ -73,6 +108,25 @@ class RunningServer:
                 time.sleep(0.1)
         self.stop()
         raise RuntimeError("sluice serve did not become healthy in time")
+
+    def request(self, method: str, path: str, **kwargs) -> requests.Response:
+        """``requests.request`` to ``path`` on this server, the response checked against
+        the OpenAPI document (tests.contract). A new connection each time: servers
+        restart and workers are killed in these tests."""
+        with SpecSession() as session:
+            return session.request(method, self.url + path, **kwargs)
+
+    def get(self, path: str, **kwargs) -> requests.Response:
+        return self.request("GET", path, **kwargs)
+
+    def post(self, path: str, **kwargs) -> requests.Response:
+        return self.request("POST", path, **kwargs)
+
+    def put(self, path: str, **kwargs) -> requests.Response:
+        return self.request("PUT", path, **kwargs)
+
+    def delete(self, path: str, **kwargs) -> requests.Response:
+        return self.request("DELETE", path, **kwargs)
 
     def log_tail(self, size: int = 2000) -> str:
         self.log.seek(0)

@@ -17,15 +17,15 @@ import scipy.sparse as sp
 from scipy.optimize import Bounds, LinearConstraint, milp
 
 from service.solvers.expansion import Lanes
-from tests.flowdata import nx_max_flow
+from tests.references import max_flow_value
 
 
 def nx_values_without(n, tail, head, cap, unlimited, s, t) -> np.ndarray:
     """networkx.maximum_flow_value re-solved once per arc, with that arc removed
-    (tests/flowdata.nx_max_flow: parallel arcs merged, no capacity = unlimited)."""
+    (tests/references.max_flow_value: parallel arcs merged, no capacity = unlimited)."""
     arcs = [{"from": int(u), "to": int(v), "capacity": None if unlimited is not None and unlimited[a] else int(c)}
             for a, (u, v, c) in enumerate(zip(tail, head, cap))]
-    return np.array([nx_max_flow(arcs[:closed] + arcs[closed + 1:], s, t) for closed in range(len(arcs))])
+    return np.array([max_flow_value(arcs[:closed] + arcs[closed + 1:], s, t) for closed in range(len(arcs))])
 
 
 def replay(lanes: Lanes, solution) -> None:
@@ -80,7 +80,7 @@ def nx_fully_widened_value(lanes: Lanes):
         free = (lanes.unlimited is not None and lanes.unlimited[a]) or (lanes.widenable[a] and lanes.expand_unlimited[a])
         cap = None if free else int(lanes.capacity[a] + (lanes.expand_max[a] if lanes.widenable[a] else 0))
         arcs.append({"from": int(lanes.tail[a]), "to": int(lanes.head[a]), "capacity": cap})
-    return nx_max_flow(arcs, lanes.source, lanes.sink)
+    return max_flow_value(arcs, lanes.source, lanes.sink)
 
 
 def scipy_fixed_charge_cost(lanes: Lanes):

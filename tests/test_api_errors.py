@@ -7,28 +7,10 @@ import pytest
 
 from service.api import create_app
 from service.model.fastjson import decode_columnar
-from tests.conftest import SCENARIOS
+from tests.conftest import scenario
+from tests.http import assert_problem, post
 
-GOOD = json.loads((SCENARIOS / "depots-maxflow.json").read_text())
-PROBLEM = "application/problem+json"
-
-
-def post(client, body, content_type="application/json"):
-    data = body if isinstance(body, (bytes, str)) else orjson.dumps(body)
-    return client.post("/v1/maxflow", data=data, content_type=content_type)
-
-
-def assert_problem(r, status, pointer=None):
-    assert r.status_code == status, r.get_data(as_text=True)
-    assert r.mimetype == PROBLEM
-    doc = r.get_json(force=True)
-    assert doc["status"] == status and doc["type"].startswith("urn:sluice:problem:")
-    assert doc["title"] and doc["detail"]
-    assert "Traceback" not in r.get_data(as_text=True)
-    if pointer is not None:
-        assert pointer in [e["pointer"] for e in doc["errors"]], doc
-    return doc
-
+GOOD = scenario("depots-maxflow")
 
 @pytest.mark.parametrize("raw, fragment", [
     (b"{", "not valid JSON"),
@@ -39,12 +21,12 @@ def assert_problem(r, status, pointer=None):
     (b"", "empty"),
 ])
 def test_undecodable_bodies_are_400(client, raw, fragment):
-    doc = assert_problem(post(client, raw), 400)
+    doc = assert_problem(post(client, "/v1/maxflow", raw), 400)
     assert fragment in doc["detail"]
 
 
 def test_wrong_media_type_is_415(client):
-    assert_problem(post(client, orjson.dumps(GOOD), content_type="text/plain"), 415)
+    assert_problem(post(client, "/v1/maxflow", orjson.dumps(GOOD), content_type="text/plain"), 415)
     assert_problem(client.post("/v1/maxflow", data=orjson.dumps(GOOD)), 415)
 
 
@@ -63,7 +45,7 @@ def test_body_over_the_limit_is_413_before_reading(tmp_path):
 
 def test_arc_limit_is_413_with_pointer(tmp_path):
     app = create_app({"max_arcs": 3, "data_dir": str(tmp_path)})
-    assert_problem(post(app.test_client(), GOOD), 413, "/arcs")
+    assert_problem(post(app.test_client(), "/v1/maxflow", GOOD), 413, pointer="/arcs")
 
 
 @pytest.mark.parametrize("change, pointer", [
@@ -99,13 +81,13 @@ def test_invalid_problems_are_422_with_pointer(client, change, pointer):
         # A NaN literal is not JSON; clients that send one get the 400 above. Here a
         # non-number must be named: send it as a string.
         raw = raw.replace(b"NaN", b'"NaN"')
-    assert_problem(post(client, raw), 422, pointer)
+    assert_problem(post(client, "/v1/maxflow", raw), 422, pointer=pointer)
 
 
 def test_server_answers_correctly_after_errors(client):
     for raw in (b"{", b"[]", b'{"source": 1}'):
-        assert post(client, raw).status_code in (400, 422)
-    r = post(client, GOOD)
+        assert post(client, "/v1/maxflow", raw).status_code in (400, 422)
+    r = post(client, "/v1/maxflow", GOOD)
     assert r.status_code == 200 and r.get_json()["value"] == 160
 
 
@@ -156,7 +138,7 @@ def test_failed_self_check_is_a_500_not_a_200(app, monkeypatch):
      "/arcs/x"),
 ])
 def test_columnar_fast_path_rejects_what_the_ordinary_path_rejects(client, raw, pointer):
-    assert_problem(post(client, raw), 422, pointer)
+    assert_problem(post(client, "/v1/maxflow", raw), 422, pointer=pointer)
 
 
 def test_columnar_fast_path_gives_the_ordinary_answer(client):
@@ -165,7 +147,7 @@ def test_columnar_fast_path_gives_the_ordinary_answer(client):
     labelled = {**body, "arcs": {**body["arcs"], "key": ["lane[0]", "lane[1]", "lane[2]", "lane[3]", "lane[4]"]}}
     assert decode_columnar(orjson.dumps(body)) is not None
     assert decode_columnar(orjson.dumps(labelled)) is None  # "[" inside strings: ordinary path
-    fast = post(client, body).get_json()
-    slow = post(client, labelled).get_json()
+    fast = post(client, "/v1/maxflow", body).get_json()
+    slow = post(client, "/v1/maxflow", labelled).get_json()
     assert fast["value"] == slow["value"] == 6.5 and fast["flows"] == slow["flows"]
     assert fast["digest"] == slow["digest"]

@@ -5,25 +5,16 @@ Reference: networkx.maximum_flow_value for every item's value.
 
 from __future__ import annotations
 
-import json
 
-import networkx as nx
 import numpy as np
 import pytest
 
 from service.api import create_app
 from service.kinds import KINDS
-from tests.conftest import SCENARIOS
+from tests.conftest import scenario
+from tests.references import max_flow_of
 
-DEPOTS = json.loads((SCENARIOS / "depots-maxflow.json").read_text())
-
-
-def networkx_value(body) -> float:
-    g = nx.DiGraph()
-    for a in body["arcs"]:
-        prev = g.get_edge_data(a["from"], a["to"], {}).get("capacity", 0)
-        g.add_edge(a["from"], a["to"], capacity=prev + a["capacity"])
-    return nx.maximum_flow_value(g, body["source"], body["sink"])
+DEPOTS = scenario("depots-maxflow")
 
 
 def random_item(rng, n=8, m=20) -> dict:
@@ -42,7 +33,7 @@ def test_results_come_back_in_order_and_match_networkx(client):
     assert len(results) == len(problems)
     for problem, result in zip(problems, results):
         assert result["status"] == "optimal" and result["certificate"]["checked"] is True
-        assert result["value"] == networkx_value(problem)
+        assert result["value"] == max_flow_of(problem)
         assert len(result["flows"]) == len(problem["arcs"])
         assert set(result["timing_ms"]) == {"parse", "solve", "total"}
 
@@ -113,14 +104,14 @@ def test_items_past_the_time_limit_get_a_504_problem(tmp_path):
 
 @pytest.mark.skipif("mincostflow" not in KINDS, reason="the mincostflow kind (issue 3) is not registered on this branch")
 def test_kinds_can_be_mixed(client):
-    plan = json.loads((SCENARIOS / "verify-depots-mincostflow.json").read_text())
+    plan = scenario("verify-depots-mincostflow")
     results = client.post("/v1/batch", json={"items": [{"kind": "mincostflow", "problem": plan["problem"]},
                                                         {"kind": "maxflow", "problem": DEPOTS}]}).get_json()["results"]
     assert results[0]["cost"] == 1080 and results[1]["value"] == 160
 
 
 def test_batch_scenario_file(client):
-    body = json.loads((SCENARIOS / "batch-depots.json").read_text())
+    body = scenario("batch-depots")
     results = client.post("/v1/batch", json=body).get_json()["results"]
-    assert results[0]["value"] == 160 and results[1]["value"] == networkx_value(body["items"][1]["problem"])
+    assert results[0]["value"] == 160 and results[1]["value"] == max_flow_of(body["items"][1]["problem"])
     assert results[2]["errors"][0]["pointer"] == "/problem/sink"

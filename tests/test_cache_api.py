@@ -9,15 +9,12 @@ import orjson
 
 from service.api import create_app
 from tests.checkers import assert_max_flow
-from tests.conftest import SCENARIOS
-from tests.flowdata import depot_arcs, nx_max_flow
+from tests.conftest import scenario
+from tests.flowdata import depot_arcs
+from tests.http import post
+from tests.references import max_flow_value
 
-DEPOTS = json.loads((SCENARIOS / "depots-maxflow.json").read_text())
-
-
-def post(client, body, path="/v1/maxflow"):
-    return client.post(path, data=orjson.dumps(body) if not isinstance(body, bytes) else body,
-                       content_type="application/json")
+DEPOTS = scenario("depots-maxflow")
 
 
 def without_timing(response) -> dict:
@@ -27,14 +24,14 @@ def without_timing(response) -> dict:
 
 
 def test_second_identical_request_is_a_hit_with_the_same_certified_answer(store_client):
-    first = post(store_client, DEPOTS)
+    first = post(store_client, "/v1/maxflow", DEPOTS)
     assert first.status_code == 200 and first.headers["Cache-Status"] == "sluice; fwd=miss; stored"
-    second = post(store_client, DEPOTS)
+    second = post(store_client, "/v1/maxflow", DEPOTS)
     assert second.status_code == 200 and second.headers["Cache-Status"] == "sluice; hit"
     assert without_timing(second) == without_timing(first)
     doc = second.get_json()
     # Reference: networkx.maximum_flow_value; and the hit's flows are a valid maximum flow.
-    assert doc["value"] == nx_max_flow(DEPOTS["arcs"], DEPOTS["source"], DEPOTS["sink"])
+    assert doc["value"] == max_flow_value(DEPOTS["arcs"], DEPOTS["source"], DEPOTS["sink"])
     assert doc["certificate"]["checked"] is True
     ids = {n: i for i, n in enumerate(dict.fromkeys(x for a in DEPOTS["arcs"] for x in (a["from"], a["to"])))}
     assert_max_flow(len(ids), [ids[a["from"]] for a in DEPOTS["arcs"]], [ids[a["to"]] for a in DEPOTS["arcs"]],
@@ -46,54 +43,54 @@ def test_second_identical_request_is_a_hit_with_the_same_certified_answer(store_
 def test_same_problem_in_another_form_hits_by_digest(store_client):
     columns = {"source": DEPOTS["source"], "sink": DEPOTS["sink"],
                "arcs": {f: [a[f] for a in DEPOTS["arcs"]] for f in ("from", "to", "capacity", "key")}}
-    first = post(store_client, DEPOTS)
-    other = post(store_client, columns)
+    first = post(store_client, "/v1/maxflow", DEPOTS)
+    other = post(store_client, "/v1/maxflow", columns)
     assert other.headers["Cache-Status"] == "sluice; hit"
     assert other.get_json()["digest"] == first.get_json()["digest"]
     # Reformatted bytes (spaces, key order) are another body but the same problem.
     spaced = json.dumps(dict(reversed(list(DEPOTS.items()))), indent=2).encode()
-    assert post(store_client, spaced).headers["Cache-Status"] == "sluice; hit"
+    assert post(store_client, "/v1/maxflow", spaced).headers["Cache-Status"] == "sluice; hit"
 
 
 def test_a_body_one_byte_away_is_not_served_the_cached_answer(store_client):
     arcs = depot_arcs(5)
     body = {"source": "site-a0", "sink": "site-b0", "arcs": arcs}
     raw = orjson.dumps(body)
-    post(store_client, raw)
+    post(store_client, "/v1/maxflow", raw)
     changed = raw.replace(b'"capacity":', b'"capacity":1', 1)  # first capacity c -> 1c
     assert changed != raw
-    got = post(store_client, changed)
+    got = post(store_client, "/v1/maxflow", changed)
     assert got.headers["Cache-Status"] == "sluice; fwd=miss; stored"
-    assert got.get_json()["value"] == nx_max_flow(orjson.loads(changed)["arcs"], "site-a0", "site-b0")
+    assert got.get_json()["value"] == max_flow_value(orjson.loads(changed)["arcs"], "site-a0", "site-b0")
 
 
 def test_refresh_and_bypass(store_client):
     body = {**DEPOTS, "options": {"cache": "refresh"}}
-    assert post(store_client, body).headers["Cache-Status"] == "sluice; fwd=request; stored"
+    assert post(store_client, "/v1/maxflow", body).headers["Cache-Status"] == "sluice; fwd=request; stored"
     # A body asking for refresh never takes the byte-identical fast path.
-    assert post(store_client, body).headers["Cache-Status"] == "sluice; fwd=request; stored"
-    assert post(store_client, DEPOTS).headers["Cache-Status"] == "sluice; hit"  # refresh stored it
+    assert post(store_client, "/v1/maxflow", body).headers["Cache-Status"] == "sluice; fwd=request; stored"
+    assert post(store_client, "/v1/maxflow", DEPOTS).headers["Cache-Status"] == "sluice; hit"  # refresh stored it
 
     arcs = depot_arcs(6)
     fresh = {"source": "site-a0", "sink": "site-b0", "arcs": arcs, "options": {"cache": "bypass"}}
-    r = post(store_client, fresh)
+    r = post(store_client, "/v1/maxflow", fresh)
     assert r.headers["Cache-Status"] == "sluice; fwd=request; detail=bypass"
-    assert post(store_client, fresh).headers["Cache-Status"] == "sluice; fwd=request; detail=bypass"
+    assert post(store_client, "/v1/maxflow", fresh).headers["Cache-Status"] == "sluice; fwd=request; detail=bypass"
     assert store_client.get(f"/v1/solutions/{r.get_json()['digest']}").status_code == 404  # never stored
     use = {**fresh, "options": {"cache": "use"}}
-    assert post(store_client, use).headers["Cache-Status"] == "sluice; fwd=miss; stored"
+    assert post(store_client, "/v1/maxflow", use).headers["Cache-Status"] == "sluice; fwd=miss; stored"
 
 
 def test_answer_changing_options_are_separate_entries(store_client):
-    full = post(store_client, DEPOTS).get_json()
-    cut_only = post(store_client, {**DEPOTS, "options": {"detail": ["cut"]}})
+    full = post(store_client, "/v1/maxflow", DEPOTS).get_json()
+    cut_only = post(store_client, "/v1/maxflow", {**DEPOTS, "options": {"detail": ["cut"]}})
     assert cut_only.headers["Cache-Status"] == "sluice; fwd=miss; stored"
     doc = cut_only.get_json()
     assert doc["digest"] != full["digest"] and "flows" not in doc and doc["cut"] == full["cut"]
 
 
 def test_solutions_by_digest_with_etag(store_client):
-    solved = post(store_client, DEPOTS).get_json()
+    solved = post(store_client, "/v1/maxflow", DEPOTS).get_json()
     r = store_client.get(f"/v1/solutions/{solved['digest']}")
     assert r.status_code == 200 and r.mimetype == "application/json"
     solved.pop("timing_ms")
@@ -113,20 +110,20 @@ def test_solutions_by_digest_with_etag(store_client):
 def test_bad_requests_are_not_cached(store_client):
     bad = {**DEPOTS, "sink": "nowhere"}
     for _ in range(2):
-        r = post(store_client, bad)
+        r = post(store_client, "/v1/maxflow", bad)
         assert r.status_code == 422 and r.get_json()["errors"][0]["pointer"] == "/sink"
-    assert post(store_client, b"{not json").status_code == 400
+    assert post(store_client, "/v1/maxflow", b"{not json").status_code == 400
     r = store_client.post("/v1/maxflow", data=orjson.dumps(DEPOTS), content_type="text/plain")
     assert r.status_code == 415  # a cached body does not excuse the wrong media type
-    post(store_client, DEPOTS)
+    post(store_client, "/v1/maxflow", DEPOTS)
     r = store_client.post("/v1/maxflow", data=orjson.dumps(DEPOTS), content_type="text/plain")
     assert r.status_code == 415
 
 
 def test_two_apps_on_one_store_share_results(store_config):
     a, b = create_app(store_config).test_client(), create_app(store_config).test_client()
-    assert post(a, DEPOTS).headers["Cache-Status"] == "sluice; fwd=miss; stored"
-    assert post(b, DEPOTS).headers["Cache-Status"] == "sluice; hit"
+    assert post(a, "/v1/maxflow", DEPOTS).headers["Cache-Status"] == "sluice; fwd=miss; stored"
+    assert post(b, "/v1/maxflow", DEPOTS).headers["Cache-Status"] == "sluice; hit"
 
 
 def test_readyz_checks_the_store(store_client, store_config):
@@ -142,9 +139,9 @@ def test_an_unusable_data_dir_degrades_but_solves_still_answer(tmp_path):
     blocker = tmp_path / "not-a-dir"
     blocker.write_text("a file where the data folder should be")
     client = create_app({"data_dir": str(blocker / "data")}).test_client()
-    r = post(client, DEPOTS)
+    r = post(client, "/v1/maxflow", DEPOTS)
     assert r.status_code == 200 and r.headers["Cache-Status"] == "sluice; fwd=bypass; detail=store-unavailable"
-    assert r.get_json()["value"] == nx_max_flow(DEPOTS["arcs"], DEPOTS["source"], DEPOTS["sink"])
+    assert r.get_json()["value"] == max_flow_value(DEPOTS["arcs"], DEPOTS["source"], DEPOTS["sink"])
     ready = client.get("/readyz")
     assert ready.status_code == 200 and ready.get_json()["status"] == "degraded"
     assert ready.get_json()["checks"]["store"] == "unavailable"
@@ -175,9 +172,9 @@ def test_answers_that_are_not_final_are_never_cached(store_app):
 def test_unbounded_answers_are_cached(store_client):
     body = {"source": "dock-a", "sink": "dock-c",
             "arcs": [{"from": "dock-a", "to": "dock-b"}, {"from": "dock-b", "to": "dock-c", "capacity": None}]}
-    first = post(store_client, body)
+    first = post(store_client, "/v1/maxflow", body)
     assert first.get_json()["status"] == "unbounded"
-    assert post(store_client, body).headers["Cache-Status"] == "sluice; hit"
+    assert post(store_client, "/v1/maxflow", body).headers["Cache-Status"] == "sluice; hit"
 
 
 # --- the raw-body fingerprint behind the fast path -------------------------------------
@@ -214,9 +211,9 @@ def big_body(seed: int) -> bytes:
 
 def test_a_large_body_is_a_hit_however_its_bytes_arrive(store_client):
     raw = big_body(11)
-    first = post(store_client, raw)
+    first = post(store_client, "/v1/maxflow", raw)
     assert first.headers["Cache-Status"] == "sluice; fwd=miss; stored"
-    assert first.get_json()["value"] == nx_max_flow(orjson.loads(raw)["arcs"], "site-a0", "site-b0")
+    assert first.get_json()["value"] == max_flow_value(orjson.loads(raw)["arcs"], "site-a0", "site-b0")
     for most in (len(raw), 100_000):  # in one read; in short reads, as a slow input may
         again = store_client.post("/v1/maxflow", input_stream=TrickleStream(raw, most),
                                    content_type="application/json")
@@ -224,9 +221,9 @@ def test_a_large_body_is_a_hit_however_its_bytes_arrive(store_client):
         assert without_timing(again) == without_timing(first)
     at = raw.rindex(b'"capacity":') + len(b'"capacity":')
     changed = raw[:at] + b"1" + raw[at:]  # the last arc's capacity c becomes 1c: another problem
-    again = post(store_client, changed)
+    again = post(store_client, "/v1/maxflow", changed)
     assert again.headers["Cache-Status"] == "sluice; fwd=miss; stored"
-    assert again.get_json()["value"] == nx_max_flow(orjson.loads(changed)["arcs"], "site-a0", "site-b0")
+    assert again.get_json()["value"] == max_flow_value(orjson.loads(changed)["arcs"], "site-a0", "site-b0")
 
 
 def test_a_large_body_cut_short_is_refused_and_nothing_is_cached(store_client):
@@ -234,4 +231,4 @@ def test_a_large_body_cut_short_is_refused_and_nothing_is_cached(store_client):
     cut = store_client.post("/v1/maxflow", input_stream=TrickleStream(raw[:-1000], 100_000),
                             content_type="application/json", environ_overrides={"CONTENT_LENGTH": str(len(raw))})
     assert cut.status_code == 400 and "ended after" in cut.get_json()["detail"]
-    assert post(store_client, raw).headers["Cache-Status"] == "sluice; fwd=miss; stored"
+    assert post(store_client, "/v1/maxflow", raw).headers["Cache-Status"] == "sluice; fwd=miss; stored"

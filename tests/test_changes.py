@@ -11,7 +11,9 @@ from service.model.arcs import build_network, read_arcs
 from service.model.changes import apply_changes
 from service.model.nodes import read_nodes
 from service.store import decode_network, encode_network
-from tests.flowdata import depot_arcs, nx_max_flow, with_changes
+from tests.flowdata import depot_arcs, with_changes
+from tests.http import pointers
+from tests.references import max_flow_value
 
 
 def network_of(arcs, nodes=None):
@@ -26,10 +28,6 @@ ARCS = [
     {"from": "dock-a", "to": "dock-c", "capacity": 4, "lower": 2, "key": "lane-3"},
     {"from": "dock-c", "to": "dock-d", "capacity": 7, "key": None},
 ]
-
-
-def pointers(exc: pytest.ExceptionInfo) -> list[str]:
-    return [e.pointer for e in exc.value.errors]
 
 
 def test_changes_make_new_arrays_and_leave_the_stored_ones_alone():
@@ -143,7 +141,7 @@ def test_what_if_max_flow_matches_networkx_on_the_changed_arcs(seed):
     problem = kind.from_network(net, {"source": source, "sink": sink}, Limits())
     result = kind.solve(problem, Limits())
     try:
-        expected = nx_max_flow(expected_arcs, source, sink)
+        expected = max_flow_value(expected_arcs, source, sink)
     except Exception as exc:  # networkx raises NetworkXUnbounded for an unlimited s-t path
         assert type(exc).__name__ == "NetworkXUnbounded"
         assert result["status"] == "unbounded"

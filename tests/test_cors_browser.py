@@ -9,7 +9,7 @@ from http.server import BaseHTTPRequestHandler, ThreadingHTTPServer
 
 import pytest
 
-from tests.conftest import SCENARIOS, RunningServer, free_port
+from tests.conftest import RunningServer, free_port, scenario_bytes
 from tests.test_explorer_browser import browser  # noqa: F401 - the fixture
 
 pytestmark = [pytest.mark.browser, pytest.mark.server]
@@ -66,7 +66,7 @@ def keyed(tmp_path_factory, page_port):
 
 @pytest.fixture(scope="module")
 def page(keyed, page_port):
-    body = json.dumps((SCENARIOS / "depots-maxflow.json").read_text())
+    body = json.dumps(scenario_bytes("depots-maxflow").decode())
     _Page.html = (PAGE % {"sluice": json.dumps(keyed.url), "body": body, "key": KEY}).encode()
     httpd = ThreadingHTTPServer(("127.0.0.1", page_port), _Page)
     thread = threading.Thread(target=httpd.serve_forever, daemon=True)

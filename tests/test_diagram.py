@@ -14,11 +14,11 @@ from service.api.diagram import render_diagram, solution_diagram
 from service.drawing.layout import layered_layout
 from service.errors import InputError
 from service.kinds import KINDS
-from tests.conftest import SCENARIOS
+from tests.conftest import scenario
 
 SVG = "{http://www.w3.org/2000/svg}"
-DEPOTS = json.loads((SCENARIOS / "depots-maxflow.json").read_text())
-MC_PLAN = json.loads((SCENARIOS / "verify-depots-mincostflow.json").read_text())
+DEPOTS = scenario("depots-maxflow")
+MC_PLAN = scenario("verify-depots-mincostflow")
 
 
 def groups(root, css: str) -> list:
@@ -163,7 +163,7 @@ def test_control_characters_in_ids_and_keys_stay_well_formed(client):
 
 
 def test_lower_bounds_are_drawn(client):
-    body = json.loads((SCENARIOS / "depots-mincostflow.json").read_text())
+    body = scenario("depots-mincostflow")
     lower = [i for i, a in enumerate(body["arcs"]) if a.get("lower")]
     assert lower, "the scenario should have an arc with a lower bound"
     root = draw(client, "mincostflow", body)

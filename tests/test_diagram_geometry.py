@@ -11,7 +11,6 @@ end compares with what chromium renders. Inputs: every scenario that can be draw
 
 from __future__ import annotations
 
-import json
 import os
 import re
 import xml.etree.ElementTree as ET
@@ -22,7 +21,7 @@ import pytest
 from service.drawing import DRAWERS
 from service.drawing.svg import exact
 from service.drawing.text import ASCENT, DESCENT, Font, text_width
-from tests.conftest import SCENARIOS
+from tests.conftest import SCENARIOS, scenario
 from tests.test_explorer_browser import browser  # noqa: F401  (the fixture: headless chromium)
 
 SVG = "{http://www.w3.org/2000/svg}"
@@ -214,9 +213,9 @@ def drawable_scenarios() -> list[tuple[str, str, object]]:
         kind = next((w for w in words if w in DRAWERS), None)
         if path.suffix == ".dimacs":
             if kind:
-                out.append((path.name, kind, path.read_text()))
+                out.append((path.name, kind, scenario(path.name)))
             continue
-        doc = json.loads(path.read_text())
+        doc = scenario(path.name)
         if words[0] == "batch":
             out += [(f"{path.stem}/{i}", item["kind"], item["problem"])
                     for i, item in enumerate(doc["items"]) if item["kind"] in DRAWERS]

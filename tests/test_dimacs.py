@@ -6,9 +6,7 @@ recalled from memory) and networkx.maximum_flow_value for the same network.
 
 from __future__ import annotations
 
-import json
 
-import networkx as nx
 import numpy as np
 import pytest
 
@@ -18,9 +16,10 @@ from service.kinds import KINDS, Limits
 from service.kinds.verify import read_min_cost
 from service.model.dimacs import parse_dimacs
 from service.model.dimacs_write import stand_in_capacity, to_dimacs
-from tests.conftest import SCENARIOS
+from tests.conftest import scenario
+from tests.references import max_flow_value
 
-DEPOTS = json.loads((SCENARIOS / "depots-maxflow.json").read_text())
+DEPOTS = scenario("depots-maxflow")
 DIMACS = "text/x-dimacs"
 
 FORMAT_EXAMPLE = """c This is a simple example file to demonstrate the DIMACS
@@ -75,17 +74,13 @@ def test_format_example_solves_to_its_published_value(client):
     r = client.post("/v1/maxflow", data=FORMAT_EXAMPLE, content_type=DIMACS)
     assert r.status_code == 200
     doc = r.get_json()
-    g = nx.DiGraph()
-    for line in FORMAT_EXAMPLE.splitlines():
-        if line.startswith("a "):
-            _, u, v, c = line.split()
-            g.add_edge(int(u), int(v), capacity=int(c))
-    assert doc["value"] == 15 == nx.maximum_flow_value(g, 1, 6)
+    arcs = [tuple(map(int, line.split()[1:])) for line in FORMAT_EXAMPLE.splitlines() if line.startswith("a ")]
+    assert doc["value"] == 15 == max_flow_value(arcs, 1, 6)
     assert doc["cut"]["source_side"][0] == 1 and 6 not in doc["cut"]["source_side"]
 
 
 def test_dimacs_and_json_bodies_give_the_same_answer(client):
-    text = (SCENARIOS / "depots-maxflow.dimacs").read_text()
+    text = scenario("depots-maxflow.dimacs")
     from_text = client.post("/v1/maxflow", data=text, content_type=DIMACS).get_json()
     from_json = client.post("/v1/maxflow", json=DEPOTS).get_json()
     assert from_text["value"] == from_json["value"] == 160 and from_text["flows"] == from_json["flows"]

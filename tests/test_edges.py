@@ -21,6 +21,8 @@ from service.errors import InputError
 from service.kinds import KINDS
 from service.kinds.base import Limits
 from service.model.schemas import flatten_messages
+from tests.conftest import scenario
+from tests.http import post
 
 BOM = b"\xef\xbb\xbf"
 PAD = 20_000  # bytes of white space: large enough for the compiled scanner
@@ -31,10 +33,6 @@ def client(tmp_path):
     from service.api import create_app
 
     return create_app({"data_dir": str(tmp_path / "data"), "rate_limit": "off"}).test_client()
-
-
-def post(client, url: str, body: bytes | str, content_type: str = "application/json"):
-    return client.post(url, data=body, headers={"Content-Type": content_type})
 
 
 def padded(raw: bytes) -> bytes:
@@ -288,12 +286,6 @@ def pinned_version(monkeypatch):
 
     for name in ("maxflow", "mincostflow", "multicommodity", "lp", "assignment"):
         monkeypatch.setattr(importlib.import_module(f"service.kinds.{name}"), "ORTOOLS_VERSION", "pinned")
-
-
-def scenario(name: str) -> dict:
-    from tests.conftest import SCENARIOS
-
-    return json.loads((SCENARIOS / name).read_text())
 
 
 def test_digests_of_problems_without_explicit_defaults_are_unchanged(pinned_version):

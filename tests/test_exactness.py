@@ -27,6 +27,8 @@ from hypothesis import strategies as st
 from service.model.fastarcs import decode_arcs_body
 from service.kinds import KINDS
 from service.kinds.base import Limits
+from tests.http import post
+from tests.references import max_flow_value
 
 SETTINGS = settings(max_examples=60, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
 #: Every decimal drawn here is an integer number of 1e-9.
@@ -62,9 +64,9 @@ def exact(value) -> Fraction:
     return Fraction(value)
 
 
-def post(client, kind: str, body: dict):
-    raw = json.dumps(body)
-    response = client.post(f"/v1/{kind}", data=raw, content_type="application/json")
+def solve(client, kind: str, body: dict):
+    """``(status, document)`` of ``POST /v1/<kind>``, the body written by the standard library."""
+    response = post(client, f"/v1/{kind}", json.dumps(body))
     doc = response.get_json()
     event(f"{kind}: {response.status_code} {doc.get('status') if response.status_code == 200 else ''}")
     return response.status_code, doc
@@ -86,23 +88,12 @@ def flow_networks(draw):
 
 
 def reference_max_flow(n, arcs, s, t):
-    """Exact value (Fraction) or "unbounded": networkx on the capacities times 10**9 as Python ints."""
-    g = nx.DiGraph()
-    g.add_nodes_from(range(n))
-    for a, b, c in arcs:
-        if g.has_edge(a, b) and "capacity" not in g[a][b]:
-            continue  # already unlimited
-        if c is None:
-            g.add_edge(a, b)
-            g[a][b].pop("capacity", None)
-            continue
-        units = exact(c) * UNIT
-        assert units.denominator == 1
-        g.add_edge(a, b, capacity=g.get_edge_data(a, b, {}).get("capacity", 0) + int(units))
-    try:
-        return Fraction(nx.maximum_flow_value(g, s, t), UNIT)
-    except nx.NetworkXUnbounded:
-        return "unbounded"
+    """Exact value (Fraction) or "unbounded": tests.references (networkx) on the capacities times 10**9
+    as Python ints."""
+    units = [(a, b, None if c is None else exact(c) * UNIT) for a, b, c in arcs]
+    assert all(u is None or u.denominator == 1 for _, _, u in units)
+    value = max_flow_value([(a, b, None if u is None else int(u)) for a, b, u in units], s, t, range(n))
+    return "unbounded" if value == math.inf else Fraction(value, UNIT)
 
 
 def maxflow_body(n, arcs, columns: bool):
@@ -119,7 +110,7 @@ def maxflow_body(n, arcs, columns: bool):
 @given(flow_networks(), st.booleans())
 def test_max_flow_is_exact_at_every_magnitude(client, network, columns):
     n, arcs = network
-    status, doc = post(client, "maxflow", maxflow_body(n, arcs, columns))
+    status, doc = solve(client, "maxflow", maxflow_body(n, arcs, columns))
     assert status == 200, doc
     expected = reference_max_flow(n, arcs, 0, n - 1)
     if expected == "unbounded":
@@ -200,7 +191,7 @@ def test_min_cost_flow_is_exact_or_refused_naming_a_field(client, network):
     n, arcs, supply = network
     ids = [f"n{i}" for i in range(n)]
     body = {"nodes": [{"id": ids[i], "supply": as_json(supply[i])} for i in range(n)], "arcs": arcs_json(ids, arcs)}
-    status, doc = post(client, "mincostflow", body)
+    status, doc = solve(client, "mincostflow", body)
     if status != 200:
         assert status == 422, doc
         assert_names_a_field(doc)
@@ -233,7 +224,7 @@ def test_one_commodity_agrees_with_the_exact_min_cost_flow_within_its_tolerance(
     ids = [f"n{i}" for i in range(n)]
     body = {"arcs": arcs_json(ids, arcs),
             "commodities": [{"id": "load", "source": ids[0], "sink": ids[-1], "demand": as_json(demand)}]}
-    status, doc = post(client, "multicommodity", body)
+    status, doc = solve(client, "multicommodity", body)
     if status != 200:
         assert status == 422, doc
         assert_names_a_field(doc)
@@ -349,7 +340,7 @@ def extreme_bodies(draw, kind: str):
     lambda kind: extreme_bodies(kind).map(lambda body: (kind, body))))
 def test_no_valid_problem_gets_a_500_at_the_extremes(client, problem):
     kind, body = problem
-    status, doc = post(client, kind, body)
+    status, doc = solve(client, kind, body)
     assert status < 500, doc
     if status == 200:
         assert doc["certificate"]["checked"], doc

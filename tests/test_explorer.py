@@ -2,9 +2,8 @@
 
 from __future__ import annotations
 
-import json
 
-from tests.conftest import SCENARIOS
+from tests.conftest import SCENARIOS, scenario
 
 
 def test_page_and_assets(client):
@@ -45,7 +44,7 @@ def test_every_scenario_is_answered_by_its_endpoint(client):
 
 def test_scenario_body_is_the_file(client):
     r = client.get("/v1/scenarios/depots-maxflow")
-    assert r.get_json() == json.loads((SCENARIOS / "depots-maxflow.json").read_text())
+    assert r.get_json() == scenario("depots-maxflow")
     r = client.get("/v1/scenarios/depots-maxflow.dimacs")
     assert r.mimetype == "text/x-dimacs" and r.get_data(as_text=True).startswith("c Invented")
     r = client.get("/v1/scenarios/no-such-thing")

@@ -16,7 +16,7 @@ from pathlib import Path
 import pytest
 import requests
 
-from tests.conftest import SCENARIOS
+from tests.conftest import scenario
 
 CHROME_FLAGS = ["--headless", "--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
                 "--disable-background-networking", "--disable-component-update", "--disable-sync",
@@ -121,9 +121,8 @@ def test_explorer_shows_problem_pointers(browser, server):
 
 
 def _scenario() -> dict:
-    import json
 
-    return json.loads((SCENARIOS / "depots-maxflow.json").read_text())
+    return scenario("depots-maxflow")
 
 
 def _ready(browser, server):
@@ -161,7 +160,6 @@ def _facts(browser) -> dict[str, str]:
 @pytest.mark.server
 def test_explorer_shows_assignments_as_a_table(browser, server, tmp_path):
     """The pairs are in the summary, not only inside the collapsed full response."""
-    import json
 
     from selenium.webdriver.common.by import By
     from selenium.webdriver.support.ui import Select
@@ -172,7 +170,7 @@ def test_explorer_shows_assignments_as_a_table(browser, server, tmp_path):
     browser.find_element(By.ID, "solve").click()
     wait.until(lambda d: d.find_element(By.TAG_NAME, "body").get_attribute("data-state") in ("solved", "failed"))
     expected = requests.post(server.url + "/v1/assignment", timeout=30,
-                             json=json.loads((SCENARIOS / "vans-assignment.json").read_text())).json()
+                             json=scenario("vans-assignment")).json()
     table = browser.find_element(By.CSS_SELECTOR, "#tables table#assignments")
     assert table.is_displayed()
     assert [th.text for th in table.find_elements(By.CSS_SELECTOR, "thead th")] == ["agent", "task", "cost"]

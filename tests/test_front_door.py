@@ -19,12 +19,12 @@ from concurrent.futures import ThreadPoolExecutor
 import pytest
 import requests
 
-from tests.conftest import SCENARIOS, RunningServer
+from tests.conftest import RunningServer, scenario_bytes
 from tests.opsutil import columnar_body, gunicorn_workers, layered
 
 pytestmark = pytest.mark.server
 
-DEPOTS = (SCENARIOS / "depots-maxflow.json").read_bytes()
+DEPOTS = scenario_bytes("depots-maxflow")
 JSON = {"Content-Type": "application/json"}
 KEYS = "acme:acme-key-0001,slow:slow-key-0001"
 

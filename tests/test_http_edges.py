@@ -16,9 +16,9 @@ from service.api import create_app
 from service.api.explorer import EXAMPLES
 from service.config import parse_api_keys, parse_origins, parse_tenant_rate_limits
 from service.intake import QUEUED, SHED
-from tests.conftest import ROOT, SCENARIOS
+from tests.conftest import ROOT, SCENARIOS, scenario_bytes
 
-DEPOTS = (SCENARIOS / "depots-maxflow.json").read_bytes()
+DEPOTS = scenario_bytes("depots-maxflow")
 JSON = {"Content-Type": "application/json"}
 
 

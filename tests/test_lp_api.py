@@ -13,21 +13,9 @@ from service.api import create_app
 from service.errors import InputError
 from service.kinds import Limits
 from service.kinds.lp import parse
-from tests.conftest import SCENARIOS
+from tests.conftest import scenario
 from tests.lp_reference import duality_figures, linprog_solve, random_model, to_request
-
-
-def scenario(name: str) -> dict:
-    return json.loads((SCENARIOS / name).read_text())
-
-
-def post(client, body):
-    return client.post("/v1/lp", json=body)
-
-
-def pointers(response) -> list[str]:
-    assert response.headers["Content-Type"].startswith("application/problem+json")
-    return [e["pointer"] for e in response.get_json()["errors"]]
+from tests.http import pointers, post
 
 
 def scenario_as_model(body: dict) -> dict:
@@ -46,7 +34,7 @@ def scenario_as_model(body: dict) -> dict:
 
 def test_scenario_against_scipy(client):
     body = scenario("depots-lp.json")
-    r = post(client, body)
+    r = post(client, "/v1/lp", body)
     assert r.status_code == 200
     out = r.get_json()
     model = scenario_as_model(body)
@@ -65,8 +53,8 @@ def test_scenario_against_scipy(client):
 
 
 def test_matrix_form_gives_the_same_answer_and_digest(client):
-    a = post(client, scenario("depots-lp.json")).get_json()
-    b = post(client, scenario("depots-lp-matrix.json")).get_json()
+    a = post(client, "/v1/lp", scenario("depots-lp.json")).get_json()
+    b = post(client, "/v1/lp", scenario("depots-lp-matrix.json")).get_json()
     assert b["status"] == "optimal"
     for key in ("objective", "values", "duals", "reduced_costs", "digest"):
         assert a[key] == b[key]
@@ -78,7 +66,7 @@ def test_random_lps_over_http(client, seed):
     rng = np.random.default_rng(1000 + seed)
     model = random_model(rng, 8, 6, maximize=bool(seed % 2), feasible=seed != 4)
     res, objective = linprog_solve(model)
-    out = post(client, to_request(model)).get_json()
+    out = post(client, "/v1/lp", to_request(model)).get_json()
     assert out["status"] == {0: "optimal", 2: "infeasible", 3: "unbounded"}[res.status]
     if res.status == 0:
         assert out["objective"] == pytest.approx(objective, abs=1e-7)
@@ -89,7 +77,7 @@ def test_constant_and_equals(client):
             "variables": [{"name": "x"}, {"name": "y"}],
             "constraints": [{"name": "total", "terms": {"x": 1, "y": 1}, "equals": 4},
                             {"name": "y-floor", "terms": {"y": 1}, "lower": 1}]}
-    out = post(client, body).get_json()
+    out = post(client, "/v1/lp", body).get_json()
     assert out["objective"] == pytest.approx(10 + 2 * 3 + 3 * 1)
     assert out["duals"] == pytest.approx({"total": 2, "y-floor": 1})
 
@@ -98,13 +86,13 @@ def test_unbounded_and_infeasible_over_http(client):
     unbounded = {"objective": {"sense": "min", "terms": {"x": -1, "y": -1}},
                  "variables": [{"name": "x"}, {"name": "y"}],
                  "constraints": [{"name": "c", "terms": {"x": 1, "y": -1}, "upper": 1}]}
-    out = post(client, unbounded).get_json()
+    out = post(client, "/v1/lp", unbounded).get_json()
     assert out["status"] == "unbounded" and out["objective"] is None
     d = out["ray"]["direction"]
     assert d.get("x", 0) - d.get("y", 0) <= 1e-9 and -(d.get("x", 0) + d.get("y", 0)) < 0
     infeasible = {"objective": {"sense": "max", "terms": {"x": 1}}, "variables": [{"name": "x", "upper": 1}],
                   "constraints": [{"name": "too-much", "terms": {"x": 1}, "lower": 3}]}
-    out = post(client, infeasible).get_json()
+    out = post(client, "/v1/lp", infeasible).get_json()
     assert out["status"] == "infeasible"
     assert out["infeasibility"]["constraints"] == ["too-much"]
     assert out["infeasibility"]["variables"] == ["x"]
@@ -114,7 +102,7 @@ def test_unbounded_and_infeasible_over_http(client):
 
 def test_detail_option(client):
     body = scenario("depots-lp.json") | {"options": {"detail": ["values"]}}
-    out = post(client, body).get_json()
+    out = post(client, "/v1/lp", body).get_json()
     assert "values" in out and "duals" not in out and "reduced_costs" not in out
 
 
@@ -131,7 +119,7 @@ def test_server_time_limit_caps_the_request(tmp_path):
         "options": {"time_limit": 100},
     }
     client = create_app({"data_dir": str(tmp_path), "time_limit": 0.01}).test_client()
-    out = post(client, body).get_json()
+    out = post(client, "/v1/lp", body).get_json()
     assert out["status"] == "time_limit" and out["certificate"]["checked"] is False
 
 
@@ -198,7 +186,7 @@ BAD = [
 
 @pytest.mark.parametrize("what,body,pointer", BAD, ids=[b[0] for b in BAD])
 def test_bad_input_is_a_422_with_a_pointer(client, what, body, pointer):
-    r = post(client, body)
+    r = post(client, "/v1/lp", body)
     assert r.status_code == 422, r.get_json()
     assert pointer in pointers(r)
 
@@ -220,20 +208,20 @@ MATRIX = {"objective": {"sense": "min", "coefficients": [1, 1]},
 def test_bad_matrix_form(client, what, patch, pointer):
     body = json.loads(json.dumps(MATRIX))
     body["matrix"].update(patch)
-    r = post(client, body)
+    r = post(client, "/v1/lp", body)
     assert r.status_code == 422
     assert pointer in pointers(r)
 
 
 def test_matrix_form_solves(client):
-    out = post(client, MATRIX).get_json()
+    out = post(client, "/v1/lp", MATRIX).get_json()
     assert out["status"] == "optimal" and out["objective"] == pytest.approx(1)
 
 
 def test_coefficients_of_the_wrong_length(client):
     body = json.loads(json.dumps(MATRIX))
     body["objective"]["coefficients"] = [1]
-    assert pointers(post(client, body)) == ["/objective/coefficients"]
+    assert pointers(post(client, "/v1/lp", body)) == ["/objective/coefficients"]
 
 
 def test_an_upper_bound_below_the_default_lower_bound_is_a_422_naming_it(client):
@@ -266,7 +254,7 @@ def test_nan_literal_is_a_400(client):
 
 def test_too_many_variables_is_a_413(tmp_path):
     client = create_app({"data_dir": str(tmp_path), "max_arcs": 1}).test_client()
-    r = post(client, BASE)
+    r = post(client, "/v1/lp", BASE)
     assert r.status_code == 413 and pointers(r) == ["/variables"]
 
 
@@ -286,8 +274,8 @@ def renamed(body: dict, old: str, new: str) -> dict:
 def test_name_is_read_as_id_with_the_same_answer_and_digest(client, name):
     body = scenario(name)
     assert "name" not in json.dumps(body)  # the scenarios use the documented spelling
-    by_id = post(client, body).get_json()
-    by_name = post(client, renamed(body, "id", "name")).get_json()
+    by_id = post(client, "/v1/lp", body).get_json()
+    by_name = post(client, "/v1/lp", renamed(body, "id", "name")).get_json()
     assert by_name["status"] == by_id["status"] == "optimal"
     assert by_name["digest"] == by_id["digest"]
     assert by_name["values"] == by_id["values"] and by_name["duals"] == by_id["duals"]
@@ -296,9 +284,9 @@ def test_name_is_read_as_id_with_the_same_answer_and_digest(client, name):
 def test_entries_may_mix_id_and_name_but_not_give_both(client):
     body = scenario("depots-lp.json")
     body["variables"][0] = {"name": body["variables"][0].pop("id"), **body["variables"][0]}
-    assert post(client, body).get_json()["status"] == "optimal"
+    assert post(client, "/v1/lp", body).get_json()["status"] == "optimal"
     body["variables"][1]["name"] = body["variables"][1]["id"]
-    r = post(client, body)
+    r = post(client, "/v1/lp", body)
     assert r.status_code == 422 and pointers(r) == ["/variables/1/name"]
     assert "not both" in r.get_json()["errors"][0]["detail"]
 
@@ -306,16 +294,16 @@ def test_entries_may_mix_id_and_name_but_not_give_both(client):
 def test_columns_give_id_or_name_not_both(client):
     body = scenario("depots-lp-matrix.json")
     body["variables"]["name"] = body["variables"]["id"]
-    r = post(client, body)
+    r = post(client, "/v1/lp", body)
     assert r.status_code == 422 and pointers(r) == ["/variables/name"]
 
 
 def test_errors_point_at_the_spelling_sent(client):
     body = scenario("depots-lp.json")
     body["variables"][2]["id"] = body["variables"][0]["id"]
-    r = post(client, body)
+    r = post(client, "/v1/lp", body)
     assert pointers(r) == ["/variables/2/id"] and "duplicate variable id" in r.get_json()["errors"][0]["detail"]
     old = renamed(body, "id", "name")
-    assert pointers(post(client, old)) == ["/variables/2/name"]
+    assert pointers(post(client, "/v1/lp", old)) == ["/variables/2/name"]
     del body["variables"][0]["id"]
-    assert pointers(post(client, body)) == ["/variables/0/id"]
+    assert pointers(post(client, "/v1/lp", body)) == ["/variables/0/id"]

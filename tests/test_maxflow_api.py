@@ -1,33 +1,17 @@
 """POST /v1/maxflow through the Flask test client and through a real `sluice serve`."""
 
-import json
 import socket
 from fractions import Fraction
 
-import networkx as nx
 import numpy as np
 import pytest
-import requests
 
 from tests.checkers import assert_cut, assert_max_flow
-from tests.conftest import SCENARIOS
+from tests.conftest import scenario
+from tests.references import max_flow_of
 
-OBJECTS = json.loads((SCENARIOS / "depots-maxflow.json").read_text())
-COLUMNS = json.loads((SCENARIOS / "depots-maxflow-columns.json").read_text())
-
-
-def reference_value(body) -> float:
-    """networkx.maximum_flow_value on the same network (parallel arcs summed)."""
-    arcs = body["arcs"]
-    if isinstance(arcs, dict):
-        arcs = [dict(zip(arcs, vals)) for vals in zip(*arcs.values())]
-    g = nx.DiGraph()
-    for a in arcs:
-        cap = a.get("capacity")
-        cap = float("inf") if cap is None else cap
-        prev = g.get_edge_data(a["from"], a["to"], {}).get("capacity", 0)
-        g.add_edge(a["from"], a["to"], capacity=prev + cap)
-    return nx.maximum_flow_value(g, body["source"], body["sink"])
+OBJECTS = scenario("depots-maxflow")
+COLUMNS = scenario("depots-maxflow-columns")
 
 
 def check_response(body, doc):
@@ -39,7 +23,7 @@ def check_response(body, doc):
     ids = sorted(set(tails) | set(heads), key=str)
     pos = {v: i for i, v in enumerate(ids)}
     assert doc["status"] == "optimal"
-    assert doc["value"] == reference_value(body)
+    assert doc["value"] == max_flow_of(body)
     assert len(doc["flows"]) == len(tails)  # aligned with the request's arcs
     assert_max_flow(len(ids), [pos[t] for t in tails], [pos[h] for h in heads], caps,
                     pos[body["source"]], pos[body["sink"]], doc["flows"], doc["value"])
@@ -120,7 +104,7 @@ def test_health_and_readiness(client):
 @pytest.mark.server
 @pytest.mark.parametrize("body", [OBJECTS, COLUMNS], ids=["objects", "columns"])
 def test_real_server_solves_both_forms(server, body):
-    r = requests.post(server.url + "/v1/maxflow", json=body, timeout=30)
+    r = server.post("/v1/maxflow", json=body, timeout=30)
     assert r.status_code == 200
     check_response(body, r.json())
 
@@ -132,14 +116,14 @@ def test_real_server_random_network_matches_networkx(server):
     body = {"source": "n0", "sink": f"n{n - 1}", "arcs": {
         "from": [f"n{i}" for i in rng.integers(0, n, m)], "to": [f"n{i}" for i in rng.integers(0, n, m)],
         "capacity": rng.integers(0, 50, m).tolist()}}
-    r = requests.post(server.url + "/v1/maxflow", json=body, timeout=30)
+    r = server.post("/v1/maxflow", json=body, timeout=30)
     assert r.status_code == 200
     check_response(body, r.json())
 
 
 @pytest.mark.server
 def test_real_server_errors_are_problems_and_it_keeps_answering(server):
-    r = requests.post(server.url + "/v1/maxflow", data=b"{nope", headers={"Content-Type": "application/json"},
+    r = server.post("/v1/maxflow", data=b"{nope", headers={"Content-Type": "application/json"},
                       timeout=10)
     assert r.status_code == 400 and r.headers["Content-Type"] == "application/problem+json"
     # Announce a 200 MB body and send none of it: the limit is enforced from the header.
@@ -148,8 +132,8 @@ def test_real_server_errors_are_problems_and_it_keeps_answering(server):
                      b"Content-Length: 209715200\r\n\r\n")
         head = conn.recv(4096).decode()
     assert head.startswith("HTTP/1.1 413") and "application/problem+json" in head
-    r = requests.post(server.url + "/v1/maxflow", json={**OBJECTS, "sink": "nowhere"}, timeout=10)
+    r = server.post("/v1/maxflow", json={**OBJECTS, "sink": "nowhere"}, timeout=10)
     assert r.status_code == 422 and r.json()["errors"][0]["pointer"] == "/sink"
-    r = requests.post(server.url + "/v1/maxflow", json=OBJECTS, timeout=10)
+    r = server.post("/v1/maxflow", json=OBJECTS, timeout=10)
     assert r.status_code == 200 and r.json()["value"] == 160
-    assert requests.get(server.url + "/openapi.json", timeout=10).json()["info"]["title"] == "Sluice"
+    assert server.get("/openapi.json", timeout=10).json()["info"]["title"] == "Sluice"

@@ -6,7 +6,6 @@ worked example, and the max-flow min-cut and integrality theorems as checks.
 
 from fractions import Fraction
 
-import networkx as nx
 import numpy as np
 import pytest
 import scipy.sparse as sp
@@ -17,6 +16,7 @@ from service.errors import SelfCheckFailed
 from service.solvers import maximum_flow
 from service.solvers.certificates import check_max_flow
 from tests.checkers import assert_cut, assert_exact_max_flow, assert_integral, assert_max_flow
+from tests.references import max_flow_value
 
 ENGINES = ["graph", "lp"]
 
@@ -67,28 +67,13 @@ def random_arcs(rng, n, m, max_cap=20, unlimited_share=0.0):
     return arcs
 
 
-def networkx_value(n, arcs, s, t):
-    g = nx.DiGraph()
-    g.add_nodes_from(range(n))
-    for u, v, c in arcs:
-        if u == v:
-            continue
-        # networkx's DiGraph has no parallel arcs: sum them (same max-flow value).
-        prev = g.get_edge_data(u, v, {}).get("capacity", 0)
-        g.add_edge(u, v, capacity=float("inf") if c is None or prev == float("inf") else prev + c)
-    try:
-        return nx.maximum_flow_value(g, s, t)
-    except nx.NetworkXUnbounded:  # networkx's own verdict: an s-t path of infinite capacity
-        return float("inf")
-
-
 @pytest.mark.parametrize("seed", range(12))
 def test_random_graphs_match_networkx_and_scipy(seed):
     rng = np.random.default_rng(seed)
     n, m = int(rng.integers(3, 40)), int(rng.integers(1, 200))
     arcs = random_arcs(rng, n, m)
     solution, _ = solve(n, arcs, 0, n - 1)
-    assert solution.value == networkx_value(n, arcs, 0, n - 1)  # networkx.maximum_flow_value
+    assert solution.value == max_flow_value(arcs, 0, n - 1, range(n))  # networkx.maximum_flow_value
     tail, head, cap, _ = arrays(arcs)
     keep = tail != head
     graph = sp.csr_matrix((cap[keep].astype(np.int32), (tail[keep], head[keep])), shape=(n, n))
@@ -118,7 +103,7 @@ def test_property_value_equals_networkx_with_unlimited_arcs(data):
         st.tuples(st.integers(0, n - 1), st.integers(0, n - 1), st.one_of(st.none(), st.integers(0, 50))),
         max_size=40))
     solution, certificate = solve(n, arcs, 0, n - 1)
-    expected = networkx_value(n, arcs, 0, n - 1)
+    expected = max_flow_value(arcs, 0, n - 1, range(n))
     if expected == float("inf"):
         assert solution.status == "unbounded"
         path = solution.unbounded_path.tolist()
@@ -138,14 +123,10 @@ def test_decimals_are_solved_exactly_by_scaling():
 
 
 def exact_value(arcs, n, s, t, denominator=1):
-    """networkx on Python integers (capacities times ``denominator``, exactly), as a Fraction."""
-    g = nx.DiGraph()
-    g.add_nodes_from(range(n))
-    for a, b, c in arcs:
-        units = int(Fraction(c) * denominator)
-        assert units == Fraction(c) * denominator
-        g.add_edge(a, b, capacity=g.get_edge_data(a, b, {}).get("capacity", 0) + units)
-    return Fraction(nx.maximum_flow_value(g, s, t), denominator)
+    """The reference value on Python integers (capacities times ``denominator``, exactly), as a Fraction."""
+    units = [(a, b, Fraction(c) * denominator) for a, b, c in arcs]
+    assert all(u.denominator == 1 for _, _, u in units)
+    return Fraction(max_flow_value([(a, b, int(u)) for a, b, u in units], s, t, range(n)), denominator)
 
 
 def test_fractions_beyond_nine_places_are_solved_exactly_by_their_binary_value():

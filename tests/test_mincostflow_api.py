@@ -7,28 +7,19 @@ import json
 
 import numpy as np
 import pytest
-import requests
 
 from service.kinds import KINDS, Limits
 from service.model.arcs import build_network, read_arcs
 from service.model.nodes import read_nodes
 from tests.checkers import assert_capacities, assert_conservation
-from tests.conftest import SCENARIOS
+from tests.conftest import scenario
+from tests.http import pointers, post
 
-SCENARIO = json.loads((SCENARIOS / "depots-mincostflow.json").read_text())
-
-
-def post(client, body):
-    return client.post("/v1/mincostflow", json=body)
-
-
-def pointers(response):
-    assert response.headers["Content-Type"].startswith("application/problem+json")
-    return [e["pointer"] for e in response.get_json()["errors"]]
+SCENARIO = scenario("depots-mincostflow")
 
 
 def test_scenario_is_solved_and_certified(client):
-    r = post(client, SCENARIO)
+    r = post(client, "/v1/mincostflow", SCENARIO)
     assert r.status_code == 200
     out = r.get_json()
     assert out["status"] == "optimal" and out["certificate"]["checked"] and out["certificate"]["gap"] == 0
@@ -51,21 +42,21 @@ def test_columnar_form_gives_the_same_answer_and_digest(client):
             for k in ("from", "to", "capacity", "cost", "lower", "key")}
     nodes = {"id": [n["id"] for n in SCENARIO["nodes"]], "supply": [n.get("supply", 0) for n in SCENARIO["nodes"]]}
     body = {"nodes": nodes, "arcs": cols, "options": SCENARIO["options"]}
-    a, b = post(client, SCENARIO).get_json(), post(client, body).get_json()
+    a, b = post(client, "/v1/mincostflow", SCENARIO).get_json(), post(client, "/v1/mincostflow", body).get_json()
     assert a["flows"] == b["flows"] and a["cost"] == b["cost"] and a["digest"] == b["digest"]
 
 
 def test_reduced_costs_only_when_asked(client):
     body = copy.deepcopy(SCENARIO)
     del body["options"]
-    out = post(client, body).get_json()
+    out = post(client, "/v1/mincostflow", body).get_json()
     assert "reduced_costs" not in out and "potentials" in out and "flows" in out
 
 
 def test_unbalanced_supplies_are_a_422_saying_by_how_much(client):
     body = copy.deepcopy(SCENARIO)
     body["nodes"][0]["supply"] = 150
-    r = post(client, body)
+    r = post(client, "/v1/mincostflow", body)
     assert r.status_code == 422 and pointers(r) == ["/nodes"]
     assert "by 10" in r.get_json()["errors"][0]["detail"]
 
@@ -74,7 +65,7 @@ def test_max_flow_mode_reports_shipped_and_unmet(client):
     body = copy.deepcopy(SCENARIO)
     body["nodes"][0]["supply"] = 500
     body["options"]["shortage"] = "max-flow"
-    out = post(client, body).get_json()
+    out = post(client, "/v1/mincostflow", body).get_json()
     assert out["status"] == "optimal"
     assert out["shipped"] == 230 and out["certificate"]["shipped_bound"] == 230
     # 590 supplied, 230 demanded: 360 stays at the depots, no demand is left unmet.
@@ -86,7 +77,7 @@ def test_infeasible_answer_carries_a_proof(client):
     body = copy.deepcopy(SCENARIO)
     body["arcs"][0]["capacity"] = 10  # depot-corrow can no longer send out 140
     body["arcs"][1]["capacity"] = 10
-    out = post(client, body).get_json()
+    out = post(client, "/v1/mincostflow", body).get_json()
     assert out["status"] == "infeasible" and out["cost"] is None
     proof = out["infeasibility"]
     assert proof["net_supply"] > proof["outgoing_capacity"]
@@ -98,7 +89,7 @@ def test_unbounded_answer_names_the_cycle(client):
     body = {"nodes": [{"id": "a", "supply": 1}, {"id": "b", "supply": -1}],
             "arcs": [{"from": "a", "to": "b", "capacity": 1, "cost": 1},
                      {"from": "b", "to": "c", "cost": -5}, {"from": "c", "to": "b", "cost": 2}]}
-    out = post(client, body).get_json()
+    out = post(client, "/v1/mincostflow", body).get_json()
     assert out["status"] == "unbounded"
     assert out["negative_cycle"]["cost"] == -3 and sorted(out["negative_cycle"]["arcs"]) == [1, 2]
 
@@ -120,7 +111,7 @@ def test_unbounded_answer_names_the_cycle(client):
 def test_bad_input_is_a_422_with_the_pointer(client, mutate, pointer):
     body = copy.deepcopy(SCENARIO)
     mutate(body)
-    r = post(client, body)
+    r = post(client, "/v1/mincostflow", body)
     assert r.status_code == 422, r.get_json()
     assert pointer in pointers(r)
 
@@ -135,10 +126,10 @@ def test_graph_engine_refuses_data_it_cannot_solve_exactly(client):
     body = copy.deepcopy(SCENARIO)
     body["arcs"][0]["cost"] = 1 / 3
     body["options"]["engine"] = "graph"
-    r = post(client, body)
+    r = post(client, "/v1/mincostflow", body)
     assert r.status_code == 422 and pointers(r) == ["/arcs"]
     body["options"]["engine"] = "auto"
-    out = post(client, body).get_json()
+    out = post(client, "/v1/mincostflow", body).get_json()
     assert out["engine"]["kind"] == "lp" and out["certificate"]["tolerance"] > 0
 
 
@@ -146,19 +137,19 @@ def test_out_of_range_costs_go_to_lp_or_422_never_a_wrong_answer(client):
     body = copy.deepcopy(SCENARIO)
     body["arcs"][0]["cost"] = 2**61
     body["options"]["engine"] = "graph"
-    r = post(client, body)
+    r = post(client, "/v1/mincostflow", body)
     assert r.status_code == 422 and pointers(r) == ["/arcs"]
     assert "node count" in r.get_json()["errors"][0]["detail"]
     # auto: the LP engine takes it when it can, else a 422 (GLOP gives up on 2**61 here).
     body["options"]["engine"] = "auto"
-    r = post(client, body)
+    r = post(client, "/v1/mincostflow", body)
     assert r.status_code in (200, 422)
     if r.status_code == 200:
         assert r.get_json()["engine"]["kind"] == "lp" and r.get_json()["certificate"]["checked"]
     else:
         assert pointers(r) == ["/arcs"]
     body["arcs"][0]["cost"] = 2**40  # fits the LP engine's doubles
-    out = post(client, body).get_json()
+    out = post(client, "/v1/mincostflow", body).get_json()
     assert out["status"] == "optimal" and out["certificate"]["checked"]
 
 
@@ -173,7 +164,7 @@ def test_from_network_matches_a_full_request(client):
     kind = KINDS["mincostflow"]
     problem = kind.from_network(network, {"supplies": supplies, "options": {"detail": ["flows"]}}, Limits())
     out = kind.solve(problem, Limits())
-    direct = post(client, {**SCENARIO, "options": {"detail": ["flows"]}}).get_json()
+    direct = post(client, "/v1/mincostflow", {**SCENARIO, "options": {"detail": ["flows"]}}).get_json()
     assert out["flows"].tolist() == direct["flows"] and out["cost"] == direct["cost"]
     assert problem.digest == direct["digest"]
 
@@ -197,13 +188,13 @@ def test_from_network_rejects_unknown_and_repeated_nodes():
 
 @pytest.mark.server
 def test_end_to_end_against_a_real_server(server):
-    r = requests.post(server.url + "/v1/mincostflow", json=SCENARIO, timeout=30)
+    r = server.post("/v1/mincostflow", json=SCENARIO, timeout=30)
     assert r.status_code == 200
     out = r.json()
     assert out["status"] == "optimal" and out["certificate"]["gap"] == 0
     bad = copy.deepcopy(SCENARIO)
     bad["arcs"][3]["lower"] = 99
-    r = requests.post(server.url + "/v1/mincostflow", json=bad, timeout=30)
+    r = server.post("/v1/mincostflow", json=bad, timeout=30)
     assert r.status_code == 422 and r.headers["Content-Type"].startswith("application/problem+json")
     assert r.json()["errors"][0]["pointer"] == "/arcs/3/lower"
 
@@ -221,7 +212,7 @@ def test_end_to_end_columnar_network_of_a_few_thousand_arcs(server):
                  "capacity": rng.integers(1, 20, m).tolist() + [None] * n,
                  "cost": rng.integers(0, 50, m).tolist() + [60] * n},
     }
-    r = requests.post(server.url + "/v1/mincostflow", json=body, timeout=60)
+    r = server.post("/v1/mincostflow", json=body, timeout=60)
     out = r.json()
     assert r.status_code == 200 and out["status"] == "optimal" and out["certificate"]["gap"] == 0
     assert_conservation(len(out["node_ids"]), [out["node_ids"].index(v) for v in body["arcs"]["from"]],

@@ -17,6 +17,7 @@ from scipy.optimize import linprog
 
 from service.solvers.mincost import min_cost_flow
 from tests.checkers import assert_capacities, assert_conservation, assert_integral
+from tests.references import max_flow_value
 
 
 def random_network(n, m, seed, *, negative_unlimited=False, lower=True, decimals=False):
@@ -76,27 +77,15 @@ def networkx_reference(n, tail, head, cap, unl, cost, low, sup):
 
 def feasible_by_networkx(n, tail, head, cap, unl, low, sup) -> bool:
     """Hoffman feasibility with networkx.maximum_flow on the auxiliary network."""
-    graph = nx.DiGraph()
     b = [float(x) for x in sup]
+    arcs = []
     for i, (t, h) in enumerate(zip(tail.tolist(), head.tolist())):
         b[t] -= float(low[i])
         b[h] += float(low[i])
-        if t == h:
-            continue
-        extra = float("inf") if unl[i] else float(cap[i]) - float(low[i])
-        old = graph.get_edge_data(t, h, {"capacity": 0.0})["capacity"]
-        graph.add_edge(t, h, capacity=old + extra)
-    need = 0.0
-    for v in range(n):
-        if b[v] > 0:
-            graph.add_edge("S", v, capacity=b[v])
-            need += b[v]
-        elif b[v] < 0:
-            graph.add_edge(v, "T", capacity=-b[v])
-    if need == 0:
-        return True
-    graph.add_nodes_from(["S", "T"])
-    return nx.maximum_flow_value(graph, "S", "T") >= need - 1e-9
+        arcs.append((t, h, None if unl[i] else float(cap[i]) - float(low[i])))
+    arcs += [("S", v, b[v]) for v in range(n) if b[v] > 0] + [(v, "T", -b[v]) for v in range(n) if b[v] < 0]
+    need = sum(x for x in b if x > 0)
+    return need == 0 or max_flow_value(arcs, "S", "T") >= need - 1e-9
 
 
 def assert_solution(n, tail, head, cap, unl, cost, low, sup, sol, cert, tol=0.0):

@@ -8,15 +8,12 @@ from service.model.arcs import build_network, read_arcs
 from service.model.columns import MAX_MAGNITUDE, number_column
 from service.model.ids import IdColumn
 from service.model.nodes import read_nodes
+from tests.http import pointers
 
 
 def network(arcs, nodes=None, **kw):
     raw = read_arcs(arcs)
     return build_network(raw, read_nodes(nodes).ids, **kw)
-
-
-def pointers(exc: pytest.ExceptionInfo) -> list[str]:
-    return [e.pointer for e in exc.value.errors]
 
 
 def test_object_and_columnar_forms_normalise_identically():

@@ -3,9 +3,7 @@ networkx max-flows, and LP duality (capacity prices are subgradients of the opti
 
 from __future__ import annotations
 
-import json
 
-import networkx as nx
 import numpy as np
 import pytest
 from scipy.optimize import linprog
@@ -13,7 +11,8 @@ from scipy.optimize import linprog
 from service.errors import SelfCheckFailed
 from service.solvers.multicommodity import Commodities, Network, check_flows, multicommodity_flow
 from tests.checkers import assert_capacities, assert_conservation
-from tests.conftest import SCENARIOS
+from tests.conftest import scenario
+from tests.references import max_flow_value
 
 
 # --------------------------------------------------------------------------- reference
@@ -205,7 +204,7 @@ def indexed(body: dict):
 
 
 def test_scenario_prices_and_bottlenecks(client):
-    body = json.loads((SCENARIOS / "depots-multicommodity.json").read_text())
+    body = scenario("depots-multicommodity")
     out = client.post("/v1/multicommodity", json=body).get_json()
     names, arcs, commodities = indexed(body)
     status, cost, _ = reference(len(names), arcs, commodities)
@@ -221,7 +220,7 @@ def test_scenario_prices_and_bottlenecks(client):
 def test_max_throughput_prices_bound_the_extra_delivery(client):
     """For max-throughput the price is extra delivery per unit of capacity: the most
     delivered is concave in the capacities, so D(u + 1) <= D(u) + p for every arc."""
-    body = json.loads((SCENARIOS / "depots-multicommodity.json").read_text())
+    body = scenario("depots-multicommodity")
     body["objective"] = "max-throughput"
     for c in body["commodities"]:
         c["demand"] *= 2
@@ -239,21 +238,15 @@ def test_max_throughput_prices_bound_the_extra_delivery(client):
 
 
 def test_infeasible_min_cost_names_commodities_and_binding_arcs(client):
-    body = json.loads((SCENARIOS / "depots-multicommodity.json").read_text())
+    body = scenario("depots-multicommodity")
     for c in body["commodities"]:
         c["demand"] *= 2
     out = client.post("/v1/multicommodity", json=body).get_json()
     assert out["status"] == "infeasible"
     info = out["infeasibility"]
     # networkx: which commodities exceed their own maximum flow, with the arcs to themselves
-    g = nx.MultiDiGraph()
-    simple = nx.DiGraph()
-    for a in body["arcs"]:
-        g.add_edge(a["from"], a["to"])
-        cap = simple.get_edge_data(a["from"], a["to"], {"capacity": 0})["capacity"] + a["capacity"]
-        simple.add_edge(a["from"], a["to"], capacity=cap)
     alone = [c["id"] for c in body["commodities"]
-             if nx.maximum_flow_value(simple, c["source"], c["sink"]) < c["demand"]]
+             if max_flow_value(body["arcs"], c["source"], c["sink"]) < c["demand"]]
     assert info["cannot_meet_alone"] == alone and alone
     assert set(alone) <= set(info["commodities"])
     names, arcs, commodities = indexed(body)

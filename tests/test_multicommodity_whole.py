@@ -30,10 +30,10 @@ from service.solvers.multicommodity_whole import whole_unit_flow
 from service.solvers.whole_checks import check_plan, relative_gap
 from service.solvers.whole_model import WholeData, cost_scale
 from tests.checkers import assert_capacities, assert_conservation, assert_integral
-from tests.conftest import SCENARIOS
+from tests.conftest import scenario
 from tests.perf.bench_whole_units import depot_network
 
-SCENARIO = json.loads((SCENARIOS / "depots-multicommodity-whole.json").read_text())
+SCENARIO = scenario("depots-multicommodity-whole")
 
 
 # --------------------------------------------------------------------------- instances

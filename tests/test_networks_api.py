@@ -2,16 +2,16 @@
 
 from __future__ import annotations
 
-import json
 
 import orjson
 import pytest
 
 from service.kinds import KINDS
-from tests.conftest import SCENARIOS
-from tests.flowdata import depot_arcs, nx_max_flow, with_changes
+from tests.conftest import scenario
+from tests.flowdata import depot_arcs, with_changes
+from tests.references import max_flow_value
 
-DEPOTS = json.loads((SCENARIOS / "depots-maxflow.json").read_text())
+DEPOTS = scenario("depots-maxflow")
 SOURCE, SINK = DEPOTS["source"], DEPOTS["sink"]
 
 
@@ -68,7 +68,7 @@ def test_integer_ids_round_trip_too(store_client):
              {"source": 3, "sink": 12, "changes": [{"arc": 1, "capacity": 1}]})
     arcs = [{"from": 3, "to": 9, "capacity": 4}, {"from": 3, "to": 12, "capacity": 1},
             {"from": 9, "to": 12, "capacity": 2.5}]
-    assert r.get_json()["value"] == nx_max_flow(arcs, 3, 12) == 3.5
+    assert r.get_json()["value"] == max_flow_value(arcs, 3, 12) == 3.5
 
 
 def test_conditional_writes(store_client):
@@ -139,7 +139,7 @@ def test_what_if_by_index_and_key_matches_networkx_and_a_full_post(store_client)
     before = stored(store_client)
     plain = send(store_client, "POST", "/v1/networks/depots/maxflow", {"source": SOURCE, "sink": SINK})
     assert plain.status_code == 200
-    assert plain.get_json()["value"] == nx_max_flow(DEPOTS["arcs"], SOURCE, SINK)
+    assert plain.get_json()["value"] == max_flow_value(DEPOTS["arcs"], SOURCE, SINK)
     assert plain.get_json()["network"] == {"name": "depots", "version": 1, "etag": before["etag"]}
     changes = [{"key": "lane-07", "capacity": 35}, {"arc": 5, "closed": True}, {"arc": 8, "capacity": None}]
     r = send(store_client, "POST", "/v1/networks/depots/maxflow", {"source": SOURCE, "sink": SINK, "changes": changes})
@@ -147,7 +147,7 @@ def test_what_if_by_index_and_key_matches_networkx_and_a_full_post(store_client)
     doc = r.get_json()
     changed_arcs = with_changes(DEPOTS["arcs"], changes)
     # Reference: networkx.maximum_flow_value on the changed arcs.
-    assert doc["value"] == nx_max_flow(changed_arcs, SOURCE, SINK) and doc["certificate"]["checked"]
+    assert doc["value"] == max_flow_value(changed_arcs, SOURCE, SINK) and doc["certificate"]["checked"]
     assert doc["flows"][5] == 0  # closed
     full = send(store_client, "POST", "/v1/maxflow", {"source": SOURCE, "sink": SINK, "arcs": changed_arcs})
     assert full.headers["Cache-Status"] == "sluice; hit"  # the same question, so the same digest
@@ -165,7 +165,7 @@ def test_what_if_sees_the_newest_version(store_client):
     send(store_client, "PUT", "/v1/networks/depots", {"arcs": smaller})
     r = send(store_client, "POST", "/v1/networks/depots/maxflow", {"source": SOURCE, "sink": SINK})
     assert r.get_json()["network"]["version"] == 2
-    assert r.get_json()["value"] == nx_max_flow(smaller, SOURCE, SINK)
+    assert r.get_json()["value"] == max_flow_value(smaller, SOURCE, SINK)
 
 
 @pytest.mark.parametrize("body, status, pointer", [
@@ -205,7 +205,7 @@ def test_max_flow_refuses_a_stored_network_with_lower_bounds(store_client):
                  {"source": SOURCE, "sink": SINK, "changes": [{"arc": 0, "closed": True}]})
     assert fixed.status_code == 200  # closing the arc drops its lower bound
     without = [a for i, a in enumerate(DEPOTS["arcs"]) if i != 0]
-    assert fixed.get_json()["value"] == nx_max_flow(without, SOURCE, SINK)
+    assert fixed.get_json()["value"] == max_flow_value(without, SOURCE, SINK)
 
 
 @pytest.mark.skipif("mincostflow" not in KINDS,

@@ -6,32 +6,23 @@ The jobs here really run: the app's dispatcher thread starts a solver process
 
 from __future__ import annotations
 
-import json
 import logging
 import time
 
-import networkx as nx
 import pytest
 from prometheus_client.parser import text_string_to_metric_families
 
 from service.api import create_app
 from service.config import parse_api_keys
 from service.kinds import KINDS
-from tests.conftest import SCENARIOS
+from tests.conftest import scenario
+from tests.references import max_flow_of
 
-DEPOTS = json.loads((SCENARIOS / "depots-maxflow.json").read_text())
+DEPOTS = scenario("depots-maxflow")
 KEYS = "acme:acme-key-0001,bolt:bolt-key-0002,bolt:bolt-read-0003:read"
 ACME = {"Authorization": "Bearer acme-key-0001"}
 BOLT = {"Authorization": "Bearer bolt-key-0002"}
 BOLT_READ = {"Authorization": "Bearer bolt-read-0003"}
-
-
-def depots_value() -> float:
-    """networkx.maximum_flow_value on the depot scenario (outside reference)."""
-    g = nx.DiGraph()
-    for a in DEPOTS["arcs"]:
-        g.add_edge(a["from"], a["to"], capacity=a["capacity"])
-    return nx.maximum_flow_value(g, DEPOTS["source"], DEPOTS["sink"])
 
 
 @pytest.fixture
@@ -58,7 +49,7 @@ def test_unknown_key_and_other_schemes_are_401(keyed):
 
 def test_valid_key_solves_and_ops_routes_stay_open(keyed):
     r = keyed.post("/v1/maxflow", json=DEPOTS, headers=ACME)
-    assert r.status_code == 200 and r.get_json()["value"] == depots_value()
+    assert r.status_code == 200 and r.get_json()["value"] == max_flow_of(DEPOTS)
     assert keyed.get("/healthz").status_code == 200 and keyed.get("/readyz").status_code == 200
 
 
@@ -178,7 +169,7 @@ def test_job_lifecycle_and_tenant_isolation(keyed):
     assert keyed.delete(r.headers["Location"], headers=BOLT).status_code == 404
     doc = _wait_done(keyed, r.headers["Location"], ACME)
     assert doc["state"] == "done" and doc["attempts"] == 1
-    assert doc["result"]["value"] == depots_value() and doc["result"]["certificate"]["checked"] is True
+    assert doc["result"]["value"] == max_flow_of(DEPOTS) and doc["result"]["certificate"]["checked"] is True
     assert keyed.delete(r.headers["Location"], headers=ACME).status_code == 409  # finished: nothing to cancel
 
 
@@ -194,7 +185,7 @@ def test_job_is_validated_at_submission(client):
 def test_prefer_respond_async_on_a_solve_endpoint(client):
     r = client.post("/v1/maxflow", json=DEPOTS, headers={"Prefer": "wait=5, respond-async"})
     assert r.status_code == 202 and r.headers["Preference-Applied"] == "respond-async"
-    assert _wait_done(client, r.headers["Location"])["result"]["value"] == depots_value()
+    assert _wait_done(client, r.headers["Location"])["result"]["value"] == max_flow_of(DEPOTS)
     r = client.post("/v1/maxflow", json={**DEPOTS, "arcs": 3}, headers={"Prefer": "respond-async"})
     assert r.status_code == 422  # validated before it is queued
 
@@ -204,7 +195,7 @@ def test_pooled_solve_equals_inline_solve(tmp_path):
     pooled_app = create_app({"data_dir": str(tmp_path / "b"), "inline_max_arcs": 0})
     pooled = pooled_app.test_client().post("/v1/maxflow", json=DEPOTS)
     a, b = inline.get_json(), pooled.get_json()
-    assert pooled.status_code == 200 and b["value"] == a["value"] == depots_value()
+    assert pooled.status_code == 200 and b["value"] == a["value"] == max_flow_of(DEPOTS)
     assert b["flows"] == a["flows"] and b["cut"] == a["cut"] and b["digest"] == a["digest"]
     assert pooled_app.extensions["sluice.solver"].pool.pids()  # it really ran in a solver process
     pooled_app.extensions["sluice.solver"].pool.close()
@@ -214,7 +205,7 @@ def test_pooled_solve_equals_inline_solve(tmp_path):
 def test_every_kind_answers_the_same_in_a_solver_process(tmp_path, name):
     # The solver process gets the problem without the arcs' key labels
     # (Kind.for_solver_process): no kind's answer may depend on them.
-    body = json.loads((SCENARIOS / KINDS[name].example).read_text())
+    body = scenario(KINDS[name].example)
     if "arcs" in body and isinstance(body["arcs"], list):
         assert any("key" in arc for arc in body["arcs"]), "the scenario should label its lanes"
     inline = create_app({"data_dir": str(tmp_path / "a")}).test_client().post(f"/v1/{name}", json=body)

@@ -6,7 +6,6 @@ the test; nothing is mocked. Reference values come from scipy.sparse.csgraph.max
 
 from __future__ import annotations
 
-import json
 import signal
 import threading
 import time
@@ -14,15 +13,15 @@ import time
 import pytest
 import requests
 
-from tests.conftest import SCENARIOS, RunningServer
-from tests.test_ops_api import depots_value
+from tests.conftest import RunningServer, scenario
 from tests.opsutil import (alive, columnar_body, gunicorn_workers, layered, poll_job, scipy_max_flow,
                            solver_children, wait_for)
+from tests.references import max_flow_of
 
 pytestmark = pytest.mark.server
 
-DEPOTS = json.loads((SCENARIOS / "depots-maxflow.json").read_text())
-DEPOTS_VALUE = depots_value()  # networkx.maximum_flow_value
+DEPOTS = scenario("depots-maxflow")
+DEPOTS_VALUE = max_flow_of(DEPOTS)  # networkx.maximum_flow_value
 JSON = {"Content-Type": "application/json"}
 _CACHE: dict = {}
 
@@ -80,22 +79,22 @@ def test_sync_solve_past_the_limit_is_504_and_the_worker_stays(tight):
     body, _ = instance("large")
     workers = sorted(gunicorn_workers(tight.proc.pid))
     started = time.monotonic()
-    r = requests.post(tight.url + "/v1/maxflow", data=body, headers=JSON, timeout=60)
+    r = tight.post("/v1/maxflow", data=body, headers=JSON, timeout=60)
     assert r.status_code == 504 and r.headers["Content-Type"] == "application/problem+json"
     doc = r.json()
     assert doc["type"].endswith(":time-limit") and "POST /v1/jobs" in doc["detail"] and "0.2 s" in doc["detail"]
     assert time.monotonic() - started < 10  # killed at the limit (plus the upload), not after the solve
-    assert requests.get(tight.url + "/healthz", timeout=5).status_code == 200
+    assert tight.get("/healthz", timeout=5).status_code == 200
     for _ in range(4):  # both workers answer, small solves inline
-        assert requests.post(tight.url + "/v1/maxflow", json=DEPOTS, timeout=10).json()["value"] == DEPOTS_VALUE
+        assert tight.post("/v1/maxflow", json=DEPOTS, timeout=10).json()["value"] == DEPOTS_VALUE
     assert sorted(gunicorn_workers(tight.proc.pid)) == workers  # no worker was replaced
-    metrics = requests.get(tight.url + "/metrics", timeout=5).text
+    metrics = tight.get("/metrics", timeout=5).text
     assert 'sluice_solve_timeouts_total{kind="maxflow"} 1.0' in metrics
 
 
 def test_the_same_problem_as_a_job_finishes(tight):
     body, reference = instance("medium")
-    r = requests.post(tight.url + "/v1/maxflow", data=body, headers={**JSON, "Prefer": "respond-async"}, timeout=60)
+    r = tight.post("/v1/maxflow", data=body, headers={**JSON, "Prefer": "respond-async"}, timeout=60)
     assert r.status_code == 202 and r.headers["Preference-Applied"] == "respond-async"
     doc = poll_job(tight.url, r.headers["Location"], timeout=120)
     assert doc["state"] == "done", doc
@@ -105,13 +104,13 @@ def test_the_same_problem_as_a_job_finishes(tight):
 
 def test_cancel_kills_the_running_computation(tight):
     body, _ = instance("large")
-    r = requests.post(tight.url + "/v1/jobs", data=b'{"kind":"maxflow","problem":' + body + b"}",
+    r = tight.post("/v1/jobs", data=b'{"kind":"maxflow","problem":' + body + b"}",
                       headers=JSON, timeout=60)
     assert r.status_code == 202
     location = r.headers["Location"]
     poll_job(tight.url, location, states=("running",), timeout=60)
     solver = busy_solver(tight.proc.pid)
-    r = requests.delete(tight.url + location, timeout=10)
+    r = tight.delete(location, timeout=10)
     assert r.status_code in (200, 202)
     doc = poll_job(tight.url, location, timeout=10)
     assert doc["state"] == "cancelled" and "result" not in doc
@@ -140,7 +139,7 @@ def test_kill_9_of_a_worker_during_a_solve(single):
 
     def post():
         try:
-            outcome["status"] = requests.post(single.url + "/v1/maxflow", data=body, headers=JSON,
+            outcome["status"] = single.post("/v1/maxflow", data=body, headers=JSON,
                                               timeout=60).status_code
         except requests.RequestException as exc:
             outcome["error"] = exc
@@ -154,14 +153,14 @@ def test_kill_9_of_a_worker_during_a_solve(single):
     wait_for(lambda: not alive(solver), 5, 0.05, "the dead worker's solver process to die with it")
     wait_for(lambda: _healthy(single.url), 30, 0.2, "the new worker")
     # ...and the next requests succeed, small (inline) and large (solver process).
-    assert requests.post(single.url + "/v1/maxflow", json=DEPOTS, timeout=10).json()["value"] == DEPOTS_VALUE
-    r = requests.post(single.url + "/v1/maxflow", data=body, headers=JSON, timeout=60)
+    assert single.post("/v1/maxflow", json=DEPOTS, timeout=10).json()["value"] == DEPOTS_VALUE
+    r = single.post("/v1/maxflow", data=body, headers=JSON, timeout=60)
     assert r.status_code == 200 and r.json()["value"] == reference
 
 
 def test_kill_9_of_a_worker_during_a_job_retries_it(single):
     body, reference = instance("medium")
-    r = requests.post(single.url + "/v1/maxflow", data=body, headers={**JSON, "Prefer": "respond-async"}, timeout=60)
+    r = single.post("/v1/maxflow", data=body, headers={**JSON, "Prefer": "respond-async"}, timeout=60)
     location = r.headers["Location"]
     poll_job(single.url, location, states=("running",), timeout=60)
     [worker] = gunicorn_workers(single.proc.pid)
@@ -177,7 +176,7 @@ def test_sigterm_lets_the_request_in_flight_finish(single):
     outcome = {}
 
     def post():
-        r = requests.post(single.url + "/v1/maxflow", data=body, headers=JSON, timeout=60)
+        r = single.post("/v1/maxflow", data=body, headers=JSON, timeout=60)
         outcome["status"], outcome["value"] = r.status_code, r.json().get("value")
     thread = threading.Thread(target=post)
     thread.start()
@@ -192,9 +191,9 @@ def test_jobs_survive_a_restart(tmp_path):
     data = str(tmp_path / "data")
     first = RunningServer(env={"SLUICE_JOB_WORKERS": "0"}, workers=1, data_dir=data)  # accepts, never runs
     try:
-        locations = [requests.post(first.url + "/v1/jobs", json={"kind": "maxflow", "problem": DEPOTS},
+        locations = [first.post("/v1/jobs", json={"kind": "maxflow", "problem": DEPOTS},
                                    timeout=10).headers["Location"] for _ in range(2)]
-        assert all(requests.get(first.url + loc, timeout=5).json()["state"] == "queued" for loc in locations)
+        assert all(first.get(loc, timeout=5).json()["state"] == "queued" for loc in locations)
     finally:
         first.stop()
     second = RunningServer(workers=1, data_dir=data)

@@ -9,18 +9,17 @@ for expansion, networkx.maximum_flow_value re-solved without each arc for resili
 from __future__ import annotations
 
 import copy
-import json
 import time
 
 import numpy as np
 import pytest
 
 from service.kinds import KINDS, Limits
-from tests.conftest import SCENARIOS
+from tests.conftest import scenario
 from tests.planning_reference import nx_augmented_cost, nx_values_without, scipy_fixed_charge_cost
 
-EXPANSION = json.loads((SCENARIOS / "night-pallets-expansion.json").read_text())
-RESILIENCE = json.loads((SCENARIOS / "night-pallets-resilience.json").read_text())
+EXPANSION = scenario("night-pallets-expansion")
+RESILIENCE = scenario("night-pallets-resilience")
 
 
 def linear(body: dict) -> dict:

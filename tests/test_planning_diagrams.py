@@ -5,18 +5,13 @@ kinds through their scenarios and random networks.)"""
 
 from __future__ import annotations
 
-import json
 import xml.etree.ElementTree as ET
 
 import pytest
 
-from tests.conftest import SCENARIOS
+from tests.conftest import scenario
 
 SVG = "{http://www.w3.org/2000/svg}"
-
-
-def scenario(name: str) -> dict:
-    return json.loads((SCENARIOS / name).read_text())
 
 
 def arcs_by_class(svg: bytes) -> tuple[dict, dict]:

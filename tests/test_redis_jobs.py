@@ -13,12 +13,12 @@ import pytest
 
 from service.jobs.model import DONE
 from service.jobs.redis_backend import RedisJobs
-from tests.conftest import SCENARIOS
-from tests.test_ops_api import depots_value
+from tests.conftest import scenario_bytes
+from tests.references import max_flow_of
 
 pytestmark = pytest.mark.redis
 
-DEPOTS_BODY = (SCENARIOS / "depots-maxflow.json").read_bytes()
+DEPOTS_BODY = scenario_bytes("depots-maxflow")
 
 
 def test_a_reader_polling_during_the_claim_never_sees_a_lost_worker(redis_url, redis_prefix):
@@ -37,7 +37,7 @@ def test_a_reader_polling_during_the_claim_never_sees_a_lost_worker(redis_url, r
             final = backend.get("acme", record.id)
             assert final.state == DONE, (final.state, final.error, seen)
             assert "failed" not in seen
-            assert json.loads(final.result)["value"] == depots_value()
+            assert json.loads(final.result)["value"] == max_flow_of(json.loads(DEPOTS_BODY))
             assert final.attempts == 1
     finally:
         backend.close()

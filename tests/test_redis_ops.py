@@ -7,7 +7,6 @@ stops that one (never the shared server).
 
 from __future__ import annotations
 
-import json
 import os
 import shutil
 import signal
@@ -17,16 +16,15 @@ import uuid
 
 import pytest
 import redis
-import requests
 
-from tests.conftest import ROOT, SCENARIOS, RunningServer, free_port
+from tests.conftest import ROOT, RunningServer, free_port, scenario
 from tests.opsutil import alive, children, poll_job, wait_for
-from tests.test_ops_api import depots_value
 from tests.test_ops_processes import busy_solver, instance
+from tests.references import max_flow_of
 
 pytestmark = [pytest.mark.redis, pytest.mark.server]
 
-DEPOTS = json.loads((SCENARIOS / "depots-maxflow.json").read_text())
+DEPOTS = scenario("depots-maxflow")
 ACME = {"Authorization": "Bearer acme-key-0001"}
 BOLT = {"Authorization": "Bearer bolt-key-0002"}
 JSON = {"Content-Type": "application/json"}
@@ -68,25 +66,25 @@ def cluster(redis_url, tmp_path_factory):
 
 def test_job_runs_on_a_worker_and_stays_with_its_tenant(cluster):
     server, worker, _ = cluster
-    r = requests.post(server.url + "/v1/jobs", json={"kind": "maxflow", "problem": DEPOTS}, headers=ACME, timeout=10)
+    r = server.post("/v1/jobs", json={"kind": "maxflow", "problem": DEPOTS}, headers=ACME, timeout=10)
     assert r.status_code == 202
     location = r.headers["Location"]
-    assert requests.get(server.url + location, headers=BOLT, timeout=5).status_code == 404
+    assert server.get(location, headers=BOLT, timeout=5).status_code == 404
     doc = poll_job(server.url, location, headers=ACME, timeout=60)
-    assert doc["state"] == "done" and doc["result"]["value"] == depots_value()
-    assert requests.get(server.url + "/readyz", timeout=10).json()["checks"]["redis"] == "ok"
-    assert "sluice_job_queue_depth 0.0" in requests.get(server.url + "/metrics", timeout=5).text
+    assert doc["state"] == "done" and doc["result"]["value"] == max_flow_of(DEPOTS)
+    assert server.get("/readyz", timeout=10).json()["checks"]["redis"] == "ok"
+    assert "sluice_job_queue_depth 0.0" in server.get("/metrics", timeout=5).text
 
 
 def test_cancel_stops_the_worker_computation(cluster):
     server, worker, _ = cluster
     body, _ = instance("large")
-    r = requests.post(server.url + "/v1/jobs", data=b'{"kind":"maxflow","problem":' + body + b"}",
+    r = server.post("/v1/jobs", data=b'{"kind":"maxflow","problem":' + body + b"}",
                       headers={**JSON, **ACME}, timeout=60)
     location = r.headers["Location"]
     poll_job(server.url, location, states=("running",), headers=ACME, timeout=60)
     solver = busy_solver(worker.pid)  # worker -> work horse -> solver process
-    assert requests.delete(server.url + location, headers=ACME, timeout=10).status_code in (200, 202)
+    assert server.delete(location, headers=ACME, timeout=10).status_code in (200, 202)
     assert poll_job(server.url, location, headers=ACME, timeout=15)["state"] == "cancelled"
     wait_for(lambda: not alive(solver), 5, 0.05, "the solver process to die")
 
@@ -94,7 +92,7 @@ def test_cancel_stops_the_worker_computation(cluster):
 def test_a_worker_killed_mid_job_leaves_it_failed(cluster):
     server, worker, _ = cluster
     body, _ = instance("medium")
-    r = requests.post(server.url + "/v1/maxflow", data=body, headers={**JSON, **ACME, "Prefer": "respond-async"},
+    r = server.post("/v1/maxflow", data=body, headers={**JSON, **ACME, "Prefer": "respond-async"},
                       timeout=60)
     location = r.headers["Location"]
     poll_job(server.url, location, states=("running",), headers=ACME, timeout=60)
@@ -134,18 +132,18 @@ def test_synchronous_solves_keep_answering_when_redis_stops(private_redis, tmp_p
     server = RunningServer(env={"SLUICE_REDIS_URL": url, "SLUICE_RATE_LIMIT": "1000/minute"},
                            data_dir=str(tmp_path / "data"))
     try:
-        value = depots_value()
-        assert requests.post(server.url + "/v1/maxflow", json=DEPOTS, timeout=10).json()["value"] == value
-        assert requests.post(server.url + "/v1/jobs", json={"kind": "maxflow", "problem": DEPOTS},
+        value = max_flow_of(DEPOTS)
+        assert server.post("/v1/maxflow", json=DEPOTS, timeout=10).json()["value"] == value
+        assert server.post("/v1/jobs", json={"kind": "maxflow", "problem": DEPOTS},
                              timeout=10).status_code == 202
         stop(proc)  # our own redis-server, not the shared one
         for _ in range(6):
-            r = requests.post(server.url + "/v1/maxflow", json=DEPOTS, timeout=10)
+            r = server.post("/v1/maxflow", json=DEPOTS, timeout=10)
             assert r.status_code == 200 and r.json()["value"] == value
-        r = requests.post(server.url + "/v1/jobs", json={"kind": "maxflow", "problem": DEPOTS}, timeout=10)
+        r = server.post("/v1/jobs", json={"kind": "maxflow", "problem": DEPOTS}, timeout=10)
         assert r.status_code == 503 and int(r.headers["Retry-After"]) >= 1
-        ready = requests.get(server.url + "/readyz", timeout=10)
+        ready = server.get("/readyz", timeout=10)
         assert ready.status_code == 200 and ready.json()["status"] == "degraded"
-        assert requests.get(server.url + "/metrics", timeout=10).status_code == 200
+        assert server.get("/metrics", timeout=10).status_code == 200
     finally:
         server.stop()

@@ -10,7 +10,6 @@ done by the worker, from the other.
 
 from __future__ import annotations
 
-import json
 import os
 import shutil
 import subprocess
@@ -20,16 +19,15 @@ from pathlib import Path
 
 import pytest
 import redis
-import requests
 
-from tests.conftest import ROOT, SCENARIOS, RunningServer
+from tests.conftest import ROOT, RunningServer, scenario
 from tests.opsutil import poll_job
 from tests.test_redis_ops import stop
 
 pytestmark = [pytest.mark.redis, pytest.mark.server]
 
 README = (ROOT / "README.md").read_text()
-DEPOTS = json.loads((SCENARIOS / "depots-maxflow.json").read_text())
+DEPOTS = scenario("depots-maxflow")
 JSON = {"Content-Type": "application/json"}
 
 
@@ -120,25 +118,25 @@ def cluster(plain_install, redis_url, tmp_path):
 def test_two_instances_and_a_worker_share_networks_results_and_jobs(cluster):
     a, b = cluster
     # A network stored on one instance is served by the other.
-    stored = requests.put(a.url + "/v1/networks/depots-north", json={"arcs": DEPOTS["arcs"]}, timeout=30)
+    stored = a.put("/v1/networks/depots-north", json={"arcs": DEPOTS["arcs"]}, timeout=30)
     assert stored.status_code == 201, stored.text
-    meta = requests.get(b.url + "/v1/networks/depots-north", timeout=30)
+    meta = b.get("/v1/networks/depots-north", timeout=30)
     assert meta.status_code == 200 and meta.json()["etag"] == stored.json()["etag"]
-    what_if = requests.post(b.url + "/v1/networks/depots-north/maxflow", timeout=30, json={
+    what_if = b.post("/v1/networks/depots-north/maxflow", timeout=30, json={
         "source": "dc-brackenford", "sink": "store-quillmouth", "changes": [{"key": "lane-07", "closed": True}]})
     assert what_if.status_code == 200 and what_if.json()["network"]["name"] == "depots-north"
     # Closing lane-07 leaves lane-08 (60) as the only way into the store.
     assert what_if.json()["value"] == 60
 
     # A result cached by one instance is a hit on the other.
-    first = requests.post(a.url + "/v1/maxflow", json=DEPOTS, timeout=30)
+    first = a.post("/v1/maxflow", json=DEPOTS, timeout=30)
     assert first.status_code == 200 and first.headers["Cache-Status"] == "sluice; fwd=miss; stored"
-    again = requests.post(b.url + "/v1/maxflow", json=DEPOTS, timeout=30)
+    again = b.post("/v1/maxflow", json=DEPOTS, timeout=30)
     assert again.headers["Cache-Status"] == "sluice; hit" and again.json()["value"] == first.json()["value"] == 160
-    assert requests.get(b.url + "/v1/solutions/" + first.json()["digest"], timeout=30).status_code == 200
+    assert b.get("/v1/solutions/" + first.json()["digest"], timeout=30).status_code == 200
 
     # A job submitted to one instance is run by the worker and read from the other.
-    submitted = requests.post(a.url + "/v1/jobs", json={"kind": "maxflow", "problem": DEPOTS}, timeout=30)
+    submitted = a.post("/v1/jobs", json={"kind": "maxflow", "problem": DEPOTS}, timeout=30)
     assert submitted.status_code == 202, submitted.text
     doc = poll_job(b.url, submitted.headers["Location"], timeout=120)
     assert doc["state"] == "done" and doc["result"]["value"] == 160

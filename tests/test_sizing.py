@@ -15,13 +15,12 @@ import threading
 import time
 
 import pytest
-import requests
 
 from service.api import create_app
 from service.api.bounded import problem_size
 from service.jobs.runner import SolverPool, unpack
 from service.kinds import KINDS, Limits
-from tests.conftest import SCENARIOS, RunningServer
+from tests.conftest import RunningServer, scenario
 
 
 def multicommodity_body(arcs: int, commodities: int, nodes: int = 200, seed: int = 7) -> dict:
@@ -40,7 +39,7 @@ def multicommodity_body(arcs: int, commodities: int, nodes: int = 200, seed: int
 
 def parsed(name: str, body=None):
     kind = KINDS[name]
-    return kind.parse(body if body is not None else json.loads((SCENARIOS / kind.example).read_text()), Limits())
+    return kind.parse(body if body is not None else scenario(kind.example), Limits())
 
 
 def size(name: str, problem) -> int | None:
@@ -159,7 +158,7 @@ def test_a_small_body_with_a_large_lp_stays_out_of_the_worker(tmp_path):
     server = RunningServer(env=env, workers=1, data_dir=str(tmp_path / "data"))
     try:
         [worker] = [p for p in _children(server.proc.pid) if not _is_solver(p)]
-        requests.post(server.url + "/v1/multicommodity", json=multicommodity_body(20, 2, nodes=8), timeout=60)
+        server.post("/v1/multicommodity", json=multicommodity_body(20, 2, nodes=8), timeout=60)
         time.sleep(0.5)
         baseline = _rss_mb(worker)
         huge = multicommodity_body(2000, 1000)
@@ -168,7 +167,7 @@ def test_a_small_body_with_a_large_lp_stays_out_of_the_worker(tmp_path):
         assert len(raw) < 200_000
         with PeakWatch(worker) as watch:
             started = time.monotonic()
-            r = requests.post(server.url + "/v1/multicommodity", data=raw, timeout=120,
+            r = server.post("/v1/multicommodity", data=raw, timeout=120,
                               headers={"Content-Type": "application/json"})
             took = time.monotonic() - started
         # Solved within the limit, or stopped at it (5 s + GLOP's grace of 2.5 s; the
@@ -182,7 +181,7 @@ def test_a_small_body_with_a_large_lp_stays_out_of_the_worker(tmp_path):
         # then the process is replaced by a fresh one.
         before = set(solvers)
         with PeakWatch(worker) as watch:
-            r = requests.post(server.url + "/v1/multicommodity", json=multicommodity_body(2000, 300), timeout=120)
+            r = server.post("/v1/multicommodity", json=multicommodity_body(2000, 300), timeout=120)
         assert r.status_code in (200, 504), r.text[:300]
         assert watch.peak < baseline + 200, (baseline, watch.peak)
         deadline = time.monotonic() + 30
@@ -209,11 +208,11 @@ def test_a_worker_keeps_at_most_its_retain_ceiling_after_a_large_request(tmp_pat
                 "arcs": [{"from": rng.randrange(n // 10), "to": rng.randrange(n // 10), "capacity": rng.randint(1, 99),
                           "key": f"lane-{i}"} for i in range(n)]}
         raw = json.dumps(body).encode()
-        requests.post(server.url + "/v1/maxflow", json={"source": 0, "sink": 1, "arcs": [{"from": 0, "to": 1}]})
+        server.post("/v1/maxflow", json={"source": 0, "sink": 1, "arcs": [{"from": 0, "to": 1}]})
         time.sleep(0.5)
         baseline = _rss_mb(worker)
         with PeakWatch(worker) as watch:
-            r = requests.post(server.url + "/v1/maxflow", data=raw, timeout=120,
+            r = server.post("/v1/maxflow", data=raw, timeout=120,
                               headers={"Content-Type": "application/json"})
             time.sleep(0.5)  # post_request runs once the response is sent
         assert r.status_code == 200, r.text[:300]

@@ -1,11 +1,10 @@
 """GET /v1/solutions/{digest}/diagram.svg: cached answers drawn by digest."""
 
-import json
 import xml.etree.ElementTree as ET
 
-from tests.conftest import SCENARIOS
+from tests.conftest import scenario
 
-DEPOTS = json.loads((SCENARIOS / "depots-maxflow.json").read_text())
+DEPOTS = scenario("depots-maxflow")
 
 
 def test_a_cached_max_flow_answer_is_drawn_with_its_cut(client):
@@ -46,7 +45,7 @@ def test_stored_network_from_a_dimacs_file_round_trips(client):
 
 
 def test_a_cached_min_cost_answer_is_drawn_with_its_potentials(client):
-    body = json.loads((SCENARIOS / "depots-mincostflow.json").read_text())
+    body = scenario("depots-mincostflow")
     doc = client.post("/v1/mincostflow", json=body).get_json()
     assert doc["status"] == "optimal"
     r = client.get(f"/v1/solutions/{doc['digest']}/diagram.svg")

@@ -17,10 +17,11 @@ import requests
 from service.api import create_app
 from service.errors import NotFound
 from service.store import network_digest, open_store
-from tests.conftest import ROOT, SCENARIOS, RunningServer
-from tests.flowdata import depot_arcs, nx_max_flow
+from tests.conftest import ROOT, RunningServer, scenario
+from tests.flowdata import depot_arcs
+from tests.references import max_flow_value
 
-DEPOTS = json.loads((SCENARIOS / "depots-maxflow.json").read_text())
+DEPOTS = scenario("depots-maxflow")
 EMBEDDED = {"SLUICE_REDIS_URL": ""}  # whatever the caller's environment says
 
 
@@ -31,15 +32,15 @@ def test_two_servers_share_one_data_folder_and_a_restart_keeps_it(tmp_path):
     try:
         b = RunningServer(env=EMBEDDED, workers=1, data_dir=data)
         try:
-            first = requests.post(a.url + "/v1/maxflow", json=DEPOTS, timeout=30)
+            first = a.post("/v1/maxflow", json=DEPOTS, timeout=30)
             assert first.headers["Cache-Status"] == "sluice; fwd=miss; stored"
-            second = requests.post(b.url + "/v1/maxflow", json=DEPOTS, timeout=30)
+            second = b.post("/v1/maxflow", json=DEPOTS, timeout=30)
             assert second.headers["Cache-Status"] == "sluice; hit"
             assert second.json()["digest"] == first.json()["digest"]
-            assert second.json()["value"] == nx_max_flow(DEPOTS["arcs"], DEPOTS["source"], DEPOTS["sink"])
-            put = requests.put(b.url + "/v1/networks/depots", json={"arcs": DEPOTS["arcs"]}, timeout=30)
+            assert second.json()["value"] == max_flow_value(DEPOTS["arcs"], DEPOTS["source"], DEPOTS["sink"])
+            put = b.put("/v1/networks/depots", json={"arcs": DEPOTS["arcs"]}, timeout=30)
             assert put.status_code == 201
-            what_if = requests.post(a.url + "/v1/networks/depots/maxflow", timeout=30,
+            what_if = a.post("/v1/networks/depots/maxflow", timeout=30,
                                     json={"source": DEPOTS["source"], "sink": DEPOTS["sink"],
                                           "changes": [{"key": "lane-08", "closed": True}]})
             assert what_if.status_code == 200 and what_if.json()["network"]["version"] == 1
@@ -50,12 +51,12 @@ def test_two_servers_share_one_data_folder_and_a_restart_keeps_it(tmp_path):
         a.stop()
     c = RunningServer(env=EMBEDDED, workers=2, data_dir=data)
     try:
-        kept = requests.get(f"{c.url}/v1/solutions/{first.json()['digest']}", timeout=30)
+        kept = c.get(f"/v1/solutions/{first.json()['digest']}", timeout=30)
         assert kept.status_code == 200 and kept.json()["value"] == first.json()["value"]
-        assert requests.post(c.url + "/v1/maxflow", json=DEPOTS, timeout=30).headers["Cache-Status"] == "sluice; hit"
-        net = requests.get(c.url + "/v1/networks/depots", timeout=30)
+        assert c.post("/v1/maxflow", json=DEPOTS, timeout=30).headers["Cache-Status"] == "sluice; hit"
+        net = c.get("/v1/networks/depots", timeout=30)
         assert net.status_code == 200 and net.json()["version"] == 2
-        assert requests.get(c.url + "/readyz", timeout=30).json()["status"] == "ready"
+        assert c.get("/readyz", timeout=30).json()["status"] == "ready"
     finally:
         c.stop()
 
@@ -192,7 +193,7 @@ def test_redis_stopped_and_started_answers_stay_correct(private_redis, tmp_path,
     client = app.test_client()
     arcs = depot_arcs(11)
     body = {"source": "site-a0", "sink": "site-c0", "arcs": arcs}
-    expected = nx_max_flow(arcs, "site-a0", "site-c0")  # reference: networkx
+    expected = max_flow_value(arcs, "site-a0", "site-c0")  # reference: networkx
 
     def solve(b=body):
         r = client.post("/v1/maxflow", json=b)
@@ -210,7 +211,7 @@ def test_redis_stopped_and_started_answers_stay_correct(private_redis, tmp_path,
         assert r.headers["Cache-Status"] == "sluice; fwd=bypass; detail=store-unavailable"
         assert r.get_json()["value"] == expected
     other = {**body, "sink": "site-d0"}
-    assert solve(other).get_json()["value"] == nx_max_flow(arcs, "site-a0", "site-d0")
+    assert solve(other).get_json()["value"] == max_flow_value(arcs, "site-a0", "site-d0")
     assert any("unavailable" in r.getMessage() for r in caplog.records if r.name == "sluice.store")
     ready = client.get("/readyz")
     assert ready.status_code == 200 and ready.get_json()["status"] == "degraded"

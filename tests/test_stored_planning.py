@@ -5,7 +5,6 @@ the stored network is not modified, and bad changes name their field."""
 from __future__ import annotations
 
 import copy
-import json
 
 import orjson
 import pytest
@@ -15,11 +14,11 @@ from service.model.stored import body_of
 from service.store.codec import decode_network, encode_network, network_digest
 from service.api.networks import read_network
 from service.kinds import Limits
-from tests.conftest import SCENARIOS
+from tests.conftest import scenario
 
-EXPANSION = json.loads((SCENARIOS / "night-pallets-expansion.json").read_text())
-RESILIENCE = json.loads((SCENARIOS / "night-pallets-resilience.json").read_text())
-OVERTIME = json.loads((SCENARIOS / "xdock-night-flowovertime.json").read_text())
+EXPANSION = scenario("night-pallets-expansion")
+RESILIENCE = scenario("night-pallets-resilience")
+OVERTIME = scenario("xdock-night-flowovertime")
 NETWORK_KEYS = ("nodes", "arcs")
 
 

@@ -1,12 +1,11 @@
 """Stored networks and cached solutions are visible to their own tenant only."""
 
-import json
 
 from service.api import create_app
 from service.config import parse_api_keys
-from tests.conftest import SCENARIOS
+from tests.conftest import scenario
 
-DEPOTS = json.loads((SCENARIOS / "depots-maxflow.json").read_text())
+DEPOTS = scenario("depots-maxflow")
 
 
 def bearer(key: str) -> dict:

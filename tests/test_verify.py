@@ -9,7 +9,6 @@ residual network has no negative-cost cycle (negative-cycle optimality condition
 
 from __future__ import annotations
 
-import json
 
 import networkx as nx
 import numpy as np
@@ -23,11 +22,18 @@ from service.solvers.verify import (
     verify_max_flow, verify_min_cost_flow,
 )
 from tests.checkers import assert_capacities, assert_conservation, assert_max_flow
-from tests.conftest import SCENARIOS
+from tests.conftest import scenario
+from tests.references import max_flow
 
-DEPOTS = json.loads((SCENARIOS / "depots-maxflow.json").read_text())
-PLAN = json.loads((SCENARIOS / "verify-depots-maxflow.json").read_text())
-MC_PLAN = json.loads((SCENARIOS / "verify-depots-mincostflow.json").read_text())
+DEPOTS = scenario("depots-maxflow")
+PLAN = scenario("verify-depots-maxflow")
+MC_PLAN = scenario("verify-depots-mincostflow")
+
+
+def networkx_max_flow(n, tail, head, cap):
+    """tests.references.max_flow from node 0 to n - 1 of index arrays; the flows as an array."""
+    value, flows = max_flow(zip(tail.tolist(), head.tolist(), cap.tolist()), 0, n - 1, range(n))
+    return value, np.array(flows, dtype=np.int64)
 
 
 def random_digraph(rng, n: int, m: int, max_cap: int = 20):
@@ -40,15 +46,6 @@ def random_digraph(rng, n: int, m: int, max_cap: int = 20):
     return tail, head, rng.integers(0, max_cap, tail.size).astype(np.int64)
 
 
-def networkx_max_flow(n, tail, head, cap, s, t):
-    g = nx.DiGraph()
-    g.add_nodes_from(range(n))
-    for a, b, c in zip(tail.tolist(), head.tolist(), cap.tolist()):
-        g.add_edge(a, b, capacity=c)
-    value, flow = nx.maximum_flow(g, s, t)
-    return value, np.array([flow[a][b] for a, b in zip(tail.tolist(), head.tolist())], dtype=np.int64)
-
-
 # --- max-flow against networkx ---------------------------------------------------
 
 
@@ -57,7 +54,7 @@ def test_networkx_maximum_is_reported_optimal_with_a_cut_of_equal_capacity(seed)
     rng = np.random.default_rng(seed)
     n = int(rng.integers(5, 25))
     tail, head, cap = random_digraph(rng, n, int(rng.integers(n, 4 * n)))
-    value, flows = networkx_max_flow(n, tail, head, cap, 0, n - 1)
+    value, flows = networkx_max_flow(n, tail, head, cap)
     verdict = verify_max_flow(n, tail, head, cap, None, 0, n - 1, flows)
     assert verdict.feasible and verdict.optimal and verdict.violation_count == 0
     assert verdict.objective == value and verdict.cut_capacity == value  # max-flow min-cut
@@ -72,7 +69,7 @@ def test_sub_optimal_plans_get_paths_whose_gains_reach_the_networkx_value(seed):
     rng = np.random.default_rng(100 + seed)
     n = int(rng.integers(5, 25))
     tail, head, cap = random_digraph(rng, n, int(rng.integers(n, 4 * n)))
-    best, _ = networkx_max_flow(n, tail, head, cap, 0, n - 1)
+    best, _ = networkx_max_flow(n, tail, head, cap)
     flows = np.zeros_like(cap)  # the empty plan: feasible, value 0
     value = 0
     for _ in range(4 * tail.size + 2):
@@ -99,9 +96,9 @@ def test_a_maximum_flow_of_half_capacities_is_completed_by_paths():
     rng = np.random.default_rng(5)
     n = 12
     tail, head, cap = random_digraph(rng, n, 40)
-    half, flows = networkx_max_flow(n, tail, head, cap, 0, n - 1)
+    half, flows = networkx_max_flow(n, tail, head, cap)
     cap = cap * 2
-    assert half > 0 and networkx_max_flow(n, tail, head, cap, 0, n - 1)[0] == 2 * half
+    assert half > 0 and networkx_max_flow(n, tail, head, cap)[0] == 2 * half
     total, rounds = half, 0
     while not (v := verify_max_flow(n, tail, head, cap, None, 0, n - 1, flows)).optimal:
         assert v.feasible and v.objective == total

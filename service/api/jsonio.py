@@ -15,6 +15,8 @@ from flask.json.provider import JSONProvider
 
 from ..errors import BadRequest, FieldError, ProblemTooLarge, UnsupportedMediaType
 from ..intake import BODY_FINGERPRINT, BODY_STEPS, HASH_FROM
+from ..model.dimacs import MEDIA_TYPE, parse_dimacs
+from ..model.dimacs_write import to_dimacs
 from ..model.fastarcs import decode_arcs_body
 from ..model.fastjson import decode_columnar, looks_columnar
 
@@ -300,7 +302,6 @@ def decode_body(dimacs: str | None = None, arc_columns: bool = False):
     BadRequest, InputError
         As :func:`read_json_body`; DIMACS errors name the line.
     """
-    from ..model.dimacs import MEDIA_TYPE, parse_dimacs
 
     mimetype = request.mimetype or ""
     takes_text = dimacs is not None
@@ -327,8 +328,5 @@ def dimacs_response(network, fmt: str, *, source=None, sink=None, supply=None, t
 
     See :func:`service.model.dimacs_write.to_dimacs`; ``source``/``sink`` are node indices.
     """
-    from ..model.dimacs import MEDIA_TYPE
-    from ..model.dimacs_write import to_dimacs
-
     text = to_dimacs(network, fmt, source=source, sink=sink, supply=supply, title=title)
     return Response(text, mimetype=MEDIA_TYPE)

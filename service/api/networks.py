@@ -60,7 +60,9 @@ class NetworkMetaSchema(Schema):
 
 
 class NetworkBodySchema(NetworkMetaSchema):
-    nodes = fields.List(fields.Raw(), metadata={"description": "With ?include=arcs: node ids in index order."})
+    nodes = fields.Raw(metadata={"oneOf": [{"type": "array"}, {"type": "object"}],
+                                 "description": "With ?include=arcs: node ids in index order; columns "
+                                                "{id: [...], holdover: [...], ...} when the nodes carry fields."})
     arcs = fields.Dict(metadata={"description": "With ?include=arcs: the arcs in columnar form; PUT it back "
                                                 "to get the same digest."})
 

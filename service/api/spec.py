@@ -17,7 +17,7 @@ from apispec.ext.marshmallow import MarshmallowPlugin
 from marshmallow import Schema, fields
 
 from .. import __version__
-from .spec_ops import OPS_DESCRIPTION, register as register_ops, solve_extras
+from .spec_ops import OPS_DESCRIPTION, add_access_responses, register as register_ops, solve_extras
 from ..kinds import KINDS
 from .spec_extras import DESCRIPTION as EXTRAS_DESCRIPTION
 from .spec_extras import add_paths, dimacs_content
@@ -171,7 +171,9 @@ def build_spec() -> dict:
         "operationId": "openapi", "summary": "This document.",
         "responses": {"200": {"description": "The OpenAPI document.",
                               "content": {"application/json": {"schema": {"type": "object"}}}}}}})
-    return _drop_null_defaults(spec.to_dict())
+    document = _drop_null_defaults(spec.to_dict())
+    add_access_responses(document["paths"])
+    return document
 
 
 def _drop_null_defaults(node):

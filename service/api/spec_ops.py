@@ -7,6 +7,8 @@ operation.
 
 from __future__ import annotations
 
+import copy
+
 from marshmallow import Schema, fields, validate
 
 from ..jobs import STATES
@@ -91,6 +93,23 @@ def _auth_responses(write: bool) -> dict:
     if write:
         out["403"] = {"description": "A read-only key cannot write.", "content": PROBLEM}
     return out
+
+
+def add_access_responses(paths: dict) -> None:
+    """Give every ``/v1`` operation its 401 and 429 (and 403 when it is not a GET): keys
+    and rate limits apply to all of ``/v1`` (``auth.py``, ``ratelimit.py``), not only to
+    the solves. ``paths`` is the finished document's, so references are spelled out."""
+    problem = {"application/problem+json": {"schema": {"$ref": "#/components/schemas/Problem"}}}
+    for path, item in paths.items():
+        if not path.startswith("/v1"):
+            continue
+        for method, operation in item.items():
+            if method == "parameters":
+                continue
+            operation.setdefault("security", [{"bearer": []}, {}])
+            for status, response in _auth_responses(method != "get").items():
+                # A copy each: shared objects would come out as YAML anchors.
+                operation["responses"].setdefault(status, copy.deepcopy({**response, "content": problem}))
 
 
 def _accepted() -> dict:

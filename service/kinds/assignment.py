@@ -95,6 +95,13 @@ class AssignmentCertificate(Schema):
     members = fields.Integer()
     allowed = fields.Integer()
     largest_assignment = fields.Integer()
+    decimal_scale = fields.Integer(metadata={"description": "Present when decimal costs were solved exactly as "
+                                                            "integers: the factor applied to them."})
+
+
+class AssignmentEngineSchema(EngineSchema):
+    cost_factor = fields.Integer(metadata={"description": "Present when the min-cost engine divided the costs by "
+                                                          "this common factor (an equivalent problem)."})
 
 
 class AssignmentResponse(Schema):
@@ -107,7 +114,7 @@ class AssignmentResponse(Schema):
     infeasibility = fields.Nested(HallSchema)
     certificate = fields.Nested(AssignmentCertificate)
     digest = fields.String()
-    engine = fields.Nested(EngineSchema)
+    engine = fields.Nested(AssignmentEngineSchema)
     timing_ms = fields.Nested(TimingSchema)
 
 

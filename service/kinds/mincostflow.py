@@ -90,7 +90,8 @@ class CertificateSchema(Schema):
                                                           "maximum."})
     net_supply = fields.Float()
     outgoing_capacity = fields.Float()
-    cycle_cost = fields.Float()
+    cycle_cost = fields.Float(metadata={"description": "Unbounded: the cost of one trip round the negative cycle."})
+    cycle_arcs = fields.Integer(metadata={"description": "Unbounded: the number of arcs on that cycle."})
     tolerance = fields.Float(metadata={"description": "0: solved and checked exactly in integers. Otherwise "
                                                       "(LP engine) the largest absolute slack any check allowed."})
     relative_tolerance = fields.Float(metadata={"description": "LP engine: each figure holds to this times its own "

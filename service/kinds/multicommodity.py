@@ -109,8 +109,16 @@ class MultiCommodityCertificate(Schema):
                                                             "provably unique."})
     degenerate = fields.Boolean()
     total_demand = fields.Float(metadata={"description": "Infeasible: the demand to meet."})
-    tolerance = fields.Float(metadata={"description": "The largest absolute slack any flow check allowed (0 for "
-                                                      "whole units, checked in exact integers)."})
+    tolerance = fields.Raw(metadata={"oneOf": [{"type": "number"}, {"type": "object"}],
+                                     "description": "The largest absolute slack any flow check allowed (0 for "
+                                                    "whole units, checked in exact integers). Unbounded: the LP "
+                                                    "check's {relative: 1e-6}."})
+    primal_residual_relative = fields.Float(metadata={"description": "Unbounded: the start point's largest "
+                                                                     "violation, relative to its row."})
+    direction_residual = fields.Float(metadata={"description": "Unbounded: how far the improving direction "
+                                                               "leaves a finite bound per unit step."})
+    improvement_per_step = fields.Float(metadata={"description": "Unbounded: cost saved per unit step along "
+                                                                 "the direction."})
     relative_tolerance = fields.Float(metadata={"description": "Each flow figure holds to this times its own "
                                                                "magnitude: a commodity at a node against its "
                                                                "throughput there, an arc against its capacity, a "

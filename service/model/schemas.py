@@ -62,21 +62,27 @@ class NodesField(fields.Raw):
     """Nodes as a list of ids or objects, or columns (validated column-wise)."""
 
 
+#: One capacity in the document: a bound >= 0, or null for no limit.
+_CAPACITY = {"type": ["number", "null"], "minimum": 0}
+
+
 class ArcSchema(Schema):
     """One arc in object form (documentation of the arc fields)."""
 
     from_ = NodeId(data_key="from", required=True, metadata={"description": "Tail node id."})
     to = NodeId(required=True, metadata={"description": "Head node id."})
-    capacity = fields.Float(
-        allow_none=True,
-        metadata={"description": "Upper bound on the flow; null or absent means no limit.", "minimum": 0},
-    )
+    capacity = fields.Raw(metadata={
+        "description": "Upper bound on the flow; null or absent means no limit. Flows over time: also a list of "
+                       "one such bound per departure period.",
+        "oneOf": [_CAPACITY, {"type": "array", "items": _CAPACITY}]})
     cost = fields.Float(metadata={"description": "Cost per unit of flow (default 0)."})
     lower = fields.Float(metadata={"description": "Lower bound on the flow (default 0).", "minimum": 0})
     key = fields.String(
         allow_none=True,
         metadata={"description": "Client label, unique within the network; used to address the arc in changes."},
     )
+    transit = fields.Integer(metadata={"description": "Flows over time only: whole periods a unit spends on the "
+                                                     "lane (default 0).", "minimum": 0})
     expand_cost = fields.Float(allow_none=True, metadata={
         "description": "Expansion only: cost per unit of capacity added to this lane; absent or null = the lane "
                        "cannot be widened.", "minimum": 0})
@@ -92,7 +98,8 @@ class ArcColumnsSchema(Schema):
 
     from_ = fields.List(NodeId(), data_key="from", required=True)
     to = fields.List(NodeId(), required=True)
-    capacity = fields.List(fields.Float(allow_none=True))
+    capacity = fields.List(fields.Raw(metadata={"oneOf": [_CAPACITY, {"type": "array", "items": _CAPACITY}]}))
+    transit = fields.List(fields.Integer(metadata={"minimum": 0}))
     cost = fields.List(fields.Float())
     lower = fields.List(fields.Float())
     key = fields.List(fields.String(allow_none=True))

@@ -21,7 +21,7 @@ import time
 import orjson
 import requests
 
-from tests.conftest import ROOT, SCENARIOS, RunningServer, free_port
+from tests.conftest import ROOT, RunningServer, free_port, scenario
 from tests.opsutil import gunicorn_workers
 from tests.perf.bench_store import depot_body
 from tests.perf.harness import table
@@ -80,8 +80,7 @@ def measure(server, body: bytes, count: int, expect_status: str | None) -> tuple
 def run(args) -> None:
     rounds = 3 if args.quick else 6
     hit_body = orjson.dumps(depot_body(100_000, 1000))
-    small = orjson.dumps({**orjson.loads((SCENARIOS / "depots-maxflow.json").read_bytes()),
-                          "options": {"cache": "bypass"}})
+    small = orjson.dumps({**scenario("depots-maxflow"), "options": {"cache": "bypass"}})
     results = {}
     with tempfile.TemporaryDirectory() as a, tempfile.TemporaryDirectory() as b:
         servers = {"asyncio front": RunningServer(env={"SLUICE_RATE_LIMIT": "off"}, workers=1, data_dir=a),

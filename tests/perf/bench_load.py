@@ -37,11 +37,11 @@ from pathlib import Path
 import numpy as np
 import orjson
 
-from tests.conftest import SCENARIOS
+from tests.conftest import scenario
 from tests.opsutil import gunicorn_workers, rss_mb
 from tests.perf.harness import served, table
 
-DEPOTS = json.loads((SCENARIOS / "depots-maxflow.json").read_text())
+DEPOTS = scenario("depots-maxflow")
 STALLED = 300
 
 LUA = r"""

@@ -1,0 +1,1 @@
+"""The test suite (a package, so that its helper modules, e.g. tests.http, never shadow the standard library)."""
