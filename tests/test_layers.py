@@ -89,7 +89,7 @@ _NOTHING_HIDDEN = "hides no circle: move it to the top"
 #: ``("circle", *modules)``: a circle of imports (its modules sorted);
 #: ``("room", module, room)``: a room imported against ALLOWED.
 KNOWN: dict[tuple, str] = {
-    ("local", "service.api.cache", "service.api.diagram"): "no circle is left behind it (diagram takes export_network from the model): " + _ROOMS,
+    ("local", "service.api.cache", "service.api.diagram"): "no circle behind it now: " + _ROOMS,
     ("local", "service.api.solutions", "service.api.diagram"): _ROOMS,
     ("local", "service.api.spec", "service.api.networks"): _SPEC,
     ("local", "service.api", "service.api.spec"): _SPEC,
