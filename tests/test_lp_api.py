@@ -228,7 +228,7 @@ def test_an_upper_bound_below_the_default_lower_bound_is_a_422_naming_it(client)
     # It was a 500: the check looked for the lower bound's pointer, and none was given.
     for variables in ([{"id": "x", "upper": -2}], {"id": ["x"], "upper": [-2]}):
         body = {"variables": variables, "objective": {"sense": "max", "terms": {"x": 1}}}
-        r = post(client, body)
+        r = post(client, "/v1/lp", body)
         assert r.status_code == 422
         expected = "/variables/0/upper" if isinstance(variables, list) else "/variables/upper/0"
         assert pointers(r) == [expected]
