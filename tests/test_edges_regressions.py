@@ -335,3 +335,16 @@ def test_a_common_factor_past_int64_is_reported_not_a_500(client):
                                             "costs": [[1e-9, 0], [4.611686018427388e18, 0.1]]})
     doc = r.get_json()
     assert r.status_code == 200 and doc["total_cost"] == 0.100000001 and doc["certificate"]["gap"] == 0
+
+
+def test_assignment_costs_spanning_past_exact_duals_are_a_422_not_a_500(client):
+    # Found by the contract slice's hypothesis run: costs 1e-9 and 2**62 in one maximised
+    # problem gave duals past 2**53 as doubles, and the self-check (rightly) failed: a 500.
+    body = {"agents": ["a0", "a1", "a2"], "tasks": ["t0", "t1"],
+            "costs": [[1e-09, 4.611686018427388e+18], [None, 1e-09], [None, None]],
+            "options": {"maximize": True, "require": "tasks"}}
+    r = client.post("/v1/assignment", json=body)
+    assert r.status_code == 422 and [e["pointer"] for e in r.get_json()["errors"]] == ["/costs"]
+    body["options"]["maximize"] = False  # the same costs minimised stay within range: solved
+    r = client.post("/v1/assignment", json=body)
+    assert r.status_code == 200 and r.get_json()["total_cost"] == 2e-9

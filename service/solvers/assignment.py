@@ -307,8 +307,21 @@ def _by_flow(n_agents, n_tasks, rows, cols, cost, c, exact, maximize, need_agent
 
 
 def _integers(values: np.ndarray) -> np.ndarray:
-    """Exact potentials as integers again (the min-cost front reports integral ones as int64)."""
-    return values if values.dtype.kind in "iO" else values.astype(np.int64)
+    """Exact potentials as integers again (the min-cost front reports integral ones as int64).
+
+    Raises
+    ------
+    InputError
+        At ``/costs`` when the front could only report them as doubles past 2**53 (or
+        not whole): the costs then span more than exact arithmetic can certify here.
+    """
+    if values.dtype.kind in "iO":
+        return values
+    if values.size and (float(np.abs(values).max()) >= 2.0**53 or not np.array_equal(values, np.round(values))):
+        raise InputError(FieldError("/costs", "the costs span too many orders of magnitude to be solved exactly "
+                                              "(scaled to whole numbers, their duals pass 2**53); round the "
+                                              "smallest costs or lower the largest"))
+    return values.astype(np.int64)
 
 
 def _refused(exc: InputError, pairs: int) -> InputError:
