@@ -9,6 +9,7 @@ response the tests get is also checked against the OpenAPI document
 from __future__ import annotations
 
 import json
+import time
 
 import orjson
 import pytest
@@ -96,3 +97,15 @@ def assert_problem(response, status: int, problem_type: str | None = None, point
     if pointer is not None:
         assert pointer in named, doc
     return doc
+
+
+def finished_job(client, location: str, headers: dict | None = None, timeout: float = 60.0) -> dict:
+    """Poll ``GET location`` with a Flask test client until the job is done, failed or
+    cancelled, and return its document (``opsutil.poll_job`` does this for a real server)."""
+    deadline = time.monotonic() + timeout
+    while time.monotonic() < deadline:
+        doc = client.get(location, headers=headers).get_json()
+        if doc["state"] in ("done", "failed", "cancelled"):
+            return doc
+        time.sleep(0.1)
+    raise AssertionError("job did not finish")

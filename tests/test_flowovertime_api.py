@@ -10,14 +10,13 @@ from __future__ import annotations
 
 import copy
 import json
-import time
 
 import numpy as np
 import pytest
 
 from service.solvers.timeexpanded import Schedule, TimedNetwork
 from tests.conftest import scenario
-from tests.http import pointers, post
+from tests.http import finished_job, pointers, post
 from tests.overtime_reference import replay_units
 
 SCENARIO = scenario("xdock-night-flowovertime")
@@ -211,26 +210,17 @@ def test_a_batch_item_answers_as_the_single_call_and_a_bad_one_fails_alone(clien
     assert bad["status"] == 422 and bad["errors"][0]["pointer"].endswith("/horizon")
 
 
-def wait_done(client, location, timeout=60):
-    deadline = time.monotonic() + timeout
-    while time.monotonic() < deadline:
-        doc = client.get(location).get_json()
-        if doc["state"] in ("done", "failed", "cancelled"):
-            return doc
-        time.sleep(0.1)
-    raise AssertionError("job did not finish")
-
 
 def test_jobs_and_respond_async_run_the_same_solve(client):
     single = post(client, "/v1/flowovertime", SCENARIO).get_json()
     r = client.post("/v1/jobs", json={"kind": "flowovertime", "problem": SCENARIO})
     assert r.status_code == 202
-    doc = wait_done(client, r.headers["Location"])
+    doc = finished_job(client, r.headers["Location"])
     assert doc["state"] == "done" and doc["result"]["value"] == single["value"]
     assert doc["result"]["digest"] == single["digest"]
     r = post(client, "/v1/flowovertime", SCENARIO, headers={"Prefer": "respond-async"})
     assert r.status_code == 202
-    assert wait_done(client, r.headers["Location"])["result"]["arrivals"] == single["arrivals"]
+    assert finished_job(client, r.headers["Location"])["result"]["arrivals"] == single["arrivals"]
     assert client.post("/v1/jobs", json={"kind": "flowovertime", "problem": {**SCENARIO, "horizon": -1}}
                        ).status_code == 422  # validated before it is queued
 

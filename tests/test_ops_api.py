@@ -7,7 +7,6 @@ The jobs here really run: the app's dispatcher thread starts a solver process
 from __future__ import annotations
 
 import logging
-import time
 
 import pytest
 from prometheus_client.parser import text_string_to_metric_families
@@ -16,6 +15,7 @@ from service.api import create_app
 from service.config import parse_api_keys
 from service.kinds import KINDS
 from tests.conftest import scenario
+from tests.http import finished_job
 from tests.references import max_flow_of
 
 DEPOTS = scenario("depots-maxflow")
@@ -150,15 +150,6 @@ def test_metrics_count_requests_by_route_and_status(client):
 
 # -- jobs and the solver pool ---------------------------------------------------------
 
-def _wait_done(c, location, headers=None, timeout=60):
-    deadline = time.monotonic() + timeout
-    while time.monotonic() < deadline:
-        doc = c.get(location, headers=headers).get_json()
-        if doc["state"] in ("done", "failed", "cancelled"):
-            return doc
-        time.sleep(0.1)
-    raise AssertionError("job did not finish")
-
 
 def test_job_lifecycle_and_tenant_isolation(keyed):
     r = keyed.post("/v1/jobs", json={"kind": "maxflow", "problem": DEPOTS}, headers=ACME)
@@ -167,7 +158,7 @@ def test_job_lifecycle_and_tenant_isolation(keyed):
     assert job["state"] == "queued" and r.headers["Location"] == f"/v1/jobs/{job['id']}"
     assert keyed.get(r.headers["Location"], headers=BOLT).status_code == 404  # another tenant sees nothing
     assert keyed.delete(r.headers["Location"], headers=BOLT).status_code == 404
-    doc = _wait_done(keyed, r.headers["Location"], ACME)
+    doc = finished_job(keyed, r.headers["Location"], ACME)
     assert doc["state"] == "done" and doc["attempts"] == 1
     assert doc["result"]["value"] == max_flow_of(DEPOTS) and doc["result"]["certificate"]["checked"] is True
     assert keyed.delete(r.headers["Location"], headers=ACME).status_code == 409  # finished: nothing to cancel
@@ -185,7 +176,7 @@ def test_job_is_validated_at_submission(client):
 def test_prefer_respond_async_on_a_solve_endpoint(client):
     r = client.post("/v1/maxflow", json=DEPOTS, headers={"Prefer": "wait=5, respond-async"})
     assert r.status_code == 202 and r.headers["Preference-Applied"] == "respond-async"
-    assert _wait_done(client, r.headers["Location"])["result"]["value"] == max_flow_of(DEPOTS)
+    assert finished_job(client, r.headers["Location"])["result"]["value"] == max_flow_of(DEPOTS)
     r = client.post("/v1/maxflow", json={**DEPOTS, "arcs": 3}, headers={"Prefer": "respond-async"})
     assert r.status_code == 422  # validated before it is queued
 

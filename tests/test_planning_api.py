@@ -9,13 +9,13 @@ for expansion, networkx.maximum_flow_value re-solved without each arc for resili
 from __future__ import annotations
 
 import copy
-import time
 
 import numpy as np
 import pytest
 
 from service.kinds import KINDS, Limits
 from tests.conftest import scenario
+from tests.http import finished_job
 from tests.planning_reference import nx_augmented_cost, nx_values_without, scipy_fixed_charge_cost
 
 EXPANSION = scenario("night-pallets-expansion")
@@ -275,27 +275,18 @@ def test_batch_mixes_the_planning_kinds_and_a_bad_item_fails_alone(client):
     assert results[2]["status"] == 422 and results[2]["errors"][0]["pointer"] == "/problem/target"  # relative to the item
 
 
-def _wait_done(client, location, timeout=60):
-    deadline = time.monotonic() + timeout
-    while time.monotonic() < deadline:
-        doc = client.get(location).get_json()
-        if doc["state"] in ("done", "failed", "cancelled"):
-            return doc
-        time.sleep(0.1)
-    raise AssertionError("job did not finish")
-
 
 @pytest.mark.parametrize("kind, body", [("expansion", EXPANSION), ("resilience", RESILIENCE)])
 def test_jobs_answer_as_the_endpoint_does(client, kind, body):
     r = client.post("/v1/jobs", json={"kind": kind, "problem": body})
     assert r.status_code == 202
-    doc = _wait_done(client, r.headers["Location"])
+    doc = finished_job(client, r.headers["Location"])
     assert doc["state"] == "done", doc
     sync = client.post(f"/v1/{kind}", json=body).get_json()
     for part in ("status", "digest", "certificate"):
         assert doc["result"][part] == sync[part], part
     r = client.post(f"/v1/{kind}", json=body, headers={"Prefer": "respond-async"})
-    assert r.status_code == 202 and _wait_done(client, r.headers["Location"])["state"] == "done"
+    assert r.status_code == 202 and finished_job(client, r.headers["Location"])["state"] == "done"
 
 
 def test_a_bad_job_is_refused_at_submission(client):
