@@ -57,6 +57,7 @@ def _finite_max(*arrays) -> float:
 
 
 def sense(model) -> float:
+    """The sign ``s`` of the module's sign convention: +1 for ``min``, -1 for ``max``."""
     return -1.0 if model.maximize else 1.0
 
 
@@ -249,6 +250,15 @@ def improvement_rate(model, direction: np.ndarray) -> float:
 
 
 def rate_tolerance(model) -> float:
+    """The smallest improvement rate that counts as an improvement.
+
+    A rate at or below ``REL * (1 + max |c_j|)``, relative to the objective's largest
+    coefficient, is taken for rounding noise, not for an improving direction.
+
+    Returns
+    -------
+    float
+    """
     return REL * (1.0 + _max(np.abs(model.c)))
 
 
