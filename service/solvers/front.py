@@ -120,8 +120,7 @@ def certify_max_flow(solution: MaxFlowSolution, num_nodes, tail, head, capacity,
     A finite answer is checked by the max-flow min-cut theorem
     (:func:`~service.solvers.certificates.check_max_flow`): exactly, or, when the LP
     engine answered, in float64 to ``LP_TOLERANCE`` relative to each figure's own
-    magnitude.
-    An unbounded answer is checked by its path of arcs without a limit.
+    magnitude. An unbounded answer is checked by its path of arcs without a limit.
 
     Parameters
     ----------

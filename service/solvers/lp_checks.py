@@ -250,10 +250,10 @@ def improvement_rate(model, direction: np.ndarray) -> float:
 
 
 def rate_tolerance(model) -> float:
-    """The smallest improvement rate that counts as an improvement.
+    """The improvement rate at or below which a direction does not count as improving.
 
-    A rate at or below ``REL * (1 + max |c_j|)``, relative to the objective's largest
-    coefficient, is taken for rounding noise, not for an improving direction.
+    ``REL * (1 + max |c_j|)``: relative to the objective's largest coefficient, so
+    a rate that small is taken for rounding noise, not for an improving direction.
 
     Returns
     -------
