@@ -97,3 +97,22 @@ def test_sluice_spec_loads_no_gunicorn_and_writes_no_files(tmp_path):
     assert done.stderr.strip().splitlines()[-1] == "[]"
     assert yaml.safe_load(done.stdout) == yaml.safe_load(COMMITTED.read_text())
     assert list(tmp_path.iterdir()) == []
+
+
+def test_every_documented_503_problem_says_when_to_retry():
+    # Every 503 problem the service answers carries Retry-After (errors.Unavailable,
+    # store.StoreUnavailable; sent as tests/test_store_processes.py and
+    # tests/test_cache_api.py check), so the document says so wherever it lists one.
+    for path, item in build_spec()["paths"].items():
+        for method, op in item.items():
+            response = op["responses"].get("503", {}) if method != "parameters" else {}
+            if "application/problem+json" in response.get("content", {}):
+                assert "Retry-After" in response.get("headers", {}), (path, method)
+
+
+def test_a_dimacs_route_says_so_in_its_415():
+    paths = build_spec()["paths"]
+    for path, method in [("/v1/maxflow", "post"), ("/v1/mincostflow", "post"), ("/v1/networks/{name}", "put")]:
+        assert "text/x-dimacs" in paths[path][method]["requestBody"]["content"]
+        assert "text/x-dimacs" in paths[path][method]["responses"]["415"]["description"]
+    assert "dimacs" not in paths["/v1/lp"]["post"]["responses"]["415"]["description"]

@@ -43,12 +43,18 @@ PROBLEM_TEXT = {
     503: "The store does not answer (Retry-After says when to try again).",
     504: "The check exceeded its time limit.",
 }
-#: Headers that go with a status wherever it is answered.
-PROBLEM_HEADERS = {401: WWW_AUTHENTICATE, 429: RETRY_AFTER}
+#: Headers that go with a status wherever it is answered (every 503 of the service,
+#: store, queue or overload, says when to retry: :class:`~service.errors.Unavailable`,
+#: :class:`~service.store.StoreUnavailable`).
+PROBLEM_HEADERS = {401: WWW_AUTHENTICATE, 429: RETRY_AFTER, 503: RETRY_AFTER}
 
 #: The wording of the solve-body statuses (solves, what-ifs, network uploads, jobs).
 SOLVE_BODY_TEXT = {400: "The body is not valid JSON.", 415: "The Content-Type is not JSON.",
                    422: "The body is JSON but not a valid problem."}
+#: ... for a route with a ``{name}`` (a malformed one is a 400 ``invalid-parameter``).
+NAMED_BODY_TEXT = {**SOLVE_BODY_TEXT, 400: "The body is not valid JSON, or the name is malformed."}
+#: ... for a route that also takes DIMACS text.
+DIMACS_BODY_TEXT = {415: "The Content-Type is neither JSON nor text/x-dimacs."}
 
 
 def problem(status: int, text: str | None = None, headers: dict | None = None) -> dict:

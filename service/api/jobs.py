@@ -21,8 +21,7 @@ from ..jobs.model import DUMP_OPTIONS, JOB_ID
 from ..kinds import KINDS, Kind, Limits
 from ..kinds.base import time_limit
 from .auth import current_tenant
-from .declare import RETRY_AFTER, header_parameter, json_body, ok, operation, path_parameter, problem, problems
-from .declare import SOLVE_BODY_TEXT
+from .declare import SOLVE_BODY_TEXT, header_parameter, json_body, ok, operation, path_parameter, problem, problems
 from .jsonio import json_response, read_json_body
 from .metrics import JOB_EVENTS, job_finished
 
@@ -63,7 +62,7 @@ PREFER_PARAM = header_parameter("Prefer", "`respond-async` (RFC 7240): answer 20
 ACCEPTED = ok("Accepted as a job.", json_body("Job"),
               headers={"Location": {"description": "URL of the job.", "schema": {"type": "string"}}})
 _JOB_ID = path_parameter("job_id", {"type": "string"}, "The id from the 202 answer's Location.")
-_JOBS_DOWN = problem(503, "The job store or queue does not answer.", headers=RETRY_AFTER)
+_JOBS_DOWN = problem(503, "The job store or queue does not answer.")
 _NO_JOB = problem(404, "No such job for this tenant.")
 
 

@@ -23,8 +23,8 @@ from ..model.schemas import ArcsField, NodesField, load_envelope
 from ..store import InvalidParameter, NetworkMeta, Preconditions, check_name, network_digest
 from . import cache
 from ..model.dimacs import MEDIA_TYPE as DIMACS_MEDIA_TYPE
-from .declare import CACHE_STATUS, SOLVE_BODY_TEXT, header_parameter, json_body, kind_title, ok, operation
-from .declare import path_parameter, problem, problems, text_body
+from .declare import CACHE_STATUS, DIMACS_BODY_TEXT, NAMED_BODY_TEXT, header_parameter, json_body, kind_title, ok
+from .declare import operation, path_parameter, problem, problems, text_body
 from .jsonio import decode_body, dimacs_response, json_response, read_json_body
 
 bp = Blueprint("networks", __name__, url_prefix="/v1/networks")
@@ -154,7 +154,8 @@ def read_network(body, limits: Limits) -> Network:
            request=_PUT_BODY, schemas={"NetworkRequest": NetworkRequest, "NetworkMeta": NetworkMetaSchema},
            responses={"201": ok("Created.", _META, headers=_ETAG), "200": ok("Replaced by a new version.", _META,
                                                                              headers=_ETAG),
-                      **problems(400, 413, 415, 422, 500, texts=SOLVE_BODY_TEXT), "412": _STALE,
+                      **problems(400, 413, 415, 422, 500, texts={**NAMED_BODY_TEXT, **DIMACS_BODY_TEXT}),
+                      "412": _STALE,
                       "503": _UNAVAILABLE})
 def put_network(name: str):
     """Store a network (201 new, 200 replaced), optionally only if If-Match holds."""
@@ -305,7 +306,7 @@ def what_if_operation(kind):
         schemas={"Change": ChangeSchema, f"{title}WhatIfRequest": request_schema,
                  f"{title}WhatIfResponse": response_schema},
         responses={"200": ok("Solved.", json_body(f"{title}WhatIfResponse"), headers=CACHE_STATUS),
-                   **problems(400, 413, 415, 422, 500, texts=SOLVE_BODY_TEXT), "404": _NOT_FOUND,
+                   **problems(400, 413, 415, 422, 500, texts=NAMED_BODY_TEXT), "404": _NOT_FOUND,
                    "503": _UNAVAILABLE})
 
 

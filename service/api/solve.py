@@ -11,7 +11,7 @@ from marshmallow import Schema, fields
 from ..kinds import KINDS, Kind, Limits
 from . import cache, jobs
 from ..model.dimacs import MEDIA_TYPE as DIMACS_MEDIA_TYPE
-from .declare import CACHE_STATUS, RETRY_AFTER, SOLVE_BODY_TEXT, json_body, kind_title, ok, operation, problem
+from .declare import CACHE_STATUS, DIMACS_BODY_TEXT, SOLVE_BODY_TEXT, json_body, kind_title, ok, operation, problem
 from .declare import problems, scenario_json, scenario_text, text_body
 from .jsonio import decode_body, json_response
 
@@ -68,9 +68,9 @@ def solve_operation(kind: Kind):
         responses={
             "200": ok("Solved (status says optimal, infeasible or unbounded).", json_body(f"{title}Response"),
                       headers=CACHE_STATUS),
-            **problems(400, 413, 415, 422, 500, texts=SOLVE_BODY_TEXT),
+            **problems(400, 413, 415, 422, 500, texts={**SOLVE_BODY_TEXT, **(DIMACS_BODY_TEXT if kind.dimacs else {})}),
             "202": jobs.ACCEPTED,
-            "503": problem(503, "Solver processes busy, or (with Prefer) the job queue is down.", headers=RETRY_AFTER),
+            "503": problem(503, "Solver processes busy, or (with Prefer) the job queue is down."),
             "504": problem(504, "The solve exceeded the synchronous time limit and was stopped; use a job."),
         })
 
