@@ -15,11 +15,13 @@ def _server(options: dict):
 
     class Server(BaseApplication):
         def load_config(self):
+            """Give gunicorn the embedded settings (see :func:`service.serving.gunicorn_defaults`)."""
             for key, value in options.items():
                 if key in self.cfg.settings:  # older gunicorn lacks some settings (control socket)
                     self.cfg.set(key, value)
 
         def load(self):
+            """The app each worker runs: the Flask app behind the buffering front."""
             return asgi_app()
 
     return Server()
@@ -85,6 +87,18 @@ def _spec(args) -> int:
 
 
 def main(argv: list[str] | None = None) -> int:
+    """Run the ``sluice`` command.
+
+    Parameters
+    ----------
+    argv : list of str, optional
+        The arguments after ``sluice`` (default: the process's own).
+
+    Returns
+    -------
+    int
+        The exit status.
+    """
     parser = argparse.ArgumentParser(prog="sluice", description="Network-flow optimisation over HTTP.")
     sub = parser.add_subparsers(dest="command", required=True)
     serve = sub.add_parser("serve", help="run the HTTP service under gunicorn")

@@ -102,6 +102,7 @@ def ok(description: str, content: dict | None = None, headers: dict | None = Non
 
 
 def path_parameter(name: str, schema: dict, description: str | None = None) -> dict:
+    """A required path parameter (``{name}`` of the route) with its JSON Schema."""
     out = {"name": name, "in": "path", "required": True, "schema": schema}
     if description:
         out["description"] = description
@@ -109,6 +110,7 @@ def path_parameter(name: str, schema: dict, description: str | None = None) -> d
 
 
 def header_parameter(name: str, description: str | None = None, required: bool | None = None) -> dict:
+    """A string request header (``If-Match``, ``Prefer``...); ``required`` is written only when given."""
     out = {"name": name, "in": "header"}
     if required is not None:
         out["required"] = required
@@ -157,6 +159,7 @@ def operation(operation_id: str, summary: str, *, responses: dict, description: 
                          request, dict(schemas or {}))
 
     def attach(view):
+        """Attach the declaration to ``view`` and hand it back unchanged."""
         setattr(view, ATTRIBUTE, declared)
         return view
     return attach
@@ -183,4 +186,5 @@ def scenario_text(name: str) -> str:
 
 
 def scenario_json(name: str):
+    """An example JSON file of ``service/scenarios``, parsed."""
     return json.loads(scenario_text(name))

@@ -145,6 +145,7 @@ def _drop_null_defaults(node):
 
 
 def spec_yaml() -> str:
+    """The document as YAML, as ``sluice spec`` prints it and ``openapi/openapi.yaml`` holds it."""
     return yaml.safe_dump(build_spec(), sort_keys=False, allow_unicode=True)
 
 
