@@ -9,8 +9,8 @@ from flask import Blueprint, current_app
 from marshmallow import Schema, fields
 
 from ..kinds import KINDS, Kind, Limits
-from . import cache, jobs
 from ..model.dimacs import MEDIA_TYPE as DIMACS_MEDIA_TYPE
+from . import cache, jobs
 from .declare import CACHE_STATUS, DIMACS_BODY_TEXT, SOLVE_BODY_TEXT, json_body, kind_title, ok, operation, problem
 from .declare import problems, scenario_json, scenario_text, text_body
 from .jsonio import decode_body, json_response
