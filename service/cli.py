@@ -6,25 +6,25 @@ from __future__ import annotations
 import argparse
 import sys
 
-from gunicorn.app.base import BaseApplication
-
-from .serving import gunicorn_defaults
+from .serving import asgi_app, gunicorn_defaults
 
 
-class _Server(BaseApplication):
-    def __init__(self, options: dict):
-        self.options = options
-        super().__init__()
+def _server(options: dict):
+    """gunicorn running the service (imported here: ``sluice spec`` and ``sluice worker`` need no gunicorn)."""
+    from gunicorn.app.base import BaseApplication
 
-    def load_config(self):
-        for key, value in self.options.items():
-            if key in self.cfg.settings:  # older gunicorn lacks some settings (control socket)
-                self.cfg.set(key, value)
+    class Server(BaseApplication):
+        def load_config(self):
+            """Give gunicorn the embedded settings (see :func:`service.serving.gunicorn_defaults`)."""
+            for key, value in options.items():
+                if key in self.cfg.settings:  # older gunicorn lacks some settings (control socket)
+                    self.cfg.set(key, value)
 
-    def load(self):
-        from .serving import asgi_app
+        def load(self):
+            """The app each worker runs: the Flask app behind the buffering front."""
+            return asgi_app()
 
-        return asgi_app()
+    return Server()
 
 
 def _settings_or_exit():
@@ -52,7 +52,7 @@ def _backends_or_exit(settings) -> None:
 
 def _serve(args) -> int:
     _backends_or_exit(_settings_or_exit())
-    _Server(gunicorn_defaults(args.host, args.port, args.workers)).run()
+    _server(gunicorn_defaults(args.host, args.port, args.workers)).run()
     return 0
 
 
@@ -87,6 +87,18 @@ def _spec(args) -> int:
 
 
 def main(argv: list[str] | None = None) -> int:
+    """Run the ``sluice`` command.
+
+    Parameters
+    ----------
+    argv : list of str, optional
+        The arguments after ``sluice`` (default: the process's own).
+
+    Returns
+    -------
+    int
+        The exit status.
+    """
     parser = argparse.ArgumentParser(prog="sluice", description="Network-flow optimisation over HTTP.")
     sub = parser.add_subparsers(dest="command", required=True)
     serve = sub.add_parser("serve", help="run the HTTP service under gunicorn")

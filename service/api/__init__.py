@@ -11,9 +11,9 @@ from ..config import Settings
 from ..errors import FieldError, ProblemTooLarge, Unavailable
 from ..intake import PROBE_PATHS, QUEUED, SHED
 from ..kinds import Limits
-from . import (auth, batch, bounded, cache, cors, diagram, encoding, explorer, jobs, metrics, networks, ops, problems,
-               ratelimit, requestlog, solutions, solve, verify)
+from . import auth, bounded, cache, cors, encoding, jobs, metrics, problems, ratelimit, requestlog, routes
 from .jsonio import OrjsonProvider, content_coding
+from .spec import build_spec
 
 log = logging.getLogger("sluice")
 
@@ -80,16 +80,9 @@ def create_app(config: Settings | dict | None = None) -> Flask:
     ratelimit.init_app(app, settings, keyed=bool(settings.api_keys))
     app.before_request(_enforce_body_limit)
     encoding.init_app(app, settings.gzip_min_bytes)
-    app.register_blueprint(ops.bp)
-    app.register_blueprint(solve.bp)
-    app.register_blueprint(networks.bp)
-    app.register_blueprint(solutions.bp)
+    routes.register(app)
     cache.init_app(app, settings)
-    for module in (verify, batch, diagram, explorer):  # plan checks, batches, diagrams, the explorer page
-        app.register_blueprint(module.bp)
     jobs.init_app(app, settings, limits)
     bounded.init_app(app, settings)
-    from .spec import build_spec
-
-    app.extensions["sluice"] = SluiceState(settings, limits, build_spec())
+    app.extensions["sluice"] = SluiceState(settings, limits, build_spec(app))
     return app

@@ -26,6 +26,7 @@ from ..errors import PROBLEM_BASE, FieldError, InputError, ProblemTooLarge, Slui
 from ..kinds import KINDS, Limits
 from ..kinds.nested import under
 from .bounded import bounded_solve
+from .declare import json_body, ok, operation, problems, scenario_json
 from .jsonio import json_response, read_json_body
 
 log = logging.getLogger("sluice.api")
@@ -145,6 +146,12 @@ def run_batch(items: list, limits: Limits) -> list:
 
 
 @bp.post("/batch")
+@operation("batch", "Solve many small problems of any kind in one request, answered in order",
+           request=json_body("BatchRequest", scenario_json("batch-depots.json")),
+           schemas={"BatchItem": BatchItemSchema, "BatchRequest": BatchRequest, "BatchResponse": BatchResponse},
+           responses={"200": ok("One result per item: a solve response or a problem object.",
+                                json_body("BatchResponse")),
+                      **problems(400, 413, 415, 422)})
 def batch():
     """Solve many small problems of any kind in one request."""
     state = current_app.extensions["sluice"]

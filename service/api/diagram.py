@@ -26,11 +26,11 @@ from ..model.arcs import Network, export_network, read_network
 from ..model.columns import number_column
 from ..model.schemas import load_envelope
 from .bounded import bounded_solve
+from .declare import SVG_MEDIA_TYPE, json_body, ok, operation, problems, scenario_json, text_body
 from .jsonio import read_json_body
 
 bp = Blueprint("diagram", __name__, url_prefix="/v1")
 
-SVG_MEDIA_TYPE = "image/svg+xml"
 #: Suffix of the cache entry that keeps a small solved problem drawable by digest.
 DRAWING_SUFFIX = ":drawing"
 
@@ -223,6 +223,12 @@ def _parse_drawable(kind, body, state):
 
 
 @bp.post("/diagram.svg")
+@operation("draw_solution",
+           f"Solve a small problem ({', '.join(diagram_kinds())}) and draw the answer as SVG",
+           request=json_body("DiagramRequest", {"kind": "maxflow", "problem": scenario_json("depots-maxflow.json")}),
+           schemas={"DiagramRequest": DiagramRequest},
+           responses={"200": ok("The drawing.", text_body(SVG_MEDIA_TYPE)),
+                      **problems(400, 413, 415, 422, 500, 504)})
 def diagram():
     """Solve a small problem and draw the answer as SVG."""
     state = current_app.extensions["sluice"]

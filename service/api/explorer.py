@@ -23,6 +23,8 @@ from marshmallow import Schema, fields
 
 from ..errors import NotFound
 from ..kinds import KINDS
+from ..model.dimacs import MEDIA_TYPE as DIMACS_MEDIA_TYPE
+from .declare import json_body, ok, operation, path_parameter, problems, text_body
 from .jsonio import json_response
 
 bp = Blueprint("explorer", __name__)
@@ -82,6 +84,8 @@ def scenario_files() -> dict:
 
 
 @bp.get("/")
+@operation("explorer", "The explorer page: pick or paste a problem, solve, see the diagram",
+           responses={"200": ok("An HTML page.", text_body("text/html"))})
 def explorer():
     """The explorer page: pick or paste a problem, solve it, see the diagram."""
     html = resources.files("service").joinpath("static", "explorer.html").read_text()
@@ -89,6 +93,10 @@ def explorer():
 
 
 @bp.get("/explorer/<name>")
+@operation("explorer_asset", "The explorer page's script and style sheet",
+           parameters=[path_parameter("name", {"type": "string", "enum": list(STATIC)})],
+           responses={"200": ok("The file.", {media: {"schema": {"type": "string"}} for media in STATIC.values()}),
+                      **problems(404)})
 def explorer_asset(name: str):
     """The explorer page's script and style sheet."""
     if name not in STATIC:
@@ -98,12 +106,20 @@ def explorer_asset(name: str):
 
 
 @bp.get("/v1/scenarios")
+@operation("list_scenarios", "The invented example problems",
+           schemas={"ScenarioList": ScenarioListSchema},
+           responses={"200": ok("Name, kind, endpoint and title of each.", json_body("ScenarioList"))})
 def scenarios():
     """The example scenarios (invented data), with the kind and endpoint of each."""
     return json_response({"scenarios": [_describe(name, suffix) for name, (_, suffix) in scenario_files().items()]})
 
 
 @bp.get("/v1/scenarios/<name>")
+@operation("get_scenario", "One example problem's request body",
+           parameters=[path_parameter("name", {"type": "string"})],
+           responses={"200": ok("The body, ready to POST to its endpoint.",
+                                {**json_body({"type": "object"}), **text_body(DIMACS_MEDIA_TYPE)}),
+                      **problems(404)})
 def scenario(name: str):
     """One example scenario's request body."""
     files = scenario_files()

@@ -12,20 +12,58 @@ import logging
 
 import orjson
 from flask import Blueprint, Flask, current_app, request
+from marshmallow import Schema, fields, validate
 
 from ..config import Settings
 from ..errors import Conflict, FieldError, InputError, NotFound, Unavailable
-from ..jobs import FINAL, JobsDown, open_jobs
+from ..jobs import FINAL, STATES, JobsDown, open_jobs
 from ..jobs.model import DUMP_OPTIONS, JOB_ID
 from ..kinds import KINDS, Kind, Limits
 from ..kinds.base import time_limit
 from .auth import current_tenant
+from .declare import SOLVE_BODY_TEXT, header_parameter, json_body, ok, operation, path_parameter, problem, problems
 from .jsonio import json_response, read_json_body
 from .metrics import JOB_EVENTS, job_finished
 
 log = logging.getLogger("sluice.jobs")
 bp = Blueprint("jobs", __name__, url_prefix="/v1")
 EXTENSION = "sluice.jobs"
+
+
+class JobRequestSchema(Schema):
+    kind = fields.String(required=True, validate=validate.OneOf(sorted(KINDS)),
+                         metadata={"description": "The problem kind (the solve endpoint's name)."})
+    problem = fields.Dict(required=True, metadata={"description": "A request body of that solve endpoint."})
+
+
+class JobSchema(Schema):
+    id = fields.String(metadata={"description": "32 hex digits.", "pattern": "^[0-9a-f]{32}$"})
+    kind = fields.String()
+    state = fields.String(validate=validate.OneOf(STATES))
+    created_at = fields.String(metadata={"format": "date-time"})
+    started_at = fields.String(allow_none=True, metadata={"format": "date-time"})
+    finished_at = fields.String(allow_none=True, metadata={"format": "date-time"})
+    attempts = fields.Integer(metadata={"description": "Times a worker started the job."})
+    time_limit = fields.Float(metadata={"description": "Seconds the job may run."})
+    cancel_requested = fields.Boolean(metadata={"description": "DELETE was asked; the process is being stopped."})
+    progress = fields.Dict(metadata={
+        "description": "While running, for kinds that report it (multicommodity with integral or single_path): "
+                       "the latest report, {phase, incumbent, bound, gap, seconds}: phase deliver or cost, "
+                       "incumbent the best plan's objective so far (null before the first), bound the best "
+                       "proven bound, gap as in the answer, seconds since the solve started."})
+    result = fields.Dict(metadata={"description": "When done: the solve response of the job's kind."})
+    error = fields.Dict(metadata={"description": "When failed: a problem object (type, title, status, detail)."})
+
+
+#: What the operations of this module and every solve (``Prefer: respond-async``) declare.
+JOB_SCHEMAS = {"Job": JobSchema}
+PREFER_PARAM = header_parameter("Prefer", "`respond-async` (RFC 7240): answer 202 with a job instead of solving now.",
+                                required=False)
+ACCEPTED = ok("Accepted as a job.", json_body("Job"),
+              headers={"Location": {"description": "URL of the job.", "schema": {"type": "string"}}})
+_JOB_ID = path_parameter("job_id", {"type": "string"}, "The id from the 202 answer's Location.")
+_JOBS_DOWN = problem(503, "The job store or queue does not answer.")
+_NO_JOB = problem(404, "No such job for this tenant.")
 
 
 def backend():
@@ -81,6 +119,11 @@ def submit(kind: Kind, problem_body, pointer_prefix: str = ""):
 
 
 @bp.post("/jobs")
+@operation("submit_job", "Submit a problem of any kind as a background job.",
+           request=json_body("JobRequest"), schemas={"JobRequest": JobRequestSchema, **JOB_SCHEMAS},
+           responses={"202": ACCEPTED, **problems(400, 413, 415, texts=SOLVE_BODY_TEXT),
+                      "422": problem(422, "Not a valid job (pointers into the body, under /problem for the problem)."),
+                      "503": _JOBS_DOWN})
 def create_job():
     """Submit a problem of any kind as a background job."""
     body = read_json_body()
@@ -115,6 +158,8 @@ def _answer(record, job_id: str, status: int = 200):
 
 
 @bp.get("/jobs/<job_id>")
+@operation("get_job", "A job's state, with its result or error.", parameters=[_JOB_ID], schemas=JOB_SCHEMAS,
+           responses={"200": ok("The job.", json_body("Job")), "404": _NO_JOB, "503": _JOBS_DOWN})
 def get_job(job_id: str):
     """A job's state, with its result when done or its error when failed."""
     try:
@@ -124,6 +169,11 @@ def get_job(job_id: str):
 
 
 @bp.delete("/jobs/<job_id>")
+@operation("cancel_job", "Cancel a job (a running job's process is killed).", parameters=[_JOB_ID],
+           schemas=JOB_SCHEMAS,
+           responses={"200": ok("Cancelled.", json_body("Job")),
+                      "202": ok("Cancel under way (the process is being stopped).", json_body("Job")),
+                      "404": _NO_JOB, "409": problem(409, "The job has already finished."), "503": _JOBS_DOWN})
 def cancel_job(job_id: str):
     """Cancel a job: a queued one at once, a running one by killing its process."""
     jobs = backend()
@@ -143,5 +193,4 @@ def init_app(app: Flask, settings: Settings, limits: Limits):
     jobs = open_jobs(settings, limits)
     jobs.on_finish = job_finished
     app.extensions[EXTENSION] = jobs
-    app.register_blueprint(bp)
     return jobs

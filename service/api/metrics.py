@@ -32,6 +32,7 @@ from prometheus_client.core import GaugeMetricFamily
 
 from ..config import Settings
 from ..errors import NotFound, Unauthorized
+from .declare import WWW_AUTHENTICATE, ok, operation, problem, text_body
 
 LATENCY_BUCKETS = (0.001, 0.0025, 0.005, 0.01, 0.025, 0.05, 0.1, 0.25, 0.5, 1, 2.5, 5, 10, 30, 60, 120)
 
@@ -119,6 +120,16 @@ class MetricsAccess:
 
 
 @bp.get("/metrics")
+@operation("metrics", "Prometheus metrics (text exposition format), all workers summed.",
+           description="Every series whose labels are known in advance (solves, timeouts, the result cache and "
+                       "jobs, for every kind, engine, result and event) is there at 0 from start-up; the HTTP "
+                       "series appear with each route's first request. Who may read it is the operator's "
+                       "choice, SLUICE_METRICS: open (the default), key (Authorization: Bearer with "
+                       "SLUICE_METRICS_KEY, a key of its own: API keys do not grant it) or port:N (only on that "
+                       "second port, which serves nothing else).",
+           responses={"200": ok("The metrics.", text_body("text/plain")),
+                      "401": problem(401, "SLUICE_METRICS=key and no valid metrics key.", headers=WWW_AUTHENTICATE),
+                      "404": problem(404, "SLUICE_METRICS=port:N and this is not port N.")})
 def metrics():
     """Prometheus text exposition of this service's counters and histograms."""
     current_app.extensions["sluice.metrics"].check()
@@ -156,8 +167,6 @@ def init_app(app: Flask, settings: Settings) -> None:
         if started is not None:
             LATENCY.labels(route, request.method).observe(perf_counter() - started)
         return response
-
-    app.register_blueprint(bp)
 
 
 def job_finished(kind: str, state: str, seconds: float) -> None:

@@ -23,6 +23,8 @@ from ..model.schemas import ArcsField, NodesField, load_envelope
 from ..store import InvalidParameter, NetworkMeta, Preconditions, check_name, network_digest
 from . import cache
 from ..model.dimacs import MEDIA_TYPE as DIMACS_MEDIA_TYPE
+from .declare import CACHE_STATUS, DIMACS_BODY_TEXT, NAMED_BODY_TEXT, header_parameter, json_body, kind_title, ok
+from .declare import operation, path_parameter, problem, problems, text_body
 from .jsonio import decode_body, dimacs_response, json_response, read_json_body
 
 bp = Blueprint("networks", __name__, url_prefix="/v1/networks")
@@ -95,6 +97,20 @@ class ChangeSchema(Schema):
     holdover_cost = fields.Float(metadata={"description": "Per unit per period waiting at the node (>= 0)."})
 
 
+#: What the operations below declare (the OpenAPI entries of these routes).
+_NAME = path_parameter("name", {"type": "string", "minLength": 1, "maxLength": 128,
+                                "pattern": "^[A-Za-z0-9][A-Za-z0-9._-]*$"})
+_IF_MATCH = header_parameter("If-Match", "Only write if the current version has this ETag (or any version, for *).")
+_ETAG = {"ETag": {"description": "The version's entity tag.", "schema": {"type": "string"}}}
+_BAD_NAME = problem(400, "The name (or another parameter) is malformed.")
+_NOT_FOUND = problem(404, "No such network.")
+_STALE = problem(412, "If-Match or If-None-Match did not hold.")
+_UNAVAILABLE = problem(503)
+_META = json_body("NetworkMeta")
+_PUT_BODY = {**json_body("NetworkRequest"), **text_body(DIMACS_MEDIA_TYPE, "A DIMACS max-flow or min-cost flow file; "
+                                                        "its s/t designations and supplies are not stored.")}
+
+
 def _limits() -> Limits:
     return current_app.extensions["sluice"].limits
 
@@ -133,6 +149,14 @@ def read_network(body, limits: Limits) -> Network:
 
 
 @bp.put("/<name>")
+@operation("put_network", "Store a network (a new version when it exists).", path_parameters=[_NAME],
+           parameters=[_IF_MATCH, header_parameter("If-None-Match", "* : only create, never replace.")],
+           request=_PUT_BODY, schemas={"NetworkRequest": NetworkRequest, "NetworkMeta": NetworkMetaSchema},
+           responses={"201": ok("Created.", _META, headers=_ETAG), "200": ok("Replaced by a new version.", _META,
+                                                                             headers=_ETAG),
+                      **problems(400, 413, 415, 422, 500, texts={**NAMED_BODY_TEXT, **DIMACS_BODY_TEXT}),
+                      "412": _STALE,
+                      "503": _UNAVAILABLE})
 def put_network(name: str):
     """Store a network (201 new, 200 replaced), optionally only if If-Match holds."""
     check_name(name)
@@ -149,6 +173,15 @@ def put_network(name: str):
 
 
 @bp.get("/<name>")
+@operation("get_network", "A stored network's metadata (and arcs with ?include=arcs).", path_parameters=[_NAME],
+           parameters=[{"name": "include", "in": "query", "schema": {"type": "string", "enum": ["arcs"]}},
+                       header_parameter("If-None-Match")],
+           schemas={"NetworkBody": NetworkBodySchema},
+           responses={"200": ok("The current version. With `Accept: text/x-dimacs` the arcs as a DIMACS min-cost "
+                                "flow file (zero supplies).",
+                                {**json_body("NetworkBody"), **text_body(DIMACS_MEDIA_TYPE)}, headers=_ETAG),
+                      "304": ok("Not modified (If-None-Match holds the current ETag)."),
+                      "400": _BAD_NAME, "404": _NOT_FOUND, "503": _UNAVAILABLE})
 def get_network(name: str):
     """A stored network's metadata; with ?include=arcs its nodes and arcs too."""
     check_name(name)
@@ -183,6 +216,9 @@ def _include() -> set:
 
 
 @bp.delete("/<name>")
+@operation("delete_network", "Remove a stored network.", path_parameters=[_NAME], parameters=[_IF_MATCH],
+           responses={"204": ok("Removed."), "400": _BAD_NAME, "404": _NOT_FOUND, "412": _STALE,
+                      "503": _UNAVAILABLE})
 def delete_network(name: str):
     """Remove a stored network (204), optionally only if If-Match holds."""
     check_name(name)
@@ -191,6 +227,14 @@ def delete_network(name: str):
 
 
 @bp.get("")
+@operation("list_networks", "Stored networks, by name, a page at a time.",
+           parameters=[{"name": "limit", "in": "query",
+                        "schema": {"type": "integer", "minimum": 1, "maximum": MAX_PAGE, "default": DEFAULT_PAGE}},
+                       {"name": "after", "in": "query", "schema": {"type": "string"},
+                        "description": "Start after this name (the next link sets it)."}],
+           schemas={"NetworkMeta": NetworkMetaSchema, "NetworkList": NetworkListSchema},
+           responses={"200": ok("One page; next is the URL of the following page, or null.", json_body("NetworkList")),
+                      "400": _BAD_NAME, "503": _UNAVAILABLE})
 def list_networks():
     """The tenant's networks by name, ``limit`` per page (default 100, at most 1000), after ``after``."""
     limit = _int_arg("limit", DEFAULT_PAGE, 1, MAX_PAGE)
@@ -237,8 +281,37 @@ def what_if(name: str, kind_name: str):
                         extra={"network": {"name": meta.name, "version": meta.version, "etag": _etag(meta)}})
 
 
+def what_if_schemas(kind) -> tuple[type, type]:
+    """Request and response schemas of a kind's what-if: its ``query_schema`` with
+    ``changes``, its response with ``network`` (made once per kind: marshmallow registers classes)."""
+    title = kind_title(kind.name)
+    request_schema = type(f"{title}WhatIfRequest", (kind.query_schema,), {
+        "changes": fields.List(fields.Nested(ChangeSchema), allow_none=True, metadata={
+            "description": "Changes to apply for this question only; each arc at most once."}),
+    })
+    response_schema = type(f"{title}WhatIfResponse", (kind.response_schema,), {
+        "network": fields.Dict(metadata={"description": "name, version and etag of the version that answered."}),
+    })
+    return request_schema, response_schema
+
+
+def what_if_operation(kind):
+    """``POST /v1/networks/{name}/{kind}``, from the kind's ``query_schema`` and ``response_schema``."""
+    title = kind_title(kind.name)
+    request_schema, response_schema = what_if_schemas(kind)
+    return operation(
+        f"what_if_{kind.name}",
+        f"{kind.summary}, on a stored network with optional changes (the store is not modified).",
+        path_parameters=[_NAME], request=json_body(f"{title}WhatIfRequest"),
+        schemas={"Change": ChangeSchema, f"{title}WhatIfRequest": request_schema,
+                 f"{title}WhatIfResponse": response_schema},
+        responses={"200": ok("Solved.", json_body(f"{title}WhatIfResponse"), headers=CACHE_STATUS),
+                   **problems(400, 413, 415, 422, 500, texts=NAMED_BODY_TEXT), "404": _NOT_FOUND,
+                   "503": _UNAVAILABLE})
+
+
 # One route per kind that can be asked of a stored network, so that every route has
 # its own entry in the OpenAPI document.
 for _name in what_if_kinds():
     bp.add_url_rule(f"/<name>/{_name}", endpoint=f"what_if_{_name}", methods=["POST"],
-                    view_func=lambda name, _kind=_name: what_if(name, _kind))
+                    view_func=what_if_operation(KINDS[_name])(lambda name, _kind=_name: what_if(name, _kind)))

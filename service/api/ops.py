@@ -4,15 +4,27 @@ from __future__ import annotations
 
 import numpy as np
 from flask import Blueprint, current_app
+from marshmallow import Schema, fields
 
 from ..solvers import maximum_flow
 from .cache import get_store
+from .declare import json_body, ok, operation
 from .jsonio import json_response
 
 bp = Blueprint("ops", __name__)
 
 
+class HealthSchema(Schema):
+    status = fields.String(metadata={"description": "ok (healthz); ready, degraded or not ready (readyz)."})
+    checks = fields.Dict(metadata={"description": "Each dependency: ok, or why not."})
+    store = fields.Dict(metadata={"description": "readyz: the result store's backend and usage."})
+
+
+_HEALTH = json_body(HealthSchema)
+
+
 @bp.get("/healthz")
+@operation("healthz", "The process is up.", responses={"200": ok("Up.", _HEALTH)})
 def healthz():
     """The process is up."""
     return json_response({"status": "ok"})
@@ -34,6 +46,8 @@ def _job_checks() -> dict:
 
 
 @bp.get("/readyz")
+@operation("readyz", "The store and solvers are usable.",
+           responses={"200": ok("Ready.", _HEALTH), "503": ok("Not ready.", _HEALTH)})
 def readyz():
     """The solvers answer a tiny problem correctly; the store and the job store answer.
 
@@ -55,6 +69,8 @@ def readyz():
 
 
 @bp.get("/openapi.json")
+@operation("openapi", "This document.",
+           responses={"200": ok("The OpenAPI document.", json_body({"type": "object"}))})
 def openapi_json():
     """This service's OpenAPI document."""
     return json_response(current_app.extensions["sluice"].spec)

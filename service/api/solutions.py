@@ -9,11 +9,24 @@ from flask import Blueprint, Response, request
 from ..errors import NotFound
 from ..store import check_digest
 from . import cache
+from .declare import SVG_MEDIA_TYPE, header_parameter, json_body, ok, operation, path_parameter, problem, problems
+from .declare import text_body
+
+#: The ``{digest}`` of these paths (what a solve response's ``digest`` holds).
+DIGEST = path_parameter("digest", {"type": "string", "pattern": "^sha256:[0-9a-f]{64}$"})
 
 bp = Blueprint("solutions", __name__, url_prefix="/v1/solutions")
 
 
 @bp.get("/<digest>")
+@operation("get_solution", "A cached answer, by the digest its solve response carried.",
+           parameters=[DIGEST, header_parameter("If-None-Match")],
+           responses={"200": ok("The cached answer (without timing_ms).", json_body({"type": "object"}), headers={
+                          "ETag": {"description": "Hash of the cached answer.", "schema": {"type": "string"}}}),
+                      "304": ok("Not modified."),
+                      "400": problem(400, "The digest is malformed."),
+                      "404": problem(404, "Not cached (never solved here, or evicted)."),
+                      "503": problem(503)})
 def get_solution(digest: str):
     """The cached answer for a problem digest (as the solve returned it, without timing_ms).
 
@@ -32,6 +45,11 @@ def get_solution(digest: str):
 
 
 @bp.get("/<digest>/diagram.svg")
+@operation("draw_cached_solution", "Draw a cached max-flow or min-cost flow answer as SVG",
+           description="Small solved problems are kept beside their cached answers so they can be drawn by "
+                       "digest; a problem above the diagram limits answers 413, an unknown or evicted one 404.",
+           parameters=[DIGEST],
+           responses={"200": ok("The drawing.", text_body(SVG_MEDIA_TYPE)), **problems(400, 404, 413)})
 def get_solution_diagram(digest: str):
     """An SVG drawing of a cached answer: flows, the cut or binding arcs, potentials."""
     from .diagram import DRAWING_SUFFIX, cached_diagram

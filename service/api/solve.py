@@ -9,7 +9,10 @@ from flask import Blueprint, current_app
 from marshmallow import Schema, fields
 
 from ..kinds import KINDS, Kind, Limits
+from ..model.dimacs import MEDIA_TYPE as DIMACS_MEDIA_TYPE
 from . import cache, jobs
+from .declare import CACHE_STATUS, DIMACS_BODY_TEXT, SOLVE_BODY_TEXT, json_body, kind_title, ok, operation, problem
+from .declare import problems, scenario_json, scenario_text, text_body
 from .jsonio import decode_body, json_response
 
 bp = Blueprint("solve", __name__, url_prefix="/v1")
@@ -41,6 +44,37 @@ def limits() -> Limits:
     return current_app.extensions["sluice"].limits
 
 
+#: The example of a DIMACS body, by ``p`` format (the max-flow one is a served scenario).
+DIMACS_EXAMPLES = {"max": scenario_text("depots-maxflow.dimacs"),
+                   "min": "c two depots, two stores\np min 4 4\nn 1 30\nn 2 20\nn 3 -25\nn 4 -25\n"
+                          "a 1 3 0 40 4\na 1 4 0 40 6\na 2 3 0 40 5\na 2 4 0 40 3\n"}
+
+
+def dimacs_content(kind: Kind) -> dict:
+    """The ``text/x-dimacs`` entry of the request body of a kind that takes DIMACS (else nothing)."""
+    if kind.dimacs is None:
+        return {}
+    return text_body(DIMACS_MEDIA_TYPE, f"A DIMACS 'p {kind.dimacs}' file; errors point at /line/<n>.",
+                     DIMACS_EXAMPLES[kind.dimacs])
+
+
+def solve_operation(kind: Kind):
+    """``POST /v1/{kind}``, from the kind's declaration: its schemas, example and DIMACS format."""
+    title = kind_title(kind.name)
+    return operation(
+        f"solve_{kind.name}", kind.summary, parameters=[jobs.PREFER_PARAM],
+        request={**json_body(f"{title}Request", scenario_json(kind.example)), **dimacs_content(kind)},
+        schemas={f"{title}Request": kind.request_schema, f"{title}Response": kind.response_schema, **jobs.JOB_SCHEMAS},
+        responses={
+            "200": ok("Solved (status says optimal, infeasible or unbounded).", json_body(f"{title}Response"),
+                      headers=CACHE_STATUS),
+            **problems(400, 413, 415, 422, 500, texts={**SOLVE_BODY_TEXT, **(DIMACS_BODY_TEXT if kind.dimacs else {})}),
+            "202": jobs.ACCEPTED,
+            "503": problem(503, "Solver processes busy, or (with Prefer) the job queue is down."),
+            "504": problem(504, "The solve exceeded the synchronous time limit and was stopped; use a job."),
+        })
+
+
 def _make_view(kind: Kind):
     def view():
         if jobs.prefers_async():  # Prefer: respond-async (RFC 7240): 202 and a job
@@ -62,10 +96,14 @@ def _make_view(kind: Kind):
 
     view.__name__ = kind.name
     view.__doc__ = kind.summary
-    return view
+    return solve_operation(kind)(view)
 
 
 @bp.get("/kinds")
+@operation("list_kinds", "The problem kinds this service solves, and what each can do",
+           responses={"200": ok("Name, summary, endpoint, example and capabilities of each kind.",
+                                json_body("KindList"))},
+           schemas={"KindList": KindListSchema})
 def list_kinds():
     """What each registered kind can do, as its :class:`~service.kinds.base.Kind` declares it."""
     return json_response({"kinds": [

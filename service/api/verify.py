@@ -9,6 +9,8 @@ from flask import Blueprint
 from ..errors import NotFound
 from ..kinds import KINDS
 from ..kinds import verify as verify_kind
+from ..kinds.verify import VerifyRequest, VerifyResponse
+from .declare import json_body, ok, operation, path_parameter, problems, scenario_json
 from .jsonio import json_response, read_json_body
 from .solve import limits
 
@@ -21,6 +23,13 @@ def verify_kinds() -> list[str]:
 
 
 @bp.post("/<kind>")
+@operation("verify_plan",
+           "Check a client's flows: feasibility, value or cost, optimality with an improving path or cycle",
+           parameters=[path_parameter("kind", {"type": "string", "enum": verify_kinds()})],
+           request=json_body("VerifyRequest", scenario_json("verify-depots-maxflow.json")),
+           schemas={"VerifyRequest": VerifyRequest, "VerifyResponse": VerifyResponse},
+           responses={"200": ok("The verdict (an infeasible plan is still a 200).", json_body("VerifyResponse")),
+                      **problems(400, 404, 413, 415, 422, 500, 504)})
 def verify(kind: str):
     """Check a client's flows for a problem: feasibility, value or cost, optimality."""
     checked = verify_kinds()

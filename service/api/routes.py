@@ -1,0 +1,33 @@
+"""Every blueprint of the service, in one place: the app registers them, and the OpenAPI
+document is built from the routes they hold (:func:`service.api.spec.build_spec`)."""
+
+from __future__ import annotations
+
+from flask import Flask
+
+from . import batch, diagram, explorer, jobs, metrics, networks, ops, solutions, solve, verify
+
+#: In the order the document presents them.
+BLUEPRINTS = (jobs.bp, metrics.bp, solve.bp, networks.bp, solutions.bp, verify.bp, batch.bp, diagram.bp,
+              explorer.bp, ops.bp)
+
+#: Routes with no operation of their own, each with its reason.
+UNDOCUMENTED = {
+    "static": "Flask's static route: the app has no static folder (every request is a 404); the explorer's "
+              "files are GET /explorer/{name}",
+}
+
+
+def register(app: Flask) -> None:
+    """Register every blueprint on ``app``."""
+    for blueprint in BLUEPRINTS:
+        app.register_blueprint(blueprint)
+
+
+def route_app() -> Flask:
+    """An app with the routes and nothing else (no store, jobs or solver processes): what
+    ``sluice spec`` documents without starting the service."""
+    app = Flask("service.api")
+    app.url_map.strict_slashes = False
+    register(app)
+    return app
