@@ -14,6 +14,7 @@ from dataclasses import dataclass
 import numpy as np
 from marshmallow import RAISE, Schema, ValidationError, fields, validate
 
+from ..deadline import Deadline
 from ..errors import FieldError, InputError, ProblemTooLarge
 from ..model.arccolumns import read_arcs
 from ..model.arcs import read_keys
@@ -379,7 +380,7 @@ def _supply(supply, nodes, objective: str, n: int):
     return supply
 
 
-def solve(problem: FlowOverTimeProblem, limits: Limits) -> dict:
+def solve(problem: FlowOverTimeProblem, deadline: Deadline) -> dict:
     net = problem.network
     if problem.objective == "max-by-horizon":
         sol = max_by_horizon(net, problem.source, problem.sink)

@@ -7,6 +7,7 @@ from dataclasses import dataclass
 import numpy as np
 from marshmallow import RAISE, Schema, fields, validate
 
+from ..deadline import Deadline
 from ..errors import FieldError, InputError, ProblemTooLarge
 from ..model.arcs import Network, read_network
 from ..model.digest import problem_digest
@@ -26,7 +27,7 @@ from ..solvers.multicommodity_whole import whole_unit_flow
 from ..solvers.versions import ORTOOLS_VERSION
 from ..solvers.whole_model import whole_data_issue
 from . import progress
-from .base import Kind, Limits, digest_detail, node_position, problem_size, time_limit, wants, without_arc_keys
+from .base import Kind, Limits, digest_detail, node_position, problem_size, wants, without_arc_keys
 from .maxflow import EngineSchema, TimingSchema
 
 DETAIL = ["flows", "capacity_prices"]
@@ -375,14 +376,14 @@ def _check_whole_data(network: Network, demands: np.ndarray, options: dict, arc_
     raise InputError.at(arc_pointer(index, field_name), where + reason)
 
 
-def solve(problem: MultiCommodityProblem, limits: Limits) -> dict:
+def solve(problem: MultiCommodityProblem, deadline: Deadline) -> dict:
     net = problem.network
     cost = np.zeros(net.num_arcs) if net.cost is None else net.cost.astype(np.float64)
     flow_net = FlowNetwork(net.num_nodes, net.tail, net.head, net.capacity, net.unlimited, cost)
     if problem.whole:
-        return _solve_whole(problem, flow_net, limits)
+        return _solve_whole(problem, flow_net, deadline)
     solution = multicommodity_flow(flow_net, problem.commodities, objective=problem.objective,
-                                   time_limit=time_limit(problem.options, limits))
+                                   deadline=deadline)
     ids = problem.commodity_ids
     out: dict = {"status": solution.status, "objective": problem.objective, "cost": solution.cost}
     if solution.status == "optimal":
@@ -412,11 +413,11 @@ def _infeasibility(ids: list, info: dict) -> dict:
     }
 
 
-def _solve_whole(problem: MultiCommodityProblem, flow_net: FlowNetwork, limits: Limits) -> dict:
+def _solve_whole(problem: MultiCommodityProblem, flow_net: FlowNetwork, deadline: Deadline) -> dict:
     options, ids = problem.options, problem.commodity_ids
     solution = whole_unit_flow(flow_net, problem.commodities, objective=problem.objective,
                                single_path=bool(options.get("single_path")), gap=float(options.get("gap") or 0.0),
-                               time_limit=time_limit(options, limits), on_progress=progress.reporter())
+                               deadline=deadline, on_progress=progress.reporter())
     out: dict = {"status": solution.status, "objective": problem.objective, "cost": solution.cost}
     if solution.flows is not None:
         out["delivered"] = solution.delivered
@@ -453,7 +454,7 @@ KIND = Kind(
     query_schema=MultiCommodityQuery,
     from_network=from_network,
     size=problem_size,
-    #: GLOP and the MIP engines stop themselves at options.time_limit (the MIP with its
+    #: GLOP and the MIP engines stop themselves at their deadline (the MIP with its
     #: plan so far: status "feasible").
     honours_time_limit=True,
     for_solver_process=without_arc_keys,

@@ -31,21 +31,13 @@ from dataclasses import dataclass, field
 import numpy as np
 import scipy.sparse as sp
 
+from ..deadline import Deadline
 from ..errors import SelfCheckFailed, SolverFailure
 from . import lp_checks
 from .front import maximum_flow
 from .graph import Graph
-from .lp import (
-    LPModel,
-    LPResult,
-    beyond_range,
-    deadline_after,
-    incidence_matrix,
-    lp_engine,
-    settle_feasible,
-    solve_certified,
-    time_left,
-)
+from .glop import beyond_range, incidence_matrix, lp_engine
+from .lp import LPModel, LPResult, settle_feasible, solve_certified
 
 #: Relative slack of the delivery held in the second (cost) model of max-throughput.
 HOLD_SLACK = 1e-9
@@ -148,7 +140,7 @@ def hold_delivery(model: LPModel, net: Network, com: Commodities, delivered: flo
 
 
 def multicommodity_flow(net: Network, com: Commodities, *, objective: str = "min-cost",
-                        time_limit: float | None = None) -> MultiCommoditySolution:
+                        deadline: Deadline | None = None) -> MultiCommoditySolution:
     """Solve and certify a multi-commodity flow problem.
 
     Parameters
@@ -158,8 +150,8 @@ def multicommodity_flow(net: Network, com: Commodities, *, objective: str = "min
     com : Commodities
         Source, sink and demand of each commodity (node indices).
     objective : {"min-cost", "max-throughput"}
-    time_limit : float, optional
-        Seconds for all solves together.
+    deadline : Deadline, optional
+        When all solves together must end (status ``time_limit`` then); None: no limit.
 
     Returns
     -------
@@ -175,25 +167,24 @@ def multicommodity_flow(net: Network, com: Commodities, *, objective: str = "min
         the spans, and the span it is measured to take.
     """
     try:
-        return _solve(net, com, objective, time_limit)
+        return _solve(net, com, objective, deadline)
     except SolverFailure as exc:  # a failed certificate too: the data's range, said clearly
         raise beyond_range(exc, "/arcs", capacities=net.capacity[net.limited].astype(np.float64),
                            costs=net.cost, demands=com.demands) from None
 
 
-def _solve(net: Network, com: Commodities, objective: str, time_limit) -> MultiCommoditySolution:
+def _solve(net: Network, com: Commodities, objective: str, deadline: Deadline | None) -> MultiCommoditySolution:
     if objective == "max-throughput":
-        return _max_throughput(net, com, time_limit)
-    deadline = deadline_after(time_limit)
+        return _max_throughput(net, com, deadline)
     model = min_cost_model(net, com)
-    result = solve_certified(model, time_limit=time_limit, dual_simplex=True, prove=False)
+    result = solve_certified(model, deadline=deadline, dual_simplex=True, prove=False)
     if result.status == "optimal":
         return multicommodity_answer(net, com, result)
     if result.status == "time_limit":
         return _timed_out(result)
     # GLOP says infeasible or unbounded. The delivery model settles which: its dual
     # bound proves how much can be delivered at most.
-    best = solve_certified(throughput_model(net, com), time_limit=time_left(deadline))
+    best = solve_certified(throughput_model(net, com), deadline=deadline)
     if best.status != "optimal":
         return _delivery_model_failed(best)
     total = float(com.demands.sum())
@@ -226,21 +217,20 @@ def _delivery_model_failed(result: LPResult) -> MultiCommoditySolution:
     raise SolverFailure(f"the delivery model is always feasible and bounded, yet it came back {result.status}")
 
 
-def _max_throughput(net: Network, com: Commodities, time_limit) -> MultiCommoditySolution:
+def _max_throughput(net: Network, com: Commodities, deadline: Deadline | None) -> MultiCommoditySolution:
     K, m, n = com.count, net.num_arcs, net.num_nodes
-    deadline = deadline_after(time_limit)
     model = throughput_model(net, com)
     # Primal simplex here: measured far faster than the dual on this model (3 s against
     # over 60 s at 10k arcs x 20 commodities), the reverse of the cost models.
-    first = solve_certified(model, time_limit=time_left(deadline))
+    first = solve_certified(model, deadline=deadline)
     if first.status != "optimal":
         return _delivery_model_failed(first)
     prices = _prices(net, first.duals[K * n:], first.certificate)
     held = hold_delivery(model, net, com, first.objective, 0.0)
-    second = solve_certified(held, time_limit=time_left(deadline), dual_simplex=True, prove=False)
+    second = solve_certified(held, deadline=deadline, dual_simplex=True, prove=False)
     if second.status == "infeasible":  # round-off at the held optimum: give it room
         held = hold_delivery(model, net, com, first.objective, HOLD_SLACK)
-        second = solve_certified(held, time_limit=time_left(deadline), dual_simplex=True, prove=False)
+        second = solve_certified(held, deadline=deadline, dual_simplex=True, prove=False)
     if second.status in ("infeasible", "unbounded"):
         # The delivery plan is feasible for the held model, so only unbounded is possible.
         second = settle_feasible(held, first.x, deadline, said=second.status, dual_simplex=True)

@@ -36,6 +36,7 @@ from typing import Callable
 
 import numpy as np
 
+from ..deadline import Deadline
 from ..errors import SolverFailure
 from .multicommodity import Commodities, MultiCommoditySolution, Network, multicommodity_flow
 from .whole_checks import check_flows, check_plan, plan_cost, relative_gap
@@ -130,7 +131,7 @@ class _Search:
 
 
 def whole_unit_flow(net: Network, com: Commodities, *, objective: str = "min-cost", single_path: bool = False,
-                    gap: float = 0.0, time_limit: float = 30.0, engine: str = "scip",
+                    deadline: Deadline, gap: float = 0.0, engine: str = "scip",
                     on_progress: OnProgress | None = None) -> WholeSolution:
     """Solve and certify a whole-unit multi-commodity flow problem.
 
@@ -146,8 +147,9 @@ def whole_unit_flow(net: Network, com: Commodities, *, objective: str = "min-cos
         ``max-throughput``: a commodity is delivered in full on one path, or not at all.
     gap : float
         Stop once the relative gap is at most this (0: prove the best plan).
-    time_limit : float
-        Seconds for everything (LP, heuristic, search).
+    deadline : Deadline
+        When everything (LP, heuristic, search) must end; the search stops there with
+        the best plan so far.
     engine : {"cp-sat", "scip"}
     on_progress : callable, optional
         Told of every better plan and bound while the search runs.
@@ -165,7 +167,6 @@ def whole_unit_flow(net: Network, com: Commodities, *, objective: str = "min-cos
         with more than six decimals, negative costs with ``single_path``.
     """
     started = time.perf_counter()
-    deadline = started + time_limit
     data = _whole_data(net, com, objective, single_path)
     lp = _relaxation(net, com, objective, deadline)
     if lp is not None and lp.status == "infeasible":
@@ -184,8 +185,7 @@ def whole_unit_flow(net: Network, com: Commodities, *, objective: str = "min-cos
         if plan is not None:
             search.offer(plan)
     if solved and not data.throughput:
-        now = time.perf_counter()
-        _fix_and_solve(search, lp, engine, now + FIX_SHARE * (deadline - now))
+        _fix_and_solve(search, lp, engine, Deadline.after(FIX_SHARE * deadline.remaining()))
     hint = search.plan.values(data) if search.plan is not None else _rounded_lp(data, lp)
     result = _search(search, engine, hint, deadline)
     if result is not None and result.status == "infeasible":
@@ -209,10 +209,10 @@ def _whole_data(net: Network, com: Commodities, objective: str, single_path: boo
     return WholeData(net, com, com.demands.astype(np.int64), cost, scale, single_path, objective == "max-throughput")
 
 
-def _relaxation(net: Network, com: Commodities, objective: str, deadline: float) -> MultiCommoditySolution | None:
+def _relaxation(net: Network, com: Commodities, objective: str, deadline: Deadline) -> MultiCommoditySolution | None:
     """The LP relaxation, or None when it could not be had (then the search starts cold)."""
     try:
-        lp = multicommodity_flow(net, com, objective=objective, time_limit=max(0.01, deadline - time.perf_counter()))
+        lp = multicommodity_flow(net, com, objective=objective, deadline=deadline)
     except SolverFailure as exc:  # the LP only warms the search up; the plan has its own certificate
         log.error("whole units: the LP relaxation failed (%s); searching without it", exc)
         return None
@@ -229,7 +229,7 @@ def _lp_bound(data: WholeData, lp: MultiCommoditySolution) -> int:
     return math.ceil(best - BOUND_SLACK * max(1.0, abs(best)))
 
 
-def _fix_and_solve(search: _Search, lp: MultiCommoditySolution, engine: str, until: float) -> None:
+def _fix_and_solve(search: _Search, lp: MultiCommoditySolution, engine: str, until: Deadline) -> None:
     """min-cost: keep the commodities the LP routes in whole units as they are and solve
     the others exactly (the same engine, until ``until``) on the capacity they leave.
 
@@ -238,7 +238,7 @@ def _fix_and_solve(search: _Search, lp: MultiCommoditySolution, engine: str, unt
     the LP bound then proves.
     """
     data = search.data
-    if search.closed() or until - time.perf_counter() <= 0:
+    if search.closed() or until.expired():
         return
     net, com = data.net, data.com
     kept = kept_from_lp(data, lp.flows, lp.delivered, no_detours(data, flow_upper(data)))
@@ -252,7 +252,7 @@ def _fix_and_solve(search: _Search, lp: MultiCommoditySolution, engine: str, unt
     sub = WholeData(Network(net.num_nodes, net.tail, net.head, room, net.unlimited, net.cost),
                     Commodities(com.sources[free], com.sinks[free], com.demands[free]), data.demands[free],
                     data.cost, data.scale, data.single_path, False)
-    result = run_engine(engine, build_model(sub), None, time_limit=until - time.perf_counter(), gap=search.target)
+    result = run_engine(engine, build_model(sub), None, deadline=until, gap=search.target)
     if result.values is None:
         return
     part = read_plan(sub, result.values)
@@ -283,9 +283,9 @@ def plan_value(data: WholeData, model: WholeModel, plan: Plan) -> int:
     return int(plan.delivered.sum()) if model.maximize else plan_cost(data, plan.flows(data))
 
 
-def _search(search: _Search, engine: str, hint, deadline: float) -> EngineResult | None:
+def _search(search: _Search, engine: str, hint, deadline: Deadline) -> EngineResult | None:
     """Run the engine on ``search.model`` until the gap closes or the time is up."""
-    if search.closed() or deadline - time.perf_counter() <= 0:
+    if search.closed() or deadline.expired():
         return None
 
     def on_plan(objective: float, bound: float, seconds: float) -> bool:
@@ -297,7 +297,7 @@ def _search(search: _Search, engine: str, hint, deadline: float) -> EngineResult
 
     # Without a listener the engine's own gap test stops it (its bound is at least the
     # LP's), so the callback, which costs SCIP an event handler, is only for progress.
-    result = run_engine(engine, search.model, hint, time_limit=deadline - time.perf_counter(), gap=search.target,
+    result = run_engine(engine, search.model, hint, deadline=deadline, gap=search.target,
                         on_plan=on_plan if search.on_progress is not None else None)
     search.found = None
     search.tighten(_engine_bound(result.bound, search.model))
@@ -314,7 +314,7 @@ def _engine_bound(bound: float | None, model: WholeModel) -> int | None:
     return math.floor(bound + slack) if model.maximize else math.ceil(bound - slack)
 
 
-def _hold_delivery(search: _Search, engine: str, deadline: float) -> int | None:
+def _hold_delivery(search: _Search, engine: str, deadline: Deadline) -> int | None:
     """max-throughput, second phase: the least cost with the delivery held. Returns
     the proven cost bound (scaled), or None when the delivery is not proven yet."""
     if not search.closed():
@@ -368,7 +368,7 @@ def _solver_infeasible(data: WholeData, engine: str) -> WholeSolution:
                          engine=engine_info(engine))
 
 
-def _unbounded(data: WholeData, model: WholeModel, lp: MultiCommoditySolution, deadline: float,
+def _unbounded(data: WholeData, model: WholeModel, lp: MultiCommoditySolution, deadline: Deadline,
                engine: str) -> WholeSolution:
     """A negative-cost cycle of unlimited arcs (the LP's ray). Unbounded in whole units
     too once any whole-unit plan exists (the cycle is integral and can be added to it
@@ -379,7 +379,7 @@ def _unbounded(data: WholeData, model: WholeModel, lp: MultiCommoditySolution, d
         values = np.zeros(model.num_vars, dtype=np.int64)
     else:
         feasibility = replace(model, c=np.zeros_like(model.c))
-        result = run_engine(engine, feasibility, None, time_limit=max(0.0, deadline - time.perf_counter()), gap=0.0)
+        result = run_engine(engine, feasibility, None, deadline=deadline, gap=0.0)
         if result.status == "infeasible":
             return _solver_infeasible(data, engine)
         if result.values is None:
