@@ -325,6 +325,20 @@ def test_every_room_has_a_layer():
         assert allowed <= set(ALLOWED), mine
 
 
+#: The most lines a module of the service may have (issue 15: split a longer one into
+#: cohesive modules). Python modules only: the compiled scanner (``model/_arcscan.pyx``)
+#: and the C that Cython generates are not counted.
+MAX_MODULE_LINES = 400
+
+
+def test_no_module_is_longer_than_the_limit():
+    lengths = {str(path.relative_to(SERVICE.parent)): len(path.read_text().splitlines())
+               for path in modules().values() if path.suffix == ".py"}
+    assert len(lengths) > 100  # every module was read, not a stray subset
+    long = sorted(f"{name}: {lines} lines" for name, lines in lengths.items() if lines > MAX_MODULE_LINES)
+    assert not long, f"modules over {MAX_MODULE_LINES} lines (split them):\n" + "\n".join(long)
+
+
 # -- the scanner itself ------------------------------------------------------------------
 
 

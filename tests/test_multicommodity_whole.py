@@ -23,6 +23,7 @@ import numpy as np
 import pytest
 from scipy.optimize import Bounds, LinearConstraint, milp
 
+from service.deadline import Deadline
 from service.errors import SelfCheckFailed
 from service.jobs.model import DONE, RUNNING
 from service.solvers.multicommodity import Commodities, Network, multicommodity_flow
@@ -173,7 +174,7 @@ SEEDS = range(24)
 def test_min_cost_against_milp(seed, single_path):
     net, com = random_instance(seed)
     status, cost, _ = reference(net, com, single_path=single_path)
-    sol = whole_unit_flow(net, com, single_path=single_path, time_limit=20)
+    sol = whole_unit_flow(net, com, single_path=single_path, deadline=Deadline.after(20))
     assert sol.status == status, (sol.status, sol.infeasibility)
     if status == "optimal":
         assert sol.cost == cost and sol.gap == 0.0 and sol.bound == cost
@@ -185,7 +186,7 @@ def test_min_cost_against_milp(seed, single_path):
 def test_max_throughput_against_milp(seed, single_path):
     net, com = random_instance(seed)
     _, cost, most = reference(net, com, single_path=single_path, objective="max-throughput")
-    sol = whole_unit_flow(net, com, objective="max-throughput", single_path=single_path, time_limit=20)
+    sol = whole_unit_flow(net, com, objective="max-throughput", single_path=single_path, deadline=Deadline.after(20))
     assert sol.status == "optimal"
     assert int(np.sum(sol.delivered)) == most and sol.bound == most and sol.gap == 0.0
     assert sol.cost == cost and sol.certificate["cost_bound"] == cost
@@ -213,7 +214,7 @@ def test_cp_sat_agrees_with_milp():
         net, com = random_instance(seed)
         for single_path in (False, True):
             status, cost, _ = reference(net, com, single_path=single_path)
-            sol = whole_unit_flow(net, com, single_path=single_path, time_limit=20, engine="cp-sat")
+            sol = whole_unit_flow(net, com, single_path=single_path, deadline=Deadline.after(20), engine="cp-sat")
             assert sol.status == status and (status != "optimal" or sol.cost == cost)
 
 
@@ -252,7 +253,7 @@ def test_a_time_limited_larger_instance_answers_feasible_with_a_gap_or_optimal_o
     net, com = depot_network(1, cap_low=30, cap_high=80, load=1.5)  # the benchmark's single-path network
     reports = []
     started = time.monotonic()
-    sol = whole_unit_flow(net, com, single_path=True, time_limit=3.0, on_progress=reports.append)
+    sol = whole_unit_flow(net, com, single_path=True, deadline=Deadline.after(3.0), on_progress=reports.append)
     elapsed = time.monotonic() - started
     assert elapsed < 30  # generous: the limit is 3 s; a shared host may be slow to stop
     assert sol.status in ("feasible", "optimal")

@@ -167,7 +167,8 @@ def solve_certified(model: LPModel, *, deadline: Deadline | None = None, dual_si
     return settle_feasible(model, phase1.x, deadline, said=sol.status, dual_simplex=dual_simplex)
 
 
-def settle_feasible(model: LPModel, start: np.ndarray, deadline: Deadline | None, *, said: str, dual_simplex: bool) -> LPResult:
+def settle_feasible(model: LPModel, start: np.ndarray, deadline: Deadline | None, *, said: str,
+                    dual_simplex: bool) -> LPResult:
     """Finish a model GLOP called infeasible or unbounded that has the feasible point
     ``start``: unbounded when an improving direction exists, else solved again."""
     ray = improving_direction(model, deadline)
