@@ -227,8 +227,8 @@ def test_infeasible_single_path_is_proven_by_the_solver_and_names_who_cannot_tra
                   np.array([1.0, 1.0, 1.0, 1.0]))
     com = Commodities(np.array([0]), np.array([3]), np.array([6.0]))
     assert multicommodity_flow(net, com).status == "optimal"
-    assert whole_unit_flow(net, com).status == "optimal"  # whole units may split 3 + 3
-    sol = whole_unit_flow(net, com, single_path=True)
+    assert whole_unit_flow(net, com, deadline=Deadline.after(30)).status == "optimal"  # whole units may split 3 + 3
+    sol = whole_unit_flow(net, com, single_path=True, deadline=Deadline.after(30))
     assert sol.status == "infeasible"
     assert sol.infeasibility["proof"] == "solver" and sol.infeasibility["cannot_travel_alone"].tolist() == [0]
 
@@ -236,7 +236,7 @@ def test_infeasible_single_path_is_proven_by_the_solver_and_names_who_cannot_tra
 def test_lp_infeasible_is_the_proof_when_even_fractions_cannot_move_the_demand():
     net = Network(2, np.array([0]), np.array([1]), np.array([3]), None, np.array([1.0]))
     com = Commodities(np.array([0]), np.array([1]), np.array([5.0]))
-    sol = whole_unit_flow(net, com)
+    sol = whole_unit_flow(net, com, deadline=Deadline.after(30))
     assert sol.status == "infeasible" and sol.infeasibility["proof"] == "lp-relaxation"
     assert sol.infeasibility["max_delivered"] == pytest.approx(3)
 
@@ -245,7 +245,7 @@ def test_negative_cycle_without_limit_is_unbounded_in_whole_units_too():
     net = Network(3, np.array([0, 1, 2, 1]), np.array([1, 2, 1, 2]), np.array([5, 0, 0, 5]),
                   np.array([False, True, True, False]), np.array([1.0, -2.0, 1.0, 1.0]))
     com = Commodities(np.array([0]), np.array([2]), np.array([3.0]))
-    sol = whole_unit_flow(net, com)
+    sol = whole_unit_flow(net, com, deadline=Deadline.after(30))
     assert sol.status == "unbounded" and sol.certificate["integral_plan"]["integral"] is True
 
 
@@ -285,8 +285,8 @@ def _data(net, com, single_path):
 
 def test_check_plan_fails_on_wrong_plans():
     net, com = _scenario_data()
-    units = whole_unit_flow(net, com)
-    path = whole_unit_flow(net, com, single_path=True)
+    units = whole_unit_flow(net, com, deadline=Deadline.after(30))
+    path = whole_unit_flow(net, com, single_path=True, deadline=Deadline.after(30))
     data, pdata = _data(net, com, False), _data(net, com, True)
     good = dict(cost=526, bound=526, gap=0.0)
     check_plan(data, units.flows, units.delivered, None, **good)  # the right plan passes
