@@ -47,6 +47,7 @@ class LPSolution:
 
 
 def lp_engine(**extra) -> dict:
+    """The ``engine`` member of an LP answer: GLOP and its OR-Tools version, plus ``extra``."""
     return {"kind": "lp", "solver": "OR-Tools GLOP", "version": ORTOOLS_VERSION, **extra}
 
 

@@ -51,10 +51,12 @@ class LPModel:
 
     @property
     def num_rows(self) -> int:
+        """Constraints: the rows of ``matrix``."""
         return int(self.matrix.shape[0])
 
     @property
     def num_cols(self) -> int:
+        """Variables: the columns of ``matrix``."""
         return int(self.matrix.shape[1])
 
 
@@ -114,6 +116,7 @@ def tidy(model: LPModel, x: np.ndarray) -> np.ndarray:
 
 
 def timed_out() -> LPResult:
+    """The ``time_limit`` result: the deadline passed before any answer to check."""
     return LPResult("time_limit", certificate={"checked": False, "reason": "the time limit stopped the solver "
                                                                            "before it had an answer to check"})
 

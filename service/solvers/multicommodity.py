@@ -38,10 +38,7 @@ from .front import maximum_flow
 from .graph import Graph
 from .glop import beyond_range, incidence_matrix, lp_engine
 from .lp import LPModel, LPResult, settle_feasible, solve_certified
-
-#: Relative slack of the delivery held in the second (cost) model of max-throughput.
-HOLD_SLACK = 1e-9
-
+from .multicommodity_checks import HOLD_SLACK, check_flows, check_throughput, flow_tolerance
 
 @dataclass
 class Commodities:
@@ -51,6 +48,7 @@ class Commodities:
 
     @property
     def count(self) -> int:
+        """Number of commodities."""
         return int(self.sources.size)
 
 
@@ -200,6 +198,29 @@ def _solve(net: Network, com: Commodities, objective: str, deadline: Deadline | 
 
 
 def multicommodity_answer(net: Network, com: Commodities, result: LPResult) -> MultiCommoditySolution:
+    """The certified answer of an optimal min-cost model: every demand met.
+
+    Capacity prices are the capacity rows' duals with the sign flipped (raising a
+    capacity can only lower the cost), then checked with the flows by
+    :func:`check_flows`.
+
+    Parameters
+    ----------
+    net : Network
+    com : Commodities
+    result : LPResult
+        An optimal solve of :func:`min_cost_model`.
+
+    Returns
+    -------
+    MultiCommoditySolution
+
+    Raises
+    ------
+    SelfCheckFailed
+        A capacity price is negative beyond the dual tolerance, or the flows fail
+        their check.
+    """
     K, m = com.count, net.num_arcs
     flows = result.x.reshape(K, m)
     prices = _prices(net, -result.duals[K * net.num_nodes:], result.certificate)
@@ -241,7 +262,7 @@ def _max_throughput(net: Network, com: Commodities, deadline: Deadline | None) -
     flows = second.x[:K * m].reshape(K, m)
     delivered = second.x[K * m:]
     certificate = check_flows(net, com, flows, delivered, prices, second.certificate)
-    certificate = _check_throughput(certificate, first, delivered)
+    certificate = check_throughput(certificate, first, delivered)
     return _answer(second, flows, delivered, prices, certificate)
 
 
@@ -262,89 +283,6 @@ def _prices(net: Network, row_prices: np.ndarray, certificate: dict) -> np.ndarr
         raise SelfCheckFailed("self-check failed: a capacity price is negative")
     prices[np.abs(prices) <= tol] = 0.0
     return np.maximum(prices, 0.0)
-
-
-def flow_tolerance(total: float) -> float:
-    """Absolute slack of a total (of demand or delivery): ``REL`` times its magnitude."""
-    return lp_checks.REL * abs(total)
-
-
-def check_flows(net: Network, com: Commodities, flows: np.ndarray, delivered: np.ndarray, prices: np.ndarray,
-                lp_certificate: dict) -> dict:
-    """Re-check a multi-commodity plan from the flows alone.
-
-    Conservation of every commodity at every node (net outflow = delivered at the
-    source, -delivered at the sink, 0 elsewhere), non-negative flows, shared
-    capacities, delivery within demand, the cost recomputed, and complementary
-    slackness of the capacity prices (a priced arc is full). Each holds to ``REL``
-    times its own magnitude: a commodity at a node against its throughput there and
-    its delivery, an arc against its capacity (or the flow it carries), a delivery
-    against its demand. The LP certificate (residuals, duality gap) is merged in.
-
-    Raises
-    ------
-    SelfCheckFailed
-    """
-    K, n, m = com.count, net.num_nodes, net.num_arcs
-    rel = lp_checks.REL
-    offset = (n * np.arange(K))[:, None]
-    tails, heads = (offset + net.tail[None, :]).ravel(), (offset + net.head[None, :]).ravel()
-    balance = np.bincount(tails, flows.ravel(), K * n) - np.bincount(heads, flows.ravel(), K * n)
-    size = np.abs(flows.ravel())
-    through = np.maximum(np.bincount(tails, size, K * n), np.bincount(heads, size, K * n))
-    expected = np.zeros(K * n)
-    np.add.at(expected, n * np.arange(K) + com.sources, delivered)
-    np.add.at(expected, n * np.arange(K) + com.sinks, -delivered)
-    node_allowed = rel * (through + np.abs(expected))
-    off = np.abs(balance - expected)
-    total = flows.sum(axis=0)
-    upper = net.capacity.astype(np.float64)
-    if net.unlimited is not None:
-        upper[net.unlimited] = np.inf
-    arc_size = np.where(np.isfinite(upper), upper, np.abs(flows).sum(axis=0))
-    arc_allowed = rel * arc_size
-    over = lp_checks.bound_violation(total, np.zeros(m), upper)
-    negative = np.maximum(-flows, 0).max(axis=0) if flows.size else np.zeros(m)
-    short = np.maximum(delivered - com.demands, 0.0)
-    if (off > node_allowed).any():
-        raise SelfCheckFailed(f"self-check failed: a commodity's flow is not conserved (imbalance "
-                              f"{float(off.max()):g})")
-    if (over > arc_allowed).any() or (negative > arc_allowed).any():
-        raise SelfCheckFailed(f"self-check failed: an arc's shared capacity is exceeded by "
-                              f"{float(max(over.max(), negative.max())):g}")
-    if (short > rel * com.demands).any():
-        raise SelfCheckFailed("self-check failed: a commodity is delivered beyond its demand")
-    priced = prices > 0
-    slack = np.abs(total - upper)
-    if (slack[priced] > arc_allowed[priced]).any():
-        raise SelfCheckFailed("self-check failed: an arc with a positive capacity price is not full")
-    cost = float(net.cost @ total)
-    return {
-        "checked": True,
-        "cost": cost,
-        "max_imbalance": float(off.max()) if off.size else 0.0,
-        "max_capacity_excess": float(max(over.max(initial=0.0), negative.max(initial=0.0))),
-        "primal_residual": lp_certificate["primal_residual"],
-        "dual_residual": lp_certificate["dual_residual"],
-        "dual_bound": lp_certificate["dual_objective"],
-        "gap": lp_certificate["gap"],
-        "duals_unique": lp_certificate["duals_unique"],
-        "degenerate": lp_certificate["degenerate"],
-        "tolerance": max(float(node_allowed.max(initial=0.0)), float(arc_allowed.max(initial=0.0))),
-        "relative_tolerance": rel,
-        "cost_tolerance": lp_certificate["tolerance"]["gap"],
-    }
-
-
-def _check_throughput(certificate: dict, first: LPResult, delivered: np.ndarray) -> dict:
-    """The plan delivers the proven most (the delivery model's dual bound)."""
-    bound = first.certificate["dual_objective"]
-    total = float(delivered.sum())
-    tol = first.certificate["tolerance"]["gap"] + HOLD_SLACK * max(1.0, abs(bound))
-    if total < bound - tol:
-        raise SelfCheckFailed(f"self-check failed: the plan delivers {total:g}, less than the proven most {bound:g}")
-    return {**certificate, "delivered_total": total, "delivery_bound": bound,
-            "delivery_gap": first.certificate["gap"], "prices_unique": first.certificate["duals_unique"]}
 
 
 def _explain_infeasible(net: Network, com: Commodities, best: LPResult, total: float) -> MultiCommoditySolution:

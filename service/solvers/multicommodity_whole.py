@@ -32,7 +32,6 @@ import logging
 import math
 import time
 from dataclasses import dataclass, field, replace
-from typing import Callable
 
 import numpy as np
 
@@ -40,16 +39,13 @@ from ..deadline import Deadline
 from ..errors import SolverFailure
 from .multicommodity import Commodities, MultiCommoditySolution, Network, multicommodity_flow
 from .whole_checks import check_flows, check_plan, plan_cost, relative_gap
-from .whole_engines import EngineResult, engine_info, run_engine
+from .whole_engines import engine_info, run_engine
 from .whole_heuristic import Plan, cheapest_path, kept_from_lp, read_plan, route_greedily
-from .whole_model import (WholeData, WholeModel, build_model, cost_phase, cost_scale, flow_upper, limited_mask,
+from .whole_model import (WholeData, WholeModel, build_model, cost_scale, flow_upper, limited_mask,
                           no_detours, trivial_bound, whole_data_issue)
+from .whole_search import BOUND_SLACK, OnProgress, Search, hold_delivery, plan_value, run_search
 
 log = logging.getLogger("sluice.solver")
-
-#: Relative slack taken off a floating-point bound (the LP's, SCIP's) before it is
-#: rounded to a whole unit of the objective: a bound a hair too good would be wrong.
-BOUND_SLACK = 1e-9
 
 #: Share of the time left that fix-and-solve may take (min-cost). On the benchmark it
 #: found the integral plan within 0.001% of the LP bound in under 2 s, where the full
@@ -59,10 +55,6 @@ FIX_SHARE = 0.25
 
 #: The certificate of an answer without a plan: nothing to check but the reason.
 NO_PLAN = {"checked": True, "reason": "no plan within the time limit"}
-
-#: ``on_progress(report)``: a dict with ``phase``, ``incumbent``, ``bound``, ``gap``, ``seconds``.
-OnProgress = Callable[[dict], None]
-
 
 @dataclass
 class WholeSolution:
@@ -77,57 +69,6 @@ class WholeSolution:
     unbounded: dict | None = None
     certificate: dict = field(default_factory=lambda: {"checked": False})
     engine: dict = field(default_factory=lambda: engine_info("scip"))
-
-
-@dataclass
-class _Search:
-    """The best plan in hand, the best objective the engine has reported (its plan is
-    read when it stops) and the best bound, in model units; reports progress."""
-
-    data: WholeData
-    model: WholeModel
-    target: float
-    started: float
-    on_progress: OnProgress | None
-    phase: str
-    bound: int
-    plan: Plan | None = None
-    value: int | None = None  # objective of ``plan``
-    found: int | None = None  # the engine's incumbent while it runs
-
-    def better(self, a: int | None, b: int | None) -> bool:
-        """Whether objective ``a`` beats ``b`` (None: no plan)."""
-        return b is None or (a is not None and (a > b if self.model.maximize else a < b))
-
-    def tighten(self, bound: int | None) -> None:
-        if bound is not None and (bound < self.bound if self.model.maximize else bound > self.bound):
-            self.bound = bound
-
-    @property
-    def best(self) -> int | None:
-        return self.found if self.better(self.found, self.value) else self.value
-
-    @property
-    def gap(self) -> float | None:
-        return None if self.best is None else relative_gap(self.best, self.bound)
-
-    def closed(self) -> bool:
-        return self.gap is not None and self.gap <= self.target
-
-    def offer(self, plan: Plan) -> None:
-        value = plan_value(self.data, self.model, plan)
-        if self.better(value, self.value):
-            self.plan, self.value = plan, value
-            self.report()
-
-    def report(self) -> None:
-        if self.on_progress is None:
-            return
-        unit = 1 if self.model.maximize else 10**self.data.scale
-        best = self.best
-        self.on_progress({"phase": self.phase, "incumbent": None if best is None else best / unit,
-                          "bound": self.bound / unit, "gap": self.gap,
-                          "seconds": round(time.perf_counter() - self.started, 3)})
 
 
 def whole_unit_flow(net: Network, com: Commodities, *, objective: str = "min-cost", single_path: bool = False,
@@ -174,7 +115,7 @@ def whole_unit_flow(net: Network, com: Commodities, *, objective: str = "min-cos
     model = build_model(data)
     if lp is not None and lp.status == "unbounded":
         return _unbounded(data, model, lp, deadline, engine)
-    search = _Search(data, model, gap, started, on_progress, "deliver" if data.throughput else "cost",
+    search = Search(data, model, gap, started, on_progress, "deliver" if data.throughput else "cost",
                      trivial_bound(model))
     solved = lp is not None and lp.status == "optimal"
     if solved:
@@ -187,7 +128,7 @@ def whole_unit_flow(net: Network, com: Commodities, *, objective: str = "min-cos
     if solved and not data.throughput:
         _fix_and_solve(search, lp, engine, Deadline.after(FIX_SHARE * deadline.remaining()))
     hint = search.plan.values(data) if search.plan is not None else _rounded_lp(data, lp)
-    result = _search(search, engine, hint, deadline)
+    result = run_search(search, engine, hint, deadline)
     if result is not None and result.status == "infeasible":
         if search.plan is not None:
             raise SolverFailure("the engine calls the problem infeasible, yet a plan was found")
@@ -196,7 +137,7 @@ def whole_unit_flow(net: Network, com: Commodities, *, objective: str = "min-cos
         return WholeSolution("time_limit", bound=_in_units(data, search.model, search.bound),
                              certificate=dict(NO_PLAN),
                              engine=engine_info(engine))
-    cost_bound = _hold_delivery(search, engine, deadline) if data.throughput else None
+    cost_bound = hold_delivery(search, engine, deadline) if data.throughput else None
     return _answer(data, search, cost_bound, engine)
 
 
@@ -229,7 +170,7 @@ def _lp_bound(data: WholeData, lp: MultiCommoditySolution) -> int:
     return math.ceil(best - BOUND_SLACK * max(1.0, abs(best)))
 
 
-def _fix_and_solve(search: _Search, lp: MultiCommoditySolution, engine: str, until: Deadline) -> None:
+def _fix_and_solve(search: Search, lp: MultiCommoditySolution, engine: str, until: Deadline) -> None:
     """min-cost: keep the commodities the LP routes in whole units as they are and solve
     the others exactly (the same engine, until ``until``) on the capacity they leave.
 
@@ -278,63 +219,11 @@ def _rounded_lp(data: WholeData, lp: MultiCommoditySolution | None) -> np.ndarra
     return np.concatenate([x, np.asarray(delivered, dtype=np.int64)])
 
 
-def plan_value(data: WholeData, model: WholeModel, plan: Plan) -> int:
-    """The model's objective at ``plan``: units delivered (maximising) or scaled cost."""
-    return int(plan.delivered.sum()) if model.maximize else plan_cost(data, plan.flows(data))
-
-
-def _search(search: _Search, engine: str, hint, deadline: Deadline) -> EngineResult | None:
-    """Run the engine on ``search.model`` until the gap closes or the time is up."""
-    if search.closed() or deadline.expired():
-        return None
-
-    def on_plan(objective: float, bound: float, seconds: float) -> bool:
-        if math.isfinite(objective) and search.better(int(round(objective)), search.found):
-            search.found = int(round(objective))
-        search.tighten(_engine_bound(bound, search.model))
-        search.report()
-        return search.closed()
-
-    # Without a listener the engine's own gap test stops it (its bound is at least the
-    # LP's), so the callback, which costs SCIP an event handler, is only for progress.
-    result = run_engine(engine, search.model, hint, deadline=deadline, gap=search.target,
-                        on_plan=on_plan if search.on_progress is not None else None)
-    search.found = None
-    search.tighten(_engine_bound(result.bound, search.model))
-    if result.values is not None:
-        search.offer(read_plan(search.data, result.values))
-    return result
-
-
-def _engine_bound(bound: float | None, model: WholeModel) -> int | None:
-    """An engine's bound in whole model units (the objective is integral)."""
-    if bound is None or not math.isfinite(bound):
-        return None
-    slack = BOUND_SLACK * max(1.0, abs(bound))
-    return math.floor(bound + slack) if model.maximize else math.ceil(bound - slack)
-
-
-def _hold_delivery(search: _Search, engine: str, deadline: Deadline) -> int | None:
-    """max-throughput, second phase: the least cost with the delivery held. Returns
-    the proven cost bound (scaled), or None when the delivery is not proven yet."""
-    if not search.closed():
-        return None
-    data = search.data
-    model = cost_phase(search.model, data, int(search.plan.delivered.sum()))
-    held = _Search(data, model, search.target, search.started, search.on_progress, "cost", trivial_bound(model))
-    held.offer(search.plan)
-    result = _search(held, engine, search.plan.values(data), deadline)
-    if result is not None and result.status == "infeasible":
-        raise SolverFailure("the engine found no plan delivering as much as the plan it was given")
-    search.plan = held.plan
-    return held.bound
-
-
 def _in_units(data: WholeData, model: WholeModel, value: int) -> float:
     return value if model.maximize else value / 10**data.scale
 
 
-def _answer(data: WholeData, search: _Search, cost_bound: int | None, engine: str) -> WholeSolution:
+def _answer(data: WholeData, search: Search, cost_bound: int | None, engine: str) -> WholeSolution:
     plan = search.plan
     flows = plan.flows(data)
     cost = plan_cost(data, flows)
