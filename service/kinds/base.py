@@ -71,8 +71,8 @@ class Kind:
         ``parse(body, limits) -> Problem``; raises :class:`~service.errors.InputError`.
     solve : callable
         ``solve(problem, deadline) -> dict``, the response document; ``deadline`` (a
-        :class:`~service.deadline.Deadline`, or ``None`` for no limit) is the solve's
-        time budget, which the solvers read what is left of.
+        :class:`~service.deadline.Deadline`, made by the caller: the HTTP layer or the
+        job runner) is the solve's time budget, which the solvers read what is left of.
     query_schema : type, optional
         Schema of the question about a stored network (``POST /v1/networks/{n}/{name}``,
         without ``changes``); given together with ``from_network``.
@@ -106,7 +106,7 @@ class Kind:
     response_schema: type
     example: str
     parse: Callable[[Any, Limits], Problem]
-    solve: Callable[[Problem, Deadline | None], dict]
+    solve: Callable[[Problem, Deadline], dict]
     query_schema: type | None = None
     from_network: Callable[[Any, Any, Limits], Problem] | None = None
     dimacs: str | None = None
