@@ -38,6 +38,9 @@ from time import monotonic
 import orjson
 from blake3 import blake3
 
+from .config import Settings
+from .errors import PROBLEM_BASE
+
 #: Bodies from this size on are hashed while they arrive.
 HASH_FROM = 2 << 20
 #: Bodies from this size on take a heavy slot (about where a problem goes to a solver process).
@@ -58,12 +61,12 @@ class IntakeLimits:
     """How long and how large a request body may be."""
 
     max_body: int
-    idle_timeout: float = 10.0
-    min_rate: float = 1024.0
-    threads: int = 4
+    idle_timeout: float = Settings.body_timeout
+    min_rate: float = Settings.body_min_rate
+    threads: int = Settings.threads
     probe_threads: int = 2
-    heavy_slots: int = 2
-    queue_wait: float = 2.0
+    heavy_slots: int = Settings.solver_processes
+    queue_wait: float = Settings.queue_wait
 
 
 class _Refused(Exception):
@@ -115,8 +118,6 @@ async def run_in(pool: ThreadPoolExecutor, fn, environ: dict):
 
 
 def _problem(status: int, slug: str, title: str, detail: str) -> bytes:
-    from .errors import PROBLEM_BASE
-
     return orjson.dumps({"type": PROBLEM_BASE + slug, "title": title, "status": status, "detail": detail})
 
 

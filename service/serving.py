@@ -26,7 +26,9 @@ def default_workers() -> int:
 
 
 def gunicorn_defaults(host: str = "127.0.0.1", port: int = 8000, workers: int | None = None) -> dict:
-    time_limit = float(os.environ.get("SLUICE_TIME_LIMIT") or 30)
+    from .config import Settings
+
+    time_limit = float(os.environ.get("SLUICE_TIME_LIMIT") or Settings.time_limit)  # the one default
     level = os.environ.get("SLUICE_LOG_LEVEL", "info")
     bind = [f"{host}:{port}"]
     metrics = os.environ.get("SLUICE_METRICS") or ""

@@ -157,7 +157,7 @@ def test_answers_that_are_not_final_are_never_cached(store_app):
     from service.api import cache
 
     calls = []
-    kind = SimpleNamespace(name="stand-in", solve=lambda problem, limits: calls.append(1) or
+    kind = SimpleNamespace(name="stand-in", solve=lambda problem, deadline: calls.append(1) or
                            {"status": "time_limit", "digest": problem.digest},
                            size=lambda problem: problem.size, for_solver_process=None, honours_time_limit=False)
     problem = SimpleNamespace(digest="sha256:" + "c" * 64, options={"cache": "use"}, size=1)  # solved inline

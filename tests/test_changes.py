@@ -5,6 +5,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
+from service.deadline import Deadline
 from service.errors import InputError
 from service.kinds import KINDS, Limits
 from service.model.arcs import build_network, read_arcs
@@ -139,7 +140,7 @@ def test_what_if_max_flow_matches_networkx_on_the_changed_arcs(seed):
     kind = KINDS["maxflow"]
     net = apply_changes(network_of(arcs), changes, key_index={a["key"]: i for i, a in enumerate(arcs)})
     problem = kind.from_network(net, {"source": source, "sink": sink}, Limits())
-    result = kind.solve(problem, Limits())
+    result = kind.solve(problem, Deadline.after(60))
     try:
         expected = max_flow_value(expected_arcs, source, sink)
     except Exception as exc:  # networkx raises NetworkXUnbounded for an unlimited s-t path

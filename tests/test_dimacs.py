@@ -11,6 +11,7 @@ import numpy as np
 import pytest
 
 from service.api import create_app
+from service.deadline import Deadline
 from service.errors import InputError, ProblemTooLarge
 from service.kinds import KINDS, Limits
 from service.kinds.verify import read_min_cost
@@ -129,8 +130,8 @@ def test_unlimited_arcs_and_decimals_survive_with_a_stated_stand_in():
     text = to_dimacs(problem.network, "max", source=problem.source, sink=problem.sink)
     big = stand_in_capacity(problem.network)
     assert big == 7.5 and f"written with capacity {big}" in text and "a 1 2 2.5" in text
-    again = KINDS["maxflow"].solve(KINDS["maxflow"].parse(parse_dimacs(text).request(), Limits()), Limits())
-    first = KINDS["maxflow"].solve(problem, Limits())
+    again = KINDS["maxflow"].solve(KINDS["maxflow"].parse(parse_dimacs(text).request(), Limits()), Deadline.after(60))
+    first = KINDS["maxflow"].solve(problem, Deadline.after(60))
     assert again["value"] == first["value"] == 6.5  # the stand-in never binds
 
 

@@ -33,7 +33,6 @@ PENDING: dict[str, str] = {
     "service/drawing": f"{_ISSUE}, drawing slice",
     "service/intake.py": f"{_ISSUE}, with the worker-front edits",
     "service/serving.py": f"{_ISSUE}, with the worker-front edits",
-    "service/solvers/lp.py": f"{_ISSUE}, after lp.py is split",
 }
 
 

@@ -24,6 +24,7 @@ import pytest
 from hypothesis import HealthCheck, event, given, settings
 from hypothesis import strategies as st
 
+from service.deadline import Deadline
 from service.model.fastarcs import decode_arcs_body
 from service.kinds import KINDS
 from service.kinds.base import Limits
@@ -267,7 +268,7 @@ def answers_on_both_paths(raw: bytes) -> list:
     for body in (decode_arcs_body(raw, min_bytes=0), orjson.loads(raw)):
         if body is None:
             continue  # the scanner stepped aside: the ordinary path answers alone
-        out = kind.solve(kind.parse(body, Limits()), Limits())
+        out = kind.solve(kind.parse(body, Limits()), Deadline.after(60))
         answers.append((out["status"], out["value"], out["engine"].get("decimal_scale"),
                         np.asarray(out.get("flows", [])).tolist()))
     return answers

@@ -15,6 +15,7 @@ import numpy as np
 import pytest
 
 import service.solvers.expansion as expansion
+from service.deadline import Deadline
 from service.errors import InputError, SelfCheckFailed
 from service.solvers.expansion import Lanes, cheapest_expansion
 from service.solvers.expansion_checks import check_plan, check_shortfall_cut
@@ -145,7 +146,7 @@ def test_a_real_time_limit_still_answers_with_a_checked_plan():
     rng = np.random.default_rng(3)
     lanes = random_lanes(rng, 150, 900, widen_share=1.0, fixed=True, target=400)
     lanes.tail[:40], lanes.head[40:80] = 0, 149
-    solution, certificate = cheapest_expansion(lanes, time_limit=0.05)
+    solution, certificate = cheapest_expansion(lanes, deadline=Deadline.after(0.05))
     if solution.status != "infeasible":
         assert solution.status in ("optimal", "feasible") and solution.bound <= solution.cost
         replay(lanes, solution)

@@ -14,6 +14,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 
+from service.deadline import Deadline
 from service.jobs.frames import HEADER, _advance, read_frame, write_frame
 from service.jobs.runner import PIPE_SIZE, ChildLost, SolverPool, SolverProcess, unpack
 from service.kinds import KINDS, Limits
@@ -170,10 +171,10 @@ def random_maxflow(m: int, seed: int = 3):
 
 def test_a_pooled_solve_returns_exactly_the_inline_answer():
     kind, problem = KINDS["maxflow"], random_maxflow(300_000)
-    inline = kind.solve(problem, Limits())
+    inline = kind.solve(problem, Deadline.after(120))
     pool = SolverPool(1)
     try:
-        pooled, _ = unpack(pool.run(("solve", kind.name, problem, Limits()), deadline=time.monotonic() + 120))
+        pooled, _ = unpack(pool.run(("solve", kind.name, problem, None), deadline=Deadline.after(120)))
     finally:
         pool.close()
     assert pooled["value"] == inline["value"] > 0
@@ -186,12 +187,12 @@ def test_a_pooled_solve_returns_exactly_the_inline_answer():
 def test_a_child_killed_while_a_large_frame_is_written_is_lost_not_hung():
     proc = SolverProcess()
     os.kill(proc.pid, signal.SIGSTOP)  # reads nothing: the write fills the pipe and blocks
-    message = ("solve", "maxflow", np.zeros(4_000_000, dtype=np.int64), Limits())  # 32 MB >> the pipe
+    message = ("solve", "maxflow", np.zeros(4_000_000, dtype=np.int64), None)  # 32 MB >> the pipe
     outcome: list = []
 
     def run():
         try:
-            proc.run(message, deadline=time.monotonic() + 60)
+            proc.run(message, deadline=Deadline.after(60))
         except ChildLost as exc:
             outcome.append(exc)
 
@@ -204,4 +205,4 @@ def test_a_child_killed_while_a_large_frame_is_written_is_lost_not_hung():
     assert not thread.is_alive() and len(outcome) == 1
     assert not proc.alive
     with pytest.raises(ChildLost):  # a dead process refuses further work instead of writing to a stale fd
-        proc.run(("solve", "maxflow", None, Limits()))
+        proc.run(("solve", "maxflow", None, None))

@@ -90,7 +90,7 @@ THROWAWAY = textwrap.dedent('''
             raise InputError.at("/values", "is required: a list of integers")
         return SumProblem(body["values"], {}, "sha256:" + "0" * 63 + str(len(body["values"]) % 10))
 
-    def solve(problem, limits):
+    def solve(problem, deadline):
         return {"total": sum(problem.values), "digest": problem.digest}
 
     KINDS["sum"] = Kind(name="sum", summary="Adds whole numbers (a throwaway kind of a test)",
@@ -128,16 +128,18 @@ def test_a_new_kind_needs_only_its_declaration_in_the_registry():
     assert out["what_if"] == 404  # no from_network declared: no what-if route
 
 
-def test_limits_and_settings_agree_on_their_defaults(monkeypatch):
+def test_limits_take_their_defaults_and_values_from_the_settings(monkeypatch):
     from dataclasses import fields
 
     from service.config import Settings
     from service.kinds import Limits
 
     shared = [f.name for f in fields(Limits) if hasattr(Settings, f.name)]
-    assert {"max_arcs", "max_nodes", "time_limit", "max_commodities"} <= set(shared)
-    for name in shared:
-        assert getattr(Limits(), name) == getattr(Settings(), name), name
+    assert {"max_arcs", "max_nodes", "max_commodities"} <= set(shared)
+    assert not hasattr(Limits(), "time_limit")  # time is a solve's Deadline, not a parse limit
+    assert Limits() == Limits.from_settings(Settings())
+    changed = Settings(**{name: getattr(Settings(), name) + 1 for name in shared})
+    assert all(getattr(Limits.from_settings(changed), name) == getattr(changed, name) for name in shared)
     for var in [v for v in __import__("os").environ if v.startswith("SLUICE_")]:
         monkeypatch.delenv(var)
     assert Settings.from_env() == Settings()  # unset variables keep the one written default

@@ -9,6 +9,7 @@ import numpy as np
 import pytest
 import scipy.sparse as sp
 
+from service.deadline import Deadline
 from service.solvers.lp import LPModel, solve_certified, solve_lp
 from tests.lp_reference import INF, duality_figures, linprog_row_duals, linprog_solve, random_model
 
@@ -270,7 +271,7 @@ def test_time_limit_status():
     A = sp.random(m, n, density=0.01, random_state=1, format="csr")
     x0 = rng.uniform(0, 1, n)
     model = LPModel(-rng.uniform(0, 1, n), A, np.full(m, -INF), A @ x0 + 1, np.zeros(n), np.full(n, 10.0))
-    result = solve_certified(model, time_limit=0.01)  # the full solve takes about 2 s here
+    result = solve_certified(model, deadline=Deadline.after(0.01))  # the full solve takes about 2 s here
     assert result.status == "time_limit"
     assert result.certificate["checked"] is False
 

@@ -8,6 +8,7 @@ import json
 import numpy as np
 import pytest
 
+from service.deadline import Deadline
 from service.kinds import KINDS, Limits
 from service.model.arcs import build_network, read_arcs
 from service.model.nodes import read_nodes
@@ -163,7 +164,7 @@ def test_from_network_matches_a_full_request(client):
     supplies = [{"id": n["id"], "supply": n["supply"]} for n in SCENARIO["nodes"] if "supply" in n]
     kind = KINDS["mincostflow"]
     problem = kind.from_network(network, {"supplies": supplies, "options": {"detail": ["flows"]}}, Limits())
-    out = kind.solve(problem, Limits())
+    out = kind.solve(problem, Deadline.after(60))
     direct = post(client, "/v1/mincostflow", {**SCENARIO, "options": {"detail": ["flows"]}}).get_json()
     assert out["flows"].tolist() == direct["flows"] and out["cost"] == direct["cost"]
     assert problem.digest == direct["digest"]

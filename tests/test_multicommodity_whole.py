@@ -23,6 +23,7 @@ import numpy as np
 import pytest
 from scipy.optimize import Bounds, LinearConstraint, milp
 
+from service.deadline import Deadline
 from service.errors import SelfCheckFailed
 from service.jobs.model import DONE, RUNNING
 from service.solvers.multicommodity import Commodities, Network, multicommodity_flow
@@ -174,7 +175,7 @@ SEEDS = range(24)
 def test_min_cost_against_milp(seed, single_path):
     net, com = random_instance(seed)
     status, cost, _ = reference(net, com, single_path=single_path)
-    sol = whole_unit_flow(net, com, single_path=single_path, time_limit=20)
+    sol = whole_unit_flow(net, com, single_path=single_path, deadline=Deadline.after(20))
     assert sol.status == status, (sol.status, sol.infeasibility)
     if status == "optimal":
         assert sol.cost == cost and sol.gap == 0.0 and sol.bound == cost
@@ -186,7 +187,7 @@ def test_min_cost_against_milp(seed, single_path):
 def test_max_throughput_against_milp(seed, single_path):
     net, com = random_instance(seed)
     _, cost, most = reference(net, com, single_path=single_path, objective="max-throughput")
-    sol = whole_unit_flow(net, com, objective="max-throughput", single_path=single_path, time_limit=20)
+    sol = whole_unit_flow(net, com, objective="max-throughput", single_path=single_path, deadline=Deadline.after(20))
     assert sol.status == "optimal"
     assert int(np.sum(sol.delivered)) == most and sol.bound == most and sol.gap == 0.0
     assert sol.cost == cost and sol.certificate["cost_bound"] == cost
@@ -214,7 +215,7 @@ def test_cp_sat_agrees_with_milp():
         net, com = random_instance(seed)
         for single_path in (False, True):
             status, cost, _ = reference(net, com, single_path=single_path)
-            sol = whole_unit_flow(net, com, single_path=single_path, time_limit=20, engine="cp-sat")
+            sol = whole_unit_flow(net, com, single_path=single_path, deadline=Deadline.after(20), engine="cp-sat")
             assert sol.status == status and (status != "optimal" or sol.cost == cost)
 
 
@@ -227,8 +228,8 @@ def test_infeasible_single_path_is_proven_by_the_solver_and_names_who_cannot_tra
                   np.array([1.0, 1.0, 1.0, 1.0]))
     com = Commodities(np.array([0]), np.array([3]), np.array([6.0]))
     assert multicommodity_flow(net, com).status == "optimal"
-    assert whole_unit_flow(net, com).status == "optimal"  # whole units may split 3 + 3
-    sol = whole_unit_flow(net, com, single_path=True)
+    assert whole_unit_flow(net, com, deadline=Deadline.after(30)).status == "optimal"  # whole units may split 3 + 3
+    sol = whole_unit_flow(net, com, single_path=True, deadline=Deadline.after(30))
     assert sol.status == "infeasible"
     assert sol.infeasibility["proof"] == "solver" and sol.infeasibility["cannot_travel_alone"].tolist() == [0]
 
@@ -236,7 +237,7 @@ def test_infeasible_single_path_is_proven_by_the_solver_and_names_who_cannot_tra
 def test_lp_infeasible_is_the_proof_when_even_fractions_cannot_move_the_demand():
     net = Network(2, np.array([0]), np.array([1]), np.array([3]), None, np.array([1.0]))
     com = Commodities(np.array([0]), np.array([1]), np.array([5.0]))
-    sol = whole_unit_flow(net, com)
+    sol = whole_unit_flow(net, com, deadline=Deadline.after(30))
     assert sol.status == "infeasible" and sol.infeasibility["proof"] == "lp-relaxation"
     assert sol.infeasibility["max_delivered"] == pytest.approx(3)
 
@@ -245,7 +246,7 @@ def test_negative_cycle_without_limit_is_unbounded_in_whole_units_too():
     net = Network(3, np.array([0, 1, 2, 1]), np.array([1, 2, 1, 2]), np.array([5, 0, 0, 5]),
                   np.array([False, True, True, False]), np.array([1.0, -2.0, 1.0, 1.0]))
     com = Commodities(np.array([0]), np.array([2]), np.array([3.0]))
-    sol = whole_unit_flow(net, com)
+    sol = whole_unit_flow(net, com, deadline=Deadline.after(30))
     assert sol.status == "unbounded" and sol.certificate["integral_plan"]["integral"] is True
 
 
@@ -253,7 +254,7 @@ def test_a_time_limited_larger_instance_answers_feasible_with_a_gap_or_optimal_o
     net, com = depot_network(1, cap_low=30, cap_high=80, load=1.5)  # the benchmark's single-path network
     reports = []
     started = time.monotonic()
-    sol = whole_unit_flow(net, com, single_path=True, time_limit=3.0, on_progress=reports.append)
+    sol = whole_unit_flow(net, com, single_path=True, deadline=Deadline.after(3.0), on_progress=reports.append)
     elapsed = time.monotonic() - started
     assert elapsed < 30  # generous: the limit is 3 s; a shared host may be slow to stop
     assert sol.status in ("feasible", "optimal")
@@ -285,8 +286,8 @@ def _data(net, com, single_path):
 
 def test_check_plan_fails_on_wrong_plans():
     net, com = _scenario_data()
-    units = whole_unit_flow(net, com)
-    path = whole_unit_flow(net, com, single_path=True)
+    units = whole_unit_flow(net, com, deadline=Deadline.after(30))
+    path = whole_unit_flow(net, com, single_path=True, deadline=Deadline.after(30))
     data, pdata = _data(net, com, False), _data(net, com, True)
     good = dict(cost=526, bound=526, gap=0.0)
     check_plan(data, units.flows, units.delivered, None, **good)  # the right plan passes

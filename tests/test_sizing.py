@@ -89,7 +89,7 @@ def test_work_above_the_configured_limits_is_a_413_naming_the_limit(tmp_path):
 
 def test_a_solver_process_past_its_memory_ceiling_is_replaced_after_its_solve():
     problem = parsed("multicommodity", multicommodity_body(2000, 60))
-    message = ("solve", "multicommodity", problem, Limits())
+    message = ("solve", "multicommodity", problem, None)
     for ceiling, replaced in ((None, False), (1, True)):  # 1 MB: every process is past it
         pool = SolverPool(1, max_rss_mb=ceiling)
         try:

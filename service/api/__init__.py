@@ -66,8 +66,7 @@ def create_app(config: Settings | dict | None = None) -> Flask:
     app.json = OrjsonProvider(app)
     app.config["MAX_CONTENT_LENGTH"] = settings.max_body_bytes
     app.url_map.strict_slashes = False
-    limits = Limits(max_arcs=settings.max_arcs, max_nodes=settings.max_nodes, time_limit=settings.time_limit,
-                    max_commodities=settings.max_commodities)
+    limits = Limits.from_settings(settings)
     problems.init_app(app)
     # Order matters: request id and clock first (so every answer is counted and logged),
     # then shedding, then CORS preflights (sent without credentials), then authentication

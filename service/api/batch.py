@@ -16,12 +16,12 @@ more items than ``SLUICE_MAX_BATCH_ITEMS`` (413).
 from __future__ import annotations
 
 import logging
-from dataclasses import replace
-from time import monotonic, perf_counter
+from time import perf_counter
 
 from flask import Blueprint, current_app
 from marshmallow import INCLUDE, Schema, fields
 
+from ..deadline import Deadline
 from ..errors import PROBLEM_BASE, FieldError, InputError, ProblemTooLarge, SluiceError, SolveTimeout
 from ..kinds import KINDS, Limits
 from ..kinds.nested import under
@@ -110,30 +110,29 @@ def _kind_of(item) -> object:
     return kind
 
 
-def solve_item(item, limits: Limits) -> dict:
-    """Parse and solve one item; errors carry pointers relative to the item."""
+def solve_item(item, limits: Limits, deadline: Deadline) -> dict:
+    """Parse and solve one item within what is left of the batch's ``deadline`` (and
+    its own ``options.time_limit``); errors carry pointers relative to the item."""
     started = perf_counter()
     kind = _kind_of(item)
     with under("/problem"):
         problem = kind.parse(item["problem"], limits)
         parsed = perf_counter()
-        result = bounded_solve(kind, problem, limits)
+        result = bounded_solve(kind, problem, deadline.within(problem.options.get("time_limit")))
     done = perf_counter()
     result["timing_ms"] = {"parse": round((parsed - started) * 1000, 3), "solve": round((done - parsed) * 1000, 3),
                            "total": round((done - started) * 1000, 3)}
     return result
 
 
-def run_batch(items: list, limits: Limits) -> list:
-    """Solve every item in order within one time limit; each item fails on its own."""
-    deadline = monotonic() + limits.time_limit
+def run_batch(items: list, limits: Limits, deadline: Deadline) -> list:
+    """Solve every item in order before ``deadline``; each item fails on its own."""
     results = []
     for index, item in enumerate(items):
-        left = deadline - monotonic()
         try:
-            if left <= 0:
+            if deadline.expired():
                 raise SolveTimeout("the batch's time limit ran out before this item was solved")
-            results.append(solve_item(item, replace(limits, time_limit=left)))
+            results.append(solve_item(item, limits, deadline))
         except SluiceError as exc:
             if exc.status >= 500:
                 log.error("batch item %d failed: %s", index, exc.detail)
@@ -156,4 +155,5 @@ def batch():
     """Solve many small problems of any kind in one request."""
     state = current_app.extensions["sluice"]
     items = read_items(read_json_body(), state.settings.max_batch_items)
-    return json_response({"results": run_batch(items, state.limits)})
+    # One deadline for the whole batch: SLUICE_TIME_LIMIT from now.
+    return json_response({"results": run_batch(items, state.limits, Deadline.after(state.settings.time_limit))})

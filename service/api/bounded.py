@@ -5,9 +5,11 @@ min-cost flow, arcs x commodities for multi-commodity flow, nonzeros plus column
 an LP, allowed pairs for an assignment) is at most ``SLUICE_INLINE_MAX_ARCS`` (default
 20,000) is solved inline on the request thread: such solves take milliseconds, and the
 IPC of a solver process would cost more than the solve. A larger problem (or one whose
-size a kind does not report) goes to this worker's pool of warm solver processes with a
-deadline of ``min(options.time_limit, SLUICE_TIME_LIMIT)`` (plus a short grace for the
-GLOP kinds, which stop themselves at the limit and answer ``time_limit``); past it the
+size a kind does not report) goes to this worker's pool of warm solver processes. Either
+way the solve has one :class:`~service.deadline.Deadline`, made here once per request:
+``min(options.time_limit, SLUICE_TIME_LIMIT)`` from the start of the solve. The kinds and
+solvers read what is left of it; a solver process is killed at it (plus a short grace
+for the kinds that stop themselves at it and answer ``time_limit``); past it the
 process is killed (the OR-Tools solvers cannot be interrupted), the client gets 504 ``time-limit`` with a hint
 to submit a job instead, and a fresh process takes its place. The gunicorn worker
 itself never blocks past the deadline, so it stays healthy, and never holds a large
@@ -22,15 +24,15 @@ overload is shed, not queued behind solves that may each take the whole time lim
 from __future__ import annotations
 
 import logging
-import time
 from time import perf_counter
 
 from flask import Flask, current_app
 
 from ..config import Settings
+from ..deadline import Deadline
 from ..errors import SolveTimeout, Unavailable
-from ..kinds import Kind, Limits
-from ..kinds.base import stop_grace, time_limit
+from ..kinds import Kind
+from ..kinds.base import budget_seconds, stop_grace
 from ..jobs.runner import Cancelled, ChildLost, DeadlineExceeded, SolverPool, unpack
 from .metrics import SOLVE_SECONDS, SOLVE_TIMEOUTS
 
@@ -51,28 +53,35 @@ class BoundedSolver:
 
     def __init__(self, settings: Settings):
         self.inline_max_arcs = settings.inline_max_arcs
+        self.time_limit = settings.time_limit
         self.job_time_limit = settings.job_time_limit
         self.queue_wait = settings.queue_wait
         self.pool = SolverPool(settings.solver_processes, max_rss_mb=settings.solver_max_rss_mb)
 
-    def solve(self, kind: Kind, problem, limits: Limits) -> dict:
+    def deadline(self, problem) -> Deadline:
+        """A synchronous solve's time budget, from now: ``min(options.time_limit,
+        SLUICE_TIME_LIMIT)``."""
+        return Deadline.after(budget_seconds(problem.options, self.time_limit))
+
+    def solve(self, kind: Kind, problem, deadline: Deadline | None = None) -> dict:
+        if deadline is None:
+            deadline = self.deadline(problem)
         size = problem_size(kind, problem)
         if size is not None and size <= self.inline_max_arcs:
             started = perf_counter()
-            result = kind.solve(problem, limits)
+            result = kind.solve(problem, deadline)
             self._observe(kind, result, perf_counter() - started)
             return result
-        seconds = time_limit(problem.options, limits)
-        hard = seconds + stop_grace(kind, seconds)
+        grace = stop_grace(kind, deadline.seconds)
         try:
             shipped = problem if kind.for_solver_process is None else kind.for_solver_process(problem)
-            reply = self.pool.run(("solve", kind.name, shipped, limits),
-                                  deadline=time.monotonic() + hard,
-                                  wait=min(hard, self.queue_wait))
+            reply = self.pool.run(("solve", kind.name, shipped, None), deadline=deadline, grace=grace,
+                                  wait=min(deadline.remaining() + grace, self.queue_wait))
         except DeadlineExceeded:
             SOLVE_TIMEOUTS.labels(kind.name).inc()
             raise SolveTimeout(
-                f"the solve did not finish within its time limit of {seconds:g} s and was stopped; submit it as "
+                f"the solve did not finish within its time limit of {deadline.seconds:g} s and was stopped; "
+                "submit it as "
                 f"a job (POST /v1/jobs, or this request with the header Prefer: respond-async), whose limit is "
                 f"{self.job_time_limit:g} s") from None
         except TimeoutError:
@@ -102,6 +111,9 @@ def init_app(app: Flask, settings: Settings) -> BoundedSolver:
     return solver
 
 
-def bounded_solve(kind: Kind, problem, limits: Limits) -> dict:
-    """Solve within the hard limit (see the module doc); use it wherever a request solves."""
-    return current_app.extensions[EXTENSION].solve(kind, problem, limits)
+def bounded_solve(kind: Kind, problem, deadline: Deadline | None = None) -> dict:
+    """Solve within the hard limit (see the module doc); use it wherever a request solves.
+
+    ``deadline``: the request's time budget when the caller made one (a batch, for all
+    its items); None: this solve's own, made now (:meth:`BoundedSolver.deadline`)."""
+    return current_app.extensions[EXTENSION].solve(kind, problem, deadline)

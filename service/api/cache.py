@@ -159,7 +159,7 @@ def answer(kind: Kind, problem, *, started: float, key: str | None = None, extra
                 _quietly(store.put_alias, who, key, problem.digest)
             return respond(cached, HIT, _timing(started, perf_counter(), 0.0), extra)
     t0 = perf_counter()
-    result = bounded_solve(kind, problem, _limits())
+    result = bounded_solve(kind, problem)
     solved = perf_counter()
     payload = orjson.dumps(result, option=DUMP_OPTIONS)
     status = BYPASSED if mode == "bypass" else UNAVAILABLE

@@ -239,7 +239,7 @@ def diagram():
     started = perf_counter()
     with under("/problem"):
         problem = _parse_drawable(kind, envelope["problem"], state)
-        result = bounded_solve(kind, problem, state.limits)
+        result = bounded_solve(kind, problem)
     response = svg_response(draw(kind_name, drawn_problem(problem), plain(result)))
     response.headers["Server-Timing"] = f"total;dur={(perf_counter() - started) * 1000:.1f}"
     return response

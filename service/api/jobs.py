@@ -19,7 +19,7 @@ from ..errors import Conflict, FieldError, InputError, NotFound, Unavailable
 from ..jobs import FINAL, STATES, JobsDown, open_jobs
 from ..jobs.model import DUMP_OPTIONS, JOB_ID
 from ..kinds import KINDS, Kind, Limits
-from ..kinds.base import time_limit
+from ..kinds.base import budget_seconds
 from .auth import current_tenant
 from .declare import SOLVE_BODY_TEXT, header_parameter, json_body, ok, operation, path_parameter, problem, problems
 from .jsonio import json_response, read_json_body
@@ -102,7 +102,9 @@ def submit(kind: Kind, problem_body, pointer_prefix: str = ""):
         problem = kind.parse(problem_body, _limits())
     except InputError as exc:
         raise (_under(pointer_prefix, exc) if pointer_prefix else exc) from None
-    seconds = time_limit(problem.options, Limits(time_limit=_job_time_limit()))
+    # Stored as seconds, not a deadline: the job runs later, perhaps on another host;
+    # the job runner makes its deadline when a solver process is ready for it.
+    seconds = budget_seconds(problem.options, _job_time_limit())
     body = orjson.dumps(problem_body, option=DUMP_OPTIONS)
     jobs = backend()
     try:

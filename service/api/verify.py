@@ -4,8 +4,9 @@ from __future__ import annotations
 
 from time import perf_counter
 
-from flask import Blueprint
+from flask import Blueprint, current_app
 
+from ..deadline import Deadline
 from ..errors import NotFound
 from ..kinds import KINDS
 from ..kinds import verify as verify_kind
@@ -38,7 +39,7 @@ def verify(kind: str):
     started = perf_counter()
     problem = verify_kind.parse(kind, read_json_body(), limits(), KINDS)
     parsed = perf_counter()
-    out = verify_kind.check(problem, limits())
+    out = verify_kind.check(problem, Deadline.after(current_app.extensions["sluice"].settings.time_limit))
     done = perf_counter()
     out["timing_ms"] = {"parse": round((parsed - started) * 1000, 3), "solve": round((done - parsed) * 1000, 3),
                         "total": round((done - started) * 1000, 3)}

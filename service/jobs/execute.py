@@ -4,10 +4,7 @@ from __future__ import annotations
 
 import logging
 import threading
-import time
 from contextlib import contextmanager
-from dataclasses import replace
-
 import orjson
 
 from ..kinds import KINDS, Limits
@@ -27,9 +24,10 @@ def execute(run, kind: str, body: bytes, limits: Limits, time_limit: float, on_t
         ``run(message, budget=..., on_tick=..., on_progress=...) -> reply``
         (:meth:`SolverPool.run`, or a :meth:`SolverProcess.run` already started).
     time_limit : float
-        Seconds for the whole job (parse and solve); the process is killed after, or,
-        for a kind that stops itself at its limit, after a grace to answer
-        (:func:`~service.kinds.base.stop_grace`).
+        Seconds for the whole job (parse and solve) from the moment its solver process
+        is ready: the runner makes the job's deadline from it then and sends it with the
+        job. The process is killed at the deadline, or, for a kind that stops itself at
+        it, after a grace to answer (:func:`~service.kinds.base.stop_grace`).
     on_tick : callable, optional
         Heartbeat, called every quarter second; returning true cancels the job.
     on_progress : callable, optional
@@ -39,10 +37,9 @@ def execute(run, kind: str, body: bytes, limits: Limits, time_limit: float, on_t
     -------
     (state, result_json or None, error document or None)
     """
-    job_limits = replace(limits, time_limit=time_limit)
-    budget = time_limit + stop_grace(KINDS.get(kind), time_limit)
+    grace = stop_grace(KINDS.get(kind), time_limit)
     try:
-        result, _ = unpack(run(("job", kind, body, job_limits), budget=budget, on_tick=on_tick,
+        result, _ = unpack(run(("job", kind, body, limits), budget=time_limit, grace=grace, on_tick=on_tick,
                                on_progress=on_progress))
     except DeadlineExceeded:
         return FAILED, None, time_limit_error(time_limit)

@@ -20,6 +20,7 @@ import time
 import orjson
 import redis
 
+from ..config import Settings
 from ..kinds import Limits
 from .execute import Progress, execute, lease_keeper
 from .model import CANCELLED, FAILED, FINAL, QUEUED, RUNNING, JobRecord, JobsDown, new_job_id, worker_lost
@@ -53,9 +54,9 @@ def _f(value) -> float | None:
 class RedisJobs:
     """Job records in Redis; execution by RQ workers (``sluice worker``)."""
 
-    def __init__(self, url: str | None = None, *, prefix: str = "sluice:", queue: str = "sluice",
-                 limits: Limits = Limits(), lease: float = 15.0, attempts: int = 2, ttl: int = 7 * 86400,
-                 connection: redis.Redis | None = None):
+    def __init__(self, url: str | None = None, *, prefix: str = Settings.redis_prefix, queue: str = Settings.job_queue,
+                 limits: Limits = Limits(), lease: float = Settings.job_lease, attempts: int = Settings.job_attempts,
+                 ttl: int = Settings.job_ttl, connection: redis.Redis | None = None):
         self.redis = connection if connection is not None else connect(url)
         self.prefix, self.queue_name, self.limits = prefix, queue, limits
         self.lease, self.max_attempts, self.ttl = lease, attempts, ttl

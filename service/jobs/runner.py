@@ -23,6 +23,7 @@ import time
 from concurrent.futures import Future
 from queue import Queue
 
+from ..deadline import Deadline
 from ..errors import SluiceError
 from ..memory import resident_bytes
 from .frames import read_frame, write_frame
@@ -115,12 +116,12 @@ class SolverProcess:
             except OSError:
                 pass
 
-    def _wait(self, deadline: float | None, on_tick, tick: float, on_progress=None):
+    def _wait(self, kill_at: float | None, on_tick, tick: float, on_progress=None):
         # Frames go through the descriptors (see frames); the unbuffered file objects
         # only own them, and fileno() refuses once kill() has closed them.
         fd = self.proc.stdout.fileno()
         while True:
-            left = None if deadline is None else deadline - time.monotonic()
+            left = None if kill_at is None else kill_at - time.monotonic()
             if left is not None and left <= 0:
                 self.kill()
                 raise DeadlineExceeded()
@@ -139,17 +140,21 @@ class SolverProcess:
                 self.kill()
                 raise Cancelled()
 
-    def run(self, message: tuple, *, deadline: float | None = None, on_tick=None, tick: float = 0.25,
-            on_progress=None, budget: float | None = None):
-        """Send one message and wait for the reply.
+    def run(self, message: tuple, *, deadline: Deadline | None = None, on_tick=None, tick: float = 0.25,
+            on_progress=None, budget: float | None = None, grace: float = 0.0):
+        """Send one message with its deadline and wait for the reply.
 
         Parameters
         ----------
         message : tuple
-            See :mod:`service.jobs.work`.
-        deadline : float, optional
-            ``time.monotonic()`` value after which the child is killed (or ``budget``:
-            seconds from now).
+            ``(op, kind, payload, limits)``, see :mod:`service.jobs.work`; the deadline
+            is sent with it, as its last member.
+        deadline : Deadline, optional
+            The solve's time budget (or ``budget``: seconds from now, the deadline made
+            here, once). None: no limit.
+        grace : float
+            Seconds past the deadline before the child is killed: a solver that stops
+            itself at the deadline gets them to send its answer.
         on_tick : callable, optional
             Called every ``tick`` seconds while waiting (heartbeats); a true return
             value cancels: the child is killed.
@@ -167,13 +172,13 @@ class SolverProcess:
             In each case the child is dead afterwards.
         """
         if budget is not None:
-            deadline = time.monotonic() + budget
+            deadline = Deadline.after(budget)
         try:
-            write_frame(self.proc.stdin.fileno(), message)
+            write_frame(self.proc.stdin.fileno(), (*message, deadline))
         except (OSError, ValueError):  # the child has gone (ValueError: it was killed here before)
             self.kill()
             raise ChildLost(f"solver process {self.pid} exited with {self.proc.returncode}") from None
-        return self._wait(deadline, on_tick, tick, on_progress)
+        return self._wait(None if deadline is None else deadline.at + grace, on_tick, tick, on_progress)
 
 
 class _Spawner:
@@ -264,12 +269,13 @@ class SolverPool:
             else:
                 self._idle.append(proc)
 
-    def run(self, message: tuple, *, deadline: float | None = None, on_tick=None, wait: float = 30.0,
-            on_progress=None, budget: float | None = None):
+    def run(self, message: tuple, *, deadline: Deadline | None = None, on_tick=None, wait: float = 30.0,
+            on_progress=None, budget: float | None = None, grace: float = 0.0):
         """Run one message on a pooled child (see :meth:`SolverProcess.run`).
 
         ``budget`` (seconds), instead of ``deadline``, starts counting once a child is
-        ready: a job's time limit does not pay for starting its solver process.
+        ready: a job's deadline is made then, so its time limit does not pay for
+        starting its solver process.
 
         Raises
         ------
@@ -281,7 +287,8 @@ class SolverPool:
         try:
             proc = self._take()
             try:
-                reply = proc.run(message, deadline=deadline, on_tick=on_tick, on_progress=on_progress, budget=budget)
+                reply = proc.run(message, deadline=deadline, on_tick=on_tick, on_progress=on_progress, budget=budget,
+                                 grace=grace)
             except (DeadlineExceeded, Cancelled, ChildLost):
                 self.warm(1)  # a fresh child replaces the killed one, off the request path
                 raise

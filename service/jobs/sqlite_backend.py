@@ -19,6 +19,7 @@ import time
 
 import orjson
 
+from ..config import Settings
 from ..kinds import Limits
 from .execute import Progress, execute, lease_keeper
 from .model import CANCELLED, FAILED, FINAL, QUEUED, RUNNING, JobRecord, new_job_id, worker_lost
@@ -62,8 +63,9 @@ def _record(row) -> JobRecord:
 class SqliteJobs:
     """Job records in SQLite and the dispatchers of this process."""
 
-    def __init__(self, data_dir: str, *, limits: Limits, workers: int = 1, lease: float = 15.0,
-                 attempts: int = 2, ttl: int = 7 * 86400, solver_max_rss_mb: float | None = None):
+    def __init__(self, data_dir: str, *, limits: Limits, workers: int = Settings.job_workers,
+                 lease: float = Settings.job_lease, attempts: int = Settings.job_attempts, ttl: int = Settings.job_ttl,
+                 solver_max_rss_mb: float | None = None):
         os.makedirs(data_dir, exist_ok=True)
         self.path = os.path.join(data_dir, "jobs.sqlite3")
         self.limits, self.workers, self.lease, self.max_attempts, self.ttl = limits, workers, lease, attempts, ttl

@@ -1,8 +1,12 @@
 """What a solver process does with one message: run a kind, report the outcome.
 
-Messages: ``("solve", kind, problem, limits)`` for a problem parsed by the caller, or
-``("job", kind, body_json, limits)`` for a job whose body is parsed here again (it was
-validated at submission; the stored JSON outlives any in-memory object). Replies:
+Messages: ``("solve", kind, problem, None, deadline)`` for a problem parsed by the
+caller, or ``("job", kind, body_json, limits, deadline)`` for a job whose body is parsed
+here again under ``limits`` (it was validated at submission; the stored JSON outlives
+any in-memory object). The caller names the first four; :meth:`~service.jobs.runner.SolverProcess.run`
+adds the :class:`~service.deadline.Deadline` as it sends them (a ``time.monotonic()``
+instant, the same clock in every process of the host), and the solve reads what is
+left of it. Replies:
 ``("ok", result, solve_seconds)``, ``("error", problem_fields)`` for a
 :class:`~service.errors.SluiceError`, or ``("crash", summary)`` for anything else.
 While a job runs, ``report`` may send ``("progress", document)`` frames before the
@@ -36,8 +40,10 @@ def handle(message: tuple, report=None) -> tuple:
     Parameters
     ----------
     message : tuple
-        ``(op, kind, payload, limits)``: ``op`` is ``"solve"`` (``payload`` is the
-        parsed problem) or ``"job"`` (``payload`` is the body JSON, parsed here).
+        ``(op, kind, payload, limits, deadline)``: ``op`` is ``"solve"`` (``payload``
+        is the parsed problem, ``limits`` None) or ``"job"`` (``payload`` is the body
+        JSON, parsed here under ``limits``); ``deadline`` is the solve's
+        :class:`~service.deadline.Deadline`, added by the runner as it sent the message.
     report : callable, optional
         Sends a progress document to the parent; used only for jobs, since only a
         job has a reader for progress.
@@ -51,14 +57,14 @@ def handle(message: tuple, report=None) -> tuple:
         stderr. A failing solve is always a reply, never an exception, so one bad
         problem cannot end the process.
     """
-    op, kind_name, payload, limits = message
+    op, kind_name, payload, limits, deadline = message
     try:
         kind = KINDS[kind_name]
         problem = kind.parse(orjson.loads(payload), limits) if op == "job" else payload
         started = perf_counter()
         # Only jobs have someone to read progress (GET /v1/jobs/{id}).
         with progress.reporting(report if op == "job" else None):
-            result = kind.solve(problem, limits)
+            result = kind.solve(problem, deadline)
         return ("ok", result, perf_counter() - started)
     except SluiceError as exc:
         return ("error", describe(exc))

@@ -9,6 +9,7 @@ from operator import itemgetter
 import numpy as np
 from marshmallow import RAISE, Schema, fields, validate
 
+from ..deadline import Deadline
 from ..errors import FieldError, InputError, ProblemTooLarge
 from ..model.columns import MAX_REPORTED_ERRORS, number_column
 from ..model.digest import problem_digest
@@ -270,7 +271,7 @@ def _lookup(values: list, ids: list, name: str) -> np.ndarray:
     return out
 
 
-def solve(problem: AssignmentProblem, limits: Limits) -> dict:
+def solve(problem: AssignmentProblem, deadline: Deadline) -> dict:
     options = problem.options
     k, t = len(problem.agents), len(problem.tasks)
     solution, certificate = solve_assignment(

@@ -11,27 +11,37 @@ from __future__ import annotations
 from dataclasses import dataclass, replace
 from typing import Any, Callable, Protocol
 
+from ..config import Settings
+from ..deadline import Deadline
 from ..errors import InputError
 from ..model.ids import NodeIndex, ids_of, lookalike, shown_id  # noqa: F401 - ids_of: the kinds take it from here
+from ..model.schemas import load_envelope
+from ..model.stored import body_of
 
 
 @dataclass(frozen=True)
 class Limits:
-    """Size and time limits applied while parsing and solving.
+    """Size limits applied while parsing.
 
-    The service builds them from :class:`service.config.Settings` (whose defaults these
-    repeat for callers without settings, such as tests; ``tests/test_kinds.py`` keeps
-    the two equal).
+    The configurable ones take their defaults from :class:`service.config.Settings`
+    (the one place they are written), for callers without settings such as tests;
+    :meth:`from_settings` gives the service's. Time is not a limit of parsing: a solve
+    gets a :class:`~service.deadline.Deadline`.
     """
 
-    max_arcs: int = 5_000_000
-    max_nodes: int = 5_000_000
-    time_limit: float = 30.0
-    max_commodities: int = 1_000
+    max_arcs: int = Settings.max_arcs
+    max_nodes: int = Settings.max_nodes
+    max_commodities: int = Settings.max_commodities
     #: Flows over time: horizon x (arcs + nodes), the size of the time-expanded network.
     #: 5M is about four times a 10,000-lane network over 100 periods (a few seconds, a few
     #: hundred MB); larger ones are refused with a 413 naming ``horizon``.
     max_expanded: int = 5_000_000
+
+    @classmethod
+    def from_settings(cls, settings: Settings) -> "Limits":
+        """The limits a service with ``settings`` applies."""
+        return cls(max_arcs=settings.max_arcs, max_nodes=settings.max_nodes,
+                   max_commodities=settings.max_commodities)
 
 
 class Problem(Protocol):
@@ -60,7 +70,9 @@ class Kind:
     parse : callable
         ``parse(body, limits) -> Problem``; raises :class:`~service.errors.InputError`.
     solve : callable
-        ``solve(problem, limits) -> dict``, the response document.
+        ``solve(problem, deadline) -> dict``, the response document; ``deadline`` (a
+        :class:`~service.deadline.Deadline`, made by the caller: the HTTP layer or the
+        job runner) is the solve's time budget, which the solvers read what is left of.
     query_schema : type, optional
         Schema of the question about a stored network (``POST /v1/networks/{n}/{name}``,
         without ``changes``); given together with ``from_network``.
@@ -77,8 +89,8 @@ class Kind:
         ``SLUICE_INLINE_MAX_ARCS`` it is solved on the request thread. ``None``: always
         in a solver process.
     honours_time_limit : bool
-        The solver stops itself at ``options.time_limit`` and answers (GLOP, the MIP
-        engines), so a solver process gets a grace period before it is killed
+        The solver stops itself at its deadline and answers (GLOP, the MIP engines), so
+        a solver process gets a grace period past it before it is killed
         (:func:`stop_grace`).
     per_period_capacity : bool
         What-if ``capacity`` changes may give one number per period (flows over time).
@@ -94,7 +106,7 @@ class Kind:
     response_schema: type
     example: str
     parse: Callable[[Any, Limits], Problem]
-    solve: Callable[[Problem, Limits], dict]
+    solve: Callable[[Problem, Deadline], dict]
     query_schema: type | None = None
     from_network: Callable[[Any, Any, Limits], Problem] | None = None
     dimacs: str | None = None
@@ -142,9 +154,12 @@ def node_position(nodes: NodeIndex, node_id, ptr: str) -> int:
     return index
 
 
-def time_limit(options: dict, limits: Limits) -> float:
+def budget_seconds(options: dict, cap: float) -> float:
+    """Seconds a solve may take: ``options.time_limit`` when the client asked for less
+    than ``cap`` (the configured limit: ``SLUICE_TIME_LIMIT``, or a job's), else ``cap``.
+    ``time_limit`` is not in the digest: it never changes an answer that is final."""
     asked = options.get("time_limit")
-    return limits.time_limit if asked is None else min(float(asked), limits.time_limit)
+    return cap if asked is None else min(float(asked), cap)
 
 
 def digest_detail(options: dict, default) -> list | None:
@@ -175,8 +190,5 @@ def posted_whole(network, query, query_schema, *, arc_fields: tuple = (), node_f
     then joined with the network's ``nodes`` and ``arcs`` and the optional columns
     ``arc_fields``/``node_fields`` it carries (:func:`service.model.stored.body_of`).
     """
-    from ..model.schemas import load_envelope
-    from ..model.stored import body_of
-
     load_envelope(query_schema, query)
     return {**query, **body_of(network, arc_fields, node_fields)}

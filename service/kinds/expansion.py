@@ -7,6 +7,7 @@ from dataclasses import dataclass
 import numpy as np
 from marshmallow import RAISE, Schema, fields, validate
 
+from ..deadline import Deadline
 from ..errors import FieldError, InputError
 from ..model.arccolumns import EXPANSION_FIELDS
 from ..model.arcs import Network, read_network_with
@@ -15,7 +16,7 @@ from ..model.digest import problem_digest
 from ..model.schemas import ArcsField, NodeId, NodesField, OptionsSchema, StrictNumber, detail_field, load_envelope
 from ..solvers.expansion import Lanes, cheapest_expansion
 from ..solvers.versions import ORTOOLS_VERSION
-from .base import Kind, Limits, ids_of, node_position, posted_whole, time_limit, wants, without_arc_keys
+from .base import Kind, Limits, ids_of, node_position, posted_whole, wants, without_arc_keys
 from .maxflow import TimingSchema
 from .mincostflow import POTENTIAL_MEANING
 
@@ -225,9 +226,9 @@ def digest_of(network: Network, lanes: Lanes, options: dict) -> str:
     )
 
 
-def solve(problem: ExpansionProblem, limits: Limits) -> dict:
+def solve(problem: ExpansionProblem, deadline: Deadline) -> dict:
     options = problem.options
-    solution, certificate = cheapest_expansion(problem.lanes, time_limit=time_limit(options, limits),
+    solution, certificate = cheapest_expansion(problem.lanes, deadline=deadline,
                                                gap=float(options["gap"]))
     nodes = problem.network.nodes
     out: dict = {"status": solution.status, "cost": solution.cost, "value": solution.value,

@@ -7,13 +7,15 @@ from dataclasses import dataclass
 import numpy as np
 from marshmallow import RAISE, Schema, fields, validate
 
+from ..deadline import Deadline
 from ..errors import SolverFailure
 from ..model.digest import problem_digest
 from ..model.linear import LinearModel, read_linear_model
 from ..model.schemas import OptionsSchema, StrictBoolean, StrictNumber, detail_field, load_envelope
-from ..solvers.lp import LPModel, beyond_range, solve_certified
+from ..solvers.glop import beyond_range
+from ..solvers.lp import LPModel, solve_certified
 from ..solvers.versions import ORTOOLS_VERSION
-from .base import Kind, Limits, digest_detail, problem_size, time_limit, wants
+from .base import Kind, Limits, digest_detail, problem_size, wants
 from .maxflow import EngineSchema, TimingSchema
 
 DETAIL = ["values", "duals", "reduced_costs"]
@@ -225,11 +227,11 @@ def _named(names: list, values: np.ndarray) -> dict:
     return dict(zip(names, (values + 0.0).tolist()))  # + 0.0 turns -0.0 into 0.0
 
 
-def solve(problem: LPProblem, limits: Limits) -> dict:
+def solve(problem: LPProblem, deadline: Deadline) -> dict:
     m = problem.model
     model = LPModel(m.c, m.matrix, m.row_lower, m.row_upper, m.col_lower, m.col_upper, m.maximize, m.constant)
     try:
-        result = solve_certified(model, time_limit=time_limit(problem.options, limits))
+        result = solve_certified(model, deadline=deadline)
     except SolverFailure as exc:  # abnormal stops and failed certificates: the data's range, said clearly
         raise beyond_range(exc, "/constraints", objective=m.c, coefficients=m.matrix.data,
                            bounds=np.concatenate([m.row_lower, m.row_upper, m.col_lower, m.col_upper])) from None
@@ -269,6 +271,6 @@ KIND = Kind(
     parse=parse,
     solve=solve,
     size=problem_size,
-    #: GLOP stops itself at options.time_limit and answers status "time_limit".
+    #: GLOP stops itself at its deadline and answers status "time_limit".
     honours_time_limit=True,
 )

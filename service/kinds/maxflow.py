@@ -7,6 +7,7 @@ from dataclasses import dataclass
 import numpy as np
 from marshmallow import RAISE, Schema, fields, validate
 
+from ..deadline import Deadline
 from ..model.arcs import Network, read_network
 from ..model.digest import problem_digest
 from ..model.schemas import (
@@ -20,7 +21,7 @@ from ..model.schemas import (
 from ..solvers import maximum_flow
 from ..solvers.versions import ORTOOLS_VERSION
 from ..errors import InputError, ProblemTooLarge, FieldError
-from .base import Kind, Limits, digest_detail, ids_of, node_position, problem_size, time_limit, wants, without_arc_keys
+from .base import Kind, Limits, digest_detail, ids_of, node_position, problem_size, wants, without_arc_keys
 
 DETAIL = ["flows", "cut"]
 
@@ -178,11 +179,11 @@ def digest_of(network: Network, source: int, sink: int, options: dict) -> str:
     )
 
 
-def solve(problem: MaxFlowProblem, limits: Limits) -> dict:
+def solve(problem: MaxFlowProblem, deadline: Deadline) -> dict:
     net = problem.network
     solution, certificate = maximum_flow(
         net.num_nodes, net.tail, net.head, net.capacity, net.unlimited, problem.source, problem.sink,
-        engine=problem.options["engine"], time_limit=time_limit(problem.options, limits),
+        engine=problem.options["engine"], deadline=deadline,
     )
     out: dict = {"status": solution.status, "value": solution.value}
     if solution.status == "unbounded":

@@ -7,6 +7,7 @@ from dataclasses import dataclass
 import numpy as np
 from marshmallow import RAISE, Schema, fields, validate
 
+from ..deadline import Deadline
 from ..errors import FieldError, InputError, ProblemTooLarge
 from ..model.arcs import Network, read_network
 from ..model.columns import number_column
@@ -16,7 +17,7 @@ from ..model.nodes import read_nodes
 from ..model.schemas import ArcsField, NodeId, NodesField, OptionsSchema, detail_field, load_envelope
 from ..solvers.mincost import imbalance, min_cost_flow
 from ..solvers.versions import ORTOOLS_VERSION
-from .base import Kind, Limits, digest_detail, ids_of, problem_size, time_limit, wants, without_arc_keys
+from .base import Kind, Limits, digest_detail, ids_of, problem_size, wants, without_arc_keys
 from .maxflow import EngineSchema, TimingSchema
 
 DETAIL = ["flows", "potentials", "reduced_costs"]
@@ -268,12 +269,12 @@ def _wants(options: dict, part: str) -> bool:
     return wants(options, part)
 
 
-def solve(problem: MinCostFlowProblem, limits: Limits) -> dict:
+def solve(problem: MinCostFlowProblem, deadline: Deadline) -> dict:
     net = problem.network
     options = problem.options
     solution, certificate = min_cost_flow(
         net.num_nodes, net.tail, net.head, net.capacity, net.unlimited, net.cost, net.lower, problem.supply,
-        shortage=options["shortage"], engine=options["engine"], time_limit=time_limit(options, limits),
+        shortage=options["shortage"], engine=options["engine"], deadline=deadline,
     )
     out: dict = {"status": solution.status, "cost": solution.cost, "shipped": solution.shipped}
     if solution.status == "optimal":

@@ -7,13 +7,14 @@ from dataclasses import dataclass
 import numpy as np
 from marshmallow import RAISE, Schema, fields, validate
 
+from ..deadline import Deadline
 from ..errors import InputError
 from ..model.arcs import Network, read_network
 from ..model.digest import problem_digest
-from ..model.schemas import NodeId, OptionsSchema, detail_field, load_envelope
+from ..model.schemas import OptionsSchema, detail_field, load_envelope
 from ..solvers.resilience import arc_closures
 from ..solvers.versions import ORTOOLS_VERSION
-from .base import Kind, Limits, ids_of, node_position, posted_whole, time_limit, wants, without_arc_keys
+from .base import Kind, Limits, ids_of, node_position, posted_whole, wants, without_arc_keys
 from .maxflow import CutSchema, EngineSchema, MaxFlowCertificate, MaxFlowRequest, TimingSchema, UnboundedPathSchema
 
 DETAIL = ["flows", "cut", "cuts"]
@@ -145,10 +146,10 @@ def digest_of(network: Network, source: int, sink: int, top, options: dict) -> s
     )
 
 
-def solve(problem: ResilienceProblem, limits: Limits) -> dict:
+def solve(problem: ResilienceProblem, deadline: Deadline) -> dict:
     net, options = problem.network, problem.options
     solution, certificate = arc_closures(net.num_nodes, net.tail, net.head, net.capacity, net.unlimited,
-                                         problem.source, problem.sink, time_limit=time_limit(options, limits))
+                                         problem.source, problem.sink, deadline=deadline)
     out: dict = {"status": solution.status, "value": solution.value}
     if solution.status == "unbounded":
         path = solution.unbounded_path

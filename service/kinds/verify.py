@@ -13,18 +13,18 @@ not depend on the min-cost solver; when the ``mincostflow`` kind is registered i
 
 from __future__ import annotations
 
-import time
 from dataclasses import dataclass
 
 import numpy as np
 from marshmallow import EXCLUDE, RAISE, Schema, fields, validate
 
+from ..deadline import Deadline
 from ..errors import InputError
 from ..model.arcs import Network, read_network
 from ..model.columns import number_column
 from ..model.schemas import ArcsField, NodesField, load_envelope
 from ..solvers.verify import FORWARD, Verdict, verify_max_flow, verify_min_cost_flow
-from .base import Limits, ids_of, time_limit
+from .base import Limits, ids_of
 from .nested import under
 
 class VerifyRequest(Schema):
@@ -199,14 +199,13 @@ def read_min_cost(body, limits: Limits) -> tuple[Network, np.ndarray]:
     return network, supply
 
 
-def check(problem: VerifyProblem, limits: Limits) -> dict:
-    """Run the plan check and build the response document."""
+def check(problem: VerifyProblem, deadline: Deadline) -> dict:
+    """Run the plan check within ``deadline`` and build the response document."""
     net = problem.network
     if problem.kind == "maxflow":
         verdict = verify_max_flow(net.num_nodes, net.tail, net.head, net.capacity, net.unlimited,
                                   problem.source, problem.sink, problem.flows)
     else:
-        deadline = time.monotonic() + time_limit({}, limits)
         verdict = verify_min_cost_flow(net.num_nodes, net.tail, net.head, net.capacity, net.unlimited, net.cost,
                                        net.lower, problem.supply, problem.flows, deadline=deadline)
     return respond(problem, verdict)

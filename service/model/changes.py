@@ -13,14 +13,14 @@ columns are shared (the stored arrays are read-only anyway).
 from __future__ import annotations
 
 from dataclasses import replace
-from itertools import chain, compress
-from operator import methodcaller
+from itertools import chain
 from typing import Callable
 
 import numpy as np
 
 from ..errors import FieldError, InputError
 from .arcs import Network, zeros_as_absent
+from .change_columns import ChangeColumns
 from .columns import EXACT_FLOAT_INT, MAX_REPORTED_ERRORS, number_column
 from .ids import IdColumn
 from .stored import DEFAULTS, STORED_ARC_FIELDS, STORED_NODE_FIELDS, arc_column, as_json, checked_column, node_column
@@ -95,7 +95,7 @@ def apply_changes(
     on_arc = [i for i, c in enumerate(changes) if "node" not in c]
     extra = _copy_extra(network.extra)
     if on_node:
-        _node_changes(network, _Columns([changes[i] for i in on_node], base, on_node), extra)
+        _node_changes(network, ChangeColumns([changes[i] for i in on_node], base, on_node), extra)
     if on_arc:
         network = _arc_changes(network, [changes[i] for i in on_arc], base, on_arc, key_index, periods, extra)
     return replace(network, extra=extra if any(extra.values()) else None)
@@ -110,7 +110,7 @@ def _copy_extra(extra: dict | None) -> dict:
 def _arc_changes(network: Network, changes: list, base: str, rows: list, key_index, periods: bool,
                  extra: dict) -> Network:
     changes = _split_period_capacity(changes, base, rows, periods)
-    cols = _Columns(changes, base, rows)
+    cols = ChangeColumns(changes, base, rows)
     target = _targets(cols, network, key_index)
     _reject_repeats(cols, target)
     cap = cols.numbers("capacity", allow_null=True, minimum=0)
@@ -148,7 +148,7 @@ def _split_period_capacity(changes: list, base: str, rows: list, periods: bool) 
     return changes
 
 
-def _set_column(columns: dict, name: str, cols: "_Columns", target: np.ndarray, current: list | None,
+def _set_column(columns: dict, name: str, cols: ChangeColumns, target: np.ndarray, current: list | None,
                 count: int) -> None:
     rows, values = cols.values(name)
     if not rows.size:
@@ -160,7 +160,7 @@ def _set_column(columns: dict, name: str, cols: "_Columns", target: np.ndarray, 
     columns[name] = column
 
 
-def _node_changes(network: Network, cols: "_Columns", extra: dict) -> None:
+def _node_changes(network: Network, cols: ChangeColumns, extra: dict) -> None:
     """``{"node": id, "holdover": ...}`` changes: the node columns of flows over time."""
     for j, change in enumerate(cols.changes):
         wrong = [k for k in change if k not in ("node",) + NODE_EFFECTS]
@@ -188,119 +188,11 @@ def _escape(name: str) -> str:
     return str(name).replace("~", "~0").replace("/", "~1")
 
 
-class _Columns:
-    """The changes split into columns, with presence masks (one C-level pass each)."""
-
-    def __init__(self, changes: list, base: str, rows: list | None = None):
-        self.changes = changes
-        self.base = base
-        self.count = len(changes)
-        self.rows = rows  # each change's index in the request (when these are some of them)
-        self._has: dict = {}
-
-    def has(self, name: str) -> np.ndarray:
-        """Which changes have the member ``name`` (computed once per name).
-
-        Returns
-        -------
-        numpy.ndarray of bool
-            One entry per change.
-        """
-        if name not in self._has:
-            self._has[name] = np.fromiter(map(methodcaller("__contains__", name), self.changes), bool, self.count)
-        return self._has[name]
-
-    def values(self, name: str) -> tuple[np.ndarray, list]:
-        """(indices of the changes having ``name``, their values)."""
-        has = self.has(name)
-        return np.flatnonzero(has), list(compress(map(methodcaller("get", name), self.changes), has))
-
-    def where(self, name: str, rows: np.ndarray):
-        """A pointer function for the values :meth:`values` returned for ``name``.
-
-        Parameters
-        ----------
-        name : str
-        rows : numpy.ndarray
-            The change indices of those values.
-
-        Returns
-        -------
-        callable
-            Maps a position among the values to the JSON Pointer of that member.
-        """
-        return lambda j: self.at(rows[j], name)
-
-    def at(self, row: int, name: str | None = None) -> str:
-        """The JSON Pointer of a change, or of its member ``name``.
-
-        Parameters
-        ----------
-        row : int
-            Index among these changes; mapped through ``rows`` to the change's index in
-            the request when the changes are a subset of it.
-        name : str, optional
-
-        Returns
-        -------
-        str
-        """
-        row = int(row) if self.rows is None else self.rows[int(row)]
-        return f"{self.base}/{row}" + (f"/{name}" if name else "")
-
-    def numbers(self, name: str, **kwargs):
-        """The changes that give ``name``, and its values checked as JSON numbers.
-
-        Parameters
-        ----------
-        name : str
-        **kwargs
-            Passed to :func:`~service.model.columns.number_column` (``allow_null``,
-            ``minimum``).
-
-        Returns
-        -------
-        tuple of (numpy.ndarray, NumberColumn), or None
-            ``None`` when no change gives ``name``.
-
-        Raises
-        ------
-        InputError
-            Naming the first offending values.
-        """
-        rows, values = self.values(name)
-        if not rows.size:
-            return None
-        checked = number_column(values, self.where(name, rows), **kwargs)
-        return rows, checked
-
-    def booleans(self, name: str):
-        """The changes that give ``name``, and its values, which must be JSON booleans.
-
-        Returns
-        -------
-        tuple of (numpy.ndarray, numpy.ndarray of bool), or None
-            ``None`` when no change gives ``name``.
-
-        Raises
-        ------
-        InputError
-            Naming the first value that is not ``true`` or ``false``.
-        """
-        rows, values = self.values(name)
-        if not rows.size:
-            return None
-        if set(map(type, values)) - {bool}:
-            j = next(j for j, v in enumerate(values) if type(v) is not bool)
-            raise InputError.at(self.at(rows[j], name), "must be true or false")
-        return rows, np.asarray(values, dtype=bool)
-
-
-def _errors(rows, name: str | None, detail: str, cols: _Columns) -> InputError:
+def _errors(rows, name: str | None, detail: str, cols: ChangeColumns) -> InputError:
     return InputError([FieldError(cols.at(r, name), detail) for r in rows[:MAX_REPORTED_ERRORS]])
 
 
-def _targets(cols: _Columns, network: Network, key_index) -> np.ndarray:
+def _targets(cols: ChangeColumns, network: Network, key_index) -> np.ndarray:
     """The arc index each change names, validated."""
     has_arc, has_key = cols.has("arc"), cols.has("key")
     both = np.flatnonzero(has_arc & has_key)
@@ -319,7 +211,7 @@ def _targets(cols: _Columns, network: Network, key_index) -> np.ndarray:
     return target
 
 
-def _arc_indices(cols: _Columns, rows: np.ndarray, values: list, num_arcs: int) -> np.ndarray:
+def _arc_indices(cols: ChangeColumns, rows: np.ndarray, values: list, num_arcs: int) -> np.ndarray:
     if set(map(type, values)) - {int}:
         j = next(j for j, v in enumerate(values) if type(v) is not int)
         raise InputError.at(cols.at(rows[j], "arc"), "must be an arc index (an integer)")
@@ -333,7 +225,7 @@ def _arc_indices(cols: _Columns, rows: np.ndarray, values: list, num_arcs: int) 
     return idx
 
 
-def _key_indices(cols: _Columns, rows: np.ndarray, values: list, network: Network, key_index) -> np.ndarray:
+def _key_indices(cols: ChangeColumns, rows: np.ndarray, values: list, network: Network, key_index) -> np.ndarray:
     if set(map(type, values)) - {str}:
         j = next(j for j, v in enumerate(values) if type(v) is not str)
         raise InputError.at(cols.at(rows[j], "key"), "must be an arc key (a string)")
@@ -349,7 +241,7 @@ def _key_indices(cols: _Columns, rows: np.ndarray, values: list, network: Networ
     return np.asarray(found, dtype=np.int64)
 
 
-def _reject_repeats(cols: _Columns, target: np.ndarray) -> None:
+def _reject_repeats(cols: ChangeColumns, target: np.ndarray) -> None:
     order = np.argsort(target, kind="stable")
     repeat = np.flatnonzero(target[order][1:] == target[order][:-1])
     if repeat.size:
@@ -358,7 +250,7 @@ def _reject_repeats(cols: _Columns, target: np.ndarray) -> None:
         raise InputError.at(cols.at(again, name), f"arc {int(target[again])} is already changed by {cols.at(first)}")
 
 
-def _check_effect(cols: _Columns) -> None:
+def _check_effect(cols: ChangeColumns) -> None:
     effects = np.logical_or.reduce([cols.has(name) for name in ARC_EFFECTS + ("capacity_periods",)])
     none = np.flatnonzero(~effects)
     if none.size:
@@ -369,7 +261,7 @@ def _check_effect(cols: _Columns) -> None:
         raise _errors(both, "closed", "cannot be combined with capacity (a closed arc has capacity 0)", cols)
 
 
-def _new_capacity(network: Network, cols: _Columns, target: np.ndarray, cap, closed):
+def _new_capacity(network: Network, cols: ChangeColumns, target: np.ndarray, cap, closed):
     capacity, unlimited, lower = network.capacity, network.unlimited, network.lower
     shut = np.empty(0, dtype=np.int64) if closed is None else target[closed[0][closed[1]]]
     if cap is None and not shut.size:

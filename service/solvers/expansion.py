@@ -34,12 +34,12 @@ and charges each by their own power of ten).
 from __future__ import annotations
 
 import math
-import time
 from dataclasses import dataclass, field
 
 import numpy as np
 from ortools.sat.python import cp_model
 
+from ..deadline import Deadline
 from ..errors import FieldError, InputError, SolverFailure
 from . import expansion_checks as checks
 from .maxflow_graph import CapacityOverflow, graph_engine, max_flow_graph
@@ -113,7 +113,7 @@ class ExpansionSolution:
     stats: dict = field(default_factory=dict)
 
 
-def cheapest_expansion(lanes: Lanes, *, time_limit: float | None = None,
+def cheapest_expansion(lanes: Lanes, *, deadline: Deadline | None = None,
                        gap: float = 0.0) -> tuple[ExpansionSolution, dict]:
     """Solve and certify a capacity expansion problem.
 
@@ -121,9 +121,9 @@ def cheapest_expansion(lanes: Lanes, *, time_limit: float | None = None,
     ----------
     lanes : Lanes
         As given by the caller (integers or decimals).
-    time_limit : float, optional
-        Seconds for the whole solve; with one-off charges the search stops then with
-        the best plan so far (``feasible``).
+    deadline : Deadline, optional
+        When the whole solve must end; with one-off charges the search stops then with
+        the best plan so far (``feasible``). None: no limit.
     gap : float
         With one-off charges: stop once the relative gap is at most this.
 
@@ -148,10 +148,9 @@ def cheapest_expansion(lanes: Lanes, *, time_limit: float | None = None,
     >>> s.status, s.cost, s.additions.tolist(), s.flows.tolist()
     ('optimal', 10, [0, 1, 1], [5, 5, 3])
     """
-    started = time.monotonic()
     scaled, fq, fc = _scaled(lanes)
     if scaled.expand_fixed is not None and (scaled.expand_fixed[scaled.extendable] > 0).any():
-        solution, certificate = _with_one_off_charges(scaled, started, time_limit, gap)
+        solution, certificate = _with_one_off_charges(scaled, deadline, gap)
     else:
         solution, certificate = _linear(scaled)
     if fq > 1 or fc > 1:
@@ -280,7 +279,7 @@ def _infeasible(lanes: Lanes, engine: dict) -> tuple[ExpansionSolution, dict]:
                              source_side=side, cut_arcs=crossing, cut_capacity=proof["cut_capacity"]), certificate
 
 
-def _with_one_off_charges(lanes: Lanes, started: float, time_limit: float | None,
+def _with_one_off_charges(lanes: Lanes, deadline: Deadline | None,
                           gap: float) -> tuple[ExpansionSolution, dict]:
     engine = {"kind": "mip", "solver": "OR-Tools CP-SAT", "version": ORTOOLS_VERSION}
     plan = _min_cost_plan(lanes)
@@ -289,8 +288,8 @@ def _with_one_off_charges(lanes: Lanes, started: float, time_limit: float | None
     first_flows, first_additions, _, first_certificate = plan
     own_bound = first_certificate["dual_bound"]  # the one-off charges only add to any plan's cost
     first = _replay(lanes, first_flows, first_additions)
-    remaining = None if time_limit is None else max(0.01, time_limit - (time.monotonic() - started))
-    found, solver_bound, search = _search(lanes, first_flows, remaining, gap)
+    left = None if deadline is None else max(0.01, deadline.remaining())
+    found, solver_bound, search = _search(lanes, first_flows, left, gap)
     flows, certificate = first_flows, first
     if found is not None:
         found_certificate = _replay(lanes, found, _additions(lanes, found))
@@ -308,7 +307,7 @@ def _with_one_off_charges(lanes: Lanes, started: float, time_limit: float | None
                              bound=bound, gap=relative, stats={"search": search}), certificate
 
 
-def _search(lanes: Lanes, hint_flows: np.ndarray, time_limit: float | None, gap: float):
+def _search(lanes: Lanes, hint_flows: np.ndarray, seconds: float | None, gap: float):
     """CP-SAT on the fixed-charge model, hinted with the plan for per-unit charges alone.
 
     Returns
@@ -351,8 +350,8 @@ def _search(lanes: Lanes, hint_flows: np.ndarray, time_limit: float | None, gap:
     solver = cp_model.CpSolver()
     solver.parameters.num_workers = MIP_WORKERS
     solver.parameters.relative_gap_limit = gap
-    if time_limit is not None:
-        solver.parameters.max_time_in_seconds = time_limit
+    if seconds is not None:
+        solver.parameters.max_time_in_seconds = seconds
     status = solver.solve(model)
     if status in (cp_model.INFEASIBLE, cp_model.MODEL_INVALID):
         raise SolverFailure(f"CP-SAT returned {solver.status_name(status)} for a feasible expansion")

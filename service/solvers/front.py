@@ -6,6 +6,7 @@ from typing import Literal
 
 import numpy as np
 
+from ..deadline import Deadline
 from . import certificates
 from .maxflow_graph import CapacityOverflow, MaxFlowSolution, check_capacity_sums, max_flow_graph
 from .maxflow_lp import LP_TOLERANCE, max_flow_lp
@@ -25,7 +26,7 @@ def maximum_flow(
     sink: int,
     *,
     engine: EngineChoice = "auto",
-    time_limit: float | None = None,
+    deadline: Deadline | None = None,
 ) -> tuple[MaxFlowSolution, dict]:
     """Solve and certify a max-flow problem.
 
@@ -48,7 +49,7 @@ def maximum_flow(
         When the answer fails its certificate (a bug).
     """
     if engine == "lp":
-        solution = max_flow_lp(num_nodes, tail, head, capacity, unlimited, source, sink, time_limit=time_limit)
+        solution = max_flow_lp(num_nodes, tail, head, capacity, unlimited, source, sink, deadline=deadline)
         return solution, certify_max_flow(solution, num_nodes, tail, head, capacity, unlimited, source, sink)
     return _exact_route(num_nodes, tail, head, capacity, unlimited, source, sink)
 

@@ -1,7 +1,5 @@
-"""Linear programs on GLOP, built from a sparse matrix in one call.
+"""Certified linear programs: GLOP's answers (:mod:`service.solvers.glop`) proved.
 
-``solve_lp`` takes the model as numpy arrays and a CSR matrix and hands them to
-OR-Tools' ``fill_model_from_sparse_data``: no per-term Python loop.
 ``solve_certified`` is the front for callers that publish an answer: it tells an
 infeasible model from an unbounded one by proofs of its own (a least-violation
 model and an improving-direction model) and certifies every answer with
@@ -18,198 +16,22 @@ finite differences and scipy's marginals), so no sign is flipped here.
 
 from __future__ import annotations
 
-import time
 from dataclasses import dataclass, field
 
 import numpy as np
 import scipy.sparse as sp
-from ortools.linear_solver.python import model_builder_helper as mbh
 
-from ..errors import FieldError, InputError, SelfCheckFailed, SolverFailure
+from ..deadline import Deadline, remaining
+from ..errors import SelfCheckFailed, SolverFailure
 from . import lp_checks
-from .versions import ORTOOLS_VERSION
-
-_STATUS = {
-    mbh.SolveStatus.OPTIMAL: "optimal",
-    mbh.SolveStatus.INFEASIBLE: "infeasible",
-    mbh.SolveStatus.UNBOUNDED: "unbounded",
-    mbh.SolveStatus.FEASIBLE: "time_limit",
-    mbh.SolveStatus.NOT_SOLVED: "time_limit",
-    mbh.SolveStatus.CANCELLED_BY_USER: "time_limit",
-}
+from .glop import MIN_SLICE, LPSolution, lp_engine, solve_lp
 
 #: Values this close (relative) to an integer are reported as that integer, see ``tidy``.
 TIDY = 1e-9
-#: Shortest time handed to GLOP for a follow-up solve; below it we report time_limit.
-MIN_SLICE = 1e-3
-#: Measured on OR-Tools 9.15 (random LPs against SciPy's HiGHS, 25 per span): every
-#: answer was certified while the nonzero magnitudes of a model (coefficients, bounds,
-#: costs) spanned at most 1e8; at 1e10 a fifth failed their check, at 1e16 most did.
-RELIABLE_SPAN = 1e8
 
-
-@dataclass
-class LPSolution:
-    status: str  # optimal | infeasible | unbounded | time_limit
-    x: np.ndarray | None
-    objective: float | None
-    row_duals: np.ndarray | None
-    reduced_costs: np.ndarray | None
-    engine: dict
-
-
-def lp_engine(**extra) -> dict:
-    return {"kind": "lp", "solver": "OR-Tools GLOP", "version": ORTOOLS_VERSION, **extra}
-
-
-def _glop(c, matrix, row_lower, row_upper, col_lower, col_upper, maximize, time_limit, params) -> LPSolution:
-    model = mbh.ModelBuilderHelper()
-    model.fill_model_from_sparse_data(
-        np.ascontiguousarray(col_lower, dtype=np.float64),
-        np.ascontiguousarray(col_upper, dtype=np.float64),
-        np.ascontiguousarray(c, dtype=np.float64),
-        np.ascontiguousarray(row_lower, dtype=np.float64),
-        np.ascontiguousarray(row_upper, dtype=np.float64),
-        sp.csr_matrix(matrix, dtype=np.float64),
-    )
-    model.set_maximize(maximize)
-    solver = mbh.ModelSolverHelper("glop")
-    if time_limit is not None:
-        solver.set_time_limit_in_seconds(max(float(time_limit), MIN_SLICE))
-    if params:
-        solver.set_solver_specific_parameters(" ".join(params))
-    solver.solve(model)
-    raw = solver.status()
-    status = _STATUS.get(raw)
-    if status is None:
-        raise SolverFailure(f"GLOP stopped with status {raw.name}")
-    if status != "optimal":
-        return LPSolution(status, None, None, None, None, lp_engine())
-    return LPSolution(
-        status,
-        np.asarray(solver.variable_values(), dtype=np.float64),
-        float(solver.objective_value()),
-        np.asarray(solver.dual_values(), dtype=np.float64),
-        np.asarray(solver.reduced_costs(), dtype=np.float64),
-        lp_engine(),
-    )
-
-
-def solve_lp(
-    c: np.ndarray,
-    matrix: sp.csr_matrix,
-    row_lower: np.ndarray,
-    row_upper: np.ndarray,
-    col_lower: np.ndarray,
-    col_upper: np.ndarray,
-    *,
-    maximize: bool = False,
-    time_limit: float | None = None,
-    presolve: bool = True,
-    dual_simplex: bool = False,
-    confirm: bool = True,
-) -> LPSolution:
-    """Solve ``opt c.x`` subject to ``row_lower <= A x <= row_upper`` and column bounds.
-
-    Parameters
-    ----------
-    c : ndarray of float64
-        Objective coefficients.
-    matrix : scipy.sparse.csr_matrix
-        Constraint matrix, one row per constraint.
-    row_lower, row_upper, col_lower, col_upper : ndarray of float64
-        Bounds; ``-inf``/``inf`` for none.
-    maximize : bool
-    time_limit : float, optional
-        Seconds, for the whole call (both solves when a status is confirmed).
-    presolve : bool
-        Use GLOP's presolve. It reports unbounded models as infeasible (measured on
-        OR-Tools 9.15 even for ``min -x, x >= 0``), hence ``confirm``.
-    dual_simplex : bool
-        Use the dual simplex method: far faster on network models whose costs are
-        dual feasible from the start (multi-commodity flow).
-    confirm : bool
-        When presolve reports ``infeasible`` or ``unbounded``, re-solve without it
-        and return that answer instead. The status is then GLOP's best word, not a
-        proof: :func:`solve_certified` proves it.
-
-    Returns
-    -------
-    LPSolution
-        ``x``, duals and reduced costs are set only when ``status == "optimal"``;
-        duals and reduced costs follow the module's sign convention.
-
-    Raises
-    ------
-    SolverFailure
-        For an invalid model or an abnormal solver stop.
-    """
-    deadline = None if time_limit is None else time.monotonic() + float(time_limit)
-    params = ["use_dual_simplex: true"] if dual_simplex else []
-    try:
-        first = _glop(c, matrix, row_lower, row_upper, col_lower, col_upper, maximize, time_limit,
-                      params + ([] if presolve else ["use_preprocessing: false"]))
-    except SolverFailure:
-        if not presolve:
-            raise
-        # An abnormal stop (badly scaled data) sometimes passes with the other simplex
-        # method and no presolve (measured on OR-Tools 9.15).
-        other = [] if dual_simplex else ["use_dual_simplex: true"]
-        return _glop(c, matrix, row_lower, row_upper, col_lower, col_upper, maximize, _left(deadline),
-                     other + ["use_preprocessing: false"])
-    if not (presolve and confirm and first.status in ("infeasible", "unbounded")):
-        return first
-    left = _left(deadline)
-    if left is not None and left < MIN_SLICE:
-        return first
-    return _glop(c, matrix, row_lower, row_upper, col_lower, col_upper, maximize, left,
-                 params + ["use_preprocessing: false"])
-
-
-def magnitude_span(*arrays: np.ndarray) -> tuple[float, float]:
-    """Smallest and largest finite nonzero magnitude over the arrays (0, 0 when none)."""
-    found = [np.abs(a[np.isfinite(a) & (a != 0)]) for a in arrays if a is not None and a.size]
-    found = [f for f in found if f.size]
-    if not found:
-        return 0.0, 0.0
-    return float(min(f.min() for f in found)), float(max(f.max() for f in found))
-
-
-def beyond_range(exc: SolverFailure, pointer: str, **parts: np.ndarray) -> InputError:
-    """A 422 for data GLOP could not solve or certify: the spans of their magnitudes,
-    and the span it is measured to take (:data:`RELIABLE_SPAN`)."""
-    spans = []
-    for name, values in parts.items():
-        low, high = magnitude_span(values)
-        if high:
-            spans.append(f"{name} {low:g} to {high:g}")
-    low, high = magnitude_span(*parts.values())
-    ratio = high / low if low else 0.0
-    span = f"{ratio:.1e}" if np.isfinite(ratio) else "beyond 1e308"
-    return InputError(FieldError(pointer, (
-        f"the LP engine found no answer it could certify to a relative tolerance of {lp_checks.REL:g} "
-        f"({exc.detail}); the magnitudes here span {span} ({'; '.join(spans)}), while GLOP, which computes "
-        f"in doubles with absolute tolerances, is certified reliably up to a span of {RELIABLE_SPAN:.0e}: "
-        "rescale the units (e.g. thousands of units, or cents to dollars) to bring them closer")))
-
-
-def _left(deadline: float | None) -> float | None:
-    return None if deadline is None else deadline - time.monotonic()
-
-
-def incidence_matrix(num_nodes: int, tail: np.ndarray, head: np.ndarray) -> sp.csr_matrix:
-    """Node-arc incidence matrix: +1 at (tail, arc), -1 at (head, arc); rows = nodes.
-
-    Row ``i`` of ``A @ flows`` is the outflow minus the inflow at node ``i``. A
-    self-loop's two entries cancel.
-    """
-    m = tail.size
-    cols = np.arange(m)
-    data = np.concatenate([np.ones(m), -np.ones(m)])
-    return sp.csr_matrix(
-        (data, (np.concatenate([tail, head]), np.concatenate([cols, cols]))), shape=(num_nodes, m)
-    )
-
+#: Also importable from here: the GLOP primitives the certified front stands on.
+__all__ = ["LPModel", "LPResult", "LPSolution", "improving_direction", "least_violation", "settle_feasible",
+           "solve_certified", "solve_lp", "tidy", "timed_out"]
 
 # --------------------------------------------------------------------------- certified front
 
@@ -229,10 +51,12 @@ class LPModel:
 
     @property
     def num_rows(self) -> int:
+        """Constraints: the rows of ``matrix``."""
         return int(self.matrix.shape[0])
 
     @property
     def num_cols(self) -> int:
+        """Variables: the columns of ``matrix``."""
         return int(self.matrix.shape[1])
 
 
@@ -257,12 +81,12 @@ class LPResult:
     engine: dict = field(default_factory=lp_engine)
 
 
-def _solve(model: LPModel, deadline, **kwargs) -> LPSolution:
-    left = _left(deadline)
+def _solve(model: LPModel, deadline: Deadline | None, **kwargs) -> LPSolution:
+    left = remaining(deadline)
     if left is not None and left < MIN_SLICE:
         return LPSolution("time_limit", None, None, None, None, lp_engine())
     return solve_lp(model.c, model.matrix, model.row_lower, model.row_upper, model.col_lower, model.col_upper,
-                    maximize=model.maximize, time_limit=left, **kwargs)
+                    maximize=model.maximize, deadline=deadline, **kwargs)
 
 
 def _optimal(model: LPModel, sol: LPSolution) -> LPResult:
@@ -292,11 +116,12 @@ def tidy(model: LPModel, x: np.ndarray) -> np.ndarray:
 
 
 def timed_out() -> LPResult:
+    """The ``time_limit`` result: the deadline passed before any answer to check."""
     return LPResult("time_limit", certificate={"checked": False, "reason": "the time limit stopped the solver "
                                                                            "before it had an answer to check"})
 
 
-def solve_certified(model: LPModel, *, time_limit: float | None = None, dual_simplex: bool = False,
+def solve_certified(model: LPModel, *, deadline: Deadline | None = None, dual_simplex: bool = False,
                     prove: bool = True) -> LPResult:
     """Solve an LP and certify the answer, whatever its status.
 
@@ -309,8 +134,9 @@ def solve_certified(model: LPModel, *, time_limit: float | None = None, dual_sim
     Parameters
     ----------
     model : LPModel
-    time_limit : float, optional
-        Seconds for all solves together; when it runs out the status is ``time_limit``.
+    deadline : Deadline, optional
+        When all solves together must end; when it passes the status is ``time_limit``.
+        None: no limit.
     dual_simplex : bool
         See :func:`solve_lp`.
     prove : bool
@@ -329,7 +155,6 @@ def solve_certified(model: LPModel, *, time_limit: float | None = None, dual_sim
     SolverFailure
         GLOP and the proofs disagree in a way no re-solve settles.
     """
-    deadline = deadline_after(time_limit)
     sol = _solve(model, deadline, dual_simplex=dual_simplex)
     if sol.status == "optimal":
         return _optimal(model, sol)
@@ -345,7 +170,8 @@ def solve_certified(model: LPModel, *, time_limit: float | None = None, dual_sim
     return settle_feasible(model, phase1.x, deadline, said=sol.status, dual_simplex=dual_simplex)
 
 
-def settle_feasible(model: LPModel, start: np.ndarray, deadline, *, said: str, dual_simplex: bool) -> LPResult:
+def settle_feasible(model: LPModel, start: np.ndarray, deadline: Deadline | None, *, said: str,
+                    dual_simplex: bool) -> LPResult:
     """Finish a model GLOP called infeasible or unbounded that has the feasible point
     ``start``: unbounded when an improving direction exists, else solved again."""
     ray = improving_direction(model, deadline)
@@ -363,15 +189,7 @@ def settle_feasible(model: LPModel, start: np.ndarray, deadline, *, said: str, d
     raise SolverFailure(f"GLOP reported the model {said}, but it has a feasible point and no improving direction")
 
 
-def deadline_after(time_limit: float | None) -> float | None:
-    return None if time_limit is None else time.monotonic() + float(time_limit)
-
-
-def time_left(deadline: float | None) -> float | None:
-    return None if deadline is None else max(0.0, deadline - time.monotonic())
-
-
-def least_violation(model: LPModel, deadline) -> LPResult | None:
+def least_violation(model: LPModel, deadline: Deadline | None) -> LPResult | None:
     """Minimise the total violation of the rows, each relative to its bound: the sum
     of ``|violation_i| / (1 + |bound_i|)`` (variables keep their bounds).
 
@@ -419,7 +237,7 @@ def least_violation(model: LPModel, deadline) -> LPResult | None:
     return LPResult("infeasible", conflict_rows=rows, conflict_cols=cols, certificate=certificate)
 
 
-def improving_direction(model: LPModel, deadline):
+def improving_direction(model: LPModel, deadline: Deadline | None):
     """An improving direction of the recession cone, ``False`` when none, None on time out.
 
     The direction model keeps only the homogeneous part of every finite bound and

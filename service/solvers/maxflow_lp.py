@@ -14,13 +14,13 @@ import scipy.sparse as sp
 from ..errors import FieldError, InputError, SelfCheckFailed, SolverFailure, SolveTimeout
 from . import certificates
 from .graph import residual_reach
-from .lp import incidence_matrix, solve_lp
+from .glop import incidence_matrix, solve_lp
 from .maxflow_graph import MaxFlowSolution, graph_engine, unlimited_path
 
 LP_TOLERANCE = 1e-6
 
 
-def max_flow_lp(num_nodes, tail, head, capacity, unlimited, source, sink, *, time_limit=None) -> MaxFlowSolution:
+def max_flow_lp(num_nodes, tail, head, capacity, unlimited, source, sink, *, deadline=None) -> MaxFlowSolution:
     """Maximum s-t flow by linear programming (GLOP), with a minimum cut.
 
     The model: maximise ``v`` subject to ``A f - b v = 0`` and ``0 <= f <= capacity``,
@@ -49,7 +49,7 @@ def max_flow_lp(num_nodes, tail, head, capacity, unlimited, source, sink, *, tim
     for scale in _scales(cap):
         try:
             lp = solve_lp(c, matrix, zeros, zeros, np.zeros(m + 1), np.append(upper / scale, np.inf),
-                          maximize=True, time_limit=time_limit)
+                          maximize=True, deadline=deadline)
         except SolverFailure as exc:  # e.g. ABNORMAL on a badly conditioned scaling
             failure = exc.detail
             continue

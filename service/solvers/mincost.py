@@ -37,6 +37,7 @@ import math
 
 import numpy as np
 
+from ..deadline import Deadline
 from ..errors import FieldError, InputError, SolverFailure
 from . import mincost_checks as checks
 from .graph import residual_reach
@@ -78,7 +79,7 @@ def imbalance(supply: np.ndarray):
 def min_cost_flow(num_nodes: int, tail: np.ndarray, head: np.ndarray, capacity: np.ndarray,
                   unlimited: np.ndarray | None, cost: np.ndarray | None, lower: np.ndarray | None,
                   supply: np.ndarray, *, shortage: str = "reject", engine: str = "auto",
-                  time_limit: float | None = None) -> tuple[MinCostSolution, dict]:
+                  deadline: Deadline | None = None) -> tuple[MinCostSolution, dict]:
     """Solve and certify a min-cost flow problem.
 
     Parameters
@@ -94,8 +95,8 @@ def min_cost_flow(num_nodes: int, tail: np.ndarray, head: np.ndarray, capacity: 
         Per node; must sum to 0 when ``shortage == "reject"``.
     shortage : {"reject", "max-flow"}
     engine : {"auto", "graph", "lp"}
-    time_limit : float, optional
-        Seconds, for the LP engine.
+    deadline : Deadline, optional
+        When the LP engine must stop (the others do not take long enough to need one).
 
     Returns
     -------
@@ -120,7 +121,7 @@ def min_cost_flow(num_nodes: int, tail: np.ndarray, head: np.ndarray, capacity: 
         answer = _graph_route(net, shortage, forced=engine == "graph")
         if answer is not None:
             return answer
-    return _lp_route(net, shortage, time_limit)
+    return _lp_route(net, shortage, deadline)
 
 
 # ----------------------------------------------------------------------------- graph

@@ -11,7 +11,7 @@ from . import mincost_checks as checks
 from .certificates import throughput
 from .front import exact_max_flow
 from .graph import residual_reach
-from .lp import beyond_range, incidence_matrix, solve_lp
+from .glop import beyond_range, incidence_matrix, solve_lp
 from .maxflow_lp import LP_TOLERANCE
 from .mincost_graph import GraphRangeError, mincost_engine, negative_unlimited_cycle
 from .scaling import rescale
@@ -25,13 +25,13 @@ def _float(a):
     return None if a is None else a.astype(np.float64)
 
 
-def _lp_route(net: _Net, shortage: str, time_limit):
+def _lp_route(net: _Net, shortage: str, deadline):
     net = _Net(net.n, net.tail, net.head, _float(net.cap), net.unl, _float(net.cost), _float(net.low),
                _float(net.sup))
     try:
         if shortage == "reject":
-            return _lp_reject(net, time_limit)
-        return _lp_max_flow(net, time_limit)
+            return _lp_reject(net, deadline)
+        return _lp_max_flow(net, deadline)
     except SolverFailure as exc:  # a failed certificate too: GLOP could not reach the tolerance here
         capacities = net.cap if net.unl is None else net.cap[~net.unl]
         raise beyond_range(exc, "/arcs", capacities=capacities, costs=net.cost, supplies=net.sup) from None
@@ -60,11 +60,11 @@ def _float_negative_cycle(net: _Net):
     return cycle
 
 
-def _lp(net: _Net, supply, c, time_limit):
+def _lp(net: _Net, supply, c, deadline):
     upper = net.cap if net.unl is None else np.where(net.unl, np.inf, net.cap)
     low = np.zeros(net.tail.size) if net.low is None else net.low
     lp = solve_lp(c, incidence_matrix(net.n, net.tail, net.head), supply, supply, low, upper,
-                  time_limit=time_limit)
+                  deadline=deadline)
     if lp.status == "time_limit":
         raise SolveTimeout("the LP engine hit the time limit")
     return lp, low, upper
@@ -101,7 +101,7 @@ def _exact_auxiliary(n, tail, head, cap, unl, supply, low=None):
     return None, flows if low is None else flows + low
 
 
-def _lp_reject(net: _Net, time_limit):
+def _lp_reject(net: _Net, deadline):
     cap_t, sup_t = _transform_float(net)
     cycle = _float_negative_cycle(net)
     if cycle is not None:
@@ -112,7 +112,7 @@ def _lp_reject(net: _Net, time_limit):
         solution, certificate = _unbounded(net, cycle, feasible, ROUNDING)
         solution.engine = _lp_engine()
         return solution, certificate
-    lp, low, upper = _lp(net, net.sup, net.cost, time_limit)
+    lp, low, upper = _lp(net, net.sup, net.cost, deadline)
     if lp.status == "infeasible":
         side, _ = _exact_auxiliary(net.n, net.tail, net.head, cap_t, net.unl, sup_t)
         if side is None:
@@ -145,7 +145,7 @@ def _transform_float(net: _Net):
     return cap, sup
 
 
-def _lp_max_flow(net: _Net, time_limit):
+def _lp_max_flow(net: _Net, deadline):
     aug, src, dst = _augment(net)
     s, t = net.n, net.n + 1
     if aug.low is not None:
@@ -165,7 +165,7 @@ def _lp_max_flow(net: _Net, time_limit):
                None if aug.low is None else np.append(aug.low, 0.0), aug.sup)
     c = np.zeros(ret.tail.size)
     c[-1] = -1.0
-    lp, _, _ = _lp(ret, aug.sup, c, time_limit)
+    lp, _, _ = _lp(ret, aug.sup, c, deadline)
     if lp.status != "optimal":
         raise SolverFailure(f"GLOP returned {lp.status} for the largest shipment")
     cycle = _float_negative_cycle(net)
@@ -175,7 +175,7 @@ def _lp_max_flow(net: _Net, time_limit):
         return solution, certificate
     shipped = float(lp.x[-1])
     aug.sup[s], aug.sup[t] = shipped, -shipped
-    lp, low, upper = _lp(aug, aug.sup, aug.cost, time_limit)
+    lp, low, upper = _lp(aug, aug.sup, aug.cost, deadline)
     if lp.status != "optimal":
         raise SolverFailure(f"GLOP returned {lp.status} for the min-cost largest shipment")
     flows, p, certificate = _lp_certified(aug, lp, low, upper)

@@ -31,25 +31,14 @@ from dataclasses import dataclass, field
 import numpy as np
 import scipy.sparse as sp
 
+from ..deadline import Deadline
 from ..errors import SelfCheckFailed, SolverFailure
 from . import lp_checks
 from .front import maximum_flow
 from .graph import Graph
-from .lp import (
-    LPModel,
-    LPResult,
-    beyond_range,
-    deadline_after,
-    incidence_matrix,
-    lp_engine,
-    settle_feasible,
-    solve_certified,
-    time_left,
-)
-
-#: Relative slack of the delivery held in the second (cost) model of max-throughput.
-HOLD_SLACK = 1e-9
-
+from .glop import beyond_range, incidence_matrix, lp_engine
+from .lp import LPModel, LPResult, settle_feasible, solve_certified
+from .multicommodity_checks import HOLD_SLACK, check_flows, check_throughput, flow_tolerance
 
 @dataclass
 class Commodities:
@@ -149,7 +138,7 @@ def hold_delivery(model: LPModel, net: Network, com: Commodities, delivered: flo
 
 
 def multicommodity_flow(net: Network, com: Commodities, *, objective: str = "min-cost",
-                        time_limit: float | None = None) -> MultiCommoditySolution:
+                        deadline: Deadline | None = None) -> MultiCommoditySolution:
     """Solve and certify a multi-commodity flow problem.
 
     Parameters
@@ -159,8 +148,8 @@ def multicommodity_flow(net: Network, com: Commodities, *, objective: str = "min
     com : Commodities
         Source, sink and demand of each commodity (node indices).
     objective : {"min-cost", "max-throughput"}
-    time_limit : float, optional
-        Seconds for all solves together.
+    deadline : Deadline, optional
+        When all solves together must end (status ``time_limit`` then); None: no limit.
 
     Returns
     -------
@@ -176,25 +165,24 @@ def multicommodity_flow(net: Network, com: Commodities, *, objective: str = "min
         the spans, and the span it is measured to take.
     """
     try:
-        return _solve(net, com, objective, time_limit)
+        return _solve(net, com, objective, deadline)
     except SolverFailure as exc:  # a failed certificate too: the data's range, said clearly
         raise beyond_range(exc, "/arcs", capacities=net.capacity[net.limited].astype(np.float64),
                            costs=net.cost, demands=com.demands) from None
 
 
-def _solve(net: Network, com: Commodities, objective: str, time_limit) -> MultiCommoditySolution:
+def _solve(net: Network, com: Commodities, objective: str, deadline: Deadline | None) -> MultiCommoditySolution:
     if objective == "max-throughput":
-        return _max_throughput(net, com, time_limit)
-    deadline = deadline_after(time_limit)
+        return _max_throughput(net, com, deadline)
     model = min_cost_model(net, com)
-    result = solve_certified(model, time_limit=time_limit, dual_simplex=True, prove=False)
+    result = solve_certified(model, deadline=deadline, dual_simplex=True, prove=False)
     if result.status == "optimal":
         return multicommodity_answer(net, com, result)
     if result.status == "time_limit":
         return _timed_out(result)
     # GLOP says infeasible or unbounded. The delivery model settles which: its dual
     # bound proves how much can be delivered at most.
-    best = solve_certified(throughput_model(net, com), time_limit=time_left(deadline))
+    best = solve_certified(throughput_model(net, com), deadline=deadline)
     if best.status != "optimal":
         return _delivery_model_failed(best)
     total = float(com.demands.sum())
@@ -250,21 +238,20 @@ def _delivery_model_failed(result: LPResult) -> MultiCommoditySolution:
     raise SolverFailure(f"the delivery model is always feasible and bounded, yet it came back {result.status}")
 
 
-def _max_throughput(net: Network, com: Commodities, time_limit) -> MultiCommoditySolution:
+def _max_throughput(net: Network, com: Commodities, deadline: Deadline | None) -> MultiCommoditySolution:
     K, m, n = com.count, net.num_arcs, net.num_nodes
-    deadline = deadline_after(time_limit)
     model = throughput_model(net, com)
     # Primal simplex here: measured far faster than the dual on this model (3 s against
     # over 60 s at 10k arcs x 20 commodities), the reverse of the cost models.
-    first = solve_certified(model, time_limit=time_left(deadline))
+    first = solve_certified(model, deadline=deadline)
     if first.status != "optimal":
         return _delivery_model_failed(first)
     prices = _prices(net, first.duals[K * n:], first.certificate)
     held = hold_delivery(model, net, com, first.objective, 0.0)
-    second = solve_certified(held, time_limit=time_left(deadline), dual_simplex=True, prove=False)
+    second = solve_certified(held, deadline=deadline, dual_simplex=True, prove=False)
     if second.status == "infeasible":  # round-off at the held optimum: give it room
         held = hold_delivery(model, net, com, first.objective, HOLD_SLACK)
-        second = solve_certified(held, time_limit=time_left(deadline), dual_simplex=True, prove=False)
+        second = solve_certified(held, deadline=deadline, dual_simplex=True, prove=False)
     if second.status in ("infeasible", "unbounded"):
         # The delivery plan is feasible for the held model, so only unbounded is possible.
         second = settle_feasible(held, first.x, deadline, said=second.status, dual_simplex=True)
@@ -275,7 +262,7 @@ def _max_throughput(net: Network, com: Commodities, time_limit) -> MultiCommodit
     flows = second.x[:K * m].reshape(K, m)
     delivered = second.x[K * m:]
     certificate = check_flows(net, com, flows, delivered, prices, second.certificate)
-    certificate = _check_throughput(certificate, first, delivered)
+    certificate = check_throughput(certificate, first, delivered)
     return _answer(second, flows, delivered, prices, certificate)
 
 
@@ -296,89 +283,6 @@ def _prices(net: Network, row_prices: np.ndarray, certificate: dict) -> np.ndarr
         raise SelfCheckFailed("self-check failed: a capacity price is negative")
     prices[np.abs(prices) <= tol] = 0.0
     return np.maximum(prices, 0.0)
-
-
-def flow_tolerance(total: float) -> float:
-    """Absolute slack of a total (of demand or delivery): ``REL`` times its magnitude."""
-    return lp_checks.REL * abs(total)
-
-
-def check_flows(net: Network, com: Commodities, flows: np.ndarray, delivered: np.ndarray, prices: np.ndarray,
-                lp_certificate: dict) -> dict:
-    """Re-check a multi-commodity plan from the flows alone.
-
-    Conservation of every commodity at every node (net outflow = delivered at the
-    source, -delivered at the sink, 0 elsewhere), non-negative flows, shared
-    capacities, delivery within demand, the cost recomputed, and complementary
-    slackness of the capacity prices (a priced arc is full). Each holds to ``REL``
-    times its own magnitude: a commodity at a node against its throughput there and
-    its delivery, an arc against its capacity (or the flow it carries), a delivery
-    against its demand. The LP certificate (residuals, duality gap) is merged in.
-
-    Raises
-    ------
-    SelfCheckFailed
-    """
-    K, n, m = com.count, net.num_nodes, net.num_arcs
-    rel = lp_checks.REL
-    offset = (n * np.arange(K))[:, None]
-    tails, heads = (offset + net.tail[None, :]).ravel(), (offset + net.head[None, :]).ravel()
-    balance = np.bincount(tails, flows.ravel(), K * n) - np.bincount(heads, flows.ravel(), K * n)
-    size = np.abs(flows.ravel())
-    through = np.maximum(np.bincount(tails, size, K * n), np.bincount(heads, size, K * n))
-    expected = np.zeros(K * n)
-    np.add.at(expected, n * np.arange(K) + com.sources, delivered)
-    np.add.at(expected, n * np.arange(K) + com.sinks, -delivered)
-    node_allowed = rel * (through + np.abs(expected))
-    off = np.abs(balance - expected)
-    total = flows.sum(axis=0)
-    upper = net.capacity.astype(np.float64)
-    if net.unlimited is not None:
-        upper[net.unlimited] = np.inf
-    arc_size = np.where(np.isfinite(upper), upper, np.abs(flows).sum(axis=0))
-    arc_allowed = rel * arc_size
-    over = lp_checks.bound_violation(total, np.zeros(m), upper)
-    negative = np.maximum(-flows, 0).max(axis=0) if flows.size else np.zeros(m)
-    short = np.maximum(delivered - com.demands, 0.0)
-    if (off > node_allowed).any():
-        raise SelfCheckFailed(f"self-check failed: a commodity's flow is not conserved (imbalance "
-                              f"{float(off.max()):g})")
-    if (over > arc_allowed).any() or (negative > arc_allowed).any():
-        raise SelfCheckFailed(f"self-check failed: an arc's shared capacity is exceeded by "
-                              f"{float(max(over.max(), negative.max())):g}")
-    if (short > rel * com.demands).any():
-        raise SelfCheckFailed("self-check failed: a commodity is delivered beyond its demand")
-    priced = prices > 0
-    slack = np.abs(total - upper)
-    if (slack[priced] > arc_allowed[priced]).any():
-        raise SelfCheckFailed("self-check failed: an arc with a positive capacity price is not full")
-    cost = float(net.cost @ total)
-    return {
-        "checked": True,
-        "cost": cost,
-        "max_imbalance": float(off.max()) if off.size else 0.0,
-        "max_capacity_excess": float(max(over.max(initial=0.0), negative.max(initial=0.0))),
-        "primal_residual": lp_certificate["primal_residual"],
-        "dual_residual": lp_certificate["dual_residual"],
-        "dual_bound": lp_certificate["dual_objective"],
-        "gap": lp_certificate["gap"],
-        "duals_unique": lp_certificate["duals_unique"],
-        "degenerate": lp_certificate["degenerate"],
-        "tolerance": max(float(node_allowed.max(initial=0.0)), float(arc_allowed.max(initial=0.0))),
-        "relative_tolerance": rel,
-        "cost_tolerance": lp_certificate["tolerance"]["gap"],
-    }
-
-
-def _check_throughput(certificate: dict, first: LPResult, delivered: np.ndarray) -> dict:
-    """The plan delivers the proven most (the delivery model's dual bound)."""
-    bound = first.certificate["dual_objective"]
-    total = float(delivered.sum())
-    tol = first.certificate["tolerance"]["gap"] + HOLD_SLACK * max(1.0, abs(bound))
-    if total < bound - tol:
-        raise SelfCheckFailed(f"self-check failed: the plan delivers {total:g}, less than the proven most {bound:g}")
-    return {**certificate, "delivered_total": total, "delivery_bound": bound,
-            "delivery_gap": first.certificate["gap"], "prices_unique": first.certificate["duals_unique"]}
 
 
 def _explain_infeasible(net: Network, com: Commodities, best: LPResult, total: float) -> MultiCommoditySolution:

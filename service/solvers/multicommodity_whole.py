@@ -32,23 +32,20 @@ import logging
 import math
 import time
 from dataclasses import dataclass, field, replace
-from typing import Callable
 
 import numpy as np
 
+from ..deadline import Deadline
 from ..errors import SolverFailure
 from .multicommodity import Commodities, MultiCommoditySolution, Network, multicommodity_flow
 from .whole_checks import check_flows, check_plan, plan_cost, relative_gap
-from .whole_engines import EngineResult, engine_info, run_engine
+from .whole_engines import engine_info, run_engine
 from .whole_heuristic import Plan, cheapest_path, kept_from_lp, read_plan, route_greedily
-from .whole_model import (WholeData, WholeModel, build_model, cost_phase, cost_scale, flow_upper, limited_mask,
+from .whole_model import (WholeData, WholeModel, build_model, cost_scale, flow_upper, limited_mask,
                           no_detours, trivial_bound, whole_data_issue)
+from .whole_search import BOUND_SLACK, OnProgress, Search, hold_delivery, plan_value, run_search
 
 log = logging.getLogger("sluice.solver")
-
-#: Relative slack taken off a floating-point bound (the LP's, SCIP's) before it is
-#: rounded to a whole unit of the objective: a bound a hair too good would be wrong.
-BOUND_SLACK = 1e-9
 
 #: Share of the time left that fix-and-solve may take (min-cost). On the benchmark it
 #: found the integral plan within 0.001% of the LP bound in under 2 s, where the full
@@ -58,10 +55,6 @@ FIX_SHARE = 0.25
 
 #: The certificate of an answer without a plan: nothing to check but the reason.
 NO_PLAN = {"checked": True, "reason": "no plan within the time limit"}
-
-#: ``on_progress(report)``: a dict with ``phase``, ``incumbent``, ``bound``, ``gap``, ``seconds``.
-OnProgress = Callable[[dict], None]
-
 
 @dataclass
 class WholeSolution:
@@ -78,68 +71,8 @@ class WholeSolution:
     engine: dict = field(default_factory=lambda: engine_info("scip"))
 
 
-@dataclass
-class _Search:
-    """The best plan in hand, the best objective the engine has reported (its plan is
-    read when it stops) and the best bound, in model units; reports progress."""
-
-    data: WholeData
-    model: WholeModel
-    target: float
-    started: float
-    on_progress: OnProgress | None
-    phase: str
-    bound: int
-    plan: Plan | None = None
-    value: int | None = None  # objective of ``plan``
-    found: int | None = None  # the engine's incumbent while it runs
-
-    def better(self, a: int | None, b: int | None) -> bool:
-        """Whether objective ``a`` beats ``b`` (None: no plan)."""
-        return b is None or (a is not None and (a > b if self.model.maximize else a < b))
-
-    def tighten(self, bound: int | None) -> None:
-        """Take ``bound`` when it is tighter than the current bound (``None`` is ignored)."""
-        if bound is not None and (bound < self.bound if self.model.maximize else bound > self.bound):
-            self.bound = bound
-
-    @property
-    def best(self) -> int | None:
-        """The best objective known: the engine's running incumbent or the plan in hand, whichever is better."""
-        return self.found if self.better(self.found, self.value) else self.value
-
-    @property
-    def gap(self) -> float | None:
-        """The relative gap between :attr:`best` and the bound; ``None`` without a plan."""
-        return None if self.best is None else relative_gap(self.best, self.bound)
-
-    def closed(self) -> bool:
-        """Whether the gap is down to the target, so the search can stop."""
-        return self.gap is not None and self.gap <= self.target
-
-    def offer(self, plan: Plan) -> None:
-        """Keep ``plan``, and report progress, if its objective beats the plan in hand."""
-        value = plan_value(self.data, self.model, plan)
-        if self.better(value, self.value):
-            self.plan, self.value = plan, value
-            self.report()
-
-    def report(self) -> None:
-        """Send a progress report, in the caller's units (costs unscaled).
-
-        Does nothing without an ``on_progress`` listener.
-        """
-        if self.on_progress is None:
-            return
-        unit = 1 if self.model.maximize else 10**self.data.scale
-        best = self.best
-        self.on_progress({"phase": self.phase, "incumbent": None if best is None else best / unit,
-                          "bound": self.bound / unit, "gap": self.gap,
-                          "seconds": round(time.perf_counter() - self.started, 3)})
-
-
 def whole_unit_flow(net: Network, com: Commodities, *, objective: str = "min-cost", single_path: bool = False,
-                    gap: float = 0.0, time_limit: float = 30.0, engine: str = "scip",
+                    deadline: Deadline, gap: float = 0.0, engine: str = "scip",
                     on_progress: OnProgress | None = None) -> WholeSolution:
     """Solve and certify a whole-unit multi-commodity flow problem.
 
@@ -155,8 +88,9 @@ def whole_unit_flow(net: Network, com: Commodities, *, objective: str = "min-cos
         ``max-throughput``: a commodity is delivered in full on one path, or not at all.
     gap : float
         Stop once the relative gap is at most this (0: prove the best plan).
-    time_limit : float
-        Seconds for everything (LP, heuristic, search).
+    deadline : Deadline
+        When everything (LP, heuristic, search) must end; the search stops there with
+        the best plan so far.
     engine : {"cp-sat", "scip"}
     on_progress : callable, optional
         Told of every better plan and bound while the search runs.
@@ -174,7 +108,6 @@ def whole_unit_flow(net: Network, com: Commodities, *, objective: str = "min-cos
         with more than six decimals, negative costs with ``single_path``.
     """
     started = time.perf_counter()
-    deadline = started + time_limit
     data = _whole_data(net, com, objective, single_path)
     lp = _relaxation(net, com, objective, deadline)
     if lp is not None and lp.status == "infeasible":
@@ -182,7 +115,7 @@ def whole_unit_flow(net: Network, com: Commodities, *, objective: str = "min-cos
     model = build_model(data)
     if lp is not None and lp.status == "unbounded":
         return _unbounded(data, model, lp, deadline, engine)
-    search = _Search(data, model, gap, started, on_progress, "deliver" if data.throughput else "cost",
+    search = Search(data, model, gap, started, on_progress, "deliver" if data.throughput else "cost",
                      trivial_bound(model))
     solved = lp is not None and lp.status == "optimal"
     if solved:
@@ -193,10 +126,9 @@ def whole_unit_flow(net: Network, com: Commodities, *, objective: str = "min-cos
         if plan is not None:
             search.offer(plan)
     if solved and not data.throughput:
-        now = time.perf_counter()
-        _fix_and_solve(search, lp, engine, now + FIX_SHARE * (deadline - now))
+        _fix_and_solve(search, lp, engine, Deadline.after(FIX_SHARE * deadline.remaining()))
     hint = search.plan.values(data) if search.plan is not None else _rounded_lp(data, lp)
-    result = _search(search, engine, hint, deadline)
+    result = run_search(search, engine, hint, deadline)
     if result is not None and result.status == "infeasible":
         if search.plan is not None:
             raise SolverFailure("the engine calls the problem infeasible, yet a plan was found")
@@ -205,7 +137,7 @@ def whole_unit_flow(net: Network, com: Commodities, *, objective: str = "min-cos
         return WholeSolution("time_limit", bound=_in_units(data, search.model, search.bound),
                              certificate=dict(NO_PLAN),
                              engine=engine_info(engine))
-    cost_bound = _hold_delivery(search, engine, deadline) if data.throughput else None
+    cost_bound = hold_delivery(search, engine, deadline) if data.throughput else None
     return _answer(data, search, cost_bound, engine)
 
 
@@ -218,10 +150,10 @@ def _whole_data(net: Network, com: Commodities, objective: str, single_path: boo
     return WholeData(net, com, com.demands.astype(np.int64), cost, scale, single_path, objective == "max-throughput")
 
 
-def _relaxation(net: Network, com: Commodities, objective: str, deadline: float) -> MultiCommoditySolution | None:
+def _relaxation(net: Network, com: Commodities, objective: str, deadline: Deadline) -> MultiCommoditySolution | None:
     """The LP relaxation, or None when it could not be had (then the search starts cold)."""
     try:
-        lp = multicommodity_flow(net, com, objective=objective, time_limit=max(0.01, deadline - time.perf_counter()))
+        lp = multicommodity_flow(net, com, objective=objective, deadline=deadline)
     except SolverFailure as exc:  # the LP only warms the search up; the plan has its own certificate
         log.error("whole units: the LP relaxation failed (%s); searching without it", exc)
         return None
@@ -238,7 +170,7 @@ def _lp_bound(data: WholeData, lp: MultiCommoditySolution) -> int:
     return math.ceil(best - BOUND_SLACK * max(1.0, abs(best)))
 
 
-def _fix_and_solve(search: _Search, lp: MultiCommoditySolution, engine: str, until: float) -> None:
+def _fix_and_solve(search: Search, lp: MultiCommoditySolution, engine: str, until: Deadline) -> None:
     """min-cost: keep the commodities the LP routes in whole units as they are and solve
     the others exactly (the same engine, until ``until``) on the capacity they leave.
 
@@ -247,7 +179,7 @@ def _fix_and_solve(search: _Search, lp: MultiCommoditySolution, engine: str, unt
     the LP bound then proves.
     """
     data = search.data
-    if search.closed() or until - time.perf_counter() <= 0:
+    if search.closed() or until.expired():
         return
     net, com = data.net, data.com
     kept = kept_from_lp(data, lp.flows, lp.delivered, no_detours(data, flow_upper(data)))
@@ -261,7 +193,7 @@ def _fix_and_solve(search: _Search, lp: MultiCommoditySolution, engine: str, unt
     sub = WholeData(Network(net.num_nodes, net.tail, net.head, room, net.unlimited, net.cost),
                     Commodities(com.sources[free], com.sinks[free], com.demands[free]), data.demands[free],
                     data.cost, data.scale, data.single_path, False)
-    result = run_engine(engine, build_model(sub), None, time_limit=until - time.perf_counter(), gap=search.target)
+    result = run_engine(engine, build_model(sub), None, deadline=until, gap=search.target)
     if result.values is None:
         return
     part = read_plan(sub, result.values)
@@ -287,70 +219,11 @@ def _rounded_lp(data: WholeData, lp: MultiCommoditySolution | None) -> np.ndarra
     return np.concatenate([x, np.asarray(delivered, dtype=np.int64)])
 
 
-def plan_value(data: WholeData, model: WholeModel, plan: Plan) -> int:
-    """The model's objective at ``plan``: units delivered (maximising) or scaled cost."""
-    return int(plan.delivered.sum()) if model.maximize else plan_cost(data, plan.flows(data))
-
-
-def _search(search: _Search, engine: str, hint, deadline: float) -> EngineResult | None:
-    """Run the engine on ``search.model`` until the gap closes or the time is up."""
-    if search.closed() or deadline - time.perf_counter() <= 0:
-        return None
-
-    def on_plan(objective: float, bound: float, seconds: float) -> bool:
-        """The engine's callback: record its incumbent and bound, report, and stop once closed.
-
-        Returns
-        -------
-        bool
-            True to stop the engine (the gap reached the target).
-        """
-        if math.isfinite(objective) and search.better(int(round(objective)), search.found):
-            search.found = int(round(objective))
-        search.tighten(_engine_bound(bound, search.model))
-        search.report()
-        return search.closed()
-
-    # Without a listener the engine's own gap test stops it (its bound is at least the
-    # LP's), so the callback, which costs SCIP an event handler, is only for progress.
-    result = run_engine(engine, search.model, hint, time_limit=deadline - time.perf_counter(), gap=search.target,
-                        on_plan=on_plan if search.on_progress is not None else None)
-    search.found = None
-    search.tighten(_engine_bound(result.bound, search.model))
-    if result.values is not None:
-        search.offer(read_plan(search.data, result.values))
-    return result
-
-
-def _engine_bound(bound: float | None, model: WholeModel) -> int | None:
-    """An engine's bound in whole model units (the objective is integral)."""
-    if bound is None or not math.isfinite(bound):
-        return None
-    slack = BOUND_SLACK * max(1.0, abs(bound))
-    return math.floor(bound + slack) if model.maximize else math.ceil(bound - slack)
-
-
-def _hold_delivery(search: _Search, engine: str, deadline: float) -> int | None:
-    """max-throughput, second phase: the least cost with the delivery held. Returns
-    the proven cost bound (scaled), or None when the delivery is not proven yet."""
-    if not search.closed():
-        return None
-    data = search.data
-    model = cost_phase(search.model, data, int(search.plan.delivered.sum()))
-    held = _Search(data, model, search.target, search.started, search.on_progress, "cost", trivial_bound(model))
-    held.offer(search.plan)
-    result = _search(held, engine, search.plan.values(data), deadline)
-    if result is not None and result.status == "infeasible":
-        raise SolverFailure("the engine found no plan delivering as much as the plan it was given")
-    search.plan = held.plan
-    return held.bound
-
-
 def _in_units(data: WholeData, model: WholeModel, value: int) -> float:
     return value if model.maximize else value / 10**data.scale
 
 
-def _answer(data: WholeData, search: _Search, cost_bound: int | None, engine: str) -> WholeSolution:
+def _answer(data: WholeData, search: Search, cost_bound: int | None, engine: str) -> WholeSolution:
     plan = search.plan
     flows = plan.flows(data)
     cost = plan_cost(data, flows)
@@ -384,7 +257,7 @@ def _solver_infeasible(data: WholeData, engine: str) -> WholeSolution:
                          engine=engine_info(engine))
 
 
-def _unbounded(data: WholeData, model: WholeModel, lp: MultiCommoditySolution, deadline: float,
+def _unbounded(data: WholeData, model: WholeModel, lp: MultiCommoditySolution, deadline: Deadline,
                engine: str) -> WholeSolution:
     """A negative-cost cycle of unlimited arcs (the LP's ray). Unbounded in whole units
     too once any whole-unit plan exists (the cycle is integral and can be added to it
@@ -395,7 +268,7 @@ def _unbounded(data: WholeData, model: WholeModel, lp: MultiCommoditySolution, d
         values = np.zeros(model.num_vars, dtype=np.int64)
     else:
         feasibility = replace(model, c=np.zeros_like(model.c))
-        result = run_engine(engine, feasibility, None, time_limit=max(0.0, deadline - time.perf_counter()), gap=0.0)
+        result = run_engine(engine, feasibility, None, deadline=deadline, gap=0.0)
         if result.status == "infeasible":
             return _solver_infeasible(data, engine)
         if result.values is None:

@@ -57,11 +57,11 @@ Every maximum flow used as a witness and every cut is checked by
 
 from __future__ import annotations
 
-import time
 from dataclasses import dataclass, field
 
 import numpy as np
 
+from ..deadline import Deadline, expired
 from ..errors import FieldError, InputError, SolverFailure, SolveTimeout
 from .certificates import check_max_flow, check_path
 from .closure_checks import ClosureChecks
@@ -115,7 +115,7 @@ class ResilienceSolution:
 
 def arc_closures(num_nodes: int, tail: np.ndarray, head: np.ndarray, capacity: np.ndarray,
                  unlimited: np.ndarray | None, source: int, sink: int, *,
-                 time_limit: float | None = None) -> tuple[ResilienceSolution, dict]:
+                 deadline: Deadline | None = None) -> tuple[ResilienceSolution, dict]:
     """The maximum flow and, for every arc whose closure lowers it, the value without it.
 
     Parameters
@@ -128,8 +128,8 @@ def arc_closures(num_nodes: int, tail: np.ndarray, head: np.ndarray, capacity: n
     unlimited : ndarray of bool or None
     source, sink : int
         Distinct node indices.
-    time_limit : float, optional
-        Seconds; :class:`~service.errors.SolveTimeout` when exceeded.
+    deadline : Deadline, optional
+        :class:`~service.errors.SolveTimeout` once it has passed; None: no limit.
 
     Returns
     -------
@@ -150,7 +150,6 @@ def arc_closures(num_nodes: int, tail: np.ndarray, head: np.ndarray, capacity: n
     >>> s.value, s.failing.tolist(), s.value_without.tolist()
     (8, [0, 2, 3, 1, 4], [3, 4, 4, 5, 7])
     """
-    deadline = None if time_limit is None else time.monotonic() + time_limit
     scaled = common_scale(capacity)
     if scaled is None:
         raise InputError(FieldError("/arcs", "capacities have more than 6 decimal places or are too large once "
@@ -198,7 +197,7 @@ def _unscale(solution: ResilienceSolution, certificate: dict, factor: int) -> No
 
 def closure_losses(num_nodes: int, tail: np.ndarray, head: np.ndarray, capacity: np.ndarray,
                    unlimited: np.ndarray | None, source: int, sink: int, flows: np.ndarray, value: int,
-                   checks: ClosureChecks, *, deadline: float | None = None) -> ClosureLosses:
+                   checks: ClosureChecks, *, deadline: Deadline | None = None) -> ClosureLosses:
     """Every arc's loss on closure (see the module doc), each witnessed through ``checks``.
 
     Parameters
@@ -209,8 +208,8 @@ def closure_losses(num_nodes: int, tail: np.ndarray, head: np.ndarray, capacity:
         A maximum flow of value ``value``.
     checks : ClosureChecks
         Receives every witness flow and cut, and checks it.
-    deadline : float, optional
-        ``time.monotonic()`` value after which :class:`SolveTimeout` is raised.
+    deadline : Deadline, optional
+        :class:`SolveTimeout` is raised once it has passed.
     """
     flows = np.where(tail == head, 0, flows)  # a self-loop's flow is a circulation: drop it
     checks.witness(flows)
@@ -248,7 +247,7 @@ def _group_tests(solver, left, psi, value, loss, cuts, checks, deadline) -> int:
     tests, size, at = 0, GROUP_START, 0
     order = left.tolist()
     while at < len(order):
-        if deadline is not None and time.monotonic() > deadline:
+        if expired(deadline):
             raise SolveTimeout("the closure losses were not all found within the time limit; submit the "
                                "request as a job (POST /v1/jobs) for a longer limit")
         group = np.array(order[at:at + size], dtype=np.int64)

@@ -4,10 +4,10 @@ for a negative-cost residual cycle (see :mod:`service.solvers.verify`)."""
 from __future__ import annotations
 
 import math
-import time
 
 import numpy as np
 
+from ..deadline import Deadline, expired
 from ..errors import SelfCheckFailed, SolveTimeout
 from .plan_checks import (
     FORWARD, RELATIVE_TOLERANCE, Residual, Verdict, _apply, _fail, _finite, _number, _unlimited_first, _walk,
@@ -40,7 +40,7 @@ def parent_cycle(parent_node: np.ndarray) -> list | None:
     return cycle[::-1]
 
 
-def negative_cycle(num_nodes, res: Residual, weight: np.ndarray, tol=0.0, deadline: float | None = None):
+def negative_cycle(num_nodes, res: Residual, weight: np.ndarray, tol=0.0, deadline: Deadline | None = None):
     """Bellman-Ford search for a negative-cost cycle in a residual network.
 
     Every node starts at distance 0 (as if joined by free arcs to a virtual root), so
@@ -59,13 +59,13 @@ def negative_cycle(num_nodes, res: Residual, weight: np.ndarray, tol=0.0, deadli
     Raises
     ------
     SolveTimeout
-        When ``deadline`` (a ``time.monotonic()`` value) passes.
+        When ``deadline`` passes.
     """
     dist = np.zeros(num_nodes, dtype=weight.dtype)
     parent = np.full(num_nodes, -1, dtype=np.int64)
     edge_ids = np.arange(res.size)
     for _ in range(num_nodes + 1):
-        if deadline is not None and time.monotonic() > deadline:
+        if expired(deadline):
             raise SolveTimeout("the search for a negative-cost cycle exceeded the time limit")
         candidate = dist[res.src] + weight
         better = np.flatnonzero(candidate < dist[res.dst] - tol)
@@ -83,7 +83,7 @@ def negative_cycle(num_nodes, res: Residual, weight: np.ndarray, tol=0.0, deadli
 
 
 def verify_min_cost_flow(num_nodes, tail, head, capacity, unlimited, cost, lower, supply, flows,
-                         *, deadline: float | None = None) -> Verdict:
+                         *, deadline: Deadline | None = None) -> Verdict:
     """Check a client's min-cost flow plan.
 
     Parameters
@@ -96,8 +96,8 @@ def verify_min_cost_flow(num_nodes, tail, head, capacity, unlimited, cost, lower
         Net outflow required at each node (positive: supply, negative: demand).
     flows : ndarray
         The client's flow per arc.
-    deadline : float, optional
-        ``time.monotonic()`` value at which the cycle search gives up.
+    deadline : Deadline, optional
+        When the cycle search gives up (:class:`~service.errors.SolveTimeout`).
 
     Returns
     -------

@@ -30,6 +30,7 @@ from ortools.math_opt import callback_pb2, model_parameters_pb2, model_pb2, para
 from ortools.math_opt.core.python import solver as mathopt
 from ortools.sat.python import cp_model
 
+from ..deadline import Deadline
 from ..errors import SolverFailure
 from .versions import ORTOOLS_VERSION
 from .whole_model import INT_LIMIT, WholeModel
@@ -83,12 +84,14 @@ def engine_info(name: str) -> dict:
     return {"kind": "mip", "solver": solver, "version": ORTOOLS_VERSION}
 
 
-def run_engine(name: str, model: WholeModel, hint: np.ndarray | None, *, time_limit: float, gap: float,
+def run_engine(name: str, model: WholeModel, hint: np.ndarray | None, *, deadline: Deadline, gap: float,
                on_plan: OnPlan | None = None) -> EngineResult:
-    """Solve ``model`` with the named engine within ``time_limit`` seconds.
+    """Solve ``model`` with the named engine, stopping at ``deadline``.
 
     Parameters
     ----------
+    deadline : Deadline
+        The engine gets what is left of it once its model is built.
     hint : ndarray, optional
         A value per column (a feasible plan, or rounded LP values): the first plan tried.
     gap : float
@@ -97,9 +100,9 @@ def run_engine(name: str, model: WholeModel, hint: np.ndarray | None, *, time_li
         CP-SAT only: told of every improving plan; a true return stops the search.
     """
     if name == "cp-sat":
-        return _cpsat(model, hint, time_limit, gap, on_plan)
+        return _cpsat(model, hint, deadline, gap, on_plan)
     if name == "scip":
-        return _scip(model, hint, time_limit, gap, on_plan)
+        return _scip(model, hint, deadline, gap, on_plan)
     raise ValueError(f"unknown engine {name!r}")
 
 
@@ -160,12 +163,12 @@ def _told(on_plan: OnPlan | None, objective: float, bound: float, started: float
         return False
 
 
-def _cpsat(model: WholeModel, hint, time_limit: float, gap: float, on_plan) -> EngineResult:
+def _cpsat(model: WholeModel, hint, deadline: Deadline, gap: float, on_plan) -> EngineResult:
     started = time.perf_counter()
     cp = cpsat_model(model, hint)
     solver = cp_model.CpSolver()
     params = solver.parameters
-    params.max_time_in_seconds = max(0.0, time_limit - (time.perf_counter() - started))
+    params.max_time_in_seconds = deadline.remaining()
     params.relative_gap_limit = gap
     params.num_workers = CPSAT_WORKERS
     status = solver.solve(cp, _Watcher(on_plan, started))
@@ -259,10 +262,10 @@ def number(text: str) -> float | None:
     return value if math.isfinite(value) and abs(value) < 1e19 else None
 
 
-def _scip(model: WholeModel, hint, time_limit: float, gap: float, on_plan) -> EngineResult:
+def _scip(model: WholeModel, hint, deadline: Deadline, gap: float, on_plan) -> EngineResult:
     started = time.perf_counter()
     proto = scip_model(model)
-    left = max(0.01, time_limit - (time.perf_counter() - started))
+    left = max(0.01, deadline.remaining())
     params = parameters_pb2.SolveParametersProto()
     own = max(0.01, left - min(SCIP_MARGIN, 0.2 * left))
     params.time_limit.seconds, params.time_limit.nanos = int(own), int((own % 1) * 1e9)

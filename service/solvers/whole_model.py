@@ -29,7 +29,7 @@ from dataclasses import dataclass
 import numpy as np
 import scipy.sparse as sp
 
-from .lp import incidence_matrix
+from .glop import incidence_matrix
 from .multicommodity import Commodities, Network
 from .scaling import decimal_places, scale_to_int
 

@@ -24,12 +24,13 @@ import requests
 import scipy.sparse as sp
 from ortools.linear_solver.python import model_builder_helper as mbh
 
+from service.deadline import Deadline
 from service.kinds import Limits
 from service.kinds import lp as lp_kind
 from service.kinds import multicommodity as mc_kind
 from tests.perf.harness import best_of, post_json, served, table
 
-LIMITS = Limits(time_limit=600.0)
+LIMITS = Limits()
 
 
 def glop(c, A, rl, ru, cl, cu, *, maximize=False, params=""):
@@ -126,7 +127,7 @@ def baseline_multicommodity(case, objective: str) -> float:
 
 
 def in_process(kind, body):
-    return kind.solve(kind.parse(body, LIMITS), LIMITS)
+    return kind.solve(kind.parse(body, LIMITS), Deadline.after(600.0))
 
 
 def _bypass(body: dict) -> dict:

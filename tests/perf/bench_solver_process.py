@@ -15,6 +15,7 @@ import time
 
 import numpy as np
 
+from service.deadline import Deadline
 from service.model.fastjson import decode_columnar
 from service.jobs.runner import SolverPool, unpack
 from service.kinds import KINDS, Limits
@@ -32,19 +33,19 @@ def run(args) -> None:
         for m in [100_000] if args.quick else [100_000, 1_000_000]:
             # Parsed as the API parses a columnar body, so the arrays have the same types.
             problem = kind.parse(decode_columnar(bodies(*random_network(m))["columns/int ids"]), limits)
-            message = ("solve", kind.name, problem, limits)
-            want = kind.solve(problem, limits)
-            got, _ = unpack(pool.run(message, deadline=time.monotonic() + 600))  # warm the child
+            message = ("solve", kind.name, problem, None)
+            want = kind.solve(problem, Deadline.after(600))
+            got, _ = unpack(pool.run(message, deadline=Deadline.after(600)))  # warm the child
             assert np.array_equal(got["flows"], want["flows"])
             inline, pooled, overhead = [], [], []
             for _ in range(REPEAT):
                 gc.collect()
                 t0 = time.perf_counter()
-                kind.solve(problem, limits)
+                kind.solve(problem, Deadline.after(600))
                 inline.append(time.perf_counter() - t0)
                 gc.collect()
                 t0 = time.perf_counter()
-                _, child_s = unpack(pool.run(message, deadline=time.monotonic() + 600))
+                _, child_s = unpack(pool.run(message, deadline=Deadline.after(600)))
                 pooled.append(time.perf_counter() - t0)
                 overhead.append(pooled[-1] - child_s)
             med = statistics.median

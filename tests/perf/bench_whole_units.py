@@ -40,6 +40,7 @@ from ortools.math_opt.core.python import solver as mathopt
 from ortools.sat.python import cp_model
 from scipy.optimize import Bounds, LinearConstraint, milp
 
+from service.deadline import Deadline
 from service.solvers import whole_engines
 from service.solvers.multicommodity import Commodities, Network, multicommodity_flow
 from service.solvers.multicommodity_whole import whole_unit_flow
@@ -236,7 +237,7 @@ def service_run(net, com, single_path: bool, engine: str, limit: float) -> tuple
     def on_progress(report):
         points.append((time.perf_counter() - started, report["incumbent"], report["bound"]))
 
-    sol = whole_unit_flow(net, com, single_path=single_path, time_limit=limit, engine=engine,
+    sol = whole_unit_flow(net, com, single_path=single_path, deadline=Deadline.after(limit), engine=engine,
                           on_progress=on_progress)
     return summary(points, sol.cost, sol.bound, time.perf_counter() - started, sol.status)
 
