@@ -43,7 +43,7 @@ def test_kinds_endpoint_lists_each_declaration(client):
         caps = listed[name]["capabilities"]
         assert listed[name]["endpoint"] == f"/v1/{name}" and listed[name]["summary"] == kind.summary
         assert caps["what_if"] == (kind.from_network is not None) and caps["dimacs"] == kind.dimacs
-        assert caps["diagram"] == kind.drawable and caps["verify"] == kind.verifiable
+        assert caps["diagram"] == kind.drawable and caps["verify"] == (kind.verify is not None)
         assert client.get(f"/v1/scenarios/{listed[name]['example']}").status_code == 200
     # what the capabilities say holds: a what-if route where declared, none elsewhere
     rules = {r.rule for r in client.application.url_map.iter_rules()}

@@ -94,8 +94,6 @@ KNOWN: dict[tuple, str] = {
     ("local", "service.api.spec", "service.api.networks"): _SPEC,
     ("local", "service.api", "service.api.spec"): _SPEC,
     ("local", "service.api.metrics", "service.kinds"): "issue 15, capabilities from KINDS: " + _NOTHING_HIDDEN,
-    ("local", "service.kinds.base", "service.model.schemas"): "issue 15, the Kind declaration: " + _NOTHING_HIDDEN,
-    ("local", "service.kinds.base", "service.model.stored"): "issue 15, the Kind declaration: " + _NOTHING_HIDDEN,
     ("local", "service.intake", "service.errors"): _NOTHING_HIDDEN + " (no slice owns it yet)",
     ("local", "service.cli", "service.serving"): "serving is imported at the top of cli.py already (no slice owns "
                                                  "it yet)",

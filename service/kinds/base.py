@@ -13,6 +13,8 @@ from typing import Any, Callable, Protocol
 
 from ..errors import InputError
 from ..model.ids import NodeIndex, ids_of, lookalike, shown_id  # noqa: F401 - ids_of: the kinds take it from here
+from ..model.schemas import load_envelope
+from ..model.stored import body_of
 
 
 @dataclass(frozen=True)
@@ -37,6 +39,25 @@ class Limits:
 class Problem(Protocol):
     digest: str
     options: dict
+
+
+@dataclass(frozen=True)
+class PlanVerifier:
+    """How a kind checks a client's own plan (``POST /v1/verify/{kind}``).
+
+    Attributes
+    ----------
+    parse : callable
+        ``parse(body, limits) -> plan``: the verify request (``{"problem", "flows"}``)
+        read and validated; raises :class:`~service.errors.InputError` with pointers
+        under ``/problem`` or ``/flows``.
+    check : callable
+        ``check(plan, limits) -> dict``: the verdict as the response document
+        (without ``timing_ms``, which the route adds).
+    """
+
+    parse: Callable[[Any, Limits], Any]
+    check: Callable[[Any, Limits], dict]
 
 
 @dataclass(frozen=True)
@@ -70,8 +91,9 @@ class Kind:
         The DIMACS ``p`` format the solve endpoint also takes as ``text/x-dimacs``.
     drawable : bool
         ``service.drawing`` has a drawer for the kind (``POST /v1/diagram.svg``).
-    verifiable : bool
-        Clients' plans can be checked (``POST /v1/verify/{name}``, :mod:`.verify`).
+    verify : PlanVerifier, optional
+        How clients' plans are checked (``POST /v1/verify/{name}``, built with
+        :mod:`.verify`); ``None``: plans of the kind are not checked.
     size : callable, optional
         ``size(problem) -> int``, the work a problem holds; at most
         ``SLUICE_INLINE_MAX_ARCS`` it is solved on the request thread. ``None``: always
@@ -99,7 +121,7 @@ class Kind:
     from_network: Callable[[Any, Any, Limits], Problem] | None = None
     dimacs: str | None = None
     drawable: bool = False
-    verifiable: bool = False
+    verify: PlanVerifier | None = None
     size: Callable[[Problem], int] | None = None
     honours_time_limit: bool = False
     per_period_capacity: bool = False
@@ -114,7 +136,7 @@ class Kind:
     def capabilities(self) -> dict:
         """What the kind can do beyond ``POST /v1/{name}``, as ``GET /v1/kinds`` lists it."""
         return {"what_if": self.from_network is not None, "dimacs": self.dimacs, "diagram": self.drawable,
-                "verify": self.verifiable, "jobs": True, "batch": True}
+                "verify": self.verify is not None, "jobs": True, "batch": True}
 
 
 def without_arc_keys(problem):
@@ -175,8 +197,5 @@ def posted_whole(network, query, query_schema, *, arc_fields: tuple = (), node_f
     then joined with the network's ``nodes`` and ``arcs`` and the optional columns
     ``arc_fields``/``node_fields`` it carries (:func:`service.model.stored.body_of`).
     """
-    from ..model.schemas import load_envelope
-    from ..model.stored import body_of
-
     load_envelope(query_schema, query)
     return {**query, **body_of(network, arc_fields, node_fields)}

@@ -21,6 +21,7 @@ from ..solvers import maximum_flow
 from ..solvers.versions import ORTOOLS_VERSION
 from ..errors import InputError, ProblemTooLarge, FieldError
 from .base import Kind, Limits, digest_detail, ids_of, node_position, problem_size, time_limit, wants, without_arc_keys
+from .verify import max_flow_plans
 
 DETAIL = ["flows", "cut"]
 
@@ -220,7 +221,7 @@ KIND = Kind(
     from_network=from_network,
     dimacs="max",
     drawable=True,
-    verifiable=True,
+    verify=max_flow_plans(parse),
     size=problem_size,
     for_solver_process=without_arc_keys,
 )

@@ -18,6 +18,7 @@ from ..solvers.mincost import imbalance, min_cost_flow
 from ..solvers.versions import ORTOOLS_VERSION
 from .base import Kind, Limits, digest_detail, ids_of, problem_size, time_limit, wants, without_arc_keys
 from .maxflow import EngineSchema, TimingSchema
+from .verify import min_cost_plans
 
 DETAIL = ["flows", "potentials", "reduced_costs"]
 DEFAULT_DETAIL = ("flows", "potentials")
@@ -317,7 +318,7 @@ KIND = Kind(
     from_network=from_network,
     dimacs="min",
     drawable=True,
-    verifiable=True,
+    verify=min_cost_plans(parse),
     size=problem_size,
     for_solver_process=without_arc_keys,
 )
