@@ -11,7 +11,6 @@ from pathlib import Path
 
 import pytest
 
-from service.drawing import DRAWERS
 from service.kinds import KINDS
 from service.kinds.base import Kind
 
@@ -22,8 +21,8 @@ def test_every_registered_kind_is_one_declaration():
     for name, kind in KINDS.items():
         assert isinstance(kind, Kind) and kind.name == name
         assert (ROOT / "service" / "scenarios" / kind.example).is_file()
-    # a drawable kind must have a drawer; the drawing room may hold drawers not yet declared
-    assert {k.name for k in KINDS.values() if k.drawable} <= set(DRAWERS)
+        # a kind's drawer draws that kind (it names it in the SVG's data-kind)
+        assert kind.drawer is None or kind.drawer.kind == name
 
 
 def test_a_half_declared_what_if_is_refused():
@@ -32,6 +31,8 @@ def test_a_half_declared_what_if_is_refused():
         Kind(**{**maxflow.__dict__, "query_schema": None})
     with pytest.raises(TypeError, match="dimacs"):
         Kind(**{**maxflow.__dict__, "dimacs": "max-flow"})
+    with pytest.raises(TypeError, match="its drawer draws 'mincostflow'"):
+        Kind(**{**maxflow.__dict__, "drawer": KINDS["mincostflow"].drawer})
 
 
 def test_kinds_endpoint_lists_each_declaration(client):
@@ -43,7 +44,7 @@ def test_kinds_endpoint_lists_each_declaration(client):
         caps = listed[name]["capabilities"]
         assert listed[name]["endpoint"] == f"/v1/{name}" and listed[name]["summary"] == kind.summary
         assert caps["what_if"] == (kind.from_network is not None) and caps["dimacs"] == kind.dimacs
-        assert caps["diagram"] == kind.drawable and caps["verify"] == (kind.verify is not None)
+        assert caps["diagram"] == (kind.drawer is not None) and caps["verify"] == (kind.verify is not None)
         assert client.get(f"/v1/scenarios/{listed[name]['example']}").status_code == 200
     # what the capabilities say holds: a what-if route where declared, none elsewhere
     rules = {r.rule for r in client.application.url_map.iter_rules()}

@@ -40,7 +40,8 @@ ALLOWED = {
     "config": {"errors", "store"},
     "model": {"errors"},
     "solvers": {"errors"},
-    "kinds": {"errors", "model", "solvers"},
+    # A kind declares its drawer (Kind.drawer): the drawing room is a leaf, so no circle.
+    "kinds": {"errors", "model", "solvers", "drawing"},
     "store": {"errors", "model"},
     "jobs": {"errors", "config", "kinds", "memory"},
     "drawing": set(),  # numpy and plain data only: no model, no solvers, no Flask

@@ -9,12 +9,15 @@ go through this interface, so a new problem kind is one module here plus its ent
 from __future__ import annotations
 
 from dataclasses import dataclass, replace
-from typing import Any, Callable, Protocol
+from typing import TYPE_CHECKING, Any, Callable, Protocol
 
 from ..errors import InputError
 from ..model.ids import NodeIndex, ids_of, lookalike, shown_id  # noqa: F401 - ids_of: the kinds take it from here
 from ..model.schemas import load_envelope
 from ..model.stored import body_of
+
+if TYPE_CHECKING:
+    from ..drawing import Drawer
 
 
 @dataclass(frozen=True)
@@ -89,8 +92,9 @@ class Kind:
         ``from_network(network, query, limits) -> Problem`` for a stored network.
     dimacs : {"max", "min"}, optional
         The DIMACS ``p`` format the solve endpoint also takes as ``text/x-dimacs``.
-    drawable : bool
-        ``service.drawing`` has a drawer for the kind (``POST /v1/diagram.svg``).
+    drawer : Drawer, optional
+        How the kind's answers are drawn (``POST /v1/diagram.svg``): one of the drawers
+        of :mod:`service.drawing`, whose ``kind`` is this kind's ``name``.
     verify : PlanVerifier, optional
         How clients' plans are checked (``POST /v1/verify/{name}``, built with
         :mod:`.verify`); ``None``: plans of the kind are not checked.
@@ -120,7 +124,7 @@ class Kind:
     query_schema: type | None = None
     from_network: Callable[[Any, Any, Limits], Problem] | None = None
     dimacs: str | None = None
-    drawable: bool = False
+    drawer: Drawer | None = None
     verify: PlanVerifier | None = None
     size: Callable[[Problem], int] | None = None
     honours_time_limit: bool = False
@@ -132,10 +136,12 @@ class Kind:
             raise TypeError(f"kind {self.name!r}: query_schema and from_network go together")
         if self.dimacs not in (None, "max", "min"):
             raise TypeError(f"kind {self.name!r}: dimacs must be 'max', 'min' or None")
+        if self.drawer is not None and self.drawer.kind != self.name:
+            raise TypeError(f"kind {self.name!r}: its drawer draws {self.drawer.kind!r}")
 
     def capabilities(self) -> dict:
         """What the kind can do beyond ``POST /v1/{name}``, as ``GET /v1/kinds`` lists it."""
-        return {"what_if": self.from_network is not None, "dimacs": self.dimacs, "diagram": self.drawable,
+        return {"what_if": self.from_network is not None, "dimacs": self.dimacs, "diagram": self.drawer is not None,
                 "verify": self.verify is not None, "jobs": True, "batch": True}
 
 

@@ -7,6 +7,7 @@ from dataclasses import dataclass
 import numpy as np
 from marshmallow import RAISE, Schema, fields, validate
 
+from ..drawing.expansion import DRAWER
 from ..errors import FieldError, InputError
 from ..model.arccolumns import EXPANSION_FIELDS
 from ..model.arcs import Network, read_network_with
@@ -263,6 +264,6 @@ KIND = Kind(
     solve=solve,
     query_schema=ExpansionQuery,
     from_network=from_network,
-    drawable=True,
+    drawer=DRAWER,
     for_solver_process=without_arc_keys,
 )

@@ -7,6 +7,7 @@ from dataclasses import dataclass
 import numpy as np
 from marshmallow import RAISE, Schema, fields, validate
 
+from ..drawing.maxflow import DRAWER
 from ..model.arcs import Network, read_network
 from ..model.digest import problem_digest
 from ..model.schemas import (
@@ -220,7 +221,7 @@ KIND = Kind(
     query_schema=MaxFlowQuery,
     from_network=from_network,
     dimacs="max",
-    drawable=True,
+    drawer=DRAWER,
     verify=max_flow_plans(parse),
     size=problem_size,
     for_solver_process=without_arc_keys,

@@ -7,6 +7,7 @@ from dataclasses import dataclass
 import numpy as np
 from marshmallow import RAISE, Schema, fields, validate
 
+from ..drawing.mincostflow import DRAWER
 from ..errors import FieldError, InputError, ProblemTooLarge
 from ..model.arcs import Network, read_network
 from ..model.columns import number_column
@@ -317,7 +318,7 @@ KIND = Kind(
     query_schema=MinCostFlowQuery,
     from_network=from_network,
     dimacs="min",
-    drawable=True,
+    drawer=DRAWER,
     verify=min_cost_plans(parse),
     size=problem_size,
     for_solver_process=without_arc_keys,

@@ -7,6 +7,7 @@ from dataclasses import dataclass
 import numpy as np
 from marshmallow import RAISE, Schema, fields, validate
 
+from ..drawing.resilience import DRAWER
 from ..errors import InputError
 from ..model.arcs import Network, read_network
 from ..model.digest import problem_digest
@@ -187,6 +188,6 @@ KIND = Kind(
     solve=solve,
     query_schema=ResilienceQuery,
     from_network=from_network,
-    drawable=True,
+    drawer=DRAWER,
     for_solver_process=without_arc_keys,
 )
