@@ -44,7 +44,10 @@ ALLOWED = {
     "kinds": {"errors", "model", "solvers", "drawing"},
     "store": {"errors", "model"},
     "jobs": {"errors", "config", "kinds", "memory"},
-    "drawing": set(),  # numpy and plain data only: no model, no solvers, no Flask
+    # numpy and plain data only: no model, no Flask; from the solvers only their graph type
+    # (service.solvers.graph, DRAWING_FROM_SOLVERS), so the columns of a diagram come from
+    # the one breadth-first search of the service.
+    "drawing": {"solvers"},
     # The worker's front (gunicorn's asyncio worker) hands the app the body whole.
     "intake": {"errors", "config", "logs", "memory"},
     "api": {"service", "errors", "config", "logs", "memory", "intake", "model", "solvers", "kinds", "store", "jobs",
@@ -52,6 +55,9 @@ ALLOWED = {
     "serving": {"errors", "config", "logs", "memory", "intake", "api"},  # runs the app
     "cli": {"service", "errors", "config", "logs", "memory", "serving", "api", "jobs"},
 }
+
+#: The only modules of the solvers the drawing room may import.
+DRAWING_FROM_SOLVERS = {"service.solvers.graph"}
 
 #: Rooms that may import Flask (or its extensions).
 FLASK = {"api"}
@@ -313,6 +319,11 @@ def test_every_known_violation_is_still_there():
     found = {**room_violations(), **local_violations(), **circle_violations()}
     stale = sorted(k for k in KNOWN if k not in found)
     assert not stale, f"fixed: delete these KNOWN entries: {stale}"
+
+
+def test_drawing_takes_only_the_graph_type_from_the_solvers():
+    taken = {i.target for i in service_imports() if room(i.module) == "drawing" and room(i.target) == "solvers"}
+    assert taken and taken <= DRAWING_FROM_SOLVERS, sorted(taken - DRAWING_FROM_SOLVERS)
 
 
 def test_every_room_has_a_layer():
