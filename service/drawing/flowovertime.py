@@ -40,12 +40,37 @@ class FlowOverTimeDrawer:
     kind = "flowovertime"
 
     def render(self, net: DrawnNetwork, result: dict) -> str:
+        """The whole document: lanes against periods, not a network picture.
+
+        Parameters
+        ----------
+        net : DrawnNetwork
+            With ``transit`` and ``period_capacity``.
+        result : dict
+            The answer as JSON values.
+
+        Returns
+        -------
+        str
+            A standalone SVG document.
+        """
         horizon = int(result.get("horizon") or (net.period_capacity.shape[1] if net.period_capacity is not None
                                                 else 1))
         chart = _Chart(net, result, horizon)
         return chart.document(*self.headline(result))
 
     def headline(self, result: dict) -> tuple[str, str]:
+        """The diagram's title (what was asked and found) and subtitle (the horizon).
+
+        Parameters
+        ----------
+        result : dict
+            The answer.
+
+        Returns
+        -------
+        (title, subtitle) : str
+        """
         status, objective = result.get("status", ""), result.get("objective", "")
         period = f" ({result['period']})" if result.get("period") else ""
         horizon = f"horizon {result.get('horizon')} periods{period}"

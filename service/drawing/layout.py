@@ -95,6 +95,7 @@ class Footprint:
 
     @property
     def extent(self) -> Box:
+        """The box holding all of the footprint's parts."""
         return union(self.parts)
 
 
@@ -115,10 +116,23 @@ class Placement:
 
 
 def place(layer: np.ndarray, rank: np.ndarray, shapes: list[Footprint], spread: float = 1.0) -> Placement:
-    """Centres for every node; ``spread`` > 1 widens channels and gaps (more room for labels).
+    """Centres for every node, column by column.
 
     Empty layers (a layer whose only nodes were moved to the right-most one) take no room:
     ``Placement.layer`` numbers the columns that hold nodes.
+
+    Parameters
+    ----------
+    layer, rank : ndarray of int
+        Per node, its column and its row in it (:func:`layered_layout`).
+    shapes : list of Footprint
+        Per node, what it covers.
+    spread : float
+        Above 1, channels and gaps are wider (more room for labels).
+
+    Returns
+    -------
+    Placement
     """
     used, layer = np.unique(layer, return_inverse=True)
     layer = layer.reshape(-1)
