@@ -151,6 +151,16 @@ def without_arc_keys(problem):
     A list of labels pickles one string at a time: at 1M labelled arcs that took about
     430 ms both ways, more than the solve (measured in-process; the arrays themselves
     cross in about 40 ms).
+
+    Parameters
+    ----------
+    problem : dataclass
+        A problem with a ``network`` (a :class:`~service.model.arcs.Network`).
+
+    Returns
+    -------
+    dataclass
+        ``problem`` itself when it has no keys, else a copy without them.
     """
     if problem.network.keys is None:
         return problem
@@ -158,11 +168,39 @@ def without_arc_keys(problem):
 
 
 def problem_size(problem) -> int:
-    """The ``size`` a problem carries (a field or property): for :attr:`Kind.size`."""
+    """The ``size`` a problem carries (a field or property): for :attr:`Kind.size`.
+
+    Parameters
+    ----------
+    problem : Problem
+
+    Returns
+    -------
+    int
+    """
     return problem.size
 
 
 def node_position(nodes: NodeIndex, node_id, ptr: str) -> int:
+    """The position of a node the request names.
+
+    Parameters
+    ----------
+    nodes : NodeIndex
+    node_id : str or int
+        As the client sent it.
+    ptr : str
+        The JSON Pointer of the field that names it (``/source``).
+
+    Returns
+    -------
+    int
+
+    Raises
+    ------
+    InputError
+        At ``ptr`` for an unknown node (with a lookalike id when there is one).
+    """
     index = nodes.index_of(node_id)
     if index is None:
         raise InputError.at(ptr, f"unknown node {shown_id(node_id)}: it is neither in nodes nor on any arc"
@@ -176,8 +214,21 @@ def time_limit(options: dict, limits: Limits) -> float:
 
 
 def digest_detail(options: dict, default) -> list | None:
-    """``options.detail`` as the digest sees it: ``None`` when it names the default
-    parts (in any order), so asking for the default equals leaving it out."""
+    """``options.detail`` as the digest sees it.
+
+    Parameters
+    ----------
+    options : dict
+        The request's options.
+    default : collection of str
+        The parts answered when ``detail`` is left out.
+
+    Returns
+    -------
+    list or None
+        ``None`` when ``detail`` is left out or names the default parts (in any
+        order), so asking for the default equals leaving it out; else ``detail``.
+    """
     detail = options.get("detail")
     return None if detail is None or set(detail) == set(default) else detail
 
@@ -190,6 +241,20 @@ def stop_grace(kind: Kind | None, seconds: float) -> float:
 
 
 def wants(options: dict, part: str) -> bool:
+    """Whether the answer includes a part.
+
+    Parameters
+    ----------
+    options : dict
+        The request's options.
+    part : str
+        A part of the answer (``"flows"``, ``"cut"``...).
+
+    Returns
+    -------
+    bool
+        True when ``options.detail`` is left out or names ``part``.
+    """
     detail = options.get("detail")
     return detail is None or part in detail
 
@@ -202,6 +267,27 @@ def posted_whole(network, query, query_schema, *, arc_fields: tuple = (), node_f
     is checked first by ``query_schema`` (pointers relative to the query: ``/top``),
     then joined with the network's ``nodes`` and ``arcs`` and the optional columns
     ``arc_fields``/``node_fields`` it carries (:func:`service.model.stored.body_of`).
+
+    Parameters
+    ----------
+    network : Network
+        The stored network, what-if changes applied.
+    query : dict
+        The question (without ``changes``).
+    query_schema : Schema
+        The kind's schema of the question.
+    arc_fields, node_fields : tuple of str
+        Optional columns of the stored network the kind reads.
+
+    Returns
+    -------
+    dict
+        The query joined with ``nodes`` and ``arcs``.
+
+    Raises
+    ------
+    InputError
+        The query does not pass ``query_schema``.
     """
     load_envelope(query_schema, query)
     return {**query, **body_of(network, arc_fields, node_fields)}

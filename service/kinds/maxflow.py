@@ -130,6 +130,18 @@ class MaxFlowProblem:
 def parse(body, limits: Limits) -> MaxFlowProblem:
     """Validate and normalise a max-flow request.
 
+    Parameters
+    ----------
+    body : dict
+        The decoded ``POST /v1/maxflow`` body.
+    limits : Limits
+        Size limits (a larger problem is a 413 naming the field).
+
+    Returns
+    -------
+    MaxFlowProblem
+        With its ``digest`` and ``options``.
+
     Raises
     ------
     InputError
@@ -150,6 +162,11 @@ def from_network(network: Network, query, limits: Limits) -> MaxFlowProblem:
         A stored network, with any what-if changes already applied.
     query : dict
         ``source``, ``sink`` and optional ``options`` (as in a ``POST /v1/maxflow`` body).
+    limits : Limits
+
+    Returns
+    -------
+    MaxFlowProblem
 
     Raises
     ------
@@ -174,6 +191,19 @@ def _problem(network: Network, envelope: dict) -> MaxFlowProblem:
 
 
 def digest_of(network: Network, source: int, sink: int, options: dict) -> str:
+    """The problem's digest: the result cache's key and the ``digest`` of the answer.
+
+    Parameters
+    ----------
+    network : Network
+    source, sink : int
+        Node positions.
+    options : dict
+
+    Returns
+    -------
+    str
+    """
     return problem_digest(
         "maxflow", ORTOOLS_VERSION, network.nodes.ids, network.tail, network.head, network.capacity,
         network.unlimited, [source, sink], {"engine": options["engine"], "detail": digest_detail(options, DETAIL)},
@@ -181,6 +211,21 @@ def digest_of(network: Network, source: int, sink: int, options: dict) -> str:
 
 
 def solve(problem: MaxFlowProblem, limits: Limits) -> dict:
+    """Solve a parsed problem and build its response document.
+
+    Parameters
+    ----------
+    problem : MaxFlowProblem
+        From :func:`parse` or :func:`from_network`.
+    limits : Limits
+        Its ``time_limit`` caps ``options.time_limit``.
+
+    Returns
+    -------
+    dict
+        ``status``, ``value``; flows and a minimum cut (or a path of unlimited arcs
+        when unbounded), ``certificate``, ``digest`` and ``engine``.
+    """
     net = problem.network
     solution, certificate = maximum_flow(
         net.num_nodes, net.tail, net.head, net.capacity, net.unlimited, problem.source, problem.sink,

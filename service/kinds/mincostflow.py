@@ -172,6 +172,18 @@ class MinCostFlowProblem:
 def parse(body, limits: Limits) -> MinCostFlowProblem:
     """Validate and normalise a min-cost flow request.
 
+    Parameters
+    ----------
+    body : dict
+        The decoded ``POST /v1/mincostflow`` body.
+    limits : Limits
+        Size limits (a larger problem is a 413 naming the field).
+
+    Returns
+    -------
+    MinCostFlowProblem
+        With its ``digest`` and ``options``.
+
     Raises
     ------
     InputError
@@ -200,6 +212,10 @@ def from_network(network: Network, query, limits: Limits) -> MinCostFlowProblem:
         supplies may also be columns ``{"id": [...], "supply": [...]}``. Pointers in
         errors are relative to the query body (``/supplies/3/id``).
     limits : Limits
+
+    Returns
+    -------
+    MinCostFlowProblem
     """
     envelope = load_envelope(_QUERY, query)
     _check_size(network, limits)
@@ -256,6 +272,19 @@ def _problem(network: Network, supply: np.ndarray, options: dict) -> MinCostFlow
 
 
 def digest_of(network: Network, supply: np.ndarray, options: dict) -> str:
+    """The problem's digest: the result cache's key and the ``digest`` of the answer.
+
+    Parameters
+    ----------
+    network : Network
+    supply : ndarray
+        Per node (demand negative).
+    options : dict
+
+    Returns
+    -------
+    str
+    """
     return problem_digest(
         "mincostflow", ORTOOLS_VERSION, network.nodes.ids, network.tail, network.head, network.capacity,
         network.unlimited, network.cost, network.lower, supply,
@@ -271,6 +300,22 @@ def _wants(options: dict, part: str) -> bool:
 
 
 def solve(problem: MinCostFlowProblem, limits: Limits) -> dict:
+    """Solve a parsed problem and build its response document.
+
+    Parameters
+    ----------
+    problem : MinCostFlowProblem
+        From :func:`parse` or :func:`from_network`.
+    limits : Limits
+        Its ``time_limit`` caps ``options.time_limit``.
+
+    Returns
+    -------
+    dict
+        ``status``, ``cost``, ``shipped``; flows, potentials and reduced costs
+        (optimal), or a proof set (infeasible) or a negative cycle (unbounded);
+        ``certificate``, ``digest`` and ``engine``.
+    """
     net = problem.network
     options = problem.options
     solution, certificate = min_cost_flow(

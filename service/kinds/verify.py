@@ -20,7 +20,8 @@ from __future__ import annotations
 import time
 from dataclasses import dataclass
 from functools import partial
-from typing import Any, Callable
+from collections.abc import Callable
+from typing import Any
 
 import numpy as np
 from marshmallow import EXCLUDE, RAISE, Schema, fields, validate
@@ -203,7 +204,25 @@ _ENVELOPE = _Envelope()
 
 
 def read_flows(raw, num_arcs: int) -> np.ndarray:
-    """The client's flows as a numpy array, one finite number per arc."""
+    """The client's flows as a numpy array, one finite number per arc.
+
+    Parameters
+    ----------
+    raw : list
+        ``flows`` as the request gives it.
+    num_arcs : int
+        How many arcs the problem has.
+
+    Returns
+    -------
+    ndarray
+        int64 for whole numbers, else float64.
+
+    Raises
+    ------
+    InputError
+        At ``/flows`` (not a list, wrong length) or ``/flows/<i>``.
+    """
     if not isinstance(raw, list):
         raise InputError.at("/flows", "must be a list of numbers, one per arc")
     if len(raw) != num_arcs:
@@ -232,6 +251,19 @@ def read_min_cost(body, limits: Limits) -> tuple[Network, np.ndarray]:
 
     Only ``options.shortage = "reject"`` (the default: every supply must ship) is
     checked; a plan for ``"max-flow"`` gets a 422 at ``/options/shortage``.
+
+    Parameters
+    ----------
+    body : dict
+        A ``POST /v1/mincostflow`` body.
+    limits : Limits
+        Size limits.
+
+    Returns
+    -------
+    (Network, ndarray)
+        The network and the supply per node in node order (int64, or float64 when
+        a supply is not whole).
     """
     envelope = load_envelope(_MinCostEnvelope(), body)
     if envelope["options"]["shortage"] != "reject":
