@@ -216,7 +216,7 @@ def earliest_arrival_flow(net: FlowNetwork, labels: np.ndarray, big: int) -> np.
     flows = np.zeros(tail.size, dtype=np.int64)
     flows[full] = cap[full]
     n = net.num_nodes
-    supply = node_balance(n, tail, head, flows)  # exact int64 sums (bincount's weights are floats)
+    supply = node_balance(n, tail[full], head[full], flows[full])  # exact int64 sums (bincount's weights are floats)
     excess = np.flatnonzero(supply > 0)
     deficit = np.flatnonzero(supply < 0)
     hub, drain = n, n + 1
