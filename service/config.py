@@ -235,4 +235,5 @@ class Settings:
 
     @property
     def max_body_bytes(self) -> int:
+        """The body size limit in bytes (``max_body_mb`` in MiB)."""
         return int(self.max_body_mb * 1024 * 1024)

@@ -42,6 +42,13 @@ class FieldError:
     detail: str
 
     def as_dict(self) -> dict:
+        """The error as a member of a problem document's ``errors`` list.
+
+        Returns
+        -------
+        dict
+            ``{"pointer": ..., "detail": ...}``.
+        """
         return {"pointer": self.pointer, "detail": self.detail}
 
 
@@ -64,6 +71,7 @@ class SluiceError(Exception):
 
     @property
     def type(self) -> str:
+        """The problem ``type`` URI: ``urn:sluice:problem:`` followed by the slug."""
         return PROBLEM_BASE + self.slug
 
     def extra(self) -> dict:
@@ -86,9 +94,29 @@ class InputError(SluiceError):
 
     @classmethod
     def at(cls, ptr: str, detail: str) -> "InputError":
+        """An input error about one field, in one call.
+
+        Parameters
+        ----------
+        ptr : str
+            JSON Pointer (RFC 6901) to the offending value; build it with :func:`pointer`.
+        detail : str
+            What is wrong with it.
+
+        Returns
+        -------
+        InputError
+        """
         return cls(FieldError(ptr, detail))
 
     def extra(self) -> dict:
+        """Problem members beyond type/title/status/detail: the field errors.
+
+        Returns
+        -------
+        dict
+            ``{"errors": [{"pointer": ..., "detail": ...}, ...]}``.
+        """
         return {"errors": [e.as_dict() for e in self.errors]}
 
 

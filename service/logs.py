@@ -28,6 +28,22 @@ class JsonFormatter(logging.Formatter):
     """Format a record as a JSON line."""
 
     def format(self, record: logging.LogRecord) -> str:
+        """The record as one JSON object on one line.
+
+        A record without a ``request_id`` of its own gets the current one from
+        :data:`context_hook` (set by the HTTP layer), so every line a request causes
+        carries its id.
+
+        Parameters
+        ----------
+        record : logging.LogRecord
+
+        Returns
+        -------
+        str
+            ``ts``, ``level``, ``logger``, ``msg``, each of ``EXTRA_FIELDS`` that is set,
+            and ``exc`` (the formatted trace) when the record carries an exception.
+        """
         if getattr(record, "request_id", None) is None and context_hook is not None:
             record.request_id = context_hook()
         doc = {
@@ -62,6 +78,11 @@ class TextFormatter(logging.Formatter):
     An exception's trace still follows on its own lines."""
 
     def formatMessage(self, record: logging.LogRecord) -> str:
+        """The formatted line with its control characters escaped (see :func:`escape_controls`).
+
+        Overrides ``formatMessage`` rather than ``format`` so the exception trace that
+        ``logging.Formatter.format`` appends keeps its own line breaks.
+        """
         return escape_controls(super().formatMessage(record))
 
 

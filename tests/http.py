@@ -33,6 +33,19 @@ def post(client, path: str, body, content_type: str = JSON, headers: dict | None
     return client.post(path, data=data, headers={"Content-Type": content_type, **(headers or {})}, **kwargs)
 
 
+def send(client, method: str, path: str, body=None, **headers):
+    """Send ``body`` with any method through a Flask test client: bytes as they are,
+    anything else as JSON (as :func:`post` writes it), always as ``application/json``;
+    ``headers`` as keyword arguments.
+
+    Examples
+    --------
+    >>> send(client, "PUT", "/v1/networks/depots", {"arcs": []}, **{"If-Match": '"v1"'})  # doctest: +SKIP
+    """
+    data = None if body is None else (body if isinstance(body, bytes) else _dumps(body))
+    return client.open(path, method=method, data=data, content_type=JSON, headers=headers)
+
+
 def _dumps(body) -> bytes:
     try:
         return orjson.dumps(body)

@@ -2,22 +2,16 @@
 
 from __future__ import annotations
 
-
-import orjson
 import pytest
 
 from service.kinds import KINDS
 from tests.conftest import scenario
 from tests.flowdata import depot_arcs, with_changes
+from tests.http import send
 from tests.references import max_flow_value
 
 DEPOTS = scenario("depots-maxflow")
 SOURCE, SINK = DEPOTS["source"], DEPOTS["sink"]
-
-
-def send(client, method, path, body=None, **headers):
-    data = None if body is None else (body if isinstance(body, bytes) else orjson.dumps(body))
-    return client.open(path, method=method, data=data, content_type="application/json", headers=headers)
 
 
 def stored(client, name="depots"):

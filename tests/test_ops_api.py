@@ -15,7 +15,7 @@ from service.api import create_app
 from service.config import parse_api_keys
 from service.kinds import KINDS
 from tests.conftest import scenario
-from tests.http import finished_job
+from tests.http import finished_job, pointers
 from tests.references import max_flow_of
 
 DEPOTS = scenario("depots-maxflow")
@@ -168,8 +168,7 @@ def test_job_is_validated_at_submission(client):
     r = client.post("/v1/jobs", json={"kind": "maxflow", "problem": {**DEPOTS, "sink": {"x": 1}}})
     assert r.status_code == 422 and r.get_json()["errors"][0]["pointer"] == "/problem/sink"
     r = client.post("/v1/jobs", json={"kind": "teleport", "problem": {}, "extra": 1})
-    pointers = {e["pointer"] for e in r.get_json()["errors"]}
-    assert r.status_code == 422 and pointers == {"/kind", "/extra"}
+    assert r.status_code == 422 and set(pointers(r)) == {"/kind", "/extra"}
     assert client.get("/v1/jobs/not-an-id").status_code == 404
 
 

@@ -6,7 +6,6 @@ from __future__ import annotations
 
 import copy
 
-import orjson
 import pytest
 
 from service.model.digest import problem_digest
@@ -15,16 +14,12 @@ from service.store.codec import decode_network, encode_network, network_digest
 from service.api.networks import read_network
 from service.kinds import Limits
 from tests.conftest import scenario
+from tests.http import pointers, send
 
 EXPANSION = scenario("night-pallets-expansion")
 RESILIENCE = scenario("night-pallets-resilience")
 OVERTIME = scenario("xdock-night-flowovertime")
 NETWORK_KEYS = ("nodes", "arcs")
-
-
-def send(client, method, path, body=None):
-    return client.open(path, method=method, data=None if body is None else orjson.dumps(body),
-                       content_type="application/json")
 
 
 def answer(response) -> dict:
@@ -152,7 +147,7 @@ def test_bad_changes_name_their_field(store_client, kind, change, pointer):
          "expansion": {"source": "depot-brackwater", "sink": "store-fallowmere", "target": 10}}[kind]
     r = send(store_client, "POST", f"/v1/networks/xdock/{kind}", {**q, "changes": [change]})
     assert r.status_code == 422, r.get_json()
-    assert pointer in [e["pointer"] for e in r.get_json()["errors"]]
+    assert pointer in pointers(r)
     assert send(store_client, "GET", "/v1/networks/xdock?include=arcs").get_json() == before
 
 

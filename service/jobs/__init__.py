@@ -50,12 +50,15 @@ class UnavailableJobs:
     submit = get = cancel = _down
 
     def queue_depth(self) -> int:
+        """Zero: a job store that could not be opened holds no queued jobs."""
         return 0
 
     def health(self) -> str:
+        """Always ``"unavailable"``, so ``/readyz`` reports the job store degraded."""
         return "unavailable"
 
     def start(self) -> None:
+        """Do nothing: there are no dispatchers to start (also serves as ``release`` and ``close``)."""
         pass
 
     release = close = start

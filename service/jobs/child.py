@@ -26,6 +26,15 @@ def _die_with_parent(parent: int) -> None:
 
 
 def main() -> None:
+    """Serve solve messages from stdin until the parent closes it.
+
+    ``sys.argv[1]`` is the parent's pid: on Linux the process arranges to be killed
+    when the parent dies, and it exits at once if the parent is already gone. It
+    writes a ``("ready", pid)`` frame once the solver libraries are imported, so the
+    parent's start-up wait covers the import cost, then answers each message with the
+    reply of :func:`service.jobs.work.handle`. The frames go to the original stdout;
+    file descriptor 1 is pointed at stderr so stray prints cannot corrupt them.
+    """
     _die_with_parent(int(sys.argv[1]))
     from ..memory import retain_freed_memory
 
@@ -43,6 +52,13 @@ def main() -> None:
     lock = threading.Lock()  # progress may be reported from a solver's own threads
 
     def report(document: dict) -> None:
+        """Send one ``("progress", document)`` frame, serialised with the reply frames.
+
+        Parameters
+        ----------
+        document : dict
+            A progress report of the running solve.
+        """
         with lock:
             write_frame(out, ("progress", document))
 

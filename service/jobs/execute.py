@@ -88,6 +88,7 @@ def lease_keeper(renew, every: float):
     stop, lost = threading.Event(), threading.Event()
 
     def loop():
+        """Renew until stopped; a false ``renew()`` sets ``lost`` and ends the thread."""
         while not stop.wait(every):
             try:
                 if not renew():

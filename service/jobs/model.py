@@ -44,11 +44,35 @@ def problem_doc(status: int, slug: str, title: str, detail: str, extra: dict | N
 
 
 def worker_lost(attempts: int) -> dict:
+    """The error document of a job whose worker stopped renewing its lease.
+
+    Parameters
+    ----------
+    attempts : int
+        Times the job was started, quoted in the detail.
+
+    Returns
+    -------
+    dict
+        A 500 ``worker-lost`` problem object.
+    """
     return problem_doc(500, "worker-lost", "The worker running the job was lost",
                        f"the process running this job stopped answering ({attempts} attempt(s)); submit it again")
 
 
 def time_limit_error(seconds: float) -> dict:
+    """The error document of a job killed at its time limit.
+
+    Parameters
+    ----------
+    seconds : float
+        The job's time limit, quoted in the detail.
+
+    Returns
+    -------
+    dict
+        A 504 ``time-limit`` problem object.
+    """
     return problem_doc(504, "time-limit", "The job exceeded its time limit",
                        f"the job did not finish within its limit of {seconds:g} s")
 

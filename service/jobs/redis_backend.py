@@ -31,6 +31,17 @@ PERFORM = "service.jobs.redis_backend.perform"
 
 
 def connect(url: str) -> redis.Redis:
+    """A Redis client with short timeouts, so an outage is a quick 503, never a hung request.
+
+    Parameters
+    ----------
+    url : str
+        ``redis://host:port/db``.
+
+    Returns
+    -------
+    redis.Redis
+    """
     # Short timeouts: a Redis outage must turn into a quick 503, never a hung request.
     return redis.Redis.from_url(url, socket_connect_timeout=1.0, socket_timeout=3.0, health_check_interval=10)
 
@@ -60,6 +71,28 @@ class RedisJobs:
 
     # -- API side ---------------------------------------------------------------------
     def submit(self, tenant: str, kind: str, body: bytes, time_limit: float) -> JobRecord:
+        """Record a queued job and its body, then enqueue it for an RQ worker.
+
+        Parameters
+        ----------
+        tenant : str
+        kind : str
+            Name of the problem kind (a key of ``service.kinds.KINDS``).
+        body : bytes
+            The validated request body as JSON; the worker parses it again.
+        time_limit : float
+            Seconds the job may run.
+
+        Returns
+        -------
+        JobRecord
+            The new record, in state ``queued``.
+
+        Raises
+        ------
+        JobsDown
+            Redis did not answer.
+        """
         job_id, now = new_job_id(), time.time()
         record = JobRecord(job_id, tenant, kind, QUEUED, now, time_limit)
         try:
@@ -104,6 +137,26 @@ class RedisJobs:
         return self._load(record.id) or record
 
     def get(self, tenant: str, job_id: str) -> JobRecord | None:
+        """The record of a job of this tenant, with its result once it is done.
+
+        A running job whose lease key has expired is marked failed (or cancelled, if a
+        cancel was asked) by this read: its worker is gone.
+
+        Parameters
+        ----------
+        tenant : str
+        job_id : str
+
+        Returns
+        -------
+        JobRecord or None
+            ``None`` when no job has that id, or it belongs to another tenant.
+
+        Raises
+        ------
+        JobsDown
+            Redis did not answer.
+        """
         try:
             record = self._load(job_id)
             if record is None or record.tenant != tenant:
@@ -115,6 +168,26 @@ class RedisJobs:
             raise JobsDown(str(exc)) from None
 
     def cancel(self, tenant: str, job_id: str) -> JobRecord | None:
+        """Cancel a job: a queued one at once, a running one through its cancel flag.
+
+        A queued job moves to ``cancelled`` and its RQ job is dropped. For a running job
+        the flag is set; its worker reads it at the next heartbeat and kills the solve.
+
+        Parameters
+        ----------
+        tenant : str
+        job_id : str
+
+        Returns
+        -------
+        JobRecord or None
+            The record after the request, or ``None`` when the tenant has no such job.
+
+        Raises
+        ------
+        JobsDown
+            Redis did not answer.
+        """
         try:
             record = self._load(job_id)
             if record is None or record.tenant != tenant:
@@ -138,12 +211,14 @@ class RedisJobs:
             pass  # a worker took it already: it sees the cancel flag and stops
 
     def queue_depth(self) -> int:
+        """Jobs waiting in the RQ queue, or -1 when Redis does not answer."""
         try:
             return self._queue().count
         except redis.RedisError:
             return -1
 
     def health(self) -> str:
+        """``"ok"`` when Redis answers a ping, else ``"unavailable"`` (logged)."""
         try:
             self.redis.ping()
             return "ok"
@@ -155,9 +230,11 @@ class RedisJobs:
         """Nothing runs in the API process: ``sluice worker`` does the work."""
 
     def release(self) -> None:
+        """Do nothing: jobs run in ``sluice worker`` processes, not in the API process."""
         pass
 
     def close(self) -> None:
+        """Close the Redis client's connections."""
         self.redis.close()
 
     # -- shared -----------------------------------------------------------------------
@@ -197,6 +274,7 @@ class RedisJobs:
         lease_key = self._key(job_id, ":lease")
 
         def claim(pipe) -> None:
+            """Queue the lease key and the attempt count into the MULTI that marks the job running."""
             # In the same MULTI as the move to running: a reader that saw "running" with
             # no lease would take the worker for lost and fail the job.
             pipe.set(lease_key, 1, px=int(self.lease * 1000))
@@ -209,12 +287,26 @@ class RedisJobs:
         body = self.redis.get(self._key(job_id, ":body"))
 
         def renew() -> bool:
+            """Extend the lease key by another ``lease`` seconds.
+
+            Returns
+            -------
+            bool
+                Always True: this backend does not detect a lease that was taken back.
+            """
             self.redis.set(lease_key, 1, px=int(self.lease * 1000))
             return True
 
         progress = Progress()
 
         def tick() -> bool:
+            """Heartbeat: store the latest progress report, and tell whether a cancel was asked.
+
+            Returns
+            -------
+            bool
+                True when the job's cancel flag is set, which kills the solve.
+            """
             report = progress.pending()
             if report is not None:
                 self.redis.hset(self._key(job_id), "progress", report)

@@ -58,6 +58,7 @@ class RemoteError(SluiceError):
         self._extra = fields.get("extra") or {}
 
     def extra(self) -> dict:
+        """The problem members the child's error carried beyond type/title/status/detail."""
         return self._extra
 
 
@@ -92,6 +93,7 @@ class SolverProcess:
 
     @property
     def alive(self) -> bool:
+        """Whether the child process is still running."""
         return self.proc.poll() is None
 
     def rss_mb(self) -> float | None:
@@ -100,6 +102,10 @@ class SolverProcess:
         return None if rss is None else rss / (1 << 20)
 
     def kill(self) -> None:
+        """Kill the child (SIGKILL) if it runs, reap it, and close its pipes.
+
+        Safe to call more than once.
+        """
         if self.proc.poll() is None:
             self.proc.kill()
         self.proc.wait()
@@ -183,6 +189,11 @@ class _Spawner:
 
     @classmethod
     def get(cls) -> "_Spawner":
+        """The spawner of this process, started on first use and again after a fork.
+
+        A forked process does not inherit the parent's spawner thread, so a spawner
+        created before the fork is replaced, not used.
+        """
         with cls._lock:
             if cls._instance is None or cls._instance.pid != os.getpid():  # new after a fork
                 cls._instance = cls()
@@ -197,6 +208,14 @@ class _Spawner:
                 future.set_exception(exc)
 
     def spawn(self) -> Future:
+        """Ask the spawner thread for a new child.
+
+        Returns
+        -------
+        concurrent.futures.Future
+            Resolves to a ready :class:`SolverProcess`, or to the error that stopped it
+            from starting.
+        """
         future: Future = Future()
         self.requests.put(future)
         return future
@@ -287,10 +306,12 @@ class SolverPool:
         return True
 
     def pids(self) -> list[int]:
+        """Process ids of the idle children (not those running a solve)."""
         with self._lock:
             return [p.pid for p in self._idle]
 
     def close(self) -> None:
+        """Stop the pool: kill the idle children now, and each busy one when it is given back."""
         with self._lock:
             self._closed = True
             idle, self._idle = self._idle, []

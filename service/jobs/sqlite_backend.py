@@ -98,6 +98,23 @@ class SqliteJobs:
         return db
 
     def submit(self, tenant: str, kind: str, body: bytes, time_limit: float) -> JobRecord:
+        """Insert a queued job and wake this process's dispatchers.
+
+        Parameters
+        ----------
+        tenant : str
+        kind : str
+            Name of the problem kind (a key of ``service.kinds.KINDS``).
+        body : bytes
+            The validated request body as JSON; the dispatcher parses it again.
+        time_limit : float
+            Seconds the job may run.
+
+        Returns
+        -------
+        JobRecord
+            The new record, in state ``queued``.
+        """
         job_id, now = new_job_id(), time.time()
         self._db().execute(
             "INSERT INTO jobs (id, tenant, kind, state, body, created, time_limit) VALUES (?, ?, ?, ?, ?, ?, ?)",
@@ -106,6 +123,22 @@ class SqliteJobs:
         return JobRecord(job_id, tenant, kind, QUEUED, now, time_limit)
 
     def get(self, tenant: str, job_id: str) -> JobRecord | None:
+        """The record of a job of this tenant, or ``None``.
+
+        Reading first takes back jobs whose lease ran out (throttled to once per second,
+        or per quarter lease if that is shorter), so a job whose worker was killed is not
+        reported ``running`` for long.
+
+        Parameters
+        ----------
+        tenant : str
+        job_id : str
+
+        Returns
+        -------
+        JobRecord or None
+            ``None`` when no job has that id, or it belongs to another tenant.
+        """
         self._reap()
         row = self._db().execute(f"SELECT {COLUMNS} FROM jobs WHERE id = ? AND tenant = ?",
                                  (job_id, tenant)).fetchone()
@@ -121,9 +154,11 @@ class SqliteJobs:
         return self.get(tenant, job_id)
 
     def queue_depth(self) -> int:
+        """Jobs in state ``queued`` in the file (all processes sharing it)."""
         return self._db().execute("SELECT COUNT(*) FROM jobs WHERE state = ?", (QUEUED,)).fetchone()[0]
 
     def health(self) -> str:
+        """``"ok"`` when the jobs file answers a query, else ``"failed"`` (logged)."""
         try:
             self._db().execute("SELECT COUNT(*) FROM jobs WHERE state = ?", (RUNNING,)).fetchone()
             return "ok"
@@ -190,6 +225,14 @@ class SqliteJobs:
         started = time.monotonic()
 
         def renew() -> bool:
+            """Extend the lease, if this dispatcher still owns the running job.
+
+            Returns
+            -------
+            bool
+                False when the job is no longer this dispatcher's running job (its lease
+                ran out and it was taken back), which stops the solve.
+            """
             return bool(self._lease_db[owner].execute(
                 "UPDATE jobs SET lease_until = ? WHERE id = ? AND owner = ? AND state = ?",
                 (time.time() + self.lease, job_id, owner, RUNNING)).rowcount)
@@ -197,6 +240,13 @@ class SqliteJobs:
         progress = Progress()
         with lease_keeper(renew, self.lease / 3) as lost:
             def tick() -> bool:
+                """Heartbeat: store the latest progress report, and tell whether to stop.
+
+                Returns
+                -------
+                bool
+                    True when the job was cancelled or its lease was lost.
+                """
                 report = progress.pending()
                 if report is not None:
                     self._db().execute("UPDATE jobs SET progress = ? WHERE id = ? AND state = ?",
@@ -226,4 +276,5 @@ class SqliteJobs:
             self._pool.close()
 
     def close(self) -> None:
+        """Same as :meth:`release`."""
         self.release()

@@ -31,6 +31,26 @@ def describe(exc: SluiceError) -> dict:
 
 
 def handle(message: tuple, report=None) -> tuple:
+    """Run one message in this solver process and build the reply.
+
+    Parameters
+    ----------
+    message : tuple
+        ``(op, kind, payload, limits)``: ``op`` is ``"solve"`` (``payload`` is the
+        parsed problem) or ``"job"`` (``payload`` is the body JSON, parsed here).
+    report : callable, optional
+        Sends a progress document to the parent; used only for jobs, since only a
+        job has a reader for progress.
+
+    Returns
+    -------
+    tuple
+        ``("ok", result, solve_seconds)``, ``("error", fields)`` for a
+        :class:`~service.errors.SluiceError` (see :func:`describe`), or
+        ``("crash", exception class name)`` for anything else, whose trace goes to
+        stderr. A failing solve is always a reply, never an exception, so one bad
+        problem cannot end the process.
+    """
     op, kind_name, payload, limits = message
     try:
         kind = KINDS[kind_name]

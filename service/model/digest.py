@@ -18,6 +18,24 @@ DIGEST_VERSION = b"sluice-digest-1"
 
 
 def problem_digest(kind: str, *parts) -> str:
+    """The content digest of a normalised problem: ``sha256:<64 hex digits>``.
+
+    Each part is hashed behind a tag saying what it is: an array as its dtype and
+    shape, then its memory in C order (so equal bytes of another dtype or shape hash
+    differently), ``None`` as a marker of its own, anything else as JSON with sorted
+    keys (so key order in the request does not matter).
+
+    Parameters
+    ----------
+    kind : str
+        The problem kind, so equal arrays of two kinds get different digests.
+    *parts : numpy.ndarray, None or JSON-serialisable value
+        Everything else that can change the answer, in a fixed order per kind.
+
+    Returns
+    -------
+    str
+    """
     h = hashlib.sha256(DIGEST_VERSION)
     h.update(kind.encode())
     for part in parts:

@@ -49,10 +49,23 @@ class LineError(FieldError):
     line: int = 0
 
     def as_dict(self) -> dict:
+        """The error as a problem ``errors`` member, with the line number beside the pointer."""
         return {"pointer": self.pointer, "line": self.line, "detail": self.detail}
 
 
 def line_error(line: int, detail: str) -> LineError:
+    """The field error for line ``line`` of a DIMACS body (pointer ``/line/<line>``).
+
+    Parameters
+    ----------
+    line : int
+        1-based line number.
+    detail : str
+
+    Returns
+    -------
+    LineError
+    """
     return LineError(f"/line/{line}", detail, line)
 
 

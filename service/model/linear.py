@@ -151,6 +151,7 @@ def _terms(records: Records, lookup: dict, base: str) -> _Entries:
     rows = np.repeat(np.arange(len(terms), dtype=np.int64), counts)
 
     def at(k: int) -> str:
+        """The JSON Pointer of the ``k``-th term, counting the rows' terms in row order."""
         return pointer(base[1:], int(rows[k]), "terms", keys[k])
 
     values = list(chain.from_iterable(map(dict.values, terms)))
@@ -230,6 +231,7 @@ def read_objective(objective: dict, lookup: dict, num_cols: int, base: str = "/o
     keys = list(terms)
 
     def at(k: int) -> str:
+        """The JSON Pointer of the ``k``-th objective term."""
         return pointer(base[1:], "terms", keys[k])
 
     cols = _columns_of(keys, lookup, at)

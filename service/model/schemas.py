@@ -134,6 +134,18 @@ class OptionsSchema(Schema):
 
 
 def detail_field(choices: list[str]) -> fields.List:
+    """The ``detail`` request field: which optional parts of the answer to include.
+
+    Parameters
+    ----------
+    choices : list of str
+        The parts a kind can add to its answer.
+
+    Returns
+    -------
+    marshmallow.fields.List
+        Strings from ``choices``; absent means ``None`` (all parts that apply).
+    """
     return fields.List(
         fields.String(validate=validate.OneOf(choices)),
         load_default=None,

@@ -64,11 +64,25 @@ def read_extra(arc_columns: dict, node_columns: dict, declared: int, num_nodes: 
 
 
 def arc_column(network: Network, name: str) -> list | None:
+    """A stored network's optional arc column ``name``, or ``None`` when it has none.
+
+    Returns
+    -------
+    list or None
+        JSON values, one per arc (``None`` where null).
+    """
     extra = network.extra or {}
     return extra.get("arcs", {}).get(name)
 
 
 def node_column(network: Network, name: str) -> list | None:
+    """A stored network's optional node column ``name``, or ``None`` when it has none.
+
+    Returns
+    -------
+    list or None
+        JSON values, one per node (``None`` where null).
+    """
     extra = network.extra or {}
     return extra.get("nodes", {}).get(name)
 

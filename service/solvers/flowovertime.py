@@ -235,6 +235,15 @@ def quickest(net: TimedNetwork, source: int, sink: int, amount) -> OverTimeSolut
     probes = []
 
     def probe(h: int):
+        """Solve the max-flow of the first ``h`` periods, capped at the amount.
+
+        Each probed horizon is recorded in ``probes`` for the certificate.
+
+        Returns
+        -------
+        (fnet, solver, arcs)
+            The probe's network, the solved ``SimpleMaxFlow`` and its arc handles.
+        """
         fnet = through_network(x, source, sink, big, horizon=h, cap=amount)
         solver, arcs = max_flow(fnet.num_nodes, fnet.tail, fnet.head, fnet.capacity, fnet.source, fnet.sink)
         probes.append(h)

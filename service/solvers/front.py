@@ -115,6 +115,34 @@ def _report(solution: MaxFlowSolution, certificate: dict, denominator: int, scal
 
 
 def certify_max_flow(solution: MaxFlowSolution, num_nodes, tail, head, capacity, unlimited, source, sink) -> dict:
+    """Check a max-flow answer and return its certificate.
+
+    A finite answer is checked by the max-flow min-cut theorem
+    (:func:`~service.solvers.certificates.check_max_flow`): exactly, or, when the LP
+    engine answered, in float64 to ``LP_TOLERANCE`` relative to each figure's own
+    magnitude. An unbounded answer is checked by its path of arcs without a limit.
+
+    Parameters
+    ----------
+    solution : MaxFlowSolution
+    num_nodes : int
+    tail, head : ndarray of int
+    capacity : ndarray
+        The capacities the solution was computed on (scaled integers for the exact
+        route), so the check compares like with like.
+    unlimited : ndarray of bool or None
+    source, sink : int
+
+    Returns
+    -------
+    dict
+        The certificate (``checked: True`` and the figures that were compared).
+
+    Raises
+    ------
+    SelfCheckFailed
+        The answer does not hold.
+    """
     if solution.status == "unbounded":
         certificates.check_path(tail, head, unlimited, source, sink, solution.unbounded_path)
         return {"checked": True, "unbounded_path_arcs": int(solution.unbounded_path.size)}

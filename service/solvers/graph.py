@@ -47,6 +47,7 @@ class Residual:
 
     @property
     def size(self) -> int:
+        """Number of residual arcs."""
         return int(self.arc.size)
 
     def subset(self, index: np.ndarray) -> "Residual":
@@ -81,6 +82,7 @@ class Graph:
 
     @property
     def num_arcs(self) -> int:
+        """Number of arcs."""
         return int(self.tail.size)
 
     @property

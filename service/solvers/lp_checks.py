@@ -57,6 +57,7 @@ def _finite_max(*arrays) -> float:
 
 
 def sense(model) -> float:
+    """The sign ``s`` of the module's sign convention: +1 for ``min``, -1 for ``max``."""
     return -1.0 if model.maximize else 1.0
 
 
@@ -249,6 +250,15 @@ def improvement_rate(model, direction: np.ndarray) -> float:
 
 
 def rate_tolerance(model) -> float:
+    """The improvement rate at or below which a direction does not count as improving.
+
+    ``REL * (1 + max |c_j|)``: relative to the objective's largest coefficient, so
+    a rate that small is taken for rounding noise, not for an improving direction.
+
+    Returns
+    -------
+    float
+    """
     return REL * (1.0 + _max(np.abs(model.c)))
 
 

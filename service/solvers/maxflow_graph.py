@@ -39,6 +39,20 @@ class CapacityOverflow(ValueError):
 
 
 def graph_engine(solver: str, **extra) -> dict:
+    """The ``engine`` document of an answer from an OR-Tools graph solver.
+
+    Parameters
+    ----------
+    solver : str
+        The OR-Tools class, e.g. ``"SimpleMaxFlow"``.
+    **extra
+        More members (scaling, method), merged in.
+
+    Returns
+    -------
+    dict
+        ``kind: "graph"``, ``solver``, ``version`` and ``extra``.
+    """
     return {"kind": "graph", "solver": f"OR-Tools {solver}", "version": ORTOOLS_VERSION, **extra}
 
 

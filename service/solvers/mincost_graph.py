@@ -68,6 +68,10 @@ class SolverBounds:
 
 
 def mincost_engine(**extra) -> dict:
+    """The ``engine`` document of an answer from OR-Tools ``SimpleMinCostFlow``.
+
+    See :func:`~service.solvers.maxflow_graph.graph_engine`.
+    """
     return graph_engine("SimpleMinCostFlow", **extra)
 
 

@@ -59,6 +59,7 @@ class Commodities:
 
     @property
     def count(self) -> int:
+        """Number of commodities."""
         return int(self.sources.size)
 
 
@@ -209,6 +210,29 @@ def _solve(net: Network, com: Commodities, objective: str, time_limit) -> MultiC
 
 
 def multicommodity_answer(net: Network, com: Commodities, result: LPResult) -> MultiCommoditySolution:
+    """The certified answer of an optimal min-cost model: every demand met.
+
+    Capacity prices are the capacity rows' duals with the sign flipped (raising a
+    capacity can only lower the cost), then checked with the flows by
+    :func:`check_flows`.
+
+    Parameters
+    ----------
+    net : Network
+    com : Commodities
+    result : LPResult
+        An optimal solve of :func:`min_cost_model`.
+
+    Returns
+    -------
+    MultiCommoditySolution
+
+    Raises
+    ------
+    SelfCheckFailed
+        A capacity price is negative beyond the dual tolerance, or the flows fail
+        their check.
+    """
     K, m = com.count, net.num_arcs
     flows = result.x.reshape(K, m)
     prices = _prices(net, -result.duals[K * net.num_nodes:], result.certificate)

@@ -99,27 +99,36 @@ class _Search:
         return b is None or (a is not None and (a > b if self.model.maximize else a < b))
 
     def tighten(self, bound: int | None) -> None:
+        """Take ``bound`` when it is tighter than the current bound (``None`` is ignored)."""
         if bound is not None and (bound < self.bound if self.model.maximize else bound > self.bound):
             self.bound = bound
 
     @property
     def best(self) -> int | None:
+        """The best objective known: the engine's running incumbent or the plan in hand, whichever is better."""
         return self.found if self.better(self.found, self.value) else self.value
 
     @property
     def gap(self) -> float | None:
+        """The relative gap between :attr:`best` and the bound; ``None`` without a plan."""
         return None if self.best is None else relative_gap(self.best, self.bound)
 
     def closed(self) -> bool:
+        """Whether the gap is down to the target, so the search can stop."""
         return self.gap is not None and self.gap <= self.target
 
     def offer(self, plan: Plan) -> None:
+        """Keep ``plan``, and report progress, if its objective beats the plan in hand."""
         value = plan_value(self.data, self.model, plan)
         if self.better(value, self.value):
             self.plan, self.value = plan, value
             self.report()
 
     def report(self) -> None:
+        """Send a progress report, in the caller's units (costs unscaled).
+
+        Does nothing without an ``on_progress`` listener.
+        """
         if self.on_progress is None:
             return
         unit = 1 if self.model.maximize else 10**self.data.scale
@@ -289,6 +298,13 @@ def _search(search: _Search, engine: str, hint, deadline: float) -> EngineResult
         return None
 
     def on_plan(objective: float, bound: float, seconds: float) -> bool:
+        """The engine's callback: record its incumbent and bound, report, and stop once closed.
+
+        Returns
+        -------
+        bool
+            True to stop the engine (the gap reached the target).
+        """
         if math.isfinite(objective) and search.better(int(round(objective)), search.found):
             search.found = int(round(objective))
         search.tighten(_engine_bound(bound, search.model))

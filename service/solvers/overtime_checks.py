@@ -255,6 +255,21 @@ def check_supplies_met(net: TimedNetwork, schedule: Schedule, supply: np.ndarray
 
 
 def schedule_cost(net: TimedNetwork, schedule: Schedule):
+    """The cost of a schedule: lane cost per unit moved plus holdover cost per unit-period.
+
+    Exact on integer data (see :func:`~service.solvers.mincost_checks.exact_dot`), in
+    the scaled units of ``net``.
+
+    Parameters
+    ----------
+    net : TimedNetwork
+    schedule : Schedule
+
+    Returns
+    -------
+    int or float
+        0 for a network without lane or holdover costs.
+    """
     s = schedule
     lane_cost = 0 if net.cost is None else exact_dot(s.dep_amount, net.cost[s.dep_arc])
     hold_cost = 0 if net.holdover_cost is None else exact_dot(s.hold_amount, net.holdover_cost[s.hold_node])

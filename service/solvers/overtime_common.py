@@ -55,10 +55,16 @@ class Scale:
         return x / 10.0**self.quantity if isinstance(x, np.ndarray) else x / 10**self.quantity
 
     def money(self, x):
+        """A scaled cost total back to the caller's units.
+
+        A total is quantities times unit costs, so it carries both scales: divided by
+        ``10**(quantity + cost)``.
+        """
         places = self.quantity + self.cost
         return x if not places else x / 10**places
 
     def describe(self) -> dict:
+        """The scaling for a certificate: ``decimal_scale`` and ``cost_scale`` where not 1."""
         out = {}
         if self.quantity:
             out["decimal_scale"] = 10**self.quantity

@@ -73,6 +73,7 @@ class TimedNetwork:
 
     @property
     def num_arcs(self) -> int:
+        """Number of lanes."""
         return int(self.tail.size)
 
     def lane_capacity(self, arc: np.ndarray, period: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -123,10 +124,12 @@ class Expansion:
 
     @property
     def num_expanded_nodes(self) -> int:
+        """Number of expanded nodes: one copy of each node per period."""
         return self.num_nodes * self.horizon
 
     @property
     def num_arcs(self) -> int:
+        """Number of expanded arcs (lane copies and holdover steps)."""
         return int(self.tail.size)
 
     def capped(self, big: int) -> np.ndarray:

@@ -134,6 +134,11 @@ def verify_min_cost_flow(num_nodes, tail, head, capacity, unlimited, cost, lower
     found = {}
 
     def search(r: Residual, subset):
+        """Look for a negative cycle among residual arcs ``r`` (a subset, or all of them).
+
+        The potentials of the search over all residual arcs are kept, since only they
+        prove optimality.
+        """
         w = weight if subset is None else weight[subset]
         cycle, potentials = negative_cycle(num_nodes, r, w, tol * 4, deadline)
         if subset is None:

@@ -63,6 +63,22 @@ OnPlan = Callable[[float, float, float], bool]
 
 
 def engine_info(name: str) -> dict:
+    """The ``engine`` document of a whole-unit answer.
+
+    Parameters
+    ----------
+    name : {"cp-sat", "scip"}
+
+    Returns
+    -------
+    dict
+        ``kind: "mip"``, ``solver`` and the OR-Tools ``version``.
+
+    Raises
+    ------
+    KeyError
+        ``name`` is not one of the two engines.
+    """
     solver = {"cp-sat": "OR-Tools CP-SAT", "scip": "SCIP (OR-Tools MathOpt)"}[name]
     return {"kind": "mip", "solver": solver, "version": ORTOOLS_VERSION}
 
@@ -126,6 +142,7 @@ class _Watcher(cp_model.CpSolverSolutionCallback):
         self.lock = threading.Lock()
 
     def on_solution_callback(self) -> None:
+        """CP-SAT's hook on each improving solution: tell ``on_plan``; stop the search if asked."""
         with self.lock:
             if _told(self.on_plan, self.objective_value, self.best_objective_bound, self.started):
                 self.stop_search()
@@ -207,6 +224,16 @@ class ScipTable:
         self.bound: float | None = None
 
     def read(self, lines: list[str]) -> None:
+        """Take in lines of SCIP's log (MathOpt's message callback).
+
+        The header row fixes which columns hold the dual and primal bounds; each table
+        row after it adds ``(seconds, primal, dual)`` to ``rows``, and a dual bound that
+        is a number becomes the latest ``bound``.
+
+        Parameters
+        ----------
+        lines : list of str
+        """
         for line in lines:
             cells = [c.strip() for c in line.split("|")]
             if "dualbound" in cells and "primalbound" in cells:
@@ -257,6 +284,13 @@ def _scip(model: WholeModel, hint, time_limit: float, gap: float, on_plan) -> En
     log_rows = ScipTable()
 
     def callback(data):
+        """MathOpt's callback on each new SCIP solution: price it and tell ``on_plan``.
+
+        Returns
+        -------
+        CallbackResultProto
+            ``terminate`` set when ``on_plan`` asks to stop.
+        """
         # The stats SCIP passes here are in its presolved space (an objective whose fixed
         # part was moved out reads 0), so the plan is priced from its own values and the
         # bound is the last one SCIP's log showed (the log prints original values).

@@ -52,6 +52,7 @@ class WholeModel:
 
     @property
     def num_vars(self) -> int:
+        """Number of integer variables (columns)."""
         return int(self.c.size)
 
 
@@ -69,6 +70,7 @@ class WholeData:
 
     @property
     def shape(self) -> tuple[int, int]:
+        """``(commodities, arcs)``: the shape of the flow array."""
         return self.com.count, self.net.num_arcs
 
     @property
@@ -92,6 +94,7 @@ class WholeData:
 
 
 def limited_mask(net: Network) -> np.ndarray:
+    """Boolean mask of the arcs with a capacity (all of them when ``unlimited`` is None)."""
     return np.ones(net.num_arcs, dtype=bool) if net.unlimited is None else ~net.unlimited
 
 

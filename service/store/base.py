@@ -38,6 +38,15 @@ class NetworkMeta:
     updated: float  # epoch seconds of this version
 
     def as_dict(self) -> dict:
+        """The metadata as a response document: ISO 8601 UTC times and a quoted ETag.
+
+        Returns
+        -------
+        dict
+            The fields of this record; ``created`` and ``updated`` as ISO 8601 strings with
+            millisecond precision and a ``Z`` suffix, ``etag`` wrapped in double quotes as
+            it appears in an ``ETag`` header.
+        """
         out = asdict(self)
         out["created"] = _iso(self.created)
         out["updated"] = _iso(self.updated)
@@ -46,6 +55,18 @@ class NetworkMeta:
 
     @classmethod
     def from_dict(cls, data: dict) -> "NetworkMeta":
+        """Rebuild metadata from its plain field mapping (as the Redis backend stores it).
+
+        Parameters
+        ----------
+        data : dict
+            The dataclass fields by name (epoch-second times, unquoted ETag), as in
+            ``meta.__dict__``; not the output of :meth:`as_dict`.
+
+        Returns
+        -------
+        NetworkMeta
+        """
         return cls(**data)
 
 
@@ -100,6 +121,19 @@ def unchanged(current: NetworkMeta | None, digest: str) -> bool:
 
 
 def not_found(name: str) -> NotFound:
+    """The :class:`~service.errors.NotFound` error for a missing stored network.
+
+    Returned, not raised, so each caller raises it where the absence is found.
+
+    Parameters
+    ----------
+    name : str
+        The network name the caller asked for.
+
+    Returns
+    -------
+    NotFound
+    """
     return NotFound(f"no stored network named {name!r}")
 
 
@@ -108,25 +142,204 @@ class Backend(Protocol):
 
     kind: str
 
-    def ping(self) -> dict: ...
+    def ping(self) -> dict:
+        """Prove the backend is usable and describe it, for the health endpoint.
 
-    def get_result(self, tenant: str, digest: str) -> bytes | None: ...
+        Returns
+        -------
+        dict
+            Backend facts (``backend`` and its settings or counters).
 
-    def put_result(self, tenant: str, digest: str, value: bytes, body_key: str | None = None) -> bool: ...
+        Raises
+        ------
+        StoreUnavailable
+            The backend cannot be reached (or, for SQLite, written).
+        """
 
-    def get_alias(self, tenant: str, body_key: str) -> str | None: ...
+    def get_result(self, tenant: str, digest: str) -> bytes | None:
+        """The cached result bytes under ``digest``, or ``None`` when absent or evicted.
 
-    def put_alias(self, tenant: str, body_key: str, digest: str) -> None: ...
+        Parameters
+        ----------
+        tenant : str
+        digest : str
+            Problem digest, ``sha256:<hex>``.
 
-    def head_network(self, tenant: str, name: str) -> NetworkMeta | None: ...
+        Returns
+        -------
+        bytes or None
 
-    def get_network(self, tenant: str, name: str) -> tuple[NetworkMeta, bytes] | None: ...
+        Raises
+        ------
+        StoreUnavailable
+        """
+
+    def put_result(self, tenant: str, digest: str, value: bytes, body_key: str | None = None) -> bool:
+        """Cache a result, and the raw-body alias leading to it when ``body_key`` is given.
+
+        Parameters
+        ----------
+        tenant : str
+        digest : str
+            Problem digest the result answers.
+        value : bytes
+            The response document as JSON bytes.
+        body_key : str, optional
+            Hash of the raw request body, stored as an alias of ``digest``.
+
+        Returns
+        -------
+        bool
+            False when ``value`` is larger than the backend caches (nothing is written).
+
+        Raises
+        ------
+        StoreUnavailable
+        """
+
+    def get_alias(self, tenant: str, body_key: str) -> str | None:
+        """The digest a raw-body hash was aliased to, or ``None``.
+
+        Parameters
+        ----------
+        tenant : str
+        body_key : str
+            Hash of a raw request body.
+
+        Returns
+        -------
+        str or None
+
+        Raises
+        ------
+        StoreUnavailable
+        """
+
+    def put_alias(self, tenant: str, body_key: str, digest: str) -> None:
+        """Alias a raw-body hash to the digest its body normalised to.
+
+        Parameters
+        ----------
+        tenant : str
+        body_key : str
+        digest : str
+
+        Raises
+        ------
+        StoreUnavailable
+        """
+
+    def head_network(self, tenant: str, name: str) -> NetworkMeta | None:
+        """Metadata of the current version of a stored network, without its arrays.
+
+        Parameters
+        ----------
+        tenant : str
+        name : str
+
+        Returns
+        -------
+        NetworkMeta or None
+            ``None`` when no network has that name.
+
+        Raises
+        ------
+        StoreUnavailable
+        """
+
+    def get_network(self, tenant: str, name: str) -> tuple[NetworkMeta, bytes] | None:
+        """The current version of a stored network: its metadata and the codec's bytes.
+
+        Parameters
+        ----------
+        tenant : str
+        name : str
+
+        Returns
+        -------
+        tuple of (NetworkMeta, bytes), or None
+            ``None`` when no network has that name.
+
+        Raises
+        ------
+        StoreUnavailable
+        """
 
     def put_network(self, tenant: str, name: str, blob: bytes, digest: str, node_count: int, arc_count: int,
-                    pre: Preconditions) -> tuple[NetworkMeta, bool]: ...
+                    pre: Preconditions) -> tuple[NetworkMeta, bool]:
+        """Write a new version of a network atomically, if the preconditions allow it.
 
-    def delete_network(self, tenant: str, name: str, pre: Preconditions) -> NetworkMeta: ...
+        The preconditions are checked against the version current inside the atomic
+        write, so of two writers holding the same ETag only one succeeds. Writing the
+        same digest again keeps the current version and ETag.
 
-    def list_networks(self, tenant: str, after: str | None, limit: int) -> list[NetworkMeta]: ...
+        Parameters
+        ----------
+        tenant : str
+        name : str
+        blob : bytes
+            The network encoded by :func:`~service.store.codec.encode_network`.
+        digest : str
+            Content digest of the network, compared to detect an unchanged write.
+        node_count, arc_count : int
+            Recorded in the metadata.
+        pre : Preconditions
+            Parsed ``If-Match`` / ``If-None-Match``.
 
-    def close(self) -> None: ...
+        Returns
+        -------
+        meta : NetworkMeta
+            The version now current.
+        created : bool
+            True when the name did not exist before.
+
+        Raises
+        ------
+        PreconditionFailed
+        StoreUnavailable
+        """
+
+    def delete_network(self, tenant: str, name: str, pre: Preconditions) -> NetworkMeta:
+        """Delete a stored network atomically, if the preconditions allow it.
+
+        Parameters
+        ----------
+        tenant : str
+        name : str
+        pre : Preconditions
+
+        Returns
+        -------
+        NetworkMeta
+            The version that was deleted.
+
+        Raises
+        ------
+        NotFound
+            No network has that name.
+        PreconditionFailed
+        StoreUnavailable
+        """
+
+    def list_networks(self, tenant: str, after: str | None, limit: int) -> list[NetworkMeta]:
+        """One page of a tenant's stored networks, in name order.
+
+        Parameters
+        ----------
+        tenant : str
+        after : str or None
+            Return only names sorting strictly after this one (the paging cursor).
+        limit : int
+            Most entries returned.
+
+        Returns
+        -------
+        list of NetworkMeta
+
+        Raises
+        ------
+        StoreUnavailable
+        """
+
+    def close(self) -> None:
+        """Release the backend's connections."""

@@ -33,4 +33,12 @@ class InvalidParameter(SluiceError):
         self.reason = detail
 
     def extra(self) -> dict:
+        """Problem members naming the offending parameter.
+
+        Returns
+        -------
+        dict
+            ``{"errors": [{"parameter": ..., "detail": ...}]}``: a parameter name rather
+            than a JSON Pointer, since the fault is not in the body.
+        """
         return {"errors": [{"parameter": self.parameter, "detail": self.reason}]}

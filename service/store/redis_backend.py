@@ -86,9 +86,25 @@ class RedisBackend:
             raise StoreUnavailable(f"Redis could not {what}: {exc.__class__.__name__}: {exc}") from None
 
     def close(self) -> None:
+        """Close the Redis client's connection pool."""
         self.client.close()
 
     def ping(self) -> dict:
+        """Ping Redis and report the settings that matter for eviction.
+
+        The first time the policy can be read, a warning is logged when it is
+        ``allkeys-*``, under which Redis may evict stored networks, not only results.
+
+        Returns
+        -------
+        dict
+            ``backend``, ``prefix``, ``result_ttl`` and, when Redis allows ``CONFIG GET``,
+            ``maxmemory_policy``.
+
+        Raises
+        ------
+        StoreUnavailable
+        """
         self._call("answer a ping", self.client.ping)
         out = {"backend": "redis", "prefix": self.prefix, "result_ttl": self.ttl}
         policy = self._eviction_policy()
@@ -112,10 +128,28 @@ class RedisBackend:
     # -- results -----------------------------------------------------------------
 
     def get_result(self, tenant: str, digest: str) -> bytes | None:
+        """The cached result under ``digest``, or ``None``; a hit restarts its TTL.
+
+        Raises
+        ------
+        StoreUnavailable
+        """
         # GETEX resets the TTL: a result that keeps being asked for stays (sliding TTL).
         return self._call("read a result", self.client.getex, self._key(tenant, "r", digest), ex=self.ttl)
 
     def put_result(self, tenant: str, digest: str, value: bytes, body_key: str | None = None) -> bool:
+        """Cache a result (and its body alias) with the TTL, in one transaction.
+
+        Returns
+        -------
+        bool
+            False, writing nothing, when ``value`` exceeds ``max_item_bytes``.
+
+        Raises
+        ------
+        StoreUnavailable
+            Redis is unreachable, or full under ``noeviction``.
+        """
         if len(value) > self.max_item_bytes:
             return False
         pipe = self.client.pipeline(transaction=True)
@@ -126,10 +160,22 @@ class RedisBackend:
         return True
 
     def get_alias(self, tenant: str, body_key: str) -> str | None:
+        """The digest a raw-body hash points at, or ``None``; a hit restarts its TTL.
+
+        Raises
+        ------
+        StoreUnavailable
+        """
         raw = self._call("read a body alias", self.client.getex, self._key(tenant, "b", body_key), ex=self.ttl)
         return None if raw is None else raw.decode()
 
     def put_alias(self, tenant: str, body_key: str, digest: str) -> None:
+        """Alias a raw-body hash to a digest, with the result TTL.
+
+        Raises
+        ------
+        StoreUnavailable
+        """
         self._call("store a body alias", self.client.set, self._key(tenant, "b", body_key), digest, ex=self.ttl)
 
     # -- networks ----------------------------------------------------------------
@@ -139,9 +185,23 @@ class RedisBackend:
         return None if raw is None else NetworkMeta.from_dict(orjson.loads(raw))
 
     def head_network(self, tenant: str, name: str) -> NetworkMeta | None:
+        """Metadata of the current version of ``name`` (the ``meta`` field only), or ``None``.
+
+        Raises
+        ------
+        StoreUnavailable
+        """
         return self._meta(self._call("read a network", self.client.hget, self._key(tenant, "n", name), "meta"))
 
     def get_network(self, tenant: str, name: str) -> tuple[NetworkMeta, bytes] | None:
+        """Metadata and codec bytes of the current version of ``name``, or ``None``.
+
+        Both fields are read in one ``HMGET``, so they always belong to the same version.
+
+        Raises
+        ------
+        StoreUnavailable
+        """
         meta, blob = self._call("read a network", self.client.hmget, self._key(tenant, "n", name), ["meta", "blob"])
         if meta is None:
             return None
@@ -149,9 +209,26 @@ class RedisBackend:
 
     def put_network(self, tenant: str, name: str, blob: bytes, digest: str, node_count: int, arc_count: int,
                     pre: Preconditions) -> tuple[NetworkMeta, bool]:
+        """Write a new version of ``name`` in an optimistic transaction.
+
+        See :meth:`Backend.put_network <service.store.base.Backend.put_network>`.
+
+        Returns
+        -------
+        meta : NetworkMeta
+        created : bool
+
+        Raises
+        ------
+        PreconditionFailed
+        Conflict
+            Other writers kept winning the race for ``MAX_WRITE_ATTEMPTS`` attempts.
+        StoreUnavailable
+        """
         key = self._key(tenant, "n", name)
 
         def write(pipe, current):
+            """Queue the write of the next version (nothing when the content is unchanged)."""
             if unchanged(current, digest):
                 return current
             meta = next_meta(current, name, digest, node_count, arc_count, len(blob))
@@ -163,9 +240,25 @@ class RedisBackend:
         return meta, current is None
 
     def delete_network(self, tenant: str, name: str, pre: Preconditions) -> NetworkMeta:
+        """Delete ``name`` and its listing entry in an optimistic transaction.
+
+        Returns
+        -------
+        NetworkMeta
+            The version that was deleted.
+
+        Raises
+        ------
+        NotFound
+        PreconditionFailed
+        Conflict
+            Other writers kept winning the race for ``MAX_WRITE_ATTEMPTS`` attempts.
+        StoreUnavailable
+        """
         key = self._key(tenant, "n", name)
 
         def remove(pipe, current):
+            """Queue the removal of the network hash and its name in the listing set."""
             pipe.delete(key)
             pipe.zrem(self._key(tenant, "ni"), name)
             return current
@@ -176,6 +269,7 @@ class RedisBackend:
     def _optimistic(self, what: str, key: str, name: str, pre: Preconditions, action, *, must_exist=False):
         """WATCH key; check the precondition on the current version; MULTI action EXEC; retry on a lost race."""
         def attempt():
+            """Run the watch-check-execute loop, retrying when ``EXEC`` loses a race."""
             with self.client.pipeline(transaction=True) as pipe:
                 for _ in range(MAX_WRITE_ATTEMPTS):
                     try:
@@ -197,6 +291,14 @@ class RedisBackend:
         return self._call(what, attempt)
 
     def list_networks(self, tenant: str, after: str | None, limit: int) -> list[NetworkMeta]:
+        """One page of a tenant's networks in name order, from the sorted set of names.
+
+        Names whose hash vanished between the two reads (a concurrent delete) are left out.
+
+        Raises
+        ------
+        StoreUnavailable
+        """
         start = f"({after}" if after else "-"
         names = self._call("list networks", self.client.zrangebylex, self._key(tenant, "ni"), start, "+", 0, limit)
         if not names:

@@ -158,9 +158,21 @@ class SqliteBackend:
                 pass
 
     def close(self) -> None:
+        """Close the calling thread's connection (other threads' connections are not touched)."""
         self._drop_connection()
 
     def ping(self) -> dict:
+        """Read the result counters and prove the file is writable.
+
+        Returns
+        -------
+        dict
+            ``backend``, ``result_bytes``, ``results`` and ``budget_bytes``.
+
+        Raises
+        ------
+        StoreUnavailable
+        """
         with self._guard("answer a health check"):
             conn = self._conn()
             nbytes, entries = conn.execute("SELECT bytes, entries FROM stats WHERE id = 1").fetchone()
@@ -183,6 +195,15 @@ class SqliteBackend:
     # -- results -----------------------------------------------------------------
 
     def get_result(self, tenant: str, digest: str) -> bytes | None:
+        """The cached result under ``digest``, or ``None``.
+
+        A hit refreshes its last-used time (at most once per ``touch_interval``), which
+        is what the least-recently-used eviction orders by.
+
+        Raises
+        ------
+        StoreUnavailable
+        """
         with self._guard("read a result"):
             conn = self._conn()
             row = conn.execute("SELECT id, used, value FROM results WHERE tenant = ? AND digest = ?",
@@ -195,6 +216,17 @@ class SqliteBackend:
             return row[2]
 
     def put_result(self, tenant: str, digest: str, value: bytes, body_key: str | None = None) -> bool:
+        """Cache a result (and its body alias), then evict old results beyond the budget.
+
+        Returns
+        -------
+        bool
+            False, writing nothing, when ``value`` exceeds ``max_item_bytes``.
+
+        Raises
+        ------
+        StoreUnavailable
+        """
         if len(value) > self.max_item_bytes:
             return False
         with self._guard("store a result"):
@@ -235,12 +267,24 @@ class SqliteBackend:
             conn.execute(f"DELETE FROM results WHERE id IN ({','.join('?' * len(doomed))})", doomed)
 
     def get_alias(self, tenant: str, body_key: str) -> str | None:
+        """The digest a raw-body hash points at, or ``None``.
+
+        Raises
+        ------
+        StoreUnavailable
+        """
         with self._guard("read a body alias"):
             row = self._conn().execute("SELECT digest FROM aliases WHERE tenant = ? AND body = ?",
                                        (tenant, body_key)).fetchone()
             return None if row is None else row[0]
 
     def put_alias(self, tenant: str, body_key: str, digest: str) -> None:
+        """Alias a raw-body hash to a digest, only while that result is still cached.
+
+        Raises
+        ------
+        StoreUnavailable
+        """
         with self._guard("store a body alias"):
             conn = self._conn()
             with _transaction(conn):
@@ -252,6 +296,12 @@ class SqliteBackend:
     # -- networks ----------------------------------------------------------------
 
     def head_network(self, tenant: str, name: str) -> NetworkMeta | None:
+        """Metadata of the current version of ``name``, or ``None``.
+
+        Raises
+        ------
+        StoreUnavailable
+        """
         with self._guard("read a network"):
             return self._head(self._conn(), tenant, name)
 
@@ -262,6 +312,12 @@ class SqliteBackend:
         return None if row is None else NetworkMeta(*row)
 
     def get_network(self, tenant: str, name: str) -> tuple[NetworkMeta, bytes] | None:
+        """Metadata and codec bytes of the current version of ``name``, or ``None``.
+
+        Raises
+        ------
+        StoreUnavailable
+        """
         with self._guard("read a network"):
             row = self._conn().execute(f"SELECT {_META_COLUMNS}, blob FROM networks WHERE tenant = ? AND name = ?",
                                        (tenant, name)).fetchone()
@@ -269,6 +325,20 @@ class SqliteBackend:
 
     def put_network(self, tenant: str, name: str, blob: bytes, digest: str, node_count: int, arc_count: int,
                     pre: Preconditions) -> tuple[NetworkMeta, bool]:
+        """Write a new version of ``name`` in one ``BEGIN IMMEDIATE`` transaction.
+
+        See :meth:`Backend.put_network <service.store.base.Backend.put_network>`.
+
+        Returns
+        -------
+        meta : NetworkMeta
+        created : bool
+
+        Raises
+        ------
+        PreconditionFailed
+        StoreUnavailable
+        """
         with self._guard("store a network"):
             conn = self._conn()
             # BEGIN IMMEDIATE takes the write lock before reading the current version:
@@ -291,6 +361,19 @@ class SqliteBackend:
         return meta, current is None
 
     def delete_network(self, tenant: str, name: str, pre: Preconditions) -> NetworkMeta:
+        """Delete ``name`` in one transaction, if the preconditions allow it.
+
+        Returns
+        -------
+        NetworkMeta
+            The version that was deleted.
+
+        Raises
+        ------
+        NotFound
+        PreconditionFailed
+        StoreUnavailable
+        """
         with self._guard("delete a network"):
             conn = self._conn()
             with _transaction(conn):
@@ -302,6 +385,12 @@ class SqliteBackend:
         return current
 
     def list_networks(self, tenant: str, after: str | None, limit: int) -> list[NetworkMeta]:
+        """One page of a tenant's networks in name order, after the cursor ``after``.
+
+        Raises
+        ------
+        StoreUnavailable
+        """
         with self._guard("list networks"):
             rows = self._conn().execute(
                 f"SELECT {_META_COLUMNS} FROM networks WHERE tenant = ? AND name > ? ORDER BY name LIMIT ?",

@@ -74,6 +74,7 @@ class Store:
 
     @property
     def kind(self) -> str:
+        """The backend's name: ``"sqlite"`` or ``"redis"``."""
         return self.backend.kind
 
     # -- the breaker -------------------------------------------------------------
@@ -117,6 +118,15 @@ class Store:
     # -- results -----------------------------------------------------------------
 
     def get_result(self, tenant: str, digest: str) -> bytes | None:
+        """The cached result under ``digest``, or ``None``.
+
+        Raises
+        ------
+        ValueError
+            ``tenant`` is not a valid tenant name.
+        StoreUnavailable
+            The backend failed, or failed less than ``retry_interval`` seconds ago.
+        """
         return self._use(self.backend.get_result, check_tenant(tenant), digest)
 
     def get_result_by_body(self, tenant: str, body_key: str) -> bytes | None:
@@ -143,6 +153,13 @@ class Store:
         return meta, created
 
     def network_meta(self, tenant: str, name: str) -> NetworkMeta:
+        """Metadata of the current version of ``name``.
+
+        Raises
+        ------
+        NotFound
+        StoreUnavailable
+        """
         meta = self._use(self.backend.head_network, check_tenant(tenant), name)
         if meta is None:
             raise not_found(name)
@@ -184,15 +201,46 @@ class Store:
                 total -= old.nbytes
 
     def delete_network(self, tenant: str, name: str, pre: Preconditions = Preconditions()) -> NetworkMeta:
+        """Delete ``name`` and drop it from this process's memo.
+
+        Returns
+        -------
+        NetworkMeta
+            The version that was deleted.
+
+        Raises
+        ------
+        NotFound
+        PreconditionFailed
+        StoreUnavailable
+        """
         meta = self._use(self.backend.delete_network, check_tenant(tenant), name, pre)
         with self._lock:
             self._memo.pop((tenant, name), None)
         return meta
 
     def list_networks(self, tenant: str, after: str | None = None, limit: int = 100) -> list[NetworkMeta]:
+        """One page of a tenant's stored networks in name order.
+
+        Parameters
+        ----------
+        tenant : str
+        after : str, optional
+            Paging cursor: only names sorting after it.
+        limit : int
+
+        Returns
+        -------
+        list of NetworkMeta
+
+        Raises
+        ------
+        StoreUnavailable
+        """
         return self._use(self.backend.list_networks, check_tenant(tenant), after, limit)
 
     def close(self) -> None:
+        """Close the backend."""
         self.backend.close()
 
 
