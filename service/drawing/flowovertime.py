@@ -122,12 +122,44 @@ class _Chart:
         return f"{_short(name)} ({int(self.transit[a])})"  # the transit stays when a long name is cut
 
     def x(self, period: float) -> float:
+        """The x of the start of ``period`` (fractions for points within it).
+
+        Parameters
+        ----------
+        period : float
+
+        Returns
+        -------
+        float
+        """
         return self.x0 + period * self.period_w
 
     def row_y(self, row: int) -> float:
+        """The y of the top of a row (lanes first, then the nodes that hold over).
+
+        Parameters
+        ----------
+        row : int
+
+        Returns
+        -------
+        float
+        """
         return self.y0 + row * ROW_H
 
     def document(self, title: str, subtitle: str) -> str:
+        """The SVG document: periods, lanes, holdovers, arrivals and the legend.
+
+        Parameters
+        ----------
+        title, subtitle : str
+            From :meth:`FlowOverTimeDrawer.headline`.
+
+        Returns
+        -------
+        str
+            A standalone SVG document.
+        """
         rows = self.net.num_arcs + len(self.holds)
         chart_bottom = self.row_y(rows)
         body = [self._periods(), *self._lanes(), *self._holdover(), *self._arrivals(chart_bottom)]
