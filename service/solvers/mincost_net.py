@@ -63,7 +63,8 @@ def _transform(net: _Net):
     if net.unl is not None:
         cap = np.where(net.unl, 0, cap)
     sup = net.sup.copy() if is_object(net.sup) or is_object(net.low) else net.sup.astype(np.int64, copy=True)
-    sup += node_balance(net.n, net.tail, net.head, net.low.astype(sup.dtype, casting="same_kind"))  # exact
+    low = net.low.astype(sup.dtype, casting="same_kind", copy=False)  # exact: Python ints stay ints
+    sup += node_balance(net.n, net.tail, net.head, low)
     return cap, sup
 
 
