@@ -18,11 +18,14 @@ import xml.etree.ElementTree as ET
 import numpy as np
 import pytest
 
-from service.drawing import DRAWERS
 from service.drawing.svg import exact
 from service.drawing.text import ASCENT, DESCENT, Font, text_width
+from service.kinds import KINDS
 from tests.conftest import SCENARIOS, scenario
 from tests.test_explorer_browser import browser  # noqa: F401  (the fixture: headless chromium)
+
+#: The drawn kinds: those that declare a drawer.
+DRAWN = {name for name, kind in KINDS.items() if kind.drawer is not None}
 
 SVG = "{http://www.w3.org/2000/svg}"
 
@@ -210,7 +213,7 @@ def drawable_scenarios() -> list[tuple[str, str, object]]:
     out = []
     for path in sorted(SCENARIOS.iterdir()):
         words = path.name.removesuffix(".json").removesuffix(".dimacs").split("-")
-        kind = next((w for w in words if w in DRAWERS), None)
+        kind = next((w for w in words if w in DRAWN), None)
         if path.suffix == ".dimacs":
             if kind:
                 out.append((path.name, kind, scenario(path.name)))
@@ -218,7 +221,7 @@ def drawable_scenarios() -> list[tuple[str, str, object]]:
         doc = scenario(path.name)
         if words[0] == "batch":
             out += [(f"{path.stem}/{i}", item["kind"], item["problem"])
-                    for i, item in enumerate(doc["items"]) if item["kind"] in DRAWERS]
+                    for i, item in enumerate(doc["items"]) if item["kind"] in DRAWN]
         elif kind:
             out.append((path.stem, kind, doc["problem"] if words[0] == "verify" else doc))
     return out
@@ -303,7 +306,7 @@ def random_body(seed: int, kind: str) -> dict:
 def test_every_drawable_scenario_is_found():
     names = {name for name, _, _ in SCENARIO_CASES}
     assert {"depots-maxflow", "depots-mincostflow", "depots-maxflow.dimacs"} <= names
-    assert {kind for _, kind, _ in SCENARIO_CASES} == set(DRAWERS)
+    assert {kind for _, kind, _ in SCENARIO_CASES} == set(DRAWN)
 
 
 @pytest.mark.parametrize("name,kind,body", SCENARIO_CASES, ids=[c[0] for c in SCENARIO_CASES])
@@ -320,7 +323,7 @@ def test_scenario_diagrams_route_around_nodes_and_keep_texts_apart(client, name,
     check(draw(client, kind, body), arc_ends(body))
 
 
-@pytest.mark.parametrize("kind", sorted(DRAWERS))
+@pytest.mark.parametrize("kind", sorted(DRAWN))
 def test_random_networks_route_around_nodes_and_keep_texts_apart(client, kind):
     failures = []
     check = check_timeline if kind == "flowovertime" else check_geometry
@@ -345,7 +348,7 @@ def test_text_widths_hold_what_chromium_renders(browser, client, tmp_path):
     """The drawer's widths are at least what a browser draws (so boxes that do not meet
     on paper do not meet on screen), measured per text with getBoundingClientRect."""
     cases = [(kind, body) for _, kind, body in SCENARIO_CASES if not isinstance(body, str)]
-    cases += [(kind, random_body(seed, kind)) for seed in (3, 11) for kind in sorted(DRAWERS)]
+    cases += [(kind, random_body(seed, kind)) for seed in (3, 11) for kind in sorted(DRAWN)]
     cases.append(("maxflow", {"source": "Zürich-ЖД-ü", "sink": "t\u0000", "arcs": [
         {"from": "Zürich-ЖД-ü", "to": "t\u0000", "capacity": 12345678}]}))
     measured = 0

@@ -11,7 +11,6 @@ from pathlib import Path
 
 import pytest
 
-from service.drawing import DRAWERS
 from service.kinds import KINDS
 from service.kinds.base import Kind
 
@@ -22,8 +21,8 @@ def test_every_registered_kind_is_one_declaration():
     for name, kind in KINDS.items():
         assert isinstance(kind, Kind) and kind.name == name
         assert (ROOT / "service" / "scenarios" / kind.example).is_file()
-    # a drawable kind must have a drawer; the drawing room may hold drawers not yet declared
-    assert {k.name for k in KINDS.values() if k.drawable} <= set(DRAWERS)
+        # a kind's drawer draws that kind (it names it in the SVG's data-kind)
+        assert kind.drawer is None or kind.drawer.kind == name
 
 
 def test_a_half_declared_what_if_is_refused():
@@ -32,6 +31,8 @@ def test_a_half_declared_what_if_is_refused():
         Kind(**{**maxflow.__dict__, "query_schema": None})
     with pytest.raises(TypeError, match="dimacs"):
         Kind(**{**maxflow.__dict__, "dimacs": "max-flow"})
+    with pytest.raises(TypeError, match="its drawer draws 'mincostflow'"):
+        Kind(**{**maxflow.__dict__, "drawer": KINDS["mincostflow"].drawer})
 
 
 def test_kinds_endpoint_lists_each_declaration(client):
@@ -43,7 +44,7 @@ def test_kinds_endpoint_lists_each_declaration(client):
         caps = listed[name]["capabilities"]
         assert listed[name]["endpoint"] == f"/v1/{name}" and listed[name]["summary"] == kind.summary
         assert caps["what_if"] == (kind.from_network is not None) and caps["dimacs"] == kind.dimacs
-        assert caps["diagram"] == kind.drawable and caps["verify"] == kind.verifiable
+        assert caps["diagram"] == (kind.drawer is not None) and caps["verify"] == (kind.verify is not None)
         assert client.get(f"/v1/scenarios/{listed[name]['example']}").status_code == 200
     # what the capabilities say holds: a what-if route where declared, none elsewhere
     rules = {r.rule for r in client.application.url_map.iter_rules()}
@@ -126,6 +127,53 @@ def test_a_new_kind_needs_only_its_declaration_in_the_registry():
     assert out["batch"]["results"][0]["total"] == 2
     assert out["job"] == 202
     assert out["what_if"] == 404  # no from_network declared: no what-if route
+
+
+# A throwaway kind with plan checks and a drawer: both are fields of its declaration,
+# and the verify route, the diagram route and GET /v1/kinds follow from them.
+CHECKED_AND_DRAWN = textwrap.dedent('''
+    import json, sys, tempfile
+    from dataclasses import replace
+    from service.drawing.maxflow import MaxFlowDrawer
+    from service.kinds import KINDS
+    from service.kinds.verify import max_flow_plans
+
+    class LanesDrawer(MaxFlowDrawer):
+        kind = "lanes"
+
+    maxflow = KINDS["maxflow"]
+    KINDS["lanes"] = replace(maxflow, name="lanes", summary="Max flow again (a throwaway kind of a test)",
+                             query_schema=None, from_network=None, dimacs=None, drawer=LanesDrawer(),
+                             verify=max_flow_plans(maxflow.parse))
+
+    from service.api import create_app
+
+    client = create_app({"data_dir": tempfile.mkdtemp()}).test_client()
+    body = json.load(open("service/scenarios/depots-maxflow.json"))
+    flows = client.post("/v1/lanes", json=body).get_json()["flows"]
+    svg = client.post("/v1/diagram.svg", json={"kind": "lanes", "problem": body})
+    listed = {k["name"]: k["capabilities"] for k in client.get("/v1/kinds").get_json()["kinds"]}
+    out = {
+        "verified": client.post("/v1/verify/lanes", json={"problem": body, "flows": flows}).get_json(),
+        "svg": [svg.status_code, svg.mimetype, 'data-kind="lanes"' in svg.get_data(as_text=True)],
+        "capabilities": listed["lanes"],
+        "refused": client.post("/v1/verify/assignment", json={}).get_json()["detail"],
+    }
+    json.dump(out, sys.stdout)
+''')
+
+
+def test_plan_checks_and_diagrams_follow_from_the_declaration():
+    run = subprocess.run([sys.executable, "-c", CHECKED_AND_DRAWN], cwd=ROOT, capture_output=True, text=True,
+                         timeout=120)
+    assert run.returncode == 0, run.stderr[-3000:]
+    out = json.loads(run.stdout.strip().splitlines()[-1])
+    verified = out["verified"]
+    assert verified["feasible"] and verified["optimal"] and verified["certificate"]["proof"] == "cut"
+    assert verified["cut"]["capacity"] == verified["value"]  # max-flow = min-cut
+    assert out["svg"] == [200, "image/svg+xml", True]
+    assert out["capabilities"]["verify"] is True and out["capabilities"]["diagram"] is True
+    assert out["refused"] == "plans can be verified for maxflow, mincostflow, lanes; not for 'assignment'"
 
 
 def test_limits_take_their_defaults_and_values_from_the_settings(monkeypatch):

@@ -44,10 +44,14 @@ ALLOWED = {
     "model": {"errors"},
     "solvers": {"errors", "deadline"},
     # config: the size limits take their defaults from Settings (one place they are written).
-    "kinds": {"errors", "config", "deadline", "model", "solvers"},
+    # drawing: a kind declares its drawer (Kind.drawer); the drawing room is a leaf, so no circle.
+    "kinds": {"errors", "config", "deadline", "model", "solvers", "drawing"},
     "store": {"errors", "model"},
     "jobs": {"errors", "config", "deadline", "kinds", "memory"},
-    "drawing": set(),  # numpy and plain data only: no model, no solvers, no Flask
+    # numpy and plain data only: no model, no Flask; from the solvers only their graph type
+    # (service.solvers.graph, DRAWING_FROM_SOLVERS), so the columns of a diagram come from
+    # the one breadth-first search of the service.
+    "drawing": {"solvers"},
     # The worker's front (gunicorn's asyncio worker) hands the app the body whole.
     "intake": {"errors", "config", "logs", "memory"},
     "api": {"service", "errors", "config", "deadline", "logs", "memory", "intake", "model", "solvers", "kinds",
@@ -55,6 +59,9 @@ ALLOWED = {
     "serving": {"errors", "config", "logs", "memory", "intake", "api"},  # runs the app
     "cli": {"service", "errors", "config", "logs", "memory", "serving", "api", "jobs"},
 }
+
+#: The only modules of the solvers the drawing room may import.
+DRAWING_FROM_SOLVERS = {"service.solvers.graph"}
 
 #: Rooms that may import Flask (or its extensions).
 FLASK = {"api"}
@@ -310,6 +317,11 @@ def test_every_known_violation_is_still_there():
     found = {**room_violations(), **local_violations(), **circle_violations()}
     stale = sorted(k for k in KNOWN if k not in found)
     assert not stale, f"fixed: delete these KNOWN entries: {stale}"
+
+
+def test_drawing_takes_only_the_graph_type_from_the_solvers():
+    taken = {i.target for i in service_imports() if room(i.module) == "drawing" and room(i.target) == "solvers"}
+    assert taken and taken <= DRAWING_FROM_SOLVERS, sorted(taken - DRAWING_FROM_SOLVERS)
 
 
 def test_every_room_has_a_layer():

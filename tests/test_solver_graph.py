@@ -12,7 +12,7 @@ import numpy as np
 import pytest
 
 from service.solvers.graph import (
-    BACKWARD, FORWARD, Graph, bfs_predecessors, bfs_tree, components, max_degree, node_balance, reach,
+    BACKWARD, FORWARD, Graph, bfs_depth, bfs_predecessors, bfs_tree, components, max_degree, node_balance, reach,
     residual_arcs, residual_network, residual_reach,
 )
 
@@ -46,6 +46,22 @@ def test_reach_and_both_searches_agree_with_networkx(seed):
     for v in expected - {0}:
         assert depth[int(pred[v])] == depth[v] - 1 and g.has_edge(int(pred[v]), v)
     assert all(pred[v] < 0 for v in set(range(n)) - expected)
+
+
+@pytest.mark.parametrize("seed", range(6))
+def test_bfs_depth_from_several_starts_agrees_with_networkx(seed):
+    # networkx: multi_source_dijkstra_path_length with unit weights is the breadth-first
+    # distance from the nearest start.
+    n, tail, head, rng = random_arcs(seed, m=70)
+    starts = [int(v) for v in rng.integers(0, n, 3)] + [0, 0]  # repeats allowed
+    g = nx.DiGraph()
+    g.add_nodes_from(range(n))
+    g.add_edges_from(zip(tail.tolist(), head.tolist()))
+    expected = nx.multi_source_dijkstra_path_length(g, set(starts), weight=lambda u, v, d: 1)
+    depth = bfs_depth(n, tail, head, starts)
+    assert {v: int(depth[v]) for v in range(n) if depth[v] >= 0} == expected
+    assert (depth >= -1).all() and Graph(n, tail, head).depth(starts).tolist() == depth.tolist()
+    assert bfs_depth(n, tail, head, []).tolist() == [-1] * n
 
 
 def test_bfs_tree_stops_at_its_target():

@@ -35,11 +35,22 @@ bp = Blueprint("diagram", __name__, url_prefix="/v1")
 DRAWING_SUFFIX = ":drawing"
 
 
+def diagram_kinds() -> list[str]:
+    """The kinds that declare a ``drawer``.
+
+    Returns
+    -------
+    list of str
+        Kind names in registry order.
+    """
+    return [name for name, kind in KINDS.items() if kind.drawer is not None]
+
+
 class DiagramRequest(Schema):
     class Meta:
         unknown = RAISE
 
-    kind = fields.String(required=True, metadata={"description": "A drawn kind: " + ", ".join(n for n, k in KINDS.items() if k.drawable) + "."})
+    kind = fields.String(required=True, metadata={"description": "A drawn kind: " + ", ".join(diagram_kinds()) + "."})
     problem = fields.Dict(required=True, metadata={"description": "The request body of POST /v1/{kind}."})
 
 
@@ -104,7 +115,9 @@ def render_diagram(kind: str, body: dict, result: dict, *, max_nodes: int = 60, 
 
     Parameters
     ----------
-    kind : {"maxflow", "mincostflow"}
+    kind : str
+        A kind that declares a ``drawer`` (network pictures: not flows over time, whose
+        cached record is drawn by :func:`cached_diagram`).
     body : dict
         The problem's request body (as sent to ``POST /v1/{kind}``, or as kept by
         :func:`drawing_record`).
@@ -129,7 +142,7 @@ def render_diagram(kind: str, body: dict, result: dict, *, max_nodes: int = 60, 
         values = number_column(column.values, column.where).values
         supply[: values.size] = values
     ends = {end: network.nodes.index_of(body[end]) for end in ("source", "sink") if end in body}
-    return draw(kind, drawn_network(network, supply=supply, **ends), plain(result))
+    return draw(KINDS[kind].drawer, drawn_network(network, supply=supply, **ends), plain(result))
 
 
 def plain(result: dict) -> dict:
@@ -142,9 +155,6 @@ def svg_response(svg: str) -> Response:
     return Response(svg, mimetype=SVG_MEDIA_TYPE, headers={"Cache-Control": "no-store"})
 
 
-def diagram_kinds() -> list[str]:
-    """The kinds declared ``drawable`` (each has a drawer in :data:`service.drawing.DRAWERS`)."""
-    return [name for name, kind in KINDS.items() if kind.drawable]
 
 
 def _check_drawn(kind: str) -> None:
@@ -175,7 +185,7 @@ def drawing_record(kind_name: str, problem) -> bytes | None:
     keep only their size, ``{"kind", "too_large": {"nodes", "arcs"}}``, so the route can
     answer 413 rather than 404. ``None`` for kinds that are not drawn.
     """
-    if not KINDS[kind_name].drawable:
+    if KINDS[kind_name].drawer is None:
         return None
     network = problem.network
     settings = current_app.extensions["sluice"].settings
@@ -204,7 +214,7 @@ def cached_diagram(record: bytes, result: bytes) -> Response:
                                              f"diagrams are drawn for at most {settings.max_diagram_nodes} nodes "
                                              f"and {settings.max_diagram_arcs} arcs"))
     if "timed" in doc:
-        return svg_response(draw(doc["kind"], drawn_timed(doc["timed"]), orjson.loads(result)))
+        return svg_response(draw(KINDS[doc["kind"]].drawer, drawn_timed(doc["timed"]), orjson.loads(result)))
     return solution_diagram(doc["kind"], doc["body"], orjson.loads(result))
 
 
@@ -240,6 +250,6 @@ def diagram():
     with under("/problem"):
         problem = _parse_drawable(kind, envelope["problem"], state)
         result = bounded_solve(kind, problem)
-    response = svg_response(draw(kind_name, drawn_problem(problem), plain(result)))
+    response = svg_response(draw(kind.drawer, drawn_problem(problem), plain(result)))
     response.headers["Server-Timing"] = f"total;dur={(perf_counter() - started) * 1000:.1f}"
     return response

@@ -1,4 +1,4 @@
-"""``POST /v1/verify/maxflow`` and ``POST /v1/verify/mincostflow``: check a client's plan."""
+"""``POST /v1/verify/{kind}``: check a client's plan, for the kinds that declare ``verify``."""
 
 from __future__ import annotations
 
@@ -9,7 +9,6 @@ from flask import Blueprint, current_app
 from ..deadline import Deadline
 from ..errors import NotFound
 from ..kinds import KINDS
-from ..kinds import verify as verify_kind
 from ..kinds.verify import VerifyRequest, VerifyResponse
 from .declare import json_body, ok, operation, path_parameter, problems, scenario_json
 from .jsonio import json_response, read_json_body
@@ -19,8 +18,14 @@ bp = Blueprint("verify", __name__, url_prefix="/v1/verify")
 
 
 def verify_kinds() -> list[str]:
-    """The ``{kind}`` of ``/v1/verify/{kind}``: the kinds declared ``verifiable``."""
-    return [name for name, kind in KINDS.items() if kind.verifiable]
+    """The ``{kind}`` of ``/v1/verify/{kind}``: the kinds that declare a plan verifier.
+
+    Returns
+    -------
+    list of str
+        Kind names in registry order.
+    """
+    return [name for name, kind in KINDS.items() if kind.verify is not None]
 
 
 @bp.post("/<kind>")
@@ -33,13 +38,13 @@ def verify_kinds() -> list[str]:
                       **problems(400, 404, 413, 415, 422, 500, 504)})
 def verify(kind: str):
     """Check a client's flows for a problem: feasibility, value or cost, optimality."""
-    checked = verify_kinds()
-    if kind not in checked:
-        raise NotFound(f"plans can be verified for {', '.join(checked)}; not for {kind!r}")
+    plans = KINDS[kind].verify if kind in KINDS else None
+    if plans is None:
+        raise NotFound(f"plans can be verified for {', '.join(verify_kinds())}; not for {kind!r}")
     started = perf_counter()
-    problem = verify_kind.parse(kind, read_json_body(), limits(), KINDS)
+    problem = plans.parse(read_json_body(), limits())
     parsed = perf_counter()
-    out = verify_kind.check(problem, Deadline.after(current_app.extensions["sluice"].settings.time_limit))
+    out = plans.check(problem, Deadline.after(current_app.extensions["sluice"].settings.time_limit))
     done = perf_counter()
     out["timing_ms"] = {"parse": round((parsed - started) * 1000, 3), "solve": round((done - parsed) * 1000, 3),
                         "total": round((done - started) * 1000, 3)}

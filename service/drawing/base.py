@@ -59,16 +59,28 @@ class DrawnNetwork:
 
     @property
     def num_nodes(self) -> int:
+        """How many nodes the network has (``len(ids)``)."""
         return len(self.ids)
 
     @property
     def num_arcs(self) -> int:
+        """How many arcs the network has."""
         return int(self.tail.size)
 
     def index_of(self, node_id) -> int | None:
-        """The index of a node id as it appears in an answer; ``None`` if unknown.
+        """The index of a node id as it appears in an answer.
 
         Ids compare exactly, type included: ``"7"`` is not ``7``, ``True`` is not ``1``.
+
+        Parameters
+        ----------
+        node_id : str or int
+            An id as an answer gives it.
+
+        Returns
+        -------
+        int or None
+            The node's index; ``None`` if no node has that id.
         """
         if not self._index:
             self._index.update(((type(v), v), i) for i, v in enumerate(self.ids))
@@ -87,7 +99,19 @@ class Marks:
 
 
 def fmt(x) -> str:
-    """A number as a label shows it: ``∞`` for none, integers in full, else 4 digits."""
+    """A number as a label shows it.
+
+    Parameters
+    ----------
+    x : number or None
+        ``None`` or an infinite value means no limit.
+
+    Returns
+    -------
+    str
+        ``∞`` for no limit; an integer in full (groups of three split by a space from
+        10 000 on); anything else to 4 significant digits.
+    """
     if x is None:
         return "∞"
     x = float(x)
@@ -111,23 +135,87 @@ class Drawer:
     shows_cost: bool = False
 
     def anchors(self, net: DrawnNetwork) -> tuple[list[int], list[int]]:
-        """Nodes of the left-most layer and nodes of a right-most layer of their own."""
+        """Where the layout starts and ends.
+
+        Parameters
+        ----------
+        net : DrawnNetwork
+
+        Returns
+        -------
+        (left, right) : list of int
+            Nodes of the left-most layer, and nodes of a right-most layer of their own.
+        """
         raise NotImplementedError
 
     def marks(self, net: DrawnNetwork, result: dict, flows: np.ndarray | None) -> Marks:
-        """The marked arcs (and cut sides) of ``result``."""
+        """What the answer marks on the picture.
+
+        Parameters
+        ----------
+        net : DrawnNetwork
+        result : dict
+            The answer as JSON values.
+        flows : ndarray of float, optional
+            The answer's flow per arc (``None`` when it has none).
+
+        Returns
+        -------
+        Marks
+            The marked arcs, the cut sides and the notes of ``result``.
+        """
         raise NotImplementedError
 
     def role(self, net: DrawnNetwork, v: int) -> tuple[str, str] | None:
-        """A terminal node's role caption and the side of its tab (``left``/``right``)."""
+        """What a terminal node is, as its tab says.
+
+        Parameters
+        ----------
+        net : DrawnNetwork
+        v : int
+            A node index.
+
+        Returns
+        -------
+        (caption, side) or None
+            The role caption and the side of its tab (``"left"``/``"right"``);
+            ``None`` for a node with no role (the default).
+        """
         return None
 
     def headline(self, result: dict, marks: Marks) -> tuple[str, str]:
-        """The title and the subtitle."""
+        """The diagram's title and subtitle.
+
+        Parameters
+        ----------
+        result : dict
+            The answer as JSON values.
+        marks : Marks
+            What :meth:`marks` found (the subtitle may count them).
+
+        Returns
+        -------
+        (title, subtitle) : str
+        """
         raise NotImplementedError
 
     def arc_label(self, net: DrawnNetwork, a: int, flow) -> str:
-        """``flow/capacity``, ``flow/lower..capacity`` with a lower bound, ``@cost`` if costed."""
+        """The label of one arc.
+
+        Parameters
+        ----------
+        net : DrawnNetwork
+        a : int
+            The arc's index.
+        flow : number or None
+            Its flow in the answer (``?`` when unknown).
+
+        Returns
+        -------
+        str
+            ``flow/capacity``, ``flow/lower..capacity`` with a lower bound, and
+            `` @cost`` after it when the kind shows costs and the arc has one.
+        """
         text = fmt(flow) if flow is not None else "?"
         if net.lower is not None and net.lower[a] > 0:
             text += f"/{fmt(net.lower[a])}..{fmt(net.capacity[a])}"
@@ -138,13 +226,37 @@ class Drawer:
         return text
 
     def legend_for_labels(self, net: DrawnNetwork) -> str:
-        """How to read an arc label, for the legend."""
+        """How to read an arc label, for the legend.
+
+        Parameters
+        ----------
+        net : DrawnNetwork
+
+        Returns
+        -------
+        str
+            The pattern of :meth:`arc_label` for this network (``flow/capacity``...).
+        """
         lower = net.lower is not None and bool((net.lower > 0).any())
         text = "flow/lower..capacity" if lower else "flow/capacity"
         return text + (" @cost" if self.shows_cost and net.cost is not None else "")
 
     def potentials(self, net: DrawnNetwork, result: dict) -> list | None:
-        """Per node, its potential in ``result`` (``None`` where not given)."""
+        """The node potentials of the answer, in the network's node order.
+
+        Parameters
+        ----------
+        net : DrawnNetwork
+        result : dict
+            The answer; its ``potentials`` follow its ``node_ids`` (or the network's
+            order when it has none).
+
+        Returns
+        -------
+        list or None
+            Per node, its potential (``None`` where not given); ``None`` when the
+            answer has no potentials.
+        """
         values = result.get("potentials")
         if not values:
             return None

@@ -17,6 +17,22 @@ class ExpansionDrawer(MaxFlowDrawer):
     mark_legend = ("widened", "widened lane (label: + capacity added)")
 
     def marks(self, net: DrawnNetwork, result: dict, flows: np.ndarray | None) -> Marks:
+        """The max-flow marks, then the widened lanes with the capacity added to each.
+
+        Parameters
+        ----------
+        net : DrawnNetwork
+        result : dict
+            The answer; its ``widened`` and ``additions`` are read.
+        flows : ndarray, optional
+            Unused.
+
+        Returns
+        -------
+        Marks
+            ``widened`` arcs (their note `` +added``) over the ``cut`` of an infeasible
+            target.
+        """
         marks = super().marks(net, result, flows)
         additions = result.get("additions")
         for a in result.get("widened") or []:
@@ -27,6 +43,19 @@ class ExpansionDrawer(MaxFlowDrawer):
         return marks
 
     def headline(self, result: dict, marks: Marks) -> tuple[str, str]:
+        """The plan's cost and how many lanes it widens, or why the target is out of reach.
+
+        Parameters
+        ----------
+        result : dict
+            The answer.
+        marks : Marks
+            Its ``widened`` arcs are counted.
+
+        Returns
+        -------
+        (title, subtitle) : str
+        """
         status = result.get("status", "")
         target = fmt(result.get("target"))
         if status == "infeasible":

@@ -40,12 +40,37 @@ class FlowOverTimeDrawer:
     kind = "flowovertime"
 
     def render(self, net: DrawnNetwork, result: dict) -> str:
+        """The whole document: lanes against periods, not a network picture.
+
+        Parameters
+        ----------
+        net : DrawnNetwork
+            With ``transit`` and ``period_capacity``.
+        result : dict
+            The answer as JSON values.
+
+        Returns
+        -------
+        str
+            A standalone SVG document.
+        """
         horizon = int(result.get("horizon") or (net.period_capacity.shape[1] if net.period_capacity is not None
                                                 else 1))
         chart = _Chart(net, result, horizon)
         return chart.document(*self.headline(result))
 
     def headline(self, result: dict) -> tuple[str, str]:
+        """The diagram's title (what was asked and found) and subtitle (the horizon).
+
+        Parameters
+        ----------
+        result : dict
+            The answer.
+
+        Returns
+        -------
+        (title, subtitle) : str
+        """
         status, objective = result.get("status", ""), result.get("objective", "")
         period = f" ({result['period']})" if result.get("period") else ""
         horizon = f"horizon {result.get('horizon')} periods{period}"
@@ -97,12 +122,44 @@ class _Chart:
         return f"{_short(name)} ({int(self.transit[a])})"  # the transit stays when a long name is cut
 
     def x(self, period: float) -> float:
+        """The x of the start of ``period`` (fractions for points within it).
+
+        Parameters
+        ----------
+        period : float
+
+        Returns
+        -------
+        float
+        """
         return self.x0 + period * self.period_w
 
     def row_y(self, row: int) -> float:
+        """The y of the top of a row (lanes first, then the nodes that hold over).
+
+        Parameters
+        ----------
+        row : int
+
+        Returns
+        -------
+        float
+        """
         return self.y0 + row * ROW_H
 
     def document(self, title: str, subtitle: str) -> str:
+        """The SVG document: periods, lanes, holdovers, arrivals and the legend.
+
+        Parameters
+        ----------
+        title, subtitle : str
+            From :meth:`FlowOverTimeDrawer.headline`.
+
+        Returns
+        -------
+        str
+            A standalone SVG document.
+        """
         rows = self.net.num_arcs + len(self.holds)
         chart_bottom = self.row_y(rows)
         body = [self._periods(), *self._lanes(), *self._holdover(), *self._arrivals(chart_bottom)]

@@ -23,19 +23,62 @@ class Box:
 
     @classmethod
     def around(cls, x: float, y: float, width: float, height: float) -> Box:
-        """The box of the given size centred on ``(x, y)``."""
+        """The box of the given size centred on ``(x, y)``.
+
+        Parameters
+        ----------
+        x, y : float
+            The centre.
+        width, height : float
+            The size (not negative).
+
+        Returns
+        -------
+        Box
+        """
         return cls(x - width / 2, y - height / 2, x + width / 2, y + height / 2)
 
     def grown(self, by: float) -> Box:
+        """The box with ``by`` added on every side.
+
+        Parameters
+        ----------
+        by : float
+            Margin (negative shrinks it).
+
+        Returns
+        -------
+        Box
+        """
         return Box(self.x0 - by, self.y0 - by, self.x1 + by, self.y1 + by)
 
     def shifted(self, dx: float, dy: float) -> Box:
+        """The box moved by ``(dx, dy)``.
+
+        Parameters
+        ----------
+        dx, dy : float
+
+        Returns
+        -------
+        Box
+        """
         return Box(self.x0 + dx, self.y0 + dy, self.x1 + dx, self.y1 + dy)
 
 
 
 def union(boxes) -> Box:
-    """The smallest box holding all of ``boxes`` (at least one)."""
+    """The smallest box holding all of ``boxes``.
+
+    Parameters
+    ----------
+    boxes : iterable of Box
+        At least one.
+
+    Returns
+    -------
+    Box
+    """
     boxes = list(boxes)
     return Box(min(b.x0 for b in boxes), min(b.y0 for b in boxes),
                max(b.x1 for b in boxes), max(b.y1 for b in boxes))
@@ -47,7 +90,21 @@ Segment = tuple[Point, ...]
 
 
 def sample(path: list[Segment], step: float = 2.0) -> np.ndarray:
-    """Points along ``path``, about ``step`` apart, ends included, as an ``(n, 2)`` array."""
+    """Points along a path, about ``step`` apart, ends included.
+
+    Parameters
+    ----------
+    path : list of Segment
+        Lines and cubic curves, in order.
+    step : float
+        The largest distance between two points, about (each segment is cut into
+        pieces by a bound on its length).
+
+    Returns
+    -------
+    ndarray of float, shape (n, 2)
+        Empty for an empty path.
+    """
     if not path:
         return np.zeros((0, 2))
     # Every segment as a cubic (a line is the cubic with its control points at thirds).
@@ -69,13 +126,34 @@ def _third(line: Segment, k: int) -> Point:
 
 
 def arc_lengths(points: np.ndarray) -> np.ndarray:
-    """Distance along a sampled path from its first point to each point."""
+    """Distance along a sampled path from its first point to each point.
+
+    Parameters
+    ----------
+    points : ndarray, shape (n, 2)
+        A path's points in order (:func:`sample`).
+
+    Returns
+    -------
+    ndarray of float, shape (n,)
+        0 at the first point, then the running sum of straight steps.
+    """
     if len(points) == 0:
         return np.zeros(0)
     return np.concatenate([[0.0], np.cumsum(np.hypot(*np.diff(points, axis=0).T))])
 
 
 def bounds(points: np.ndarray) -> Box:
-    """The box of an ``(n, 2)`` array of points (at least one)."""
+    """The box of a set of points.
+
+    Parameters
+    ----------
+    points : ndarray, shape (n, 2)
+        At least one point.
+
+    Returns
+    -------
+    Box
+    """
     return Box(float(points[:, 0].min()), float(points[:, 1].min()),
                float(points[:, 0].max()), float(points[:, 1].max()))

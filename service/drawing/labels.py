@@ -52,7 +52,12 @@ class Placer:
         return np.floor((points - self.origin) / CELL).astype(np.int64).reshape(-1, 2)
 
     def take(self, box: Box) -> None:
-        """Mark ``box`` as taken."""
+        """Mark a box as taken: no later label may meet it.
+
+        Parameters
+        ----------
+        box : Box
+        """
         self.boxes = np.vstack([self.boxes, (box.x0, box.y0, box.x1, box.y1)])
 
     def _meets(self, cand: np.ndarray) -> np.ndarray:
@@ -75,10 +80,26 @@ class Placer:
         return _window_sums(self.table, lo, hi) - _own_sums(self.cells[arc], lo, hi)
 
     def place(self, arc: int, width: float, height: float, points: np.ndarray, middle, clearance: float) -> Box | None:
-        """The best free spot along ``points`` for a ``width`` x ``height`` label, taken; or None.
+        """The best free spot along an arc for a label, taken.
 
-        ``middle`` is the preferred point; ``clearance`` the space between the arc's
-        centre line and a label beside it (half the stroke and a little more).
+        Parameters
+        ----------
+        arc : int
+            The arc labelled (its own strokes do not count against a spot).
+        width, height : float
+            The label's size.
+        points : ndarray, shape (n, 2)
+            Points along the arc (:func:`.geometry.sample`).
+        middle : point
+            The preferred point.
+        clearance : float
+            The space between the arc's centre line and a label beside it (half the
+            stroke and a little more).
+
+        Returns
+        -------
+        Box or None
+            The spot, now taken; ``None`` when no spot is free.
         """
         side, up = width / 2 + clearance, height / 2 + clearance
         # On the arc, above, below, right of and left of each point.
@@ -86,7 +107,21 @@ class Placer:
         return self._best(arc, width, height, points, middle, shifts, np.array([ON_ARC, 0.0, BELOW, BESIDE, BESIDE]))
 
     def place_mark(self, arc: int, width: float, height: float, points: np.ndarray, middle) -> Box | None:
-        """Like :meth:`place`, for a mark drawn across the arc (centred on it)."""
+        """Like :meth:`place`, for a mark drawn across the arc (centred on it).
+
+        Parameters
+        ----------
+        arc : int
+        width, height : float
+        points : ndarray, shape (n, 2)
+        middle : point
+            As for :meth:`place`.
+
+        Returns
+        -------
+        Box or None
+            The spot, now taken; ``None`` when no spot is free.
+        """
         return self._best(arc, width, height, points, middle, np.zeros((1, 2)), np.zeros(1))
 
     def _best(self, arc, width, height, points, middle, shifts: np.ndarray, extra: np.ndarray) -> Box | None:

@@ -2,7 +2,7 @@
 
 Layer 0 holds the anchors on the left (the source, or the supply nodes); every other
 node sits one layer right of its nearest predecessor by breadth-first search along
-the arcs; the right anchors (the sink, or the demand nodes) take a layer of their own
+the arcs (the solvers' :func:`~service.solvers.graph.bfs_depth`); the right anchors (the sink, or the demand nodes) take a layer of their own
 at the right edge; nodes the search does not reach go to a last column. Within a
 layer, nodes are ordered by the mean position of their neighbours in the layer before
 (two sweeps), which keeps most arcs from crossing.
@@ -18,24 +18,12 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from ..solvers.graph import bfs_depth
 from .geometry import Box, union
 
 COL_GAP, ROW_GAP = 230.0, 96.0
 #: The narrowest channel between two columns' footprints.
 MIN_CHANNEL = 110.0
-
-
-def bfs_layers(num_nodes: int, tail: np.ndarray, head: np.ndarray, starts) -> np.ndarray:
-    """Breadth-first distance (in arcs) from any of ``starts``; -1 where unreached."""
-    layer = np.full(num_nodes, -1, dtype=np.int64)
-    frontier = np.unique(np.asarray(list(starts), dtype=np.int64))
-    depth = 0
-    while frontier.size:
-        layer[frontier] = depth
-        nxt = head[np.isin(tail, frontier)]
-        frontier = np.unique(nxt[layer[nxt] < 0])
-        depth += 1
-    return layer
 
 
 def layered_layout(num_nodes: int, tail, head, sources, sinks) -> tuple[np.ndarray, np.ndarray]:
@@ -61,7 +49,7 @@ def layered_layout(num_nodes: int, tail, head, sources, sinks) -> tuple[np.ndarr
     """
     tail, head = np.asarray(tail, dtype=np.int64), np.asarray(head, dtype=np.int64)
     sinks = [s for s in sinks if s not in set(sources)]
-    layer = bfs_layers(num_nodes, tail, head, sources or ([0] if num_nodes else []))
+    layer = bfs_depth(num_nodes, tail, head, sources or ([0] if num_nodes else []))
     inner = np.ones(num_nodes, dtype=bool)
     inner[list(sinks)] = False
     reached = (layer >= 0) & inner
@@ -107,6 +95,7 @@ class Footprint:
 
     @property
     def extent(self) -> Box:
+        """The box holding all of the footprint's parts."""
         return union(self.parts)
 
 
@@ -127,10 +116,23 @@ class Placement:
 
 
 def place(layer: np.ndarray, rank: np.ndarray, shapes: list[Footprint], spread: float = 1.0) -> Placement:
-    """Centres for every node; ``spread`` > 1 widens channels and gaps (more room for labels).
+    """Centres for every node, column by column.
 
     Empty layers (a layer whose only nodes were moved to the right-most one) take no room:
     ``Placement.layer`` numbers the columns that hold nodes.
+
+    Parameters
+    ----------
+    layer, rank : ndarray of int
+        Per node, its column and its row in it (:func:`layered_layout`).
+    shapes : list of Footprint
+        Per node, what it covers.
+    spread : float
+        Above 1, channels and gaps are wider (more room for labels).
+
+    Returns
+    -------
+    Placement
     """
     used, layer = np.unique(layer, return_inverse=True)
     layer = layer.reshape(-1)

@@ -19,6 +19,21 @@ class ResilienceDrawer(MaxFlowDrawer):
     mark_legend = ("closure", f"worst closures (label: − loss), up to {MARKED}")
 
     def marks(self, net: DrawnNetwork, result: dict, flows: np.ndarray | None) -> Marks:
+        """The max-flow marks, then the worst closures (at most :data:`MARKED`).
+
+        Parameters
+        ----------
+        net : DrawnNetwork
+        result : dict
+            The answer; its ``failures`` (worst first) are read.
+        flows : ndarray, optional
+            Unused.
+
+        Returns
+        -------
+        Marks
+            ``closure`` arcs (their note `` −loss``) over the minimum cut's arcs.
+        """
         marks = super().marks(net, result, flows)
         for failure in (result.get("failures") or [])[:MARKED]:
             a = int(failure["arc"])
@@ -27,6 +42,19 @@ class ResilienceDrawer(MaxFlowDrawer):
         return marks
 
     def headline(self, result: dict, marks: Marks) -> tuple[str, str]:
+        """The value and what the worst closure leaves, and how many closures lower it.
+
+        Parameters
+        ----------
+        result : dict
+            The answer.
+        marks : Marks
+            Unused.
+
+        Returns
+        -------
+        (title, subtitle) : str
+        """
         status = result.get("status", "")
         if status != "optimal":
             return super().headline(result, marks)

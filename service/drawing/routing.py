@@ -49,7 +49,24 @@ class Route:
 
 def route_all(tail: np.ndarray, head: np.ndarray, placed: Placement, shapes: list[Footprint],
               spread: float = 1.0) -> list[Route]:
-    """A :class:`Route` for every arc; ``spread`` > 1 makes loops and brackets larger."""
+    """How every arc runs between the placed nodes.
+
+    Parameters
+    ----------
+    tail, head : ndarray of int
+        Arc ends.
+    placed : Placement
+        Node centres and columns (:func:`.layout.place`).
+    shapes : list of Footprint
+        Per node, what it covers.
+    spread : float
+        Above 1, loops and brackets are larger (more room for labels).
+
+    Returns
+    -------
+    list of Route
+        One per arc, in arc order.
+    """
     tail, head = tail.tolist(), head.tolist()
     layer = placed.layer
     sides = [_sides(int(layer[u]), int(layer[v])) for u, v in zip(tail, head)]

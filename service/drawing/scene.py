@@ -59,7 +59,21 @@ class NodeShape:
 
 
 def draw(drawer: Drawer, net: DrawnNetwork, result: dict) -> str:
-    """The SVG document of ``result`` (a JSON answer) on ``net``, as ``drawer`` sees it."""
+    """The SVG document of an answer drawn on its network.
+
+    Parameters
+    ----------
+    drawer : Drawer
+        What the kind shows (anchors, marks, labels, title).
+    net : DrawnNetwork
+    result : dict
+        The answer as JSON values.
+
+    Returns
+    -------
+    str
+        A standalone SVG document.
+    """
     flows = result.get("flows")
     flows = None if flows is None else np.asarray(flows, dtype=np.float64)
     marks = drawer.marks(net, result, flows)

@@ -81,13 +81,39 @@ def _em(ch: str, bold: bool) -> float:
 
 
 def text_width(text: str, font: Font) -> float:
-    """Estimated rendered width of ``text`` in px (at least the real width, in practice)."""
+    """Estimated rendered width of a text.
+
+    Parameters
+    ----------
+    text : str
+    font : Font
+
+    Returns
+    -------
+    float
+        Width in px: at least the real width, in practice (a margin of ``SLACK``).
+    """
     bold = font.weight >= 600
     return (sum(_em(ch, bold) for ch in text) * font.size + font.spacing * len(text)) * SLACK
 
 
 def text_box(text: str, font: Font, x: float, baseline: float, anchor: str = "middle") -> Box:
-    """The box a text drawn at ``(x, baseline)`` with ``text-anchor`` ``anchor`` covers."""
+    """The box a text covers once drawn.
+
+    Parameters
+    ----------
+    text : str
+    font : Font
+    x, baseline : float
+        Where it is drawn.
+    anchor : {"start", "middle", "end"}
+        Its ``text-anchor``.
+
+    Returns
+    -------
+    Box
+        From the font's ascent above the baseline to its descent below.
+    """
     width = text_width(text, font)
     left = {"start": x, "middle": x - width / 2, "end": x - width}[anchor]
     return Box(left, baseline - ASCENT * font.size, left + width, baseline + DESCENT * font.size)

@@ -152,6 +152,18 @@ def _grid(k: int, t: int):
 def parse(body, limits: Limits) -> AssignmentProblem:
     """Validate and normalise an assignment request.
 
+    Parameters
+    ----------
+    body : dict
+        The decoded ``POST /v1/assignment`` body.
+    limits : Limits
+        Size limits (a larger problem is a 413 naming the field).
+
+    Returns
+    -------
+    AssignmentProblem
+        With its ``digest`` and ``options``.
+
     Raises
     ------
     InputError
@@ -272,6 +284,21 @@ def _lookup(values: list, ids: list, name: str) -> np.ndarray:
 
 
 def solve(problem: AssignmentProblem, deadline: Deadline) -> dict:
+    """Solve a parsed problem and build its response document.
+
+    Parameters
+    ----------
+    problem : AssignmentProblem
+        From :func:`parse` or :func:`from_network`.
+    deadline : Deadline
+        When the solve must stop: made once per request or job.
+
+    Returns
+    -------
+    dict
+        ``status``, ``total_cost``, the assignments and duals (or a Hall set proving
+        that none exists), ``certificate``, ``digest`` and ``engine``.
+    """
     options = problem.options
     k, t = len(problem.agents), len(problem.tasks)
     solution, certificate = solve_assignment(

@@ -9,7 +9,7 @@ go through this interface, so a new problem kind is one module here plus its ent
 from __future__ import annotations
 
 from dataclasses import dataclass, replace
-from typing import Any, Callable, Protocol
+from typing import TYPE_CHECKING, Any, Callable, Protocol
 
 from ..config import Settings
 from ..deadline import Deadline
@@ -17,6 +17,9 @@ from ..errors import InputError
 from ..model.ids import NodeIndex, ids_of, lookalike, shown_id  # noqa: F401 - ids_of: the kinds take it from here
 from ..model.schemas import load_envelope
 from ..model.stored import body_of
+
+if TYPE_CHECKING:
+    from ..drawing import Drawer
 
 
 @dataclass(frozen=True)
@@ -50,6 +53,25 @@ class Problem(Protocol):
 
 
 @dataclass(frozen=True)
+class PlanVerifier:
+    """How a kind checks a client's own plan (``POST /v1/verify/{kind}``).
+
+    Attributes
+    ----------
+    parse : callable
+        ``parse(body, limits) -> plan``: the verify request (``{"problem", "flows"}``)
+        read and validated; raises :class:`~service.errors.InputError` with pointers
+        under ``/problem`` or ``/flows``.
+    check : callable
+        ``check(plan, deadline) -> dict``: the verdict as the response document
+        (without ``timing_ms``, which the route adds).
+    """
+
+    parse: Callable[[Any, Limits], Any]
+    check: Callable[[Any, Deadline], dict]
+
+
+@dataclass(frozen=True)
 class Kind:
     """Everything the service knows about one problem kind, declared in one place.
 
@@ -80,10 +102,12 @@ class Kind:
         ``from_network(network, query, limits) -> Problem`` for a stored network.
     dimacs : {"max", "min"}, optional
         The DIMACS ``p`` format the solve endpoint also takes as ``text/x-dimacs``.
-    drawable : bool
-        ``service.drawing`` has a drawer for the kind (``POST /v1/diagram.svg``).
-    verifiable : bool
-        Clients' plans can be checked (``POST /v1/verify/{name}``, :mod:`.verify`).
+    drawer : Drawer, optional
+        How the kind's answers are drawn (``POST /v1/diagram.svg``): one of the drawers
+        of :mod:`service.drawing`, whose ``kind`` is this kind's ``name``.
+    verify : PlanVerifier, optional
+        How clients' plans are checked (``POST /v1/verify/{name}``, built with
+        :mod:`.verify`); ``None``: plans of the kind are not checked.
     size : callable, optional
         ``size(problem) -> int``, the work a problem holds; at most
         ``SLUICE_INLINE_MAX_ARCS`` it is solved on the request thread. ``None``: always
@@ -110,8 +134,8 @@ class Kind:
     query_schema: type | None = None
     from_network: Callable[[Any, Any, Limits], Problem] | None = None
     dimacs: str | None = None
-    drawable: bool = False
-    verifiable: bool = False
+    drawer: Drawer | None = None
+    verify: PlanVerifier | None = None
     size: Callable[[Problem], int] | None = None
     honours_time_limit: bool = False
     per_period_capacity: bool = False
@@ -122,11 +146,13 @@ class Kind:
             raise TypeError(f"kind {self.name!r}: query_schema and from_network go together")
         if self.dimacs not in (None, "max", "min"):
             raise TypeError(f"kind {self.name!r}: dimacs must be 'max', 'min' or None")
+        if self.drawer is not None and self.drawer.kind != self.name:
+            raise TypeError(f"kind {self.name!r}: its drawer draws {self.drawer.kind!r}")
 
     def capabilities(self) -> dict:
         """What the kind can do beyond ``POST /v1/{name}``, as ``GET /v1/kinds`` lists it."""
-        return {"what_if": self.from_network is not None, "dimacs": self.dimacs, "diagram": self.drawable,
-                "verify": self.verifiable, "jobs": True, "batch": True}
+        return {"what_if": self.from_network is not None, "dimacs": self.dimacs, "diagram": self.drawer is not None,
+                "verify": self.verify is not None, "jobs": True, "batch": True}
 
 
 def without_arc_keys(problem):
@@ -135,6 +161,16 @@ def without_arc_keys(problem):
     A list of labels pickles one string at a time: at 1M labelled arcs that took about
     430 ms both ways, more than the solve (measured in-process; the arrays themselves
     cross in about 40 ms).
+
+    Parameters
+    ----------
+    problem : dataclass
+        A problem with a ``network`` (a :class:`~service.model.arcs.Network`).
+
+    Returns
+    -------
+    dataclass
+        ``problem`` itself when it has no keys, else a copy without them.
     """
     if problem.network.keys is None:
         return problem
@@ -142,11 +178,39 @@ def without_arc_keys(problem):
 
 
 def problem_size(problem) -> int:
-    """The ``size`` a problem carries (a field or property): for :attr:`Kind.size`."""
+    """The ``size`` a problem carries (a field or property): for :attr:`Kind.size`.
+
+    Parameters
+    ----------
+    problem : Problem
+
+    Returns
+    -------
+    int
+    """
     return problem.size
 
 
 def node_position(nodes: NodeIndex, node_id, ptr: str) -> int:
+    """The position of a node the request names.
+
+    Parameters
+    ----------
+    nodes : NodeIndex
+    node_id : str or int
+        As the client sent it.
+    ptr : str
+        The JSON Pointer of the field that names it (``/source``).
+
+    Returns
+    -------
+    int
+
+    Raises
+    ------
+    InputError
+        At ``ptr`` for an unknown node (with a lookalike id when there is one).
+    """
     index = nodes.index_of(node_id)
     if index is None:
         raise InputError.at(ptr, f"unknown node {shown_id(node_id)}: it is neither in nodes nor on any arc"
@@ -163,8 +227,21 @@ def budget_seconds(options: dict, cap: float) -> float:
 
 
 def digest_detail(options: dict, default) -> list | None:
-    """``options.detail`` as the digest sees it: ``None`` when it names the default
-    parts (in any order), so asking for the default equals leaving it out."""
+    """``options.detail`` as the digest sees it.
+
+    Parameters
+    ----------
+    options : dict
+        The request's options.
+    default : collection of str
+        The parts answered when ``detail`` is left out.
+
+    Returns
+    -------
+    list or None
+        ``None`` when ``detail`` is left out or names the default parts (in any
+        order), so asking for the default equals leaving it out; else ``detail``.
+    """
     detail = options.get("detail")
     return None if detail is None or set(detail) == set(default) else detail
 
@@ -177,6 +254,20 @@ def stop_grace(kind: Kind | None, seconds: float) -> float:
 
 
 def wants(options: dict, part: str) -> bool:
+    """Whether the answer includes a part.
+
+    Parameters
+    ----------
+    options : dict
+        The request's options.
+    part : str
+        A part of the answer (``"flows"``, ``"cut"``...).
+
+    Returns
+    -------
+    bool
+        True when ``options.detail`` is left out or names ``part``.
+    """
     detail = options.get("detail")
     return detail is None or part in detail
 
@@ -189,6 +280,27 @@ def posted_whole(network, query, query_schema, *, arc_fields: tuple = (), node_f
     is checked first by ``query_schema`` (pointers relative to the query: ``/top``),
     then joined with the network's ``nodes`` and ``arcs`` and the optional columns
     ``arc_fields``/``node_fields`` it carries (:func:`service.model.stored.body_of`).
+
+    Parameters
+    ----------
+    network : Network
+        The stored network, what-if changes applied.
+    query : dict
+        The question (without ``changes``).
+    query_schema : Schema
+        The kind's schema of the question.
+    arc_fields, node_fields : tuple of str
+        Optional columns of the stored network the kind reads.
+
+    Returns
+    -------
+    dict
+        The query joined with ``nodes`` and ``arcs``.
+
+    Raises
+    ------
+    InputError
+        The query does not pass ``query_schema``.
     """
     load_envelope(query_schema, query)
     return {**query, **body_of(network, arc_fields, node_fields)}

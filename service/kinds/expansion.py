@@ -8,6 +8,7 @@ import numpy as np
 from marshmallow import RAISE, Schema, fields, validate
 
 from ..deadline import Deadline
+from ..drawing.expansion import DRAWER
 from ..errors import FieldError, InputError
 from ..model.arccolumns import EXPANSION_FIELDS
 from ..model.arcs import Network, read_network_with
@@ -155,6 +156,18 @@ class ExpansionProblem:
 def parse(body, limits: Limits) -> ExpansionProblem:
     """Validate and normalise an expansion request.
 
+    Parameters
+    ----------
+    body : dict
+        The decoded ``POST /v1/expansion`` body.
+    limits : Limits
+        Size limits (a larger problem is a 413 naming the field).
+
+    Returns
+    -------
+    ExpansionProblem
+        With its ``digest`` and ``options``.
+
     Raises
     ------
     InputError
@@ -180,7 +193,21 @@ def parse(body, limits: Limits) -> ExpansionProblem:
 
 
 def from_network(network: Network, query, limits: Limits) -> ExpansionProblem:
-    """An expansion question about a stored network, read as the same request posted whole."""
+    """An expansion question about a stored network, read as the same request posted whole.
+
+    Parameters
+    ----------
+    network : Network
+        The stored network (with its ``expand_*`` arc columns), what-if changes applied.
+    query : dict
+        ``source``, ``sink``, ``target`` and ``options``, as in a ``POST /v1/expansion``
+        body; pointers in errors are relative to it.
+    limits : Limits
+
+    Returns
+    -------
+    ExpansionProblem
+    """
     return parse(posted_whole(network, query, _QUERY, arc_fields=EXPANSION_FIELDS), limits)
 
 
@@ -219,6 +246,19 @@ def _only_where_widenable(bad: np.ndarray, col, name: str) -> None:
 
 
 def digest_of(network: Network, lanes: Lanes, options: dict) -> str:
+    """The problem's digest: the result cache's key and the ``digest`` of the answer.
+
+    Parameters
+    ----------
+    network : Network
+    lanes : Lanes
+        The lanes with their widening terms, source, sink and target.
+    options : dict
+
+    Returns
+    -------
+    str
+    """
     return problem_digest(
         "expansion", ORTOOLS_VERSION, network.nodes.ids, lanes.tail, lanes.head, lanes.capacity, lanes.unlimited,
         lanes.widenable, lanes.expand_cost, lanes.expand_max, lanes.expand_unlimited, lanes.expand_fixed,
@@ -227,6 +267,21 @@ def digest_of(network: Network, lanes: Lanes, options: dict) -> str:
 
 
 def solve(problem: ExpansionProblem, deadline: Deadline) -> dict:
+    """Solve a parsed problem and build its response document.
+
+    Parameters
+    ----------
+    problem : ExpansionProblem
+        From :func:`parse` or :func:`from_network`.
+    deadline : Deadline
+        When the solve must stop: made once per request or job.
+
+    Returns
+    -------
+    dict
+        ``status``, ``cost``, ``value``, ``target``; the widened lanes and their
+        additions (or the cut a full widening cannot pass), ``certificate``, ``digest``.
+    """
     options = problem.options
     solution, certificate = cheapest_expansion(problem.lanes, deadline=deadline,
                                                gap=float(options["gap"]))
@@ -264,6 +319,6 @@ KIND = Kind(
     solve=solve,
     query_schema=ExpansionQuery,
     from_network=from_network,
-    drawable=True,
+    drawer=DRAWER,
     for_solver_process=without_arc_keys,
 )

@@ -14,6 +14,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..deadline import Deadline
+from ..drawing.flowovertime import DRAWER
 from ..errors import FieldError, InputError, ProblemTooLarge
 from ..model.arccolumns import read_arcs
 from ..model.arcs import read_keys
@@ -264,7 +265,7 @@ KIND = Kind(
     solve=solve,
     query_schema=FlowOverTimeQuery,
     from_network=from_network,
-    drawable=True,
+    drawer=DRAWER,
     per_period_capacity=True,
     size=problem_size,
 )

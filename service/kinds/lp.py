@@ -198,6 +198,18 @@ class LPProblem:
 def parse(body, limits: Limits) -> LPProblem:
     """Validate and normalise an LP request.
 
+    Parameters
+    ----------
+    body : dict
+        The decoded ``POST /v1/lp`` body.
+    limits : Limits
+        Size limits (a larger problem is a 413 naming the field).
+
+    Returns
+    -------
+    LPProblem
+        With its ``digest`` and ``options``.
+
     Raises
     ------
     InputError
@@ -214,6 +226,17 @@ def parse(body, limits: Limits) -> LPProblem:
 
 
 def digest_of(model: LinearModel, options: dict) -> str:
+    """The problem's digest: the result cache's key and the ``digest`` of the answer.
+
+    Parameters
+    ----------
+    model : LinearModel
+    options : dict
+
+    Returns
+    -------
+    str
+    """
     a = model.matrix
     return problem_digest(
         "lp", ORTOOLS_VERSION, model.c, a.indptr, a.indices, a.data, model.row_lower, model.row_upper,
@@ -228,6 +251,21 @@ def _named(names: list, values: np.ndarray) -> dict:
 
 
 def solve(problem: LPProblem, deadline: Deadline) -> dict:
+    """Solve a parsed problem and build its response document.
+
+    Parameters
+    ----------
+    problem : LPProblem
+        From :func:`parse` or :func:`from_network`.
+    deadline : Deadline
+        When the solve must stop: made once per request or job.
+
+    Returns
+    -------
+    dict
+        ``status``, ``objective``; values, duals and reduced costs by name (optimal)
+        or the conflicting constraints (infeasible), ``certificate``, ``digest``.
+    """
     m = problem.model
     model = LPModel(m.c, m.matrix, m.row_lower, m.row_upper, m.col_lower, m.col_upper, m.maximize, m.constant)
     try:

@@ -8,6 +8,7 @@ import numpy as np
 from marshmallow import RAISE, Schema, fields, validate
 
 from ..deadline import Deadline
+from ..drawing.maxflow import DRAWER
 from ..model.arcs import Network, read_network
 from ..model.digest import problem_digest
 from ..model.schemas import (
@@ -22,6 +23,7 @@ from ..solvers import maximum_flow
 from ..solvers.versions import ORTOOLS_VERSION
 from ..errors import InputError, ProblemTooLarge, FieldError
 from .base import Kind, Limits, digest_detail, ids_of, node_position, problem_size, wants, without_arc_keys
+from .verify import max_flow_plans
 
 DETAIL = ["flows", "cut"]
 
@@ -129,6 +131,18 @@ class MaxFlowProblem:
 def parse(body, limits: Limits) -> MaxFlowProblem:
     """Validate and normalise a max-flow request.
 
+    Parameters
+    ----------
+    body : dict
+        The decoded ``POST /v1/maxflow`` body.
+    limits : Limits
+        Size limits (a larger problem is a 413 naming the field).
+
+    Returns
+    -------
+    MaxFlowProblem
+        With its ``digest`` and ``options``.
+
     Raises
     ------
     InputError
@@ -149,6 +163,11 @@ def from_network(network: Network, query, limits: Limits) -> MaxFlowProblem:
         A stored network, with any what-if changes already applied.
     query : dict
         ``source``, ``sink`` and optional ``options`` (as in a ``POST /v1/maxflow`` body).
+    limits : Limits
+
+    Returns
+    -------
+    MaxFlowProblem
 
     Raises
     ------
@@ -173,6 +192,19 @@ def _problem(network: Network, envelope: dict) -> MaxFlowProblem:
 
 
 def digest_of(network: Network, source: int, sink: int, options: dict) -> str:
+    """The problem's digest: the result cache's key and the ``digest`` of the answer.
+
+    Parameters
+    ----------
+    network : Network
+    source, sink : int
+        Node positions.
+    options : dict
+
+    Returns
+    -------
+    str
+    """
     return problem_digest(
         "maxflow", ORTOOLS_VERSION, network.nodes.ids, network.tail, network.head, network.capacity,
         network.unlimited, [source, sink], {"engine": options["engine"], "detail": digest_detail(options, DETAIL)},
@@ -180,6 +212,21 @@ def digest_of(network: Network, source: int, sink: int, options: dict) -> str:
 
 
 def solve(problem: MaxFlowProblem, deadline: Deadline) -> dict:
+    """Solve a parsed problem and build its response document.
+
+    Parameters
+    ----------
+    problem : MaxFlowProblem
+        From :func:`parse` or :func:`from_network`.
+    deadline : Deadline
+        When the solve must stop: made once per request or job.
+
+    Returns
+    -------
+    dict
+        ``status``, ``value``; flows and a minimum cut (or a path of unlimited arcs
+        when unbounded), ``certificate``, ``digest`` and ``engine``.
+    """
     net = problem.network
     solution, certificate = maximum_flow(
         net.num_nodes, net.tail, net.head, net.capacity, net.unlimited, problem.source, problem.sink,
@@ -220,8 +267,8 @@ KIND = Kind(
     query_schema=MaxFlowQuery,
     from_network=from_network,
     dimacs="max",
-    drawable=True,
-    verifiable=True,
+    drawer=DRAWER,
+    verify=max_flow_plans(parse),
     size=problem_size,
     for_solver_process=without_arc_keys,
 )

@@ -8,6 +8,7 @@ import numpy as np
 from marshmallow import RAISE, Schema, fields, validate
 
 from ..deadline import Deadline
+from ..drawing.mincostflow import DRAWER
 from ..errors import FieldError, InputError, ProblemTooLarge
 from ..model.arcs import Network, read_network
 from ..model.columns import number_column
@@ -19,6 +20,7 @@ from ..solvers.mincost import imbalance, min_cost_flow
 from ..solvers.versions import ORTOOLS_VERSION
 from .base import Kind, Limits, digest_detail, ids_of, problem_size, wants, without_arc_keys
 from .maxflow import EngineSchema, TimingSchema
+from .verify import min_cost_plans
 
 DETAIL = ["flows", "potentials", "reduced_costs"]
 DEFAULT_DETAIL = ("flows", "potentials")
@@ -171,6 +173,18 @@ class MinCostFlowProblem:
 def parse(body, limits: Limits) -> MinCostFlowProblem:
     """Validate and normalise a min-cost flow request.
 
+    Parameters
+    ----------
+    body : dict
+        The decoded ``POST /v1/mincostflow`` body.
+    limits : Limits
+        Size limits (a larger problem is a 413 naming the field).
+
+    Returns
+    -------
+    MinCostFlowProblem
+        With its ``digest`` and ``options``.
+
     Raises
     ------
     InputError
@@ -199,6 +213,10 @@ def from_network(network: Network, query, limits: Limits) -> MinCostFlowProblem:
         supplies may also be columns ``{"id": [...], "supply": [...]}``. Pointers in
         errors are relative to the query body (``/supplies/3/id``).
     limits : Limits
+
+    Returns
+    -------
+    MinCostFlowProblem
     """
     envelope = load_envelope(_QUERY, query)
     _check_size(network, limits)
@@ -255,6 +273,19 @@ def _problem(network: Network, supply: np.ndarray, options: dict) -> MinCostFlow
 
 
 def digest_of(network: Network, supply: np.ndarray, options: dict) -> str:
+    """The problem's digest: the result cache's key and the ``digest`` of the answer.
+
+    Parameters
+    ----------
+    network : Network
+    supply : ndarray
+        Per node (demand negative).
+    options : dict
+
+    Returns
+    -------
+    str
+    """
     return problem_digest(
         "mincostflow", ORTOOLS_VERSION, network.nodes.ids, network.tail, network.head, network.capacity,
         network.unlimited, network.cost, network.lower, supply,
@@ -270,6 +301,22 @@ def _wants(options: dict, part: str) -> bool:
 
 
 def solve(problem: MinCostFlowProblem, deadline: Deadline) -> dict:
+    """Solve a parsed problem and build its response document.
+
+    Parameters
+    ----------
+    problem : MinCostFlowProblem
+        From :func:`parse` or :func:`from_network`.
+    deadline : Deadline
+        When the solve must stop: made once per request or job.
+
+    Returns
+    -------
+    dict
+        ``status``, ``cost``, ``shipped``; flows, potentials and reduced costs
+        (optimal), or a proof set (infeasible) or a negative cycle (unbounded);
+        ``certificate``, ``digest`` and ``engine``.
+    """
     net = problem.network
     options = problem.options
     solution, certificate = min_cost_flow(
@@ -317,8 +364,8 @@ KIND = Kind(
     query_schema=MinCostFlowQuery,
     from_network=from_network,
     dimacs="min",
-    drawable=True,
-    verifiable=True,
+    drawer=DRAWER,
+    verify=min_cost_plans(parse),
     size=problem_size,
     for_solver_process=without_arc_keys,
 )

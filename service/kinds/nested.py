@@ -13,7 +13,19 @@ from ..errors import FieldError, InputError
 
 
 def prefixed(exc: InputError, prefix: str) -> InputError:
-    """A copy of ``exc`` (same class, so same status) with every pointer under ``prefix``."""
+    """An error of a nested document as an error of the enclosing request.
+
+    Parameters
+    ----------
+    exc : InputError
+    prefix : str
+        The JSON Pointer of the nested document (``/problem``, ``/items/3/problem``).
+
+    Returns
+    -------
+    InputError
+        A copy of ``exc`` (same class, so same status) with every pointer under ``prefix``.
+    """
     errors = [FieldError(prefix + e.pointer, e.detail) for e in exc.errors]
     first = errors[0] if errors else None
     detail = f"{first.pointer}: {first.detail}" if first else exc.detail
@@ -24,7 +36,18 @@ def prefixed(exc: InputError, prefix: str) -> InputError:
 
 @contextmanager
 def under(prefix: str):
-    """Re-raise any :class:`InputError` from the block with pointers under ``prefix``."""
+    """Re-raise any :class:`InputError` from the block with pointers under ``prefix``.
+
+    Parameters
+    ----------
+    prefix : str
+        The JSON Pointer of the nested document.
+
+    Raises
+    ------
+    InputError
+        :func:`prefixed` of the block's error.
+    """
     try:
         yield
     except InputError as exc:

@@ -19,7 +19,17 @@ _current: ContextVar[Reporter | None] = ContextVar("sluice_progress", default=No
 
 @contextmanager
 def reporting(report: Reporter | None):
-    """Make ``report`` the reporter of solves run inside the block."""
+    """Make ``report`` the reporter of solves run inside the block.
+
+    Parameters
+    ----------
+    report : callable or None
+        Called with each progress report (a JSON-ready dict); ``None``: nobody listens.
+
+    Yields
+    ------
+    None
+    """
     token = _current.set(report)
     try:
         yield

@@ -8,6 +8,7 @@ import numpy as np
 from marshmallow import RAISE, Schema, fields, validate
 
 from ..deadline import Deadline
+from ..drawing.resilience import DRAWER
 from ..errors import InputError
 from ..model.arcs import Network, read_network
 from ..model.digest import problem_digest
@@ -114,6 +115,18 @@ class ResilienceProblem:
 def parse(body, limits: Limits) -> ResilienceProblem:
     """Validate and normalise a resilience request.
 
+    Parameters
+    ----------
+    body : dict
+        The decoded ``POST /v1/resilience`` body.
+    limits : Limits
+        Size limits (a larger problem is a 413 naming the field).
+
+    Returns
+    -------
+    ResilienceProblem
+        With its ``digest`` and ``options``.
+
     Raises
     ------
     InputError
@@ -134,12 +147,41 @@ def parse(body, limits: Limits) -> ResilienceProblem:
 
 
 def from_network(network: Network, query, limits: Limits) -> ResilienceProblem:
-    """A resilience question about a stored network (``source``, ``sink``, ``top``, ``options``),
-    read as the same request posted whole."""
+    """A resilience question about a stored network, read as the same request posted whole.
+
+    Parameters
+    ----------
+    network : Network
+        The stored network, what-if changes applied.
+    query : dict
+        ``source``, ``sink``, ``top`` and ``options``, as in a ``POST /v1/resilience``
+        body; pointers in errors are relative to it.
+    limits : Limits
+
+    Returns
+    -------
+    ResilienceProblem
+    """
     return parse(posted_whole(network, query, _QUERY), limits)
 
 
 def digest_of(network: Network, source: int, sink: int, top, options: dict) -> str:
+    """The problem's digest: the result cache's key and the ``digest`` of the answer.
+
+    Parameters
+    ----------
+    network : Network
+        With its arc keys (the answer names closed arcs by them).
+    source, sink : int
+        Node positions.
+    top : int or None
+        How many closures are listed.
+    options : dict
+
+    Returns
+    -------
+    str
+    """
     return problem_digest(
         "resilience", ORTOOLS_VERSION, network.nodes.ids, network.tail, network.head, network.capacity,
         network.unlimited, network.keys, [source, sink, top], {"detail": options.get("detail")},
@@ -147,6 +189,21 @@ def digest_of(network: Network, source: int, sink: int, top, options: dict) -> s
 
 
 def solve(problem: ResilienceProblem, deadline: Deadline) -> dict:
+    """Solve a parsed problem and build its response document.
+
+    Parameters
+    ----------
+    problem : ResilienceProblem
+        From :func:`parse` or :func:`from_network`.
+    deadline : Deadline
+        When the solve must stop: made once per request or job.
+
+    Returns
+    -------
+    dict
+        ``status``, ``value``; the closures that lower the value, worst first (or a
+        path of unlimited arcs when unbounded), ``certificate``, ``digest``.
+    """
     net, options = problem.network, problem.options
     solution, certificate = arc_closures(net.num_nodes, net.tail, net.head, net.capacity, net.unlimited,
                                          problem.source, problem.sink, deadline=deadline)
@@ -188,6 +245,6 @@ KIND = Kind(
     solve=solve,
     query_schema=ResilienceQuery,
     from_network=from_network,
-    drawable=True,
+    drawer=DRAWER,
     for_solver_process=without_arc_keys,
 )

@@ -1,4 +1,8 @@
-"""Checking a client's own plan: ``POST /v1/verify/{kind}`` for maxflow and mincostflow.
+"""Checking a client's own plan: ``POST /v1/verify/{kind}``.
+
+A kind whose plans can be checked declares it in its :class:`~service.kinds.base.Kind`
+with ``verify=max_flow_plans(parse)`` or ``verify=min_cost_plans(parse)``, handing over
+its own ``parse``; the route and ``GET /v1/kinds`` follow from that field.
 
 The request is ``{"problem": <a solve request body>, "flows": [...]}``. The problem is
 read exactly as the solve endpoint reads it (errors point under ``/problem``); the
@@ -7,13 +11,16 @@ themselves are :mod:`service.solvers.verify`.
 
 The min-cost flow problem is read here from the model's arrays (``nodes`` with
 ``supply``, ``arcs`` with ``capacity``, ``cost`` and ``lower``) so that the check does
-not depend on the min-cost solver; when the ``mincostflow`` kind is registered its own
-``parse`` runs first, so verify accepts exactly what ``POST /v1/mincostflow`` accepts.
+not depend on the min-cost solver; the kind's own ``parse`` runs first, so verify
+accepts exactly what ``POST /v1/mincostflow`` accepts.
 """
 
 from __future__ import annotations
 
 from dataclasses import dataclass
+from functools import partial
+from collections.abc import Callable
+from typing import Any
 
 import numpy as np
 from marshmallow import EXCLUDE, RAISE, Schema, fields, validate
@@ -24,7 +31,7 @@ from ..model.arcs import Network, read_network
 from ..model.columns import number_column
 from ..model.schemas import ArcsField, NodesField, load_envelope
 from ..solvers.verify import FORWARD, Verdict, verify_max_flow, verify_min_cost_flow
-from .base import Limits, ids_of
+from .base import Limits, PlanVerifier, ids_of
 from .nested import under
 
 class VerifyRequest(Schema):
@@ -110,36 +117,79 @@ class VerifyResponse(Schema):
 
 @dataclass
 class VerifyProblem:
-    kind: str
+    """A client's plan with the problem it is for, as the checks read them.
+
+    Attributes
+    ----------
+    network : Network
+        The problem's network.
+    flows : ndarray
+        The client's flow on every arc.
+    source, sink : int, optional
+        Max-flow: the ends, as node positions.
+    supply : ndarray, optional
+        Min-cost flow: supply per node (demand negative).
+    """
+
     network: Network
-    flows: np.ndarray
+    flows: np.ndarray | None = None
     source: int | None = None
     sink: int | None = None
     supply: np.ndarray | None = None
 
 
-def parse(kind: str, body, limits: Limits, kinds: dict) -> VerifyProblem:
-    """Validate a verify request for ``kind``.
+def max_flow_plans(parse_problem: Callable[[Any, Limits], Any]) -> PlanVerifier:
+    """The plan checks of max-flow, for :attr:`Kind.verify <service.kinds.base.Kind.verify>`.
 
-    Raises
-    ------
-    InputError
-        Pointers under ``/problem`` or ``/flows``; flows not aligned with the arcs are
-        a 422 at ``/flows``.
+    Parameters
+    ----------
+    parse_problem : callable
+        The kind's own ``parse(body, limits)``: the problem is read exactly as the solve
+        endpoint reads it, and its ``network``, ``source`` and ``sink`` are checked.
+
+    Returns
+    -------
+    PlanVerifier
     """
+    return PlanVerifier(partial(_parse_max_flow, parse_problem), check_max_flow)
+
+
+def min_cost_plans(parse_problem: Callable[[Any, Limits], Any]) -> PlanVerifier:
+    """The plan checks of min-cost flow, for :attr:`Kind.verify <service.kinds.base.Kind.verify>`.
+
+    Parameters
+    ----------
+    parse_problem : callable
+        The kind's own ``parse(body, limits)``, run first so that verify accepts exactly
+        what the solve endpoint accepts; the network and supplies are then read from
+        the model's arrays (:func:`read_min_cost`), not from the solver's problem.
+
+    Returns
+    -------
+    PlanVerifier
+    """
+    return PlanVerifier(partial(_parse_min_cost, parse_problem), check_min_cost)
+
+
+def _parse_max_flow(parse_problem, body, limits: Limits) -> VerifyProblem:
     envelope = load_envelope(_ENVELOPE, body)
-    problem = envelope["problem"]
     with under("/problem"):
-        if kind == "maxflow":
-            parsed = kinds["maxflow"].parse(problem, limits)
-            out = VerifyProblem(kind, parsed.network, None, source=parsed.source, sink=parsed.sink)
-        else:
-            if "mincostflow" in kinds:
-                kinds["mincostflow"].parse(problem, limits)  # same acceptance as the solve endpoint
-            network, supply = read_min_cost(problem, limits)
-            out = VerifyProblem(kind, network, None, supply=supply)
-    out.flows = read_flows(envelope["flows"], out.network.num_arcs)
-    return out
+        parsed = parse_problem(envelope["problem"], limits)
+    return _with_flows(VerifyProblem(parsed.network, source=parsed.source, sink=parsed.sink), envelope)
+
+
+def _parse_min_cost(parse_problem, body, limits: Limits) -> VerifyProblem:
+    envelope = load_envelope(_ENVELOPE, body)
+    with under("/problem"):
+        parse_problem(envelope["problem"], limits)  # same acceptance as the solve endpoint
+        network, supply = read_min_cost(envelope["problem"], limits)
+    return _with_flows(VerifyProblem(network, supply=supply), envelope)
+
+
+def _with_flows(problem: VerifyProblem, envelope: dict) -> VerifyProblem:
+    """Raises :class:`InputError` at ``/flows`` when they are not one number per arc."""
+    problem.flows = read_flows(envelope["flows"], problem.network.num_arcs)
+    return problem
 
 
 class _Envelope(Schema):
@@ -154,7 +204,25 @@ _ENVELOPE = _Envelope()
 
 
 def read_flows(raw, num_arcs: int) -> np.ndarray:
-    """The client's flows as a numpy array, one finite number per arc."""
+    """The client's flows as a numpy array, one finite number per arc.
+
+    Parameters
+    ----------
+    raw : list
+        ``flows`` as the request gives it.
+    num_arcs : int
+        How many arcs the problem has.
+
+    Returns
+    -------
+    ndarray
+        int64 for whole numbers, else float64.
+
+    Raises
+    ------
+    InputError
+        At ``/flows`` (not a list, wrong length) or ``/flows/<i>``.
+    """
     if not isinstance(raw, list):
         raise InputError.at("/flows", "must be a list of numbers, one per arc")
     if len(raw) != num_arcs:
@@ -183,6 +251,19 @@ def read_min_cost(body, limits: Limits) -> tuple[Network, np.ndarray]:
 
     Only ``options.shortage = "reject"`` (the default: every supply must ship) is
     checked; a plan for ``"max-flow"`` gets a 422 at ``/options/shortage``.
+
+    Parameters
+    ----------
+    body : dict
+        A ``POST /v1/mincostflow`` body.
+    limits : Limits
+        Size limits.
+
+    Returns
+    -------
+    (Network, ndarray)
+        The network and the supply per node in node order (int64, or float64 when
+        a supply is not whole).
     """
     envelope = load_envelope(_MinCostEnvelope(), body)
     if envelope["options"]["shortage"] != "reject":
@@ -199,16 +280,92 @@ def read_min_cost(body, limits: Limits) -> tuple[Network, np.ndarray]:
     return network, supply
 
 
-def check(problem: VerifyProblem, deadline: Deadline) -> dict:
-    """Run the plan check within ``deadline`` and build the response document."""
+def check_max_flow(problem: VerifyProblem, deadline: Deadline) -> dict:
+    """Check a max-flow plan and build the response document.
+
+    Parameters
+    ----------
+    problem : VerifyProblem
+        With ``source`` and ``sink``.
+    deadline : Deadline
+        Unused: the check is one breadth-first search (kept for the
+        :class:`~service.kinds.base.PlanVerifier` signature).
+
+    Returns
+    -------
+    dict
+        ``feasible``, ``optimal``, ``value``, the violations, and an augmenting path or
+        a minimum cut as the proof.
+    """
     net = problem.network
-    if problem.kind == "maxflow":
-        verdict = verify_max_flow(net.num_nodes, net.tail, net.head, net.capacity, net.unlimited,
-                                  problem.source, problem.sink, problem.flows)
+    verdict = verify_max_flow(net.num_nodes, net.tail, net.head, net.capacity, net.unlimited,
+                              problem.source, problem.sink, problem.flows)
+    out = _verdict(net, verdict, "value")
+    if verdict.steps is not None:
+        out["improving_path"] = _steps(net, verdict.steps)
+        _improvement(out, verdict, unit_cost=False)
+        proof = "augmenting-path"
+    elif verdict.optimal:
+        out["cut"] = {"source_side": ids_of(net.nodes, np.flatnonzero(verdict.source_side)),
+                      "arcs": verdict.cut_arcs, "capacity": verdict.cut_capacity}
+        proof = "cut"
     else:
-        verdict = verify_min_cost_flow(net.num_nodes, net.tail, net.head, net.capacity, net.unlimited, net.cost,
-                                       net.lower, problem.supply, problem.flows, deadline=deadline)
-    return respond(problem, verdict)
+        return out
+    return _certified(out, proof, verdict)
+
+
+def check_min_cost(problem: VerifyProblem, deadline: Deadline) -> dict:
+    """Check a min-cost flow plan and build the response document.
+
+    Parameters
+    ----------
+    problem : VerifyProblem
+        With ``supply``.
+    deadline : Deadline
+        Bounds the search for a negative-cost cycle.
+
+    Returns
+    -------
+    dict
+        ``feasible``, ``optimal``, ``cost``, the violations, and a negative-cost cycle
+        or node potentials as the proof.
+    """
+    net = problem.network
+    verdict = verify_min_cost_flow(net.num_nodes, net.tail, net.head, net.capacity, net.unlimited, net.cost,
+                                   net.lower, problem.supply, problem.flows, deadline=deadline)
+    out = _verdict(net, verdict, "cost")
+    if verdict.steps is not None:
+        out["improving_cycle"] = _steps(net, verdict.steps)
+        _improvement(out, verdict, unit_cost=True)
+        proof = "negative-cycle"
+    elif verdict.optimal:
+        out["node_ids"] = net.nodes.ids
+        out["potentials"] = verdict.potentials
+        proof = "potentials"
+    else:
+        return out
+    return _certified(out, proof, verdict)
+
+
+def _verdict(net: Network, verdict: Verdict, objective: str) -> dict:
+    """The fields every plan check answers: feasibility, optimality, the plan's value or cost, violations."""
+    return {"feasible": verdict.feasible, "optimal": verdict.optimal, objective: verdict.objective,
+            "violations": _violations(net, verdict), "violation_count": verdict.violation_count}
+
+
+def _improvement(out: dict, verdict: Verdict, *, unit_cost: bool) -> None:
+    """What pushing along the improving path or cycle gains (``unbounded`` when nothing limits it)."""
+    out["gain"] = verdict.gain
+    out["amount"] = verdict.amount
+    if unit_cost:
+        out["unit_cost"] = verdict.unit_cost
+    if verdict.amount is None:
+        out["unbounded"] = True
+
+
+def _certified(out: dict, proof: str, verdict: Verdict) -> dict:
+    out["certificate"] = {"checked": True, "proof": proof, "tolerance": verdict.tolerance}
+    return out
 
 
 def _direction(d: int) -> str:
@@ -234,33 +391,4 @@ def _violations(net: Network, verdict: Verdict) -> list:
         out.append(item)
     for node, imbalance in verdict.node_violations:
         out.append({"node": net.nodes.ids[node], "kind": "conservation", "imbalance": imbalance})
-    return out
-
-
-def respond(problem: VerifyProblem, verdict: Verdict) -> dict:
-    net = problem.network
-    maxflow = problem.kind == "maxflow"
-    out: dict = {"feasible": verdict.feasible, "optimal": verdict.optimal,
-                 ("value" if maxflow else "cost"): verdict.objective,
-                 "violations": _violations(net, verdict), "violation_count": verdict.violation_count}
-    proof = None
-    if verdict.steps is not None:
-        out["improving_path" if maxflow else "improving_cycle"] = _steps(net, verdict.steps)
-        out["gain"] = verdict.gain
-        out["amount"] = verdict.amount
-        if not maxflow:
-            out["unit_cost"] = verdict.unit_cost
-        if verdict.amount is None:
-            out["unbounded"] = True
-        proof = "augmenting-path" if maxflow else "negative-cycle"
-    elif verdict.optimal and maxflow:
-        out["cut"] = {"source_side": ids_of(net.nodes, np.flatnonzero(verdict.source_side)),
-                      "arcs": verdict.cut_arcs, "capacity": verdict.cut_capacity}
-        proof = "cut"
-    elif verdict.optimal:
-        out["node_ids"] = net.nodes.ids
-        out["potentials"] = verdict.potentials
-        proof = "potentials"
-    if proof:
-        out["certificate"] = {"checked": True, "proof": proof, "tolerance": verdict.tolerance}
     return out

@@ -41,6 +41,7 @@ import numpy as np
 from ortools.graph.python import max_flow as ortools_max_flow
 
 from ..errors import SolverFailure
+from .graph import node_balance
 
 #: A split that leaves fewer than 1/LATE_SPLIT of the solved nodes on one side
 #: changes which period the next subproblems solve first (see :func:`_next_periods`).
@@ -215,9 +216,7 @@ def earliest_arrival_flow(net: FlowNetwork, labels: np.ndarray, big: int) -> np.
     flows = np.zeros(tail.size, dtype=np.int64)
     flows[full] = cap[full]
     n = net.num_nodes
-    supply = np.zeros(n, dtype=np.int64)  # exact int64 sums (bincount's weights are floats)
-    np.add.at(supply, head[full], cap[full])
-    np.subtract.at(supply, tail[full], cap[full])
+    supply = node_balance(n, tail[full], head[full], flows[full])  # exact int64 sums (bincount's weights are floats)
     excess = np.flatnonzero(supply > 0)
     deficit = np.flatnonzero(supply < 0)
     hub, drain = n, n + 1

@@ -6,14 +6,16 @@ A network is arrays: ``tail[e] -> head[e]`` for arc ``e``, with optional ``capac
 solvers that build arcs on the fly (time-expanded copies, contracted components,
 residual arcs) share the same code.
 
-Two breadth-first searches serve everything:
+Three breadth-first searches serve everything:
 
 - :func:`reach` and :func:`bfs_predecessors`: scipy's compiled
   ``csgraph.breadth_first_order`` over a CSR pattern, for reachability and
   node-to-node predecessor trees;
 - :func:`bfs_tree`: a layered numpy search that records the *arc* by which each node
   was reached (a residual network has parallel arcs, and a plan check must name the
-  arc) and stops as soon as a target is reached.
+  arc) and stops as soon as a target is reached;
+- :func:`bfs_depth`: the number of arcs from the nearest of several starts (the
+  diagrams' columns, :mod:`service.drawing.layout`).
 """
 
 from __future__ import annotations
@@ -102,6 +104,10 @@ class Graph:
         """The residual arcs of a feasible plan; see :func:`residual_network`."""
         return residual_network(self.tail, self.head, self.capacity, self.unlimited, lower, flows, tol)[0]
 
+    def depth(self, starts) -> np.ndarray:
+        """Arcs from the nearest of ``starts``, -1 where unreached; see :func:`bfs_depth`."""
+        return bfs_depth(self.num_nodes, self.tail, self.head, starts)
+
     def residual_reach(self, flows: np.ndarray, start: int, slack=0) -> np.ndarray:
         """Nodes reachable from ``start`` in the residual network; see :func:`residual_reach`."""
         return residual_reach(self.num_nodes, self.tail, self.head, flows, self.capacity, self.unlimited,
@@ -134,7 +140,8 @@ def max_degree(num_nodes: int, tail: np.ndarray, head: np.ndarray) -> int:
     """The most arc ends at one node (in-degree plus out-degree; 0 without arcs)."""
     if tail.size == 0:
         return 0
-    return int(np.bincount(np.concatenate([tail, head]), minlength=num_nodes).max())
+    # Two counts added, not one over both ends concatenated: the copy costs more.
+    return int((np.bincount(tail, minlength=num_nodes) + np.bincount(head, minlength=num_nodes)).max())
 
 
 def residual_masks(flows, capacity, unlimited, tol=0):
@@ -320,3 +327,30 @@ def bfs_tree(num_nodes: int, src: np.ndarray, dst: np.ndarray, start: int, targe
         reached[nodes] = True
         frontier = nodes
     return parent, reached
+
+
+def bfs_depth(num_nodes: int, src: np.ndarray, dst: np.ndarray, starts) -> np.ndarray:
+    """Breadth-first distance in arcs from the nearest of ``starts``, one numpy step per layer.
+
+    Parameters
+    ----------
+    num_nodes : int
+    src, dst : ndarray of int
+        Arc ``e`` runs from ``src[e]`` to ``dst[e]``.
+    starts : iterable of int
+        Nodes at depth 0 (repeats allowed; none gives all -1).
+
+    Returns
+    -------
+    ndarray of int64
+        ``depth[v]``: the fewest arcs on a path from a start to ``v``; -1 where no path.
+    """
+    depth = np.full(num_nodes, -1, dtype=np.int64)
+    frontier = np.unique(np.asarray(list(starts), dtype=np.int64))
+    level = 0
+    while frontier.size:
+        depth[frontier] = level
+        nxt = dst[np.isin(src, frontier)]
+        frontier = np.unique(nxt[depth[nxt] < 0])
+        level += 1
+    return depth

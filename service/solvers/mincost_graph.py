@@ -27,6 +27,7 @@ from ortools.graph.python import max_flow as ortools_max_flow
 from ortools.graph.python import min_cost_flow as ortools_min_cost_flow
 
 from ..errors import SolverFailure
+from .graph import max_degree
 from .maxflow_graph import graph_engine
 from .scaling import is_object
 
@@ -138,8 +139,7 @@ def _node_sums_fit(num_nodes, tail, head, caps, supply) -> bool:
 
 def _capped_bounds(num_nodes, tail, head, finite, limited, positive) -> SolverBounds:
     """Cap the largest finite capacities (and the unlimited arcs) at the stand-in."""
-    degree = np.bincount(tail, minlength=num_nodes) + np.bincount(head, minlength=num_nodes)
-    ceiling = _STAND_IN_ROOM // (int(degree.max(initial=0)) + 2)
+    ceiling = _STAND_IN_ROOM // (max_degree(num_nodes, tail, head) + 2)
     arcs = np.flatnonzero(limited)
     values = finite[arcs].astype(np.float64)
     order = np.argsort(values, kind="stable")

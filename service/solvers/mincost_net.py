@@ -11,6 +11,7 @@ from typing import Any
 import numpy as np
 
 from . import mincost_checks as checks
+from .graph import node_balance
 from .mincost_graph import mincost_engine
 from .scaling import is_object, rescale
 
@@ -62,8 +63,8 @@ def _transform(net: _Net):
     if net.unl is not None:
         cap = np.where(net.unl, 0, cap)
     sup = net.sup.copy() if is_object(net.sup) or is_object(net.low) else net.sup.astype(np.int64, copy=True)
-    np.subtract.at(sup, net.tail, net.low)
-    np.add.at(sup, net.head, net.low)
+    low = net.low.astype(sup.dtype, casting="same_kind", copy=False)  # exact: Python ints stay ints
+    sup += node_balance(net.n, net.tail, net.head, low)
     return cap, sup
 
 

@@ -32,6 +32,7 @@ from __future__ import annotations
 import numpy as np
 
 from ..errors import SelfCheckFailed
+from .graph import node_balance
 from .mincost_checks import exact_dot
 from .timeexpanded import Schedule, TimedNetwork
 
@@ -90,11 +91,14 @@ def replay(net: TimedNetwork, schedule: Schedule, horizon: int) -> tuple[np.ndar
     max_hold_excess = max(int(hover.max()) if hover.size else 0, 0)
     if max_hold_excess > 0:
         _fail(f"a holdover exceeds its node's limit by {max_hold_excess}")
-    balance = np.zeros(n * horizon, dtype=np.int64)
-    np.add.at(balance, arrive * n + net.head[s.dep_arc], s.dep_amount)
-    np.subtract.at(balance, s.dep_period * n + net.tail[s.dep_arc], s.dep_amount)
-    np.add.at(balance, (s.hold_period + 1) * n + s.hold_node, s.hold_amount)
-    np.subtract.at(balance, s.hold_period * n + s.hold_node, s.hold_amount)
+    # The time-expanded network: node (period, v) is period * n + v; a departure runs from
+    # its period to its arrival, a holdover from its period to the next. Two balances
+    # added, not one over concatenated arcs: the copies cost more than the sums.
+    slots = n * horizon
+    balance = (node_balance(slots, s.dep_period * n + net.tail[s.dep_arc], arrive * n + net.head[s.dep_arc],
+                            s.dep_amount.astype(np.int64, copy=False))
+               + node_balance(slots, s.hold_period * n + s.hold_node, (s.hold_period + 1) * n + s.hold_node,
+                              s.hold_amount.astype(np.int64, copy=False)))
     figures = {"max_capacity_excess": max_cap_excess, "max_holdover_excess": max_hold_excess}
     return balance.reshape(horizon, n).T, figures
 

@@ -17,6 +17,7 @@ from __future__ import annotations
 import numpy as np
 
 from ..errors import SelfCheckFailed
+from .graph import node_balance
 from .whole_model import WholeData
 
 
@@ -92,10 +93,9 @@ def check_flows(data: WholeData, flows, delivered, paths) -> tuple[np.ndarray, n
     if (excess[data.limited] > 0).any():
         a = int(np.flatnonzero(data.limited & (excess > 0))[0])
         _fail(f"arc {a} carries {int(total[a])}, above its capacity {int(data.upper[a])}")
-    balance = np.zeros(K * n, dtype=np.int64)
-    offset = (n * np.arange(K))[:, None]
-    np.add.at(balance, (offset + net.tail[None, :]).ravel(), units.ravel())
-    np.subtract.at(balance, (offset + net.head[None, :]).ravel(), units.ravel())
+    offset = (n * np.arange(K))[:, None]  # commodity k's copy of node v is k * n + v
+    balance = -node_balance(K * n, (offset + net.tail[None, :]).ravel(), (offset + net.head[None, :]).ravel(),
+                            units.ravel())  # out minus in
     np.subtract.at(balance, n * np.arange(K) + com.sources, shipped)
     np.add.at(balance, n * np.arange(K) + com.sinks, shipped)
     if balance.any():
