@@ -32,7 +32,6 @@ import time
 from contextlib import contextmanager
 
 import numpy as np
-import scipy.sparse as sp
 from ortools.linear_solver import linear_solver_pb2, pywraplp
 from ortools.linear_solver.python import model_builder_helper as mbh
 from ortools.math_opt import callback_pb2, model_parameters_pb2, parameters_pb2, result_pb2
