@@ -45,6 +45,13 @@ class MultiCommodityOptions(OptionsSchema):
 
 
 def objective_field() -> fields.String:
+    """The ``options.objective`` field, made fresh for each schema that declares it.
+
+    Returns
+    -------
+    marshmallow.fields.String
+        ``min-cost`` (the default) or ``max-throughput``, with its description for the spec.
+    """
     return fields.String(
         load_default="min-cost", validate=validate.OneOf(["min-cost", "max-throughput"]),
         metadata={"description": "min-cost (default): every demand met, at least total cost. max-throughput: "
