@@ -29,7 +29,6 @@ _ISSUE = "issue 15: docstrings on every public function"
 #: public functions are not all documented yet.
 PENDING: dict[str, str] = {
     "service/api": f"{_ISSUE}, HTTP slice",
-    "service/kinds/base.py": f"{_ISSUE}: time_limit, with the one-deadline slice that rewrites it",
     "service/kinds/flowovertime.py": f"{_ISSUE}, after kinds/flowovertime.py is split",
     "service/kinds/multicommodity.py": f"{_ISSUE}, after kinds/multicommodity.py is split",
     "service/intake.py": f"{_ISSUE}, with the worker-front edits",
