@@ -8,7 +8,7 @@ import sys
 
 from gunicorn.app.base import BaseApplication
 
-from .serving import gunicorn_defaults
+from .serving import asgi_app, gunicorn_defaults
 
 
 class _Server(BaseApplication):
@@ -22,8 +22,6 @@ class _Server(BaseApplication):
                 self.cfg.set(key, value)
 
     def load(self):
-        from .serving import asgi_app
-
         return asgi_app()
 
 

@@ -38,6 +38,8 @@ from time import monotonic
 import orjson
 from blake3 import blake3
 
+from .errors import PROBLEM_BASE
+
 #: Bodies from this size on are hashed while they arrive.
 HASH_FROM = 2 << 20
 #: Bodies from this size on take a heavy slot (about where a problem goes to a solver process).
@@ -115,8 +117,6 @@ async def run_in(pool: ThreadPoolExecutor, fn, environ: dict):
 
 
 def _problem(status: int, slug: str, title: str, detail: str) -> bytes:
-    from .errors import PROBLEM_BASE
-
     return orjson.dumps({"type": PROBLEM_BASE + slug, "title": title, "status": status, "detail": detail})
 
 

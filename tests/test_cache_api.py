@@ -154,7 +154,7 @@ def test_answers_that_are_not_final_are_never_cached(store_app):
     that allows more time. A stand-in kind gives that status: the cache and store are real."""
     from types import SimpleNamespace
 
-    from service.api import cache
+    from service.api import cache, storage
 
     calls = []
     kind = SimpleNamespace(name="stand-in", solve=lambda problem, limits: calls.append(1) or
@@ -166,7 +166,7 @@ def test_answers_that_are_not_final_are_never_cached(store_app):
             r = cache.answer(kind, problem, started=0.0)
             assert r.headers["Cache-Status"] == "sluice; fwd=miss; detail=not-final"
         assert calls == [1, 1]
-        assert cache.get_store().get_result("public", problem.digest) is None
+        assert storage.get_store().get_result("public", problem.digest) is None
 
 
 def test_unbounded_answers_are_cached(store_client):

@@ -79,8 +79,6 @@ LOCAL_IMPORTS: dict[tuple[str, str], str] = {
                                                 "read by the gunicorn master and `sluice --help` too",
 }
 
-_ROOMS = "issue 15, rooms of api/ (the Kind-declaration slice): the result cache apart from the store accessor, " \
-         "diagram.py split into the drawing room"
 _SPEC = "issue 15, routes and spec derived from KINDS (the Kind-declaration slice): spec.py written apart from the routes"
 _NOTHING_HIDDEN = "hides no circle: move it to the top"
 
@@ -89,16 +87,10 @@ _NOTHING_HIDDEN = "hides no circle: move it to the top"
 #: ``("circle", *modules)``: a circle of imports (its modules sorted);
 #: ``("room", module, room)``: a room imported against ALLOWED.
 KNOWN: dict[tuple, str] = {
-    ("local", "service.api.cache", "service.api.diagram"): "no circle behind it now: " + _ROOMS,
-    ("local", "service.api.solutions", "service.api.diagram"): _ROOMS,
     ("local", "service.api.spec", "service.api.networks"): _SPEC,
     ("local", "service.api", "service.api.spec"): _SPEC,
-    ("local", "service.api.metrics", "service.kinds"): "issue 15, capabilities from KINDS: " + _NOTHING_HIDDEN,
     ("local", "service.kinds.base", "service.model.schemas"): "issue 15, the Kind declaration: " + _NOTHING_HIDDEN,
     ("local", "service.kinds.base", "service.model.stored"): "issue 15, the Kind declaration: " + _NOTHING_HIDDEN,
-    ("local", "service.intake", "service.errors"): _NOTHING_HIDDEN + " (no slice owns it yet)",
-    ("local", "service.cli", "service.serving"): "serving is imported at the top of cli.py already (no slice owns "
-                                                 "it yet)",
 }
 
 

@@ -11,8 +11,8 @@ from ..config import Settings
 from ..errors import FieldError, ProblemTooLarge, Unavailable
 from ..intake import PROBE_PATHS, QUEUED, SHED
 from ..kinds import Limits
-from . import (auth, batch, bounded, cache, cors, diagram, encoding, explorer, jobs, metrics, networks, ops, problems,
-               ratelimit, requestlog, solutions, solve, verify)
+from . import (auth, batch, bounded, cors, diagram, encoding, explorer, jobs, metrics, networks, ops, problems,
+               ratelimit, requestlog, solutions, solve, storage, verify)
 from .jsonio import OrjsonProvider, content_coding
 
 log = logging.getLogger("sluice")
@@ -84,7 +84,7 @@ def create_app(config: Settings | dict | None = None) -> Flask:
     app.register_blueprint(solve.bp)
     app.register_blueprint(networks.bp)
     app.register_blueprint(solutions.bp)
-    cache.init_app(app, settings)
+    storage.init_app(app, settings)
     for module in (verify, batch, diagram, explorer):  # plan checks, batches, diagrams, the explorer page
         app.register_blueprint(module.bp)
     jobs.init_app(app, settings, limits)

@@ -6,7 +6,7 @@ import numpy as np
 from flask import Blueprint, current_app
 
 from ..solvers import maximum_flow
-from .cache import get_store
+from .storage import get_store
 from .jsonio import json_response
 
 bp = Blueprint("ops", __name__)
