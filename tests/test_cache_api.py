@@ -189,6 +189,7 @@ def test_body_fingerprint_is_blake3():
     one = __import__("random").Random(4).randbytes(3 << 20)
     other = one[:-1] + bytes([one[-1] ^ 1])  # one bit away, at the end
     assert len(body_fingerprint(one)) == 32 and body_fingerprint(one) != body_fingerprint(other)
+    assert body_fingerprint(one[:5], one[5:1 << 20], one[1 << 20:]) == body_fingerprint(one)  # parts as received
 
 
 class TrickleStream(io.BytesIO):
