@@ -42,6 +42,7 @@ from ..kinds import Kind, Limits
 from ..store import Store, StoreUnavailable
 from .bounded import bounded_solve
 from .diagram import DRAWING_SUFFIX, drawing_record
+from .encoding import mark_stable_start
 from .jsonio import DUMP_OPTIONS, _is_json, raw_body, raw_body_fingerprint
 from .metrics import CACHE_EVENTS
 from .storage import get_store, tenant
@@ -96,7 +97,7 @@ def body_hit(key: str | None, started: float) -> Response | None:
         return None
     if cached is None:
         return None
-    return respond(cached, HIT, _timing(started, perf_counter(), 0.0))
+    return respond(cached, HIT, _timing(started, perf_counter(), 0.0), memo_key=key)
 
 
 def answer(kind: Kind, problem, *, started: float, key: str | None = None, extra: dict | None = None) -> Response:
@@ -128,7 +129,7 @@ def answer(kind: Kind, problem, *, started: float, key: str | None = None, extra
         if cached is not None:
             if key is not None:
                 _quietly(store.put_alias, who, key, problem.digest)
-            return respond(cached, HIT, _timing(started, perf_counter(), 0.0), extra)
+            return respond(cached, HIT, _timing(started, perf_counter(), 0.0), extra, memo_key=problem.digest)
     t0 = perf_counter()
     result = bounded_solve(kind, problem, _limits())
     solved = perf_counter()
@@ -171,16 +172,22 @@ def _timing(started: float, solve_started: float, solve_s: float) -> dict:
     }
 
 
-def respond(payload: bytes, cache_status: str, timing: dict, extra: dict | None = None) -> Response:
+def respond(payload: bytes, cache_status: str, timing: dict, extra: dict | None = None, *,
+            memo_key: str | None = None) -> Response:
     """A solve response from a result's JSON bytes, with members appended (no re-encoding).
 
     The cached bytes are the result without ``timing_ms``; appending members to the
-    serialised object costs one copy instead of a decode and an encode.
+    serialised object costs one copy instead of a decode and an encode. ``memo_key``
+    (a hit's digest or body key) tells the gzip step that the response starts with
+    the same bytes every time it is asked for, so it compresses only the rest.
     """
     tail = b"".join(b',"' + name.encode() + b'":' + orjson.dumps(value, option=DUMP_OPTIONS)
                     for name, value in {**(extra or {}), "timing_ms": timing}.items())
     if payload == b"{}":
         tail = tail[1:]
     CACHE_EVENTS.labels(_EVENT.get(cache_status, "miss")).inc()
-    return Response(payload[:-1] + tail + b"}", mimetype="application/json",
-                    headers={"Cache-Status": cache_status})
+    response = Response(payload[:-1] + tail + b"}", mimetype="application/json",
+                        headers={"Cache-Status": cache_status})
+    if memo_key is not None:
+        mark_stable_start(response, memo_key, len(payload) - 1)
+    return response
