@@ -1,7 +1,8 @@
 """The result cache in front of every solve.
 
-The store it reads and writes is :mod:`service.api.storage`'s. Cache keys are problem digests, which already cover the normalised data, the
-answer-changing options and the solver version. ``options.cache``:
+The store it reads and writes is :mod:`service.api.storage`'s. Cache keys are problem
+digests, which already cover the normalised data, the answer-changing options and the
+solver version. ``options.cache``:
 
 ``use`` (default)
     Answer from the cache when the digest is there, else solve and store.
