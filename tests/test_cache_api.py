@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import gzip
 import io
 import json
 
@@ -154,7 +155,7 @@ def test_answers_that_are_not_final_are_never_cached(store_app):
     that allows more time. A stand-in kind gives that status: the cache and store are real."""
     from types import SimpleNamespace
 
-    from service.api import cache
+    from service.api import cache, storage
 
     calls = []
     kind = SimpleNamespace(name="stand-in", solve=lambda problem, deadline: calls.append(1) or
@@ -166,7 +167,7 @@ def test_answers_that_are_not_final_are_never_cached(store_app):
             r = cache.answer(kind, problem, started=0.0)
             assert r.headers["Cache-Status"] == "sluice; fwd=miss; detail=not-final"
         assert calls == [1, 1]
-        assert cache.get_store().get_result("public", problem.digest) is None
+        assert storage.get_store().get_result("public", problem.digest) is None
 
 
 def test_unbounded_answers_are_cached(store_client):
@@ -189,6 +190,7 @@ def test_body_fingerprint_is_blake3():
     one = __import__("random").Random(4).randbytes(3 << 20)
     other = one[:-1] + bytes([one[-1] ^ 1])  # one bit away, at the end
     assert len(body_fingerprint(one)) == 32 and body_fingerprint(one) != body_fingerprint(other)
+    assert body_fingerprint(one[:5], one[5:1 << 20], one[1 << 20:]) == body_fingerprint(one)  # parts as received
 
 
 class TrickleStream(io.BytesIO):
@@ -232,3 +234,37 @@ def test_a_large_body_cut_short_is_refused_and_nothing_is_cached(store_client):
                             content_type="application/json", environ_overrides={"CONTENT_LENGTH": str(len(raw))})
     assert cut.status_code == 400 and "ended after" in cut.get_json()["detail"]
     assert post(store_client, "/v1/maxflow", raw).headers["Cache-Status"] == "sluice; fwd=miss; stored"
+
+
+def test_a_gzipped_hit_is_the_whole_answer_gzipped(store_client):
+    """A hit compresses only what follows its cached start (service.api.encoding); the
+    bytes sent must be those of compressing the whole answer at once."""
+    from service.api.encoding import _gzip
+
+    raw = orjson.dumps({"source": "site-a0", "sink": "site-b0", "arcs": depot_arcs(5, nodes=60, arcs=3000)})
+    first = post(store_client, "/v1/maxflow", raw)
+    assert first.headers["Cache-Status"] == "sluice; fwd=miss; stored"
+    for _ in range(3):
+        hit = store_client.post("/v1/maxflow", data=raw, content_type="application/json",
+                                headers={"Accept-Encoding": "gzip"})
+        assert hit.headers["Cache-Status"] == "sluice; hit" and hit.headers["Content-Encoding"] == "gzip"
+        plain = gzip.decompress(hit.data)
+        assert hit.data == _gzip(plain)
+        doc = orjson.loads(plain)
+        doc.pop("timing_ms")
+        assert doc == without_timing(first)
+
+
+def test_stable_starts_follow_a_changed_start_and_keep_to_their_budget():
+    from service.api.encoding import StableStarts, _gzip
+
+    starts = StableStarts(budget=8 * StableStarts.STATE_BYTES)
+    rng = __import__("random").Random(2)
+    one = b'{"flows":[' + b",".join(str(rng.randrange(9)).encode() for _ in range(20_000))
+    other = one.replace(b"7", b"8")  # a refreshed answer under the same key
+    for start in (one, other, one):
+        for tail in (b',"timing_ms":{"total":0.1}}', b',"timing_ms":{"total":12.25}}'):
+            assert starts.gzip(start + tail, "k", len(start)) == _gzip(start + tail)
+    for i in range(10):
+        starts.gzip(one + b"}", f"key-{i}", len(one))
+    assert 0 < starts.size <= starts.budget and len(starts._entries) < 10

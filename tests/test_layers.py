@@ -90,18 +90,12 @@ LOCAL_IMPORTS: dict[tuple[str, str], str] = {
                                                 "read by the gunicorn master and `sluice --help` too",
 }
 
-_ROOMS = "issue 15, rooms of api/ (the Kind-declaration slice): the result cache apart from the store accessor, " \
-         "diagram.py split into the drawing room"
-_NOTHING_HIDDEN = "hides no circle: move it to the top"
 
 #: Today's violations, each with the work that removes it: delete an entry with its fix.
 #: ``("local", module, imported)``: a function-local import without a reason;
 #: ``("circle", *modules)``: a circle of imports (its modules sorted);
 #: ``("room", module, room)``: a room imported against ALLOWED.
 KNOWN: dict[tuple, str] = {
-    ("local", "service.api.cache", "service.api.diagram"): "no circle behind it now: " + _ROOMS,
-    ("local", "service.api.solutions", "service.api.diagram"): _ROOMS,
-    ("local", "service.api.metrics", "service.kinds"): "issue 15, capabilities from KINDS: " + _NOTHING_HIDDEN,
 }
 
 

@@ -93,6 +93,22 @@ def test_redis_results_carry_a_ttl_and_networks_none(redis_url, redis_prefix):
     s.close()
 
 
+@pytest.mark.redis
+def test_redis_a_hit_by_body_resets_both_ttls(redis_url, redis_prefix):
+    """Sliding TTLs: a result asked for by its body stays, and so does the alias to it."""
+    s = open_store(redis_url=redis_url, redis_prefix=redis_prefix, cache_ttl=600)
+    s.put_result("public", DIGEST_A, b'{"value": 1}', body_key="k")
+    client = s.backend.client
+    for key in (f"{redis_prefix}public:r:{DIGEST_A}", f"{redis_prefix}public:b:k"):
+        client.expire(key, 5)
+    assert s.get_result_by_body("public", "k") == b'{"value": 1}'
+    assert client.ttl(f"{redis_prefix}public:r:{DIGEST_A}") > 5
+    assert client.ttl(f"{redis_prefix}public:b:k") > 5
+    client.delete(f"{redis_prefix}public:r:{DIGEST_A}")  # evicted: the alias leads nowhere
+    assert s.get_result_by_body("public", "k") is None
+    s.close()
+
+
 # -- networks ----------------------------------------------------------------------
 
 def test_network_versions_and_preconditions(store):

@@ -11,7 +11,7 @@ from ..config import Settings
 from ..errors import FieldError, ProblemTooLarge, Unavailable
 from ..intake import PROBE_PATHS, QUEUED, SHED
 from ..kinds import Limits
-from . import auth, bounded, cache, cors, encoding, jobs, metrics, problems, ratelimit, requestlog, routes
+from . import auth, bounded, cors, encoding, jobs, metrics, problems, ratelimit, requestlog, routes, storage
 from .jsonio import OrjsonProvider, content_coding
 from .spec import build_spec
 
@@ -80,7 +80,7 @@ def create_app(config: Settings | dict | None = None) -> Flask:
     app.before_request(_enforce_body_limit)
     encoding.init_app(app, settings.gzip_min_bytes)
     routes.register(app)
-    cache.init_app(app, settings)
+    storage.init_app(app, settings)
     jobs.init_app(app, settings, limits)
     bounded.init_app(app, settings)
     app.extensions["sluice"] = SluiceState(settings, limits, build_spec(app))

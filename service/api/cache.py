@@ -1,10 +1,8 @@
-"""The store as a Flask extension, and the result cache in front of every solve.
+"""The result cache in front of every solve.
 
-``init_app`` opens the store the settings ask for (SQLite in ``SLUICE_DATA_DIR``, or
-Redis at ``SLUICE_REDIS_URL``) and keeps it in ``app.extensions``.
-
-Cache keys are problem digests, which already cover the normalised data, the
-answer-changing options and the solver version. ``options.cache``:
+The store it reads and writes is :mod:`service.api.storage`'s. Cache keys are problem
+digests, which already cover the normalised data, the answer-changing options and the
+solver version. ``options.cache``:
 
 ``use`` (default)
     Answer from the cache when the digest is there, else solve and store.
@@ -39,18 +37,18 @@ import logging
 from time import perf_counter
 
 import orjson
-from flask import Flask, Response, current_app, g, request
+from flask import Response, current_app, request
 
-from ..config import Settings
 from ..kinds import Kind, Limits
-from ..store import DEFAULT_TENANT, Store, StoreUnavailable, open_store
+from ..store import Store, StoreUnavailable
 from .bounded import bounded_solve
+from .diagram import DRAWING_SUFFIX, drawing_record
+from .encoding import mark_stable_start
 from .jsonio import DUMP_OPTIONS, _is_json, raw_body, raw_body_fingerprint
 from .metrics import CACHE_EVENTS
+from .storage import get_store, tenant
 
 log = logging.getLogger("sluice.cache")
-
-EXTENSION = "sluice.store"
 
 HIT = "sluice; hit"
 STORED = "sluice; fwd=miss; stored"
@@ -67,31 +65,6 @@ _EVENT = {HIT: "hit", STORED: "stored", REFRESHED: "stored", BYPASSED: "bypass",
 #: Only answers that another solve would repeat are cached; an answer cut short by a
 #: time limit would be wrong to serve to a request that allows more time.
 FINAL_STATUSES = frozenset({"optimal", "infeasible", "unbounded"})
-
-
-def init_app(app: Flask, settings: Settings) -> Store:
-    """Open the store for ``settings`` and attach it to ``app``."""
-    store = open_store(
-        data_dir=settings.data_dir,
-        redis_url=settings.redis_url,
-        redis_prefix=settings.redis_prefix,
-        cache_bytes=int(settings.cache_mb * (1 << 20)),
-        cache_ttl=settings.cache_ttl,
-        max_item_bytes=int(settings.cache_item_mb * (1 << 20)),
-        memo_bytes=int(settings.network_memo_mb * (1 << 20)),
-        retry_interval=settings.store_retry,
-    )
-    app.extensions[EXTENSION] = store
-    return store
-
-
-def get_store() -> Store:
-    return current_app.extensions[EXTENSION]
-
-
-def tenant() -> str:
-    """The tenant of this request (set by authentication once API keys exist)."""
-    return g.get("tenant", DEFAULT_TENANT)
 
 
 def _limits() -> Limits:
@@ -125,7 +98,7 @@ def body_hit(key: str | None, started: float) -> Response | None:
         return None
     if cached is None:
         return None
-    return respond(cached, HIT, _timing(started, perf_counter(), 0.0))
+    return respond(cached, HIT, _timing(started, perf_counter(), 0.0), memo_key=key)
 
 
 def answer(kind: Kind, problem, *, started: float, key: str | None = None, extra: dict | None = None) -> Response:
@@ -157,7 +130,7 @@ def answer(kind: Kind, problem, *, started: float, key: str | None = None, extra
         if cached is not None:
             if key is not None:
                 _quietly(store.put_alias, who, key, problem.digest)
-            return respond(cached, HIT, _timing(started, perf_counter(), 0.0), extra)
+            return respond(cached, HIT, _timing(started, perf_counter(), 0.0), extra, memo_key=problem.digest)
     t0 = perf_counter()
     result = bounded_solve(kind, problem)
     solved = perf_counter()
@@ -179,8 +152,6 @@ def answer(kind: Kind, problem, *, started: float, key: str | None = None, extra
 
 def _keep_drawing(store: Store, who: str, kind: Kind, problem) -> None:
     """Keep a small problem beside its answer so the answer can be drawn by digest."""
-    from .diagram import DRAWING_SUFFIX, drawing_record
-
     record = drawing_record(kind.name, problem)
     if record is not None:
         _quietly(store.put_result, who, problem.digest + DRAWING_SUFFIX, record, None)
@@ -202,16 +173,22 @@ def _timing(started: float, solve_started: float, solve_s: float) -> dict:
     }
 
 
-def respond(payload: bytes, cache_status: str, timing: dict, extra: dict | None = None) -> Response:
+def respond(payload: bytes, cache_status: str, timing: dict, extra: dict | None = None, *,
+            memo_key: str | None = None) -> Response:
     """A solve response from a result's JSON bytes, with members appended (no re-encoding).
 
     The cached bytes are the result without ``timing_ms``; appending members to the
-    serialised object costs one copy instead of a decode and an encode.
+    serialised object costs one copy instead of a decode and an encode. ``memo_key``
+    (a hit's digest or body key) tells the gzip step that the response starts with
+    the same bytes every time it is asked for, so it compresses only the rest.
     """
     tail = b"".join(b',"' + name.encode() + b'":' + orjson.dumps(value, option=DUMP_OPTIONS)
                     for name, value in {**(extra or {}), "timing_ms": timing}.items())
     if payload == b"{}":
         tail = tail[1:]
     CACHE_EVENTS.labels(_EVENT.get(cache_status, "miss")).inc()
-    return Response(payload[:-1] + tail + b"}", mimetype="application/json",
-                    headers={"Cache-Status": cache_status})
+    response = Response(payload[:-1] + tail + b"}", mimetype="application/json",
+                        headers={"Cache-Status": cache_status})
+    if memo_key is not None:
+        mark_stable_start(response, memo_key, len(payload) - 1)
+    return response

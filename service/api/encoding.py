@@ -9,12 +9,20 @@ before the views compare them, so a tag from either representation matches the s
 version. Level 1: on JSON it keeps most of level 6's savings at several times the
 speed (a response is compressed on the request's thread).
 
+A cached answer is the same bytes on every hit but for its last members (``timing_ms``),
+so the result cache marks how much of a response stays the same (:func:`mark_stable_start`)
+and the compressor's state after that part is kept (:class:`StableStarts`): a hit then
+compresses only the few bytes after it. deflate's output does not depend on how its input
+is split between calls, so the bytes sent are the same as compressing the whole response.
+
 Request bodies in gzip are decoded in :mod:`service.api.jsonio`.
 """
 
 from __future__ import annotations
 
+import threading
 import zlib
+from collections import OrderedDict
 
 from flask import Flask, request
 from flask.wrappers import Response
@@ -36,9 +44,68 @@ def _compressible(response: Response) -> bool:
             and response.status_code not in (204, 206, 304) and mimetype.startswith(_TEXTUAL))
 
 
+def _packer():
+    return zlib.compressobj(LEVEL, zlib.DEFLATED, 16 + zlib.MAX_WBITS)
+
+
 def _gzip(data: bytes) -> bytes:
-    packer = zlib.compressobj(LEVEL, zlib.DEFLATED, 16 + zlib.MAX_WBITS)
+    packer = _packer()
     return packer.compress(data) + packer.flush()
+
+
+class StableStarts:
+    """Compressor states after the stable start of responses, least recently used out.
+
+    Parameters
+    ----------
+    budget : int
+        Bytes kept at most: each entry costs its start, its compressed form and about
+        300 KB of deflate state.
+    """
+
+    STATE_BYTES = 300 << 10
+
+    def __init__(self, budget: int = 16 << 20):
+        self.budget, self.size = budget, 0
+        self._entries: OrderedDict[str, tuple[bytes, object, bytes]] = OrderedDict()
+        self._lock = threading.Lock()
+
+    @classmethod
+    def _cost(cls, start: bytes, packed: bytes) -> int:
+        return len(start) + len(packed) + cls.STATE_BYTES
+
+    def gzip(self, data: bytes, key: str, stable: int) -> bytes:
+        """``_gzip(data)``, from the kept state after ``data[:stable]`` when it is the same."""
+        with self._lock:
+            entry = self._entries.get(key)
+            if entry is not None:
+                self._entries.move_to_end(key)
+        # (startswith: a memcmp; a refreshed answer is another start)
+        if entry is None or len(entry[0]) != stable or not data.startswith(entry[0]):
+            packer, start = _packer(), data[:stable]
+            entry = (start, packer, packer.compress(start))
+            self._keep(key, entry)
+        packer = entry[1].copy()
+        return entry[2] + packer.compress(memoryview(data)[stable:]) + packer.flush()
+
+    def _keep(self, key: str, entry: tuple) -> None:
+        cost = self._cost(entry[0], entry[2])
+        if cost > self.budget // 4:
+            return
+        with self._lock:
+            old = self._entries.pop(key, None)
+            if old is not None:
+                self.size -= self._cost(old[0], old[2])
+            self._entries[key] = entry
+            self.size += cost
+            while self.size > self.budget:
+                _, dropped = self._entries.popitem(last=False)
+                self.size -= self._cost(dropped[0], dropped[2])
+
+
+def mark_stable_start(response: Response, key: str, stable: int) -> None:
+    """Say that ``response``'s first ``stable`` bytes recur under ``key`` (e.g. a cached answer)."""
+    response.sluice_stable_start = (key, stable)
 
 
 def _tag_for_gzip(response: Response) -> None:
@@ -58,6 +125,7 @@ def _strip_suffix_from_preconditions() -> None:
 
 def init_app(app: Flask, min_bytes: int) -> None:
     app.before_request(_strip_suffix_from_preconditions)
+    starts = app.extensions["sluice.gzip_starts"] = StableStarts()
 
     @app.after_request
     def compress(response: Response) -> Response:
@@ -69,7 +137,9 @@ def init_app(app: Flask, min_bytes: int) -> None:
         response.vary.add("Accept-Encoding")
         if not _accepts_gzip():
             return response
-        response.set_data(_gzip(response.get_data()))
+        stable = getattr(response, "sluice_stable_start", None)
+        data = response.get_data()
+        response.set_data(_gzip(data) if stable is None else starts.gzip(data, *stable))
         response.headers["Content-Encoding"] = "gzip"
         _tag_for_gzip(response)
         return response

@@ -80,7 +80,8 @@ class _ReceivedBody:
 
     def fingerprint(self) -> bytes:
         if self._fingerprint is None:
-            self._fingerprint = body_fingerprint(self.raw())
+            # Step by step: a cache hit never needs the steps joined (a copy of the body).
+            self._fingerprint = body_fingerprint(*self.steps)
         return self._fingerprint
 
 
@@ -210,15 +211,19 @@ def _read_hashing(stream, length: int) -> tuple[list[bytes], bytes]:
     return steps, hasher.digest()
 
 
-def body_fingerprint(raw: bytes) -> bytes:
-    """The BLAKE3 hash of a body (32 bytes), the result cache's key for a repeated body.
+def body_fingerprint(*parts: bytes) -> bytes:
+    """The BLAKE3 hash of a body (32 bytes) given in one or more parts, the result cache's
+    key for a repeated body.
 
     A cryptographic hash, so two bodies never share a key in practice, and several
     times faster than sha256: a 7.2 MB body took 1.1 ms here against 4.0 ms, most of
     a cache hit's server time. One thread on purpose: BLAKE3's multithreaded mode uses
     a thread pool that a forked child (the solver processes) would inherit broken.
     """
-    return blake3(raw).digest()
+    hasher = blake3()
+    for part in parts:
+        hasher.update(part)
+    return hasher.digest()
 
 
 def read_json_body(arc_columns: bool = False):

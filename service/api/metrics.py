@@ -32,6 +32,7 @@ from prometheus_client.core import GaugeMetricFamily
 
 from ..config import Settings
 from ..errors import NotFound, Unauthorized
+from ..kinds import KINDS
 from .declare import WWW_AUTHENTICATE, ok, operation, problem, text_body
 
 LATENCY_BUCKETS = (0.001, 0.0025, 0.005, 0.01, 0.025, 0.05, 0.1, 0.25, 0.5, 1, 2.5, 5, 10, 30, 60, 120)
@@ -148,8 +149,6 @@ def route_label() -> str:
 
 
 def init_app(app: Flask, settings: Settings) -> None:
-    from ..kinds import KINDS
-
     access = app.extensions["sluice.metrics"] = MetricsAccess(settings)
     export_known_series(KINDS)
 

@@ -22,6 +22,7 @@ from ..model.changes import apply_changes
 from ..model.schemas import ArcsField, NodesField, load_envelope
 from ..store import InvalidParameter, NetworkMeta, Preconditions, check_name, network_digest
 from . import cache
+from .storage import get_store, tenant
 from ..model.dimacs import MEDIA_TYPE as DIMACS_MEDIA_TYPE
 from .declare import CACHE_STATUS, DIMACS_BODY_TEXT, NAMED_BODY_TEXT, header_parameter, json_body, kind_title, ok
 from .declare import operation, path_parameter, problem, problems, text_body
@@ -161,11 +162,11 @@ def put_network(name: str):
     """Store a network (201 new, 200 replaced), optionally only if If-Match holds."""
     check_name(name)
     pre = _preconditions()
-    store = cache.get_store()
+    store = get_store()
     # The body is checked before the preconditions, so a malformed request is a 4xx
     # for its body whatever the ETags say; the store checks If-Match atomically.
     network = read_network(decode_body("network", arc_columns=True), _limits())
-    meta, created = store.put_network(cache.tenant(), name, network, network_digest(network), pre)
+    meta, created = store.put_network(tenant(), name, network, network_digest(network), pre)
     headers = {"ETag": _etag(meta)}
     if created:
         headers["Location"] = url_for("networks.get_network", name=name)
@@ -186,20 +187,20 @@ def get_network(name: str):
     """A stored network's metadata; with ?include=arcs its nodes and arcs too."""
     check_name(name)
     include = _include()
-    store = cache.get_store()
-    meta = store.network_meta(cache.tenant(), name)
+    store = get_store()
+    meta = store.network_meta(tenant(), name)
     if request.if_none_match.contains_weak(meta.etag):
         return Response(status=304, headers={"ETag": _etag(meta)})
     if request.accept_mimetypes.best_match(["application/json", DIMACS_MEDIA_TYPE]) == DIMACS_MEDIA_TYPE:
         # A stored network has no source, sink or supplies: it is written as a min-cost
         # flow file (which carries lower bounds and costs) with zero supplies.
-        loaded = store.load_network(cache.tenant(), name)
+        loaded = store.load_network(tenant(), name)
         response = dimacs_response(loaded.network, "min", title=f"stored network {name} v{loaded.meta.version}")
         response.headers["ETag"] = _etag(loaded.meta)
         return response
     if not include:
         return json_response(meta.as_dict(), headers={"ETag": _etag(meta)})
-    loaded = store.load_network(cache.tenant(), name)
+    loaded = store.load_network(tenant(), name)
     out = loaded.meta.as_dict()
     out.update(export_network(loaded.network))
     return json_response(out, headers={"ETag": _etag(loaded.meta)})
@@ -222,7 +223,7 @@ def _include() -> set:
 def delete_network(name: str):
     """Remove a stored network (204), optionally only if If-Match holds."""
     check_name(name)
-    cache.get_store().delete_network(cache.tenant(), name, _preconditions())
+    get_store().delete_network(tenant(), name, _preconditions())
     return Response(status=204)
 
 
@@ -241,7 +242,7 @@ def list_networks():
     after = request.args.get("after") or None
     if after is not None:
         check_name(after, "after")
-    metas = cache.get_store().list_networks(cache.tenant(), after, limit + 1)
+    metas = get_store().list_networks(tenant(), after, limit + 1)
     more = len(metas) > limit
     metas = metas[:limit]
     nxt = url_for("networks.list_networks", after=metas[-1].name, limit=limit) if more else None
@@ -272,7 +273,7 @@ def what_if(name: str, kind_name: str):
     if not isinstance(body, dict):
         raise InputError.at("", "the request body must be a JSON object")
     query = {k: v for k, v in body.items() if k != "changes"}
-    loaded = cache.get_store().load_network(cache.tenant(), name)
+    loaded = get_store().load_network(tenant(), name)
     network = apply_changes(loaded.network, body.get("changes"), key_index=loaded.key_index,
                             periods=kind.per_period_capacity)
     problem = kind.from_network(network, query, _limits())

@@ -7,8 +7,8 @@ from flask import Blueprint, current_app
 from marshmallow import Schema, fields
 
 from ..solvers import maximum_flow
-from .cache import get_store
 from .declare import json_body, ok, operation
+from .storage import get_store
 from .jsonio import json_response
 
 bp = Blueprint("ops", __name__)

@@ -8,9 +8,10 @@ from flask import Blueprint, Response, request
 
 from ..errors import NotFound
 from ..store import check_digest
-from . import cache
 from .declare import SVG_MEDIA_TYPE, header_parameter, json_body, ok, operation, path_parameter, problem, problems
 from .declare import text_body
+from .diagram import DRAWING_SUFFIX, cached_diagram
+from .storage import get_store, tenant
 
 #: The ``{digest}`` of these paths (what a solve response's ``digest`` holds).
 DIGEST = path_parameter("digest", {"type": "string", "pattern": "^sha256:[0-9a-f]{64}$"})
@@ -33,7 +34,7 @@ def get_solution(digest: str):
     The ETag hashes the stored bytes, so it changes whenever the cached answer does.
     """
     check_digest(digest)
-    value = cache.get_store().get_result(cache.tenant(), digest)
+    value = get_store().get_result(tenant(), digest)
     if value is None:
         raise NotFound(f"no cached solution for {digest}: it was never solved here or has been evicted; "
                        "solve the problem again")
@@ -52,12 +53,10 @@ def get_solution(digest: str):
            responses={"200": ok("The drawing.", text_body(SVG_MEDIA_TYPE)), **problems(400, 404, 413)})
 def get_solution_diagram(digest: str):
     """An SVG drawing of a cached answer: flows, the cut or binding arcs, potentials."""
-    from .diagram import DRAWING_SUFFIX, cached_diagram
-
     check_digest(digest)
-    store = cache.get_store()
-    value = store.get_result(cache.tenant(), digest)
-    record = store.get_result(cache.tenant(), digest + DRAWING_SUFFIX) if value is not None else None
+    store = get_store()
+    value = store.get_result(tenant(), digest)
+    record = store.get_result(tenant(), digest + DRAWING_SUFFIX) if value is not None else None
     if value is None or record is None:
         raise NotFound(f"no drawable cached solution for {digest}: solve the problem again "
                        "(diagrams are kept for max-flow and min-cost flow answers)")

@@ -1,6 +1,6 @@
 """Result cache and stored networks, on an embedded SQLite file or on Redis.
 
-No Flask here: the HTTP layer (``service.api.cache``, ``service.api.networks``) wraps it.
+No Flask here: the HTTP layer (``service.api.storage``, ``service.api.networks``) wraps it.
 
 >>> from service.store import open_store
 >>> store = open_store(data_dir="/tmp/sluice-doc")   # doctest: +SKIP

@@ -197,8 +197,9 @@ class Backend(Protocol):
         StoreUnavailable
         """
 
-    def get_alias(self, tenant: str, body_key: str) -> str | None:
-        """The digest a raw-body hash was aliased to, or ``None``.
+    def get_result_by_body(self, tenant: str, body_key: str) -> bytes | None:
+        """The cached result a raw-body hash was aliased to, or ``None`` (in one call:
+        the alias and the result it leads to, both refreshed as a hit refreshes them).
 
         Parameters
         ----------
@@ -208,7 +209,7 @@ class Backend(Protocol):
 
         Returns
         -------
-        str or None
+        bytes or None
 
         Raises
         ------

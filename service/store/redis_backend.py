@@ -42,6 +42,15 @@ log = logging.getLogger("sluice.store")
 #: Bounded retries of an optimistic write that keeps losing the race (then 409).
 MAX_WRITE_ATTEMPTS = 50
 
+#: A repeated body's cached result in one round trip: the alias (``KEYS[1]``) names the
+#: digest, and the result key is the tenant's result prefix (``ARGV[2]``) plus that digest.
+#: GETEX resets both TTLs, as two separate reads would.
+RESULT_BY_BODY = """
+local digest = redis.call('GETEX', KEYS[1], 'EX', ARGV[1])
+if not digest then return false end
+return redis.call('GETEX', ARGV[2] .. digest, 'EX', ARGV[1])
+"""
+
 
 class RedisBackend:
     """Results and networks in Redis.
@@ -73,6 +82,7 @@ class RedisBackend:
             retry=Retry(NoBackoff(), 1), health_check_interval=15,
         )
         self._policy_checked = False
+        self._result_by_body = self.client.register_script(RESULT_BY_BODY)
 
     def _key(self, tenant: str, kind: str, name: str = "") -> str:
         return f"{self.prefix}{tenant}:{kind}:{name}" if name else f"{self.prefix}{tenant}:{kind}"
@@ -159,15 +169,16 @@ class RedisBackend:
         self._call("store a result", pipe.execute)
         return True
 
-    def get_alias(self, tenant: str, body_key: str) -> str | None:
-        """The digest a raw-body hash points at, or ``None``; a hit restarts its TTL.
+    def get_result_by_body(self, tenant: str, body_key: str) -> bytes | None:
+        """The cached result a raw-body hash points at, or ``None``, in one round trip
+        (:data:`RESULT_BY_BODY`); a hit restarts the TTLs of both the alias and the result.
 
         Raises
         ------
         StoreUnavailable
         """
-        raw = self._call("read a body alias", self.client.getex, self._key(tenant, "b", body_key), ex=self.ttl)
-        return None if raw is None else raw.decode()
+        return self._call("read a result by its body", self._result_by_body,
+                          keys=[self._key(tenant, "b", body_key)], args=[self.ttl, self._key(tenant, "r") + ":"])
 
     def put_alias(self, tenant: str, body_key: str, digest: str) -> None:
         """Alias a raw-body hash to a digest, with the result TTL.

@@ -155,12 +155,32 @@ class SqliteBackend:
             conn = self._conn()
             row = conn.execute("SELECT id, used, value FROM results WHERE tenant = ? AND digest = ?",
                                (tenant, digest)).fetchone()
-            if row is None:
-                return None
-            now = time.time()
-            if now - row[1] >= self.touch_interval:
-                conn.execute("UPDATE results SET used = ? WHERE id = ?", (now, row[0]))
-            return row[2]
+            return self._touched(conn, row)
+
+    def get_result_by_body(self, tenant: str, body_key: str) -> bytes | None:
+        """The cached result a raw-body hash points at, or ``None``, in one query; a hit
+        refreshes the result's last-used time as :meth:`get_result` does.
+
+        Raises
+        ------
+        StoreUnavailable
+        """
+        with self._guard("read a result by its body"):
+            conn = self._conn()
+            # The alias leads to the result (a trigger removes an alias with its result).
+            row = conn.execute("SELECT r.id, r.used, r.value FROM aliases AS a JOIN results AS r "
+                               "ON r.tenant = a.tenant AND r.digest = a.digest WHERE a.tenant = ? AND a.body = ?",
+                               (tenant, body_key)).fetchone()
+            return self._touched(conn, row)
+
+    def _touched(self, conn, row) -> bytes | None:
+        """The value of an ``(id, used, value)`` row, its use time refreshed now and then (for the LRU)."""
+        if row is None:
+            return None
+        now = time.time()
+        if now - row[1] >= self.touch_interval:
+            conn.execute("UPDATE results SET used = ? WHERE id = ?", (now, row[0]))
+        return row[2]
 
     def put_result(self, tenant: str, digest: str, value: bytes, body_key: str | None = None) -> bool:
         """Cache a result (and its body alias), then evict old results beyond the budget.
@@ -212,18 +232,6 @@ class SqliteBackend:
                 if total <= target:
                     break
             conn.execute(f"DELETE FROM results WHERE id IN ({','.join('?' * len(doomed))})", doomed)
-
-    def get_alias(self, tenant: str, body_key: str) -> str | None:
-        """The digest a raw-body hash points at, or ``None``.
-
-        Raises
-        ------
-        StoreUnavailable
-        """
-        with self._guard("read a body alias"):
-            row = self._conn().execute("SELECT digest FROM aliases WHERE tenant = ? AND body = ?",
-                                       (tenant, body_key)).fetchone()
-            return None if row is None else row[0]
 
     def put_alias(self, tenant: str, body_key: str, digest: str) -> None:
         """Alias a raw-body hash to a digest, only while that result is still cached.

@@ -131,8 +131,7 @@ class Store:
 
     def get_result_by_body(self, tenant: str, body_key: str) -> bytes | None:
         """The result a byte-identical earlier request was answered with, if still cached."""
-        digest = self._use(self.backend.get_alias, check_tenant(tenant), body_key)
-        return None if digest is None else self._use(self.backend.get_result, tenant, digest)
+        return self._use(self.backend.get_result_by_body, check_tenant(tenant), body_key)
 
     def put_result(self, tenant: str, digest: str, value: bytes, body_key: str | None = None) -> bool:
         """Cache a result (and the body alias leading to it); False when it is too large to cache."""
