@@ -2,7 +2,8 @@
 
 from __future__ import annotations
 
-
+from service.api.explorer import EXAMPLES, SHARED_EXAMPLES
+from service.kinds import KINDS
 from tests.conftest import SCENARIOS, scenario
 
 
@@ -49,3 +50,35 @@ def test_scenario_body_is_the_file(client):
     assert r.mimetype == "text/x-dimacs" and r.get_data(as_text=True).startswith("c Invented")
     r = client.get("/v1/scenarios/no-such-thing")
     assert r.status_code == 404 and r.mimetype == "application/problem+json"
+
+
+#: The files GET /v1/scenarios served before the kinds declared their own examples
+#: (service/api/explorer.py's hard-coded list): moving the list must not change it.
+SERVED = {
+    "batch-depots", "depots-lp", "depots-lp-matrix", "depots-maxflow", "depots-maxflow-columns",
+    "depots-maxflow.dimacs", "depots-mincostflow", "depots-multicommodity", "depots-multicommodity-whole",
+    "night-pallets-expansion", "night-pallets-resilience", "vans-assignment", "verify-depots-maxflow",
+    "verify-depots-mincostflow", "xdock-night-flowovertime",
+}
+
+
+def test_the_served_files_are_the_same_as_before(client):
+    listed = [s["name"] for s in client.get("/v1/scenarios").get_json()["scenarios"]]
+    assert len(listed) == len(set(listed)) and set(listed) == SERVED
+    for name in listed:
+        assert client.get(f"/v1/scenarios/{name}").status_code == 200, name
+
+
+def test_each_kind_declares_the_examples_of_its_own_endpoints(client):
+    """A kind's ``examples`` are listed under that kind; only SHARED_EXAMPLES belong to none."""
+    listed = {s["name"]: s for s in client.get("/v1/scenarios").get_json()["scenarios"]}
+    declared = [name for kind in KINDS.values() for name in (kind.example, *kind.examples)]
+    assert len(declared) == len(set(declared)), "a file is declared by two kinds (or twice)"
+    assert set(EXAMPLES) == set(declared) | set(SHARED_EXAMPLES)
+    assert not set(SHARED_EXAMPLES) & set(declared)
+    for kind in KINDS.values():
+        for file in (kind.example, *kind.examples):
+            name = file.removesuffix(".json")
+            assert listed[name]["kind"] == kind.name, (kind.name, listed[name])
+    for file in SHARED_EXAMPLES:
+        assert listed[file.removesuffix(".json")]["kind"] is None

@@ -2,9 +2,11 @@
 
 ``GET /`` serves ``service/static/explorer.html`` (plain HTML with a little
 JavaScript, no build step); ``GET /explorer/{name}`` its script and style sheet.
-``GET /v1/scenarios`` lists the invented example files declared in :data:`EXAMPLES`
-and ``GET /v1/scenarios/{name}`` returns one of them; other files a user writes into
-``service/scenarios/`` are not served.
+``GET /v1/scenarios`` lists the invented example files in :data:`EXAMPLES` (those the
+kinds declare, :attr:`Kind.example <service.kinds.base.Kind.example>` and
+``Kind.examples``, and :data:`SHARED_EXAMPLES`) and ``GET /v1/scenarios/{name}``
+returns one of them; other files a user writes into ``service/scenarios/`` are not
+served.
 
 A scenario's kind comes from its file name: the stem's first ``-``-separated word
 that names a kind (``depots-maxflow-columns`` is a max-flow request); its endpoint is
@@ -45,12 +47,14 @@ class ScenarioListSchema(Schema):
     scenarios = fields.List(fields.Nested(ScenarioSchema))
 
 
+#: Example files that belong to no one kind, so no Kind declares them: a batch body
+#: holds items of several kinds.
+SHARED_EXAMPLES = ("batch-depots.json",)
+
 #: The example files served (a file in service/scenarios/ not named here is not): each
-#: kind's ``example`` and these bodies of other requests.
-EXAMPLES = tuple(sorted({kind.example for kind in KINDS.values()} | {
-    "batch-depots.json", "depots-lp-matrix.json", "depots-maxflow-columns.json", "depots-maxflow.dimacs",
-    "depots-multicommodity-whole.json", "verify-depots-maxflow.json", "verify-depots-mincostflow.json",
-}))
+#: kind's ``example`` and ``examples`` (its Kind declaration), and :data:`SHARED_EXAMPLES`.
+EXAMPLES = tuple(sorted({name for kind in KINDS.values() for name in (kind.example, *kind.examples)}
+                        | set(SHARED_EXAMPLES)))
 
 
 def _folder():

@@ -122,6 +122,11 @@ class Kind:
         ``for_solver_process(problem) -> Problem``: the problem without what its solve
         does not read, before it is pickled to a solver process (:func:`without_arc_keys`
         for the kinds whose solve never reads the arcs' ``key`` labels). ``None``: as is.
+    examples : tuple of str
+        File names of further scenarios under ``service/scenarios`` that are bodies for
+        this kind's endpoints (another body form, a DIMACS file, a plan to verify);
+        ``GET /v1/scenarios`` serves these and ``example``. Each file's name names the
+        kind (:mod:`service.api.explorer` reads the kind and endpoint from it).
     """
 
     name: str
@@ -140,6 +145,7 @@ class Kind:
     honours_time_limit: bool = False
     per_period_capacity: bool = False
     for_solver_process: Callable[[Problem], Problem] | None = None
+    examples: tuple[str, ...] = ()
 
     def __post_init__(self):
         if (self.query_schema is None) != (self.from_network is None):

@@ -311,4 +311,5 @@ KIND = Kind(
     size=problem_size,
     #: GLOP stops itself at its deadline and answers status "time_limit".
     honours_time_limit=True,
+    examples=("depots-lp-matrix.json",),
 )

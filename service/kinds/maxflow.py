@@ -271,4 +271,5 @@ KIND = Kind(
     verify=max_flow_plans(parse),
     size=problem_size,
     for_solver_process=without_arc_keys,
+    examples=("depots-maxflow-columns.json", "depots-maxflow.dimacs", "verify-depots-maxflow.json"),
 )

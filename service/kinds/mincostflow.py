@@ -368,4 +368,5 @@ KIND = Kind(
     verify=min_cost_plans(parse),
     size=problem_size,
     for_solver_process=without_arc_keys,
+    examples=("verify-depots-mincostflow.json",),
 )

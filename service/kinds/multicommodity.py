@@ -245,4 +245,5 @@ KIND = Kind(
     #: plan so far: status "feasible").
     honours_time_limit=True,
     for_solver_process=without_arc_keys,
+    examples=("depots-multicommodity-whole.json",),
 )
