@@ -17,7 +17,7 @@ import scipy.sparse as sp
 from scipy.optimize import Bounds, LinearConstraint, milp
 
 from service.solvers.expansion import Lanes
-from tests.references import max_flow_value
+from tests.references import max_flow_value, min_cost_flow
 
 
 def nx_values_without(n, tail, head, cap, unlimited, s, t) -> np.ndarray:
@@ -53,21 +53,20 @@ def replay(lanes: Lanes, solution) -> None:
 
 
 def nx_augmented_cost(lanes: Lanes):
-    """networkx.network_simplex on the network with an added-capacity arc per lane;
-    ``None`` when networkx finds it unfeasible."""
-    g = nx.MultiDiGraph()
-    g.add_nodes_from(range(lanes.num_nodes), demand=0)
-    g.nodes[lanes.source]["demand"] -= lanes.target
-    g.nodes[lanes.sink]["demand"] += lanes.target
+    """networkx.network_simplex (tests/references.min_cost_flow) on the network with an
+    added-capacity arc per lane; ``None`` when networkx finds it unfeasible."""
+    arcs = []
     for a in range(lanes.tail.size):
         u, v = int(lanes.tail[a]), int(lanes.head[a])
         free = lanes.unlimited is not None and lanes.unlimited[a]
-        g.add_edge(u, v, weight=0, **({} if free else {"capacity": int(lanes.capacity[a])}))
+        arcs.append((u, v, None if free else int(lanes.capacity[a]), 0))
         if lanes.widenable[a] and not free:
-            extra = {} if lanes.expand_unlimited[a] else {"capacity": int(lanes.expand_max[a])}
-            g.add_edge(u, v, weight=int(lanes.expand_cost[a]), **extra)
+            arcs.append((u, v, None if lanes.expand_unlimited[a] else int(lanes.expand_max[a]),
+                         int(lanes.expand_cost[a])))
+    supplies = {lanes.source: lanes.target}
+    supplies[lanes.sink] = supplies.get(lanes.sink, 0) - lanes.target
     try:
-        cost, _ = nx.network_simplex(g)
+        cost, _ = min_cost_flow(arcs, supplies, range(lanes.num_nodes))
     except nx.NetworkXUnfeasible:
         return None
     return cost

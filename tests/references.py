@@ -1,11 +1,19 @@
-"""The networkx max-flow reference, written once for every test that checks a value.
+"""The networkx references for max-flow and min-cost flow, written once for every test.
 
-Source: ``networkx.maximum_flow`` / ``networkx.maximum_flow_value`` (preflow-push by
+Max-flow source: ``networkx.maximum_flow`` / ``networkx.maximum_flow_value`` (preflow-push by
 default). networkx's flow functions take a ``DiGraph``, so parallel arcs are merged by
 summing their capacities, which keeps the max-flow value (a cut's capacity is the sum
 of its arcs' either way); an arc without a capacity (``None``) is unlimited, networkx's
 convention being an arc with no ``capacity`` attribute; self-loops carry no s-t flow
 and are left out.
+
+Min-cost flow source: ``networkx.network_simplex`` (:func:`min_cost_flow`,
+:func:`min_cost_flow_cost`) on a ``MultiDiGraph`` keyed by each arc's position, so
+parallel arcs stay apart and each gets its own flow back; node ``demand`` is minus the
+supply (networkx's sign). network_simplex leaves self-loops out of the simplex, so they
+are settled here, as the min-cost flow problem reads them: one of negative cost is
+filled to its capacity (its cost counted), or makes the problem unbounded when it has
+no capacity; the others carry nothing.
 """
 
 from __future__ import annotations
@@ -84,3 +92,65 @@ def max_flow(arcs, source, sink, nodes: Iterable = ()) -> tuple[float, list]:
             left[u, v] -= share
         per_arc.append(share)
     return value, per_arc
+
+
+def cost_arcs(arcs) -> list[tuple]:
+    """``(from, to, capacity, cost)`` of arcs in any form the tests write them.
+
+    ``arcs`` is an iterable of arc objects (``{"from", "to", "capacity", "cost"}``) or of
+    ``(from, to, capacity, cost)`` tuples. A missing capacity is ``None`` (no limit), a
+    missing cost 0.
+    """
+    return [(a["from"], a["to"], a.get("capacity"), a.get("cost", 0)) if isinstance(a, dict) else tuple(a)
+            for a in arcs]
+
+
+def min_cost_flow(arcs, supplies: dict, nodes: Iterable = ()) -> tuple[float, list]:
+    """A min-cost flow by ``networkx.network_simplex``: its cost and the flow on each arc, in order.
+
+    Parameters
+    ----------
+    arcs : iterable
+        See :func:`cost_arcs`; no lower bounds (a test with them transforms them away).
+    supplies : dict
+        ``{node: supply}``, positive where flow starts, negative where it is needed;
+        nodes not named have 0.
+    nodes : iterable, optional
+        Further nodes (without supply, on no arc).
+
+    Raises
+    ------
+    networkx.NetworkXUnfeasible
+        No flow meets the supplies.
+    networkx.NetworkXUnbounded
+        A cycle of unlimited arcs has negative cost (a self-loop one is found first,
+        before networkx is asked).
+    """
+    arcs = cost_arcs(arcs)
+    g = nx.MultiDiGraph()
+    g.add_nodes_from(nodes)
+    g.add_nodes_from(supplies)
+    loops = {}
+    for i, (u, v, cap, cost) in enumerate(arcs):
+        if u == v:
+            if cost < 0 and cap is None:
+                raise nx.NetworkXUnbounded(f"arc {i} is a self-loop of negative cost and no limit")
+            loops[i] = cap if cost < 0 else 0
+            continue
+        g.add_edge(u, v, key=i, weight=cost, **({} if cap is None else {"capacity": cap}))
+    for node, supply in supplies.items():
+        g.nodes[node]["demand"] = -supply
+    value, flow = nx.network_simplex(g) if len(g) else (0, {})
+    value += sum(arcs[i][3] * x for i, x in loops.items())
+    return value, [loops[i] if i in loops else flow[u][v][i] for i, (u, v, _, _) in enumerate(arcs)]
+
+
+def min_cost_flow_cost(arcs, supplies: dict, nodes: Iterable = ()):
+    """The least cost of :func:`min_cost_flow` (``networkx.network_simplex``), or the
+    string ``"infeasible"`` or ``"unbounded"``."""
+    try:
+        return min_cost_flow(arcs, supplies, nodes)[0]
+    except nx.NetworkXUnfeasible:
+        return "infeasible"
+    except nx.NetworkXUnbounded:
+        return "unbounded"

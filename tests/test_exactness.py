@@ -17,7 +17,6 @@ import math
 from decimal import Decimal
 from fractions import Fraction
 
-import networkx as nx
 import numpy as np
 import orjson
 import pytest
@@ -29,7 +28,7 @@ from service.model.fastarcs import decode_arcs_body
 from service.kinds import KINDS
 from service.kinds.base import Limits
 from tests.http import post
-from tests.references import max_flow_value
+from tests.references import max_flow_value, min_cost_flow_cost
 
 SETTINGS = settings(max_examples=60, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
 #: Every decimal drawn here is an integer number of 1e-9.
@@ -157,22 +156,12 @@ def cost_networks(draw):
 
 
 def reference_min_cost(n, arcs, supply, *, with_costs=True):
-    """Exact cost (Fraction), "infeasible" or "unbounded": network_simplex on Python ints."""
-    g = nx.MultiDiGraph()
-    for i in range(n):
-        g.add_node(i, demand=-int(exact(supply[i]) * UNIT))
-    for a, b, capacity, cost in arcs:
-        attrs = {"weight": int(exact(cost) * UNIT) if with_costs else 0}
-        if capacity is not None:
-            attrs["capacity"] = int(exact(capacity) * UNIT)
-        g.add_edge(a, b, **attrs)
-    try:
-        value, _ = nx.network_simplex(g)
-    except nx.NetworkXUnfeasible:
-        return "infeasible"
-    except nx.NetworkXUnbounded:
-        return "unbounded"
-    return Fraction(value, UNIT * UNIT)
+    """Exact cost (Fraction), "infeasible" or "unbounded": networkx.network_simplex on
+    Python ints (tests/references.min_cost_flow_cost), every figure scaled by UNIT."""
+    scaled = [(a, b, None if capacity is None else int(exact(capacity) * UNIT),
+               int(exact(cost) * UNIT) if with_costs else 0) for a, b, capacity, cost in arcs]
+    value = min_cost_flow_cost(scaled, {i: int(exact(supply[i]) * UNIT) for i in range(n)}, range(n))
+    return value if isinstance(value, str) else Fraction(value, UNIT * UNIT)
 
 
 def as_value(expected: Fraction):

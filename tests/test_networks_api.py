@@ -8,7 +8,7 @@ from service.kinds import KINDS
 from tests.conftest import scenario
 from tests.flowdata import depot_arcs, with_changes
 from tests.http import send
-from tests.references import max_flow_value
+from tests.references import max_flow_value, min_cost_flow_cost
 
 DEPOTS = scenario("depots-maxflow")
 SOURCE, SINK = DEPOTS["source"], DEPOTS["sink"]
@@ -206,8 +206,6 @@ def test_max_flow_refuses_a_stored_network_with_lower_bounds(store_client):
                     reason="the mincostflow kind (issue 3) is not registered on this branch yet")
 def test_min_cost_what_if_matches_networkx(store_client):
     """The mincostflow query takes supplies as a list of {id, supply} (integer ids cannot be JSON keys)."""
-    import networkx as nx
-
     arcs = [{"from": "depot-n", "to": "xdock-m", "capacity": 30, "cost": 2, "key": "lane-1"},
             {"from": "depot-n", "to": "xdock-w", "capacity": 30, "cost": 5, "key": "lane-2"},
             {"from": "xdock-m", "to": "store-s", "capacity": 20, "cost": 1, "key": "lane-3"},
@@ -218,10 +216,5 @@ def test_min_cost_what_if_matches_networkx(store_client):
     query = {"supplies": [{"id": k, "supply": v} for k, v in supplies.items()], "changes": changes}
     r = send(store_client, "POST", "/v1/networks/costed/mincostflow", query)
     assert r.status_code == 200, r.get_json()
-    g = nx.DiGraph()
-    for a in with_changes(arcs, changes):
-        g.add_edge(a["from"], a["to"], capacity=a["capacity"], weight=a["cost"])
-    for node, s in supplies.items():
-        g.nodes[node]["demand"] = -s
-    # Reference: networkx.min_cost_flow_cost (network simplex).
-    assert r.get_json()["cost"] == nx.min_cost_flow_cost(g)
+    # Reference: networkx.network_simplex (tests/references.min_cost_flow_cost).
+    assert r.get_json()["cost"] == min_cost_flow_cost(with_changes(arcs, changes), supplies)

@@ -10,7 +10,6 @@ residual network has no negative-cost cycle (negative-cycle optimality condition
 from __future__ import annotations
 
 
-import networkx as nx
 import numpy as np
 import pytest
 from scipy.optimize import linprog
@@ -23,7 +22,7 @@ from service.solvers.verify import (
 )
 from tests.checkers import assert_capacities, assert_conservation, assert_max_flow
 from tests.conftest import scenario
-from tests.references import max_flow
+from tests.references import max_flow, min_cost_flow
 
 DEPOTS = scenario("depots-maxflow")
 PLAN = scenario("verify-depots-maxflow")
@@ -300,13 +299,9 @@ def test_networkx_simplex_optimum_is_reported_optimal(seed):
     supply = np.zeros(n, dtype=np.int64)
     np.add.at(supply, tail, seed_flow)
     np.subtract.at(supply, head, seed_flow)
-    g = nx.DiGraph()
-    for v in range(n):
-        g.add_node(v, demand=-int(supply[v]))  # networkx: negative demand = supply
-    for a, b, c, w in zip(tail.tolist(), head.tolist(), cap.tolist(), cost.tolist()):
-        g.add_edge(a, b, capacity=c, weight=w)
-    best_cost, flow = nx.network_simplex(g)
-    flows = np.array([flow[a][b] for a, b in zip(tail.tolist(), head.tolist())])
+    best_cost, flow = min_cost_flow(zip(tail.tolist(), head.tolist(), cap.tolist(), cost.tolist()),
+                                    dict(enumerate(supply.tolist())), range(n))
+    flows = np.array(flow)
     v = verify_min_cost_flow(n, tail, head, cap, None, cost, None, supply, flows)
     assert v.feasible and v.optimal and v.objective == best_cost
 
