@@ -11,8 +11,10 @@ from pathlib import Path
 
 import pytest
 
-from service.kinds import KINDS
+from service.deadline import Deadline
+from service.kinds import KINDS, Limits
 from service.kinds.base import Kind
+from tests.conftest import scenario
 
 ROOT = Path(__file__).resolve().parent.parent
 
@@ -129,51 +131,87 @@ def test_a_new_kind_needs_only_its_declaration_in_the_registry():
     assert out["what_if"] == 404  # no from_network declared: no what-if route
 
 
-# A throwaway kind with plan checks and a drawer: both are fields of its declaration,
-# and the verify route, the diagram route and GET /v1/kinds follow from them.
-CHECKED_AND_DRAWN = textwrap.dedent('''
+# A throwaway kind declaring every capability a Kind has: what-ifs on stored networks,
+# DIMACS bodies, a drawer, plan checks, a size, a time-limit grace, what a solver process
+# is sent and extra example files. It is built from the max-flow parts (a real new kind's
+# module would import its solver the same way) and registered before the HTTP layer is
+# imported, in a fresh interpreter; every route, spec entry and listing below must follow
+# from that one declaration, with no other file of the service changed.
+EVERY_CAPABILITY = textwrap.dedent('''
     import json, sys, tempfile
-    from dataclasses import replace
     from service.drawing.maxflow import MaxFlowDrawer
-    from service.kinds import KINDS
+    from service.kinds import KINDS, maxflow
+    from service.kinds.base import Kind, problem_size, without_arc_keys
     from service.kinds.verify import max_flow_plans
 
     class LanesDrawer(MaxFlowDrawer):
         kind = "lanes"
 
-    maxflow = KINDS["maxflow"]
-    KINDS["lanes"] = replace(maxflow, name="lanes", summary="Max flow again (a throwaway kind of a test)",
-                             query_schema=None, from_network=None, dimacs=None, drawer=LanesDrawer(),
-                             verify=max_flow_plans(maxflow.parse))
+    def subclass(schema, name):  # the spec names schemas by class: each kind has its own
+        return type(name, (schema,), {})
+
+    KINDS["lanes"] = Kind(
+        name="lanes", summary="Max flow again (a throwaway kind of a test)",
+        request_schema=subclass(maxflow.MaxFlowRequest, "LanesRequest"),
+        response_schema=subclass(maxflow.MaxFlowResponse, "LanesResponse"),
+        example="depots-maxflow.json", parse=maxflow.parse, solve=maxflow.solve,
+        query_schema=subclass(maxflow.MaxFlowQuery, "LanesQuery"), from_network=maxflow.from_network,
+        dimacs="max", drawer=LanesDrawer(), verify=max_flow_plans(maxflow.parse), size=problem_size,
+        honours_time_limit=True, for_solver_process=without_arc_keys, examples=("depots-maxflow.dimacs",))
 
     from service.api import create_app
+    from service.api.spec import build_spec
 
     client = create_app({"data_dir": tempfile.mkdtemp()}).test_client()
     body = json.load(open("service/scenarios/depots-maxflow.json"))
-    flows = client.post("/v1/lanes", json=body).get_json()["flows"]
+    dimacs = open("service/scenarios/depots-maxflow.dimacs").read()
+    solved = client.post("/v1/lanes", json=body).get_json()
     svg = client.post("/v1/diagram.svg", json={"kind": "lanes", "problem": body})
+    stored = client.put("/v1/networks/lanes-demo", json={"nodes": body.get("nodes"), "arcs": body["arcs"]})
+    question = {"source": body["source"], "sink": body["sink"]}
+    spec = build_spec()
+    paths = spec["paths"]
     listed = {k["name"]: k["capabilities"] for k in client.get("/v1/kinds").get_json()["kinds"]}
     out = {
-        "verified": client.post("/v1/verify/lanes", json={"problem": body, "flows": flows}).get_json(),
+        "value": solved["value"],
+        "dimacs": client.post("/v1/lanes", data=dimacs, content_type="text/x-dimacs").get_json().get("value"),
+        "what_if": [stored.status_code, client.post("/v1/networks/lanes-demo/lanes", json=question).get_json().get("value")],
+        "verified": client.post("/v1/verify/lanes", json={"problem": body, "flows": solved["flows"]}).get_json(),
         "svg": [svg.status_code, svg.mimetype, 'data-kind="lanes"' in svg.get_data(as_text=True)],
         "capabilities": listed["lanes"],
         "refused": client.post("/v1/verify/assignment", json={}).get_json()["detail"],
+        "batch": client.post("/v1/batch", json={"items": [{"kind": "lanes", "problem": body}]}).get_json()["results"][0].get("value"),
+        "job": client.post("/v1/jobs", json={"kind": "lanes", "problem": body}).status_code,
+        "scenarios": sorted(s["name"] for s in client.get("/v1/scenarios").get_json()["scenarios"]),
+        "spec": {
+            "solve": "text/x-dimacs" in paths["/v1/lanes"]["post"]["requestBody"]["content"],
+            "what_if": paths["/v1/networks/{name}/lanes"]["post"]["operationId"],
+            "verify": "lanes" in paths["/v1/verify/{kind}"]["post"]["parameters"][0]["schema"]["enum"],
+            "jobs": "lanes" in spec["components"]["schemas"]["JobRequest"]["properties"]["kind"]["enum"],
+        },
     }
     json.dump(out, sys.stdout)
 ''')
 
 
-def test_plan_checks_and_diagrams_follow_from_the_declaration():
-    run = subprocess.run([sys.executable, "-c", CHECKED_AND_DRAWN], cwd=ROOT, capture_output=True, text=True,
-                         timeout=120)
+def test_a_kind_with_every_capability_needs_only_its_declaration():
+    run = subprocess.run([sys.executable, "-c", EVERY_CAPABILITY], cwd=ROOT, capture_output=True, text=True,
+                         timeout=180)
     assert run.returncode == 0, run.stderr[-3000:]
     out = json.loads(run.stdout.strip().splitlines()[-1])
+    direct = KINDS["maxflow"].solve(KINDS["maxflow"].parse(scenario("depots-maxflow.json"), Limits()), Deadline.after(30))
+    assert out["value"] == direct["value"] and out["batch"] == direct["value"]
+    assert out["dimacs"] > 0 and out["what_if"] == [201, direct["value"]]
     verified = out["verified"]
     assert verified["feasible"] and verified["optimal"] and verified["certificate"]["proof"] == "cut"
     assert verified["cut"]["capacity"] == verified["value"]  # max-flow = min-cut
     assert out["svg"] == [200, "image/svg+xml", True]
-    assert out["capabilities"]["verify"] is True and out["capabilities"]["diagram"] is True
+    assert out["capabilities"] == {"what_if": True, "dimacs": "max", "diagram": True, "verify": True,
+                                   "jobs": True, "batch": True}
     assert out["refused"] == "plans can be verified for maxflow, mincostflow, lanes; not for 'assignment'"
+    assert out["job"] == 202
+    assert "depots-maxflow.dimacs" in out["scenarios"]
+    assert out["spec"] == {"solve": True, "what_if": "what_if_lanes", "verify": True, "jobs": True}
 
 
 def test_limits_take_their_defaults_and_values_from_the_settings(monkeypatch):
