@@ -143,6 +143,10 @@ class Settings:
     max_arcs: int = 5_000_000
     max_nodes: int = 5_000_000
     max_commodities: int = 1_000
+    #: Flows over time: horizon x (arcs + nodes), the size of the time-expanded network.
+    #: 5M is about four times a 10,000-lane network over 100 periods (a few seconds, a few
+    #: hundred MB); larger ones are refused with a 413 naming ``horizon``.
+    max_expanded: int = 5_000_000
     max_batch_items: int = 1000  # items in one POST /v1/batch
     time_limit: float = 30.0  # seconds, a synchronous solve (hard: the solving process is killed)
     api_keys: tuple = ()  # of ApiKey
@@ -196,6 +200,7 @@ class Settings:
             max_arcs=_int("SLUICE_MAX_ARCS", cls.max_arcs),
             max_nodes=_int("SLUICE_MAX_NODES", cls.max_nodes),
             max_commodities=_int("SLUICE_MAX_COMMODITIES", cls.max_commodities),
+            max_expanded=_int("SLUICE_MAX_EXPANDED", cls.max_expanded),
             max_batch_items=_int("SLUICE_MAX_BATCH_ITEMS", cls.max_batch_items),
             time_limit=_float("SLUICE_TIME_LIMIT", cls.time_limit),
             api_keys=_api_keys_from_env(),

@@ -14,6 +14,9 @@ import json
 import numpy as np
 import pytest
 
+from service.api import create_app
+from service.config import Settings
+from service.kinds import Limits
 from service.solvers.timeexpanded import Schedule, TimedNetwork
 from tests.conftest import scenario
 from tests.http import finished_job, pointers, post
@@ -197,6 +200,19 @@ def test_an_expanded_size_over_the_limit_is_a_413_naming_horizon(client):
     # Even before a capacity list of that length is read.
     r = post(client, "/v1/flowovertime", {**SCENARIO, "horizon": 2_000_000})
     assert r.status_code == 413 and pointers(r) == ["/horizon"]
+
+
+def test_the_expanded_size_limit_is_a_setting(tmp_path, monkeypatch):
+    """SLUICE_MAX_EXPANDED reaches the parse limit: the scenario fits the default, not a tiny one."""
+    monkeypatch.setenv("SLUICE_MAX_EXPANDED", "10")
+    settings = Settings.from_env()
+    assert settings.max_expanded == 10 and Limits.from_settings(settings).max_expanded == 10
+    small = create_app({"data_dir": str(tmp_path / "data")}).test_client()  # the variable is read
+    r = post(small, "/v1/flowovertime", SCENARIO)
+    assert r.status_code == 413 and pointers(r) == ["/horizon"]
+    monkeypatch.delenv("SLUICE_MAX_EXPANDED")
+    assert post(create_app({"data_dir": str(tmp_path / "other")}).test_client(), "/v1/flowovertime",
+                SCENARIO).status_code == 200
 
 
 def test_a_batch_item_answers_as_the_single_call_and_a_bad_one_fails_alone(client):

@@ -144,8 +144,8 @@ With API keys configured, every `/v1` request needs `Authorization: Bearer <key>
 tenant only; another tenant's job answers 404. Without keys the service runs open.
 Each tenant has a request budget (`SLUICE_RATE_LIMIT`, default 600/minute): 429 with
 `Retry-After` beyond it. Size limits (`SLUICE_MAX_BODY_MB`, `SLUICE_MAX_ARCS`,
-`SLUICE_MAX_NODES`, `SLUICE_MAX_COMMODITIES`, `SLUICE_MAX_BATCH_ITEMS`) answer 413 with
-a pointer to the field.
+`SLUICE_MAX_NODES`, `SLUICE_MAX_COMMODITIES`, `SLUICE_MAX_BATCH_ITEMS`,
+`SLUICE_MAX_EXPANDED`) answer 413 with a pointer to the field.
 
 ## Operations
 

@@ -35,16 +35,13 @@ class Limits:
     max_arcs: int = Settings.max_arcs
     max_nodes: int = Settings.max_nodes
     max_commodities: int = Settings.max_commodities
-    #: Flows over time: horizon x (arcs + nodes), the size of the time-expanded network.
-    #: 5M is about four times a 10,000-lane network over 100 periods (a few seconds, a few
-    #: hundred MB); larger ones are refused with a 413 naming ``horizon``.
-    max_expanded: int = 5_000_000
+    max_expanded: int = Settings.max_expanded
 
     @classmethod
     def from_settings(cls, settings: Settings) -> "Limits":
         """The limits a service with ``settings`` applies."""
         return cls(max_arcs=settings.max_arcs, max_nodes=settings.max_nodes,
-                   max_commodities=settings.max_commodities)
+                   max_commodities=settings.max_commodities, max_expanded=settings.max_expanded)
 
 
 class Problem(Protocol):
