@@ -93,10 +93,16 @@ class _Watch:
         return max(0.05, min(1.0, self.limits.idle_timeout / 2))
 
     def progress(self, n: int) -> None:
+        """Count ``n`` more bytes of the body, received now."""
         self.received += n
         self.last = monotonic()
 
     def check(self) -> None:
+        """Timer callback: cancel the reading task when the body stalls or crawls, else check again in a tick.
+
+        Stalled: no byte for ``idle_timeout``. Crawling: once ``idle_timeout`` has passed, fewer bytes
+        than ``min_rate`` per second on average since the start. The reason is kept in ``expired``.
+        """
         now, limits = monotonic(), self.limits
         if now - self.last > limits.idle_timeout:
             self.expired = f"no part of the body arrived for {limits.idle_timeout:g} s"
@@ -109,6 +115,7 @@ class _Watch:
             self.handle = self.loop.call_later(self._tick(), self.check)
 
     def stop(self) -> None:
+        """Cancel the pending check (the read is over)."""
         self.handle.cancel()
 
 
@@ -282,6 +289,11 @@ class BufferedWSGI:
         answer = {}
 
         def start_response(status, headers, exc_info=None):
+            """The WSGI ``start_response``: keep the status code and the headers.
+
+            Nothing is sent before the app returns, so a later call (with ``exc_info``) simply replaces
+            them. The ``write`` callable it returns appends to the body parts.
+            """
             answer["status"], answer["headers"] = int(status.split(" ", 1)[0]), headers
             return parts.append
 
@@ -309,11 +321,15 @@ class _StepsReader:
         return self._view
 
     def read(self, size: int = -1) -> bytes:
+        """Up to ``size`` bytes from the current position; all the rest when ``size`` is negative or None."""
         end = len(self._data) if size is None or size < 0 else min(len(self._data), self._at + size)
         out, self._at = bytes(self._data[self._at:end]), end
         return out
 
     def readline(self, size: int = -1) -> bytes:
+        """The next line, its newline included, from the current position: at most ``size`` bytes when
+        ``size`` is not negative or None.
+        """
         rest = self._data[self._at:] if size is None or size < 0 else self._data[self._at:self._at + size]
         cut = bytes(rest).find(b"\n")
         return self.read(len(rest) if cut < 0 else cut + 1)

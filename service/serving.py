@@ -22,10 +22,28 @@ _METRICS_DIR_OWNED = "SLUICE_METRICS_DIR_OWNED"
 
 
 def default_workers() -> int:
+    """One worker per core this process may run on (its CPU affinity where known), at least 1."""
     return max(1, len(os.sched_getaffinity(0)) if hasattr(os, "sched_getaffinity") else (os.cpu_count() or 1))
 
 
 def gunicorn_defaults(host: str = "127.0.0.1", port: int = 8000, workers: int | None = None) -> dict:
+    """The gunicorn settings ``sluice serve`` runs with, its server hooks included.
+
+    Parameters
+    ----------
+    host : str
+    port : int
+        Where to listen; ``SLUICE_METRICS=port:N`` adds a second bind, ``host:N``.
+    workers : int, optional
+        Worker processes; :func:`default_workers` when not given.
+
+    Returns
+    -------
+    dict
+        Settings by gunicorn name. The timeouts follow ``SLUICE_TIME_LIMIT``: a worker silent for
+        three times it (at least 60 s) is replaced, and on SIGTERM requests in flight get it plus
+        5 s (at least 30 s).
+    """
     from .config import Settings
 
     time_limit = float(os.environ.get("SLUICE_TIME_LIMIT") or Settings.time_limit)  # the one default
@@ -110,6 +128,9 @@ def on_starting(server) -> None:
 
 
 def post_fork(server, worker) -> None:
+    """In each new worker, before its threads start: fewer cyclic-GC passes, and freed memory
+    retained for reuse (:func:`service.memory.retain_freed_memory`).
+    """
     # Large problems allocate millions of short-lived acyclic objects; fewer
     # cyclic-GC passes keep the decode fast. Reference counting frees them as usual.
     gc.set_threshold(50_000, 20, 20)
@@ -161,12 +182,18 @@ def child_exit(server, worker) -> None:
 
 
 def on_exit(server) -> None:
+    """When the master exits: delete the metrics folder if :func:`on_starting` made it."""
     owned = os.environ.get(_METRICS_DIR_OWNED)
     if owned and owned == os.environ.get("PROMETHEUS_MULTIPROC_DIR"):
         shutil.rmtree(owned, ignore_errors=True)
 
 
 def when_ready(server) -> None:
+    """When the master is ready: log what an operator should know of the configuration.
+
+    A warning when the service runs open, or when ``/metrics`` is open beside API keys; then the
+    data folder, Redis, the time limits, threads and the body and queue limits.
+    """
     from .config import Settings
 
     settings = Settings.from_env()

@@ -38,6 +38,14 @@ def _enforce_body_limit():
 
 def _shed_late(queue_wait: float):
     def shed():
+        """Refuse (503) a request the intake front marked as shed, or one that waited longer than
+        ``queue_wait`` for a thread (the probes excepted), before its body is decoded.
+
+        Raises
+        ------
+        Unavailable
+            With a ``Retry-After`` of about ``queue_wait``.
+        """
         # service.intake says how long the request waited for a thread (past the
         # admission wait it would only add to the queue's length), or that it found
         # every slot for large bodies busy: either way it is refused, undecoded.

@@ -79,10 +79,37 @@ def _bearer_token() -> str | None:
 
 
 def init_app(app: Flask, keys: tuple[ApiKey, ...]) -> KeyRing:
+    """Attach bearer-key authentication to ``app`` (call after CORS, before the rate limit).
+
+    Parameters
+    ----------
+    app : Flask
+    keys : tuple of ApiKey
+        The configured keys; none runs the service open (every request is tenant ``public``).
+
+    Returns
+    -------
+    KeyRing
+        The keys as digests, also kept in ``app.extensions["sluice.auth"]``.
+
+    Raises
+    ------
+    ValueError
+        A key whose tenant name the store cannot hold.
+    """
     ring = KeyRing(keys)
 
     @app.before_request
     def authenticate():
+        """Set ``g.tenant`` for this request; on ``/v1`` paths, when keys are configured, from its bearer key.
+
+        Raises
+        ------
+        Unauthorized
+            401: no credentials, another scheme, or an unknown key (``WWW-Authenticate`` says which).
+        Forbidden
+            403: a ``read`` key on a method other than GET, HEAD or OPTIONS.
+        """
         g.tenant = PUBLIC_TENANT
         if not ring or not request.path.startswith("/v1"):
             return None

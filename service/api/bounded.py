@@ -64,6 +64,32 @@ class BoundedSolver:
         return Deadline.after(budget_seconds(problem.options, self.time_limit))
 
     def solve(self, kind: Kind, problem, deadline: Deadline | None = None) -> dict:
+        """Solve ``problem`` on this thread when it is small, else in a pooled solver process killed at the deadline.
+
+        Small means a size (:func:`problem_size`) of at most ``inline_max_arcs``; a problem whose kind
+        declares no size always goes to a solver process.
+
+        Parameters
+        ----------
+        kind : Kind
+        problem
+            The problem as the kind parsed it.
+        deadline : Deadline, optional
+            The time budget; None makes this solve's own (:meth:`deadline`).
+
+        Returns
+        -------
+        dict
+            The kind's response document; the solver time is observed in ``sluice_solve_seconds``.
+
+        Raises
+        ------
+        SolveTimeout
+            504: the solve ran past the deadline and its process was stopped.
+        Unavailable
+            503: every solver process stayed busy (waited for at most ``queue_wait``), or the
+            process stopped unexpectedly.
+        """
         if deadline is None:
             deadline = self.deadline(problem)
         size = problem_size(kind, problem)
@@ -106,6 +132,7 @@ def retry_after(wait: float) -> int:
 
 
 def init_app(app: Flask, settings: Settings) -> BoundedSolver:
+    """Make this app's :class:`BoundedSolver`, kept in ``app.extensions`` for :func:`bounded_solve`."""
     solver = BoundedSolver(settings)
     app.extensions[EXTENSION] = solver
     return solver

@@ -30,6 +30,9 @@ def init_app(app: Flask, origins: tuple[str, ...]) -> None:
     allowed = frozenset(origins)
 
     def allow(response: Response, origin: str) -> None:
+        """Let ``origin`` read ``response``: ``*`` when any origin is allowed, else the origin itself
+        with credentials allowed and ``Vary: Origin`` (the standard forbids ``*`` with credentials).
+        """
         if any_origin:
             response.headers["Access-Control-Allow-Origin"] = "*"
         else:
@@ -38,11 +41,17 @@ def init_app(app: Flask, origins: tuple[str, ...]) -> None:
             response.vary.add("Origin")
 
     def origin_allowed() -> str | None:
+        """The request's ``Origin`` when it is an allowed one, else None (no ``Origin`` header, or another origin)."""
         origin = request.headers.get("Origin")
         return origin if origin and (any_origin or origin in allowed) else None
 
     @app.before_request
     def preflight():
+        """Answer a CORS preflight 204 before authentication (a browser sends it without ``Authorization``).
+
+        An allowed origin gets the allowed methods, request headers and max age; any other origin a
+        bare 204 that grants nothing. Any other request passes on (None).
+        """
         if request.method != "OPTIONS" or "Access-Control-Request-Method" not in request.headers:
             return None
         response = Response(status=204)
@@ -57,6 +66,10 @@ def init_app(app: Flask, origins: tuple[str, ...]) -> None:
 
     @app.after_request
     def expose(response: Response) -> Response:
+        """Add the CORS headers to an actual response (errors included) for an allowed origin.
+
+        ``Vary: Origin`` is set whenever the answer depends on the origin: unless every origin is allowed.
+        """
         origin = origin_allowed()
         if origin is not None and "Access-Control-Allow-Origin" not in response.headers:
             allow(response, origin)

@@ -96,6 +96,11 @@ def timed_record(problem) -> dict:
 
 
 def drawn_timed(record: dict) -> DrawnNetwork:
+    """The flow-over-time picture of a record made by :func:`timed_record`.
+
+    Each lane is drawn with its largest capacity over the periods and keeps its capacities per
+    period; a null capacity (no limit) becomes infinity.
+    """
     capacity = np.array([[np.inf if c is None else c for c in row] for row in record["capacity"]],
                         dtype=np.float64).reshape(len(record["tail"]), -1)
     return DrawnNetwork(record["ids"], np.asarray(record["tail"], dtype=np.int64),
@@ -152,6 +157,7 @@ def plain(result: dict) -> dict:
 
 
 def svg_response(svg: str) -> Response:
+    """An SVG drawing as a 200 response with ``Cache-Control: no-store``."""
     return Response(svg, mimetype=SVG_MEDIA_TYPE, headers={"Cache-Control": "no-store"})
 
 

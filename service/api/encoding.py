@@ -124,11 +124,28 @@ def _strip_suffix_from_preconditions() -> None:
 
 
 def init_app(app: Flask, min_bytes: int) -> None:
+    """Attach response compression to ``app`` (see the module doc).
+
+    Before each request the ``-gzip`` suffix is taken off the tags of ``If-Match`` and
+    ``If-None-Match``; after it, :func:`compress` runs.
+
+    Parameters
+    ----------
+    app : Flask
+    min_bytes : int
+        The smallest response body compressed (``SLUICE_GZIP_MIN_BYTES``).
+    """
     app.before_request(_strip_suffix_from_preconditions)
     starts = app.extensions["sluice.gzip_starts"] = StableStarts()
 
     @app.after_request
     def compress(response: Response) -> Response:
+        """Gzip a textual response of at least ``min_bytes`` when the client accepts gzip, and suffix its strong ETag.
+
+        A response of that size says ``Vary: Accept-Encoding`` whether compressed or not. One with a
+        stable start (:func:`mark_stable_start`) reuses the kept compressor state after it. A 304 to
+        a request that sent a gzip tag carries the tag with its suffix.
+        """
         if response.status_code == 304 and request.environ.get("sluice.gzip_tags"):
             _tag_for_gzip(response)  # the client holds the gzip representation
             return response

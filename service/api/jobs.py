@@ -67,6 +67,7 @@ _NO_JOB = problem(404, "No such job for this tenant.")
 
 
 def backend():
+    """The job backend :func:`init_app` opened for this app (SQLite, or RQ on Redis when configured)."""
     return current_app.extensions[EXTENSION]
 
 
@@ -192,6 +193,21 @@ def cancel_job(job_id: str):
 
 
 def init_app(app: Flask, settings: Settings, limits: Limits):
+    """Open the job backend the settings ask for, keep it in ``app.extensions`` and count its finished jobs.
+
+    Parameters
+    ----------
+    app : Flask
+    settings : Settings
+        Where jobs live (Redis when ``SLUICE_REDIS_URL`` is set, else SQLite in the data folder),
+        their lease, attempts and time to live.
+    limits : Limits
+        The size limits a job's problem is parsed with.
+
+    Returns
+    -------
+    The backend (:func:`backend` in a request).
+    """
     jobs = open_jobs(settings, limits)
     jobs.on_finish = job_finished
     app.extensions[EXTENSION] = jobs

@@ -27,18 +27,35 @@ class OrjsonProvider(JSONProvider):
     """Flask JSON provider backed by orjson (numpy arrays serialise directly)."""
 
     def dumps(self, obj, **kwargs) -> str:
+        """``obj`` as JSON text by orjson (numpy arrays, non-string keys); Flask's keyword options are ignored."""
         return orjson.dumps(obj, option=DUMP_OPTIONS).decode()
 
     def loads(self, s, **kwargs):
+        """The value of JSON text or bytes, by orjson; keyword options are ignored."""
         return orjson.loads(s)
 
     def response(self, *args, **kwargs) -> Response:
+        """A JSON response, as :func:`flask.jsonify` takes its values.
+
+        One positional value is serialised as is, several as an array, keyword values as an object.
+        """
         obj = args[0] if len(args) == 1 else (args or kwargs)
         return Response(orjson.dumps(obj, option=DUMP_OPTIONS), mimetype="application/json")
 
 
 def json_response(obj, status: int = 200, *, headers: dict | None = None,
                   mimetype: str = "application/json") -> Response:
+    """``obj`` serialised by orjson (numpy arrays directly) as a Flask response.
+
+    Parameters
+    ----------
+    obj
+        Any value orjson serialises with :data:`DUMP_OPTIONS`.
+    status : int
+    headers : dict, optional
+    mimetype : str
+        ``application/problem+json`` for a problem document, for instance.
+    """
     return Response(orjson.dumps(obj, option=DUMP_OPTIONS), status=status, headers=headers, mimetype=mimetype)
 
 
@@ -73,12 +90,14 @@ class _ReceivedBody:
         self.steps, self._fingerprint, self._raw = steps, fingerprint, None
 
     def raw(self) -> bytes:
+        """The whole body as one bytes object, joined on the first call (the steps then hold only it)."""
         if self._raw is None:
             self._raw = self.steps[0] if len(self.steps) == 1 else b"".join(self.steps)
             self.steps = [self._raw]
         return self._raw
 
     def fingerprint(self) -> bytes:
+        """The body's :func:`body_fingerprint`: the one taken while it arrived, else computed now."""
         if self._fingerprint is None:
             # Step by step: a cache hit never needs the steps joined (a copy of the body).
             self._fingerprint = body_fingerprint(*self.steps)
@@ -198,6 +217,7 @@ def _read_hashing(stream, length: int) -> tuple[list[bytes], bytes]:
     hasher, todo = blake3(), queue.SimpleQueue()
 
     def hash_steps() -> None:
+        """On the helper thread: feed each step put on the queue to the hasher, until None."""
         while (step := todo.get()) is not None:
             hasher.update(step)
 

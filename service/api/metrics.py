@@ -65,6 +65,7 @@ class _QueueDepth:
         self.jobs = jobs
 
     def collect(self):
+        """Yield the ``sluice_job_queue_depth`` gauge, read now; -1 when the backend fails, so the scrape does not."""
         depth = GaugeMetricFamily("sluice_job_queue_depth", "Jobs waiting for a worker (queued state).")
         try:
             value = self.jobs.queue_depth()
@@ -106,6 +107,7 @@ class MetricsAccess:
             if settings.metrics == "key" and settings.metrics_key else None
 
     def on_metrics_port(self) -> bool:
+        """Whether the current request came in on the metrics port (``SLUICE_METRICS=port:N``); False without one."""
         return self.port is not None and request.environ.get("SERVER_PORT") == str(self.port)
 
     def check(self) -> None:
@@ -144,11 +146,22 @@ def metrics():
 
 
 def route_label() -> str:
+    """The route label of the current request: its URL rule (e.g. ``/v1/jobs/<job_id>``), or ``unmatched``."""
     # The URL rule, not the path: ids in paths would make one series per job.
     return request.url_rule.rule if request.url_rule is not None else "unmatched"
 
 
 def init_app(app: Flask, settings: Settings) -> None:
+    """Count and time every response of ``app``, and export the series with known labels at 0.
+
+    With ``SLUICE_METRICS=port:N``, every path on port N but ``/metrics`` is a 404.
+
+    Parameters
+    ----------
+    app : Flask
+    settings : Settings
+        Who may read ``/metrics`` (kept as ``app.extensions["sluice.metrics"]``).
+    """
     access = app.extensions["sluice.metrics"] = MetricsAccess(settings)
     export_known_series(KINDS)
 
@@ -169,4 +182,14 @@ def init_app(app: Flask, settings: Settings) -> None:
 
 
 def job_finished(kind: str, state: str, seconds: float) -> None:
+    """Count a finished job in ``sluice_jobs_total`` (the job backends' ``on_finish`` hook).
+
+    Parameters
+    ----------
+    kind : str
+    state : str
+        The job's final state, the event label.
+    seconds : float
+        How long the job ran; not recorded.
+    """
     JOB_EVENTS.labels(kind, state).inc()

@@ -123,6 +123,9 @@ def _etag(meta: NetworkMeta) -> str:
 def _preconditions() -> Preconditions:
     """If-Match / If-None-Match of a write; If-Match uses strong comparison (RFC 9110 13.1.1)."""
     def parse(header: str, etags):
+        """The tags of a precondition header: None when it is absent, ``"*"`` for any version, else the
+        set of its strong tags (weak ones are left out).
+        """
         if header not in request.headers:
             return None
         return "*" if etags.star_tag else frozenset(etags.as_set(include_weak=False))

@@ -50,13 +50,16 @@ def init_app(app: Flask, settings: Settings, keyed: bool) -> Limiter | None:
         return None
 
     def limit() -> str:
+        """The current tenant's limit (its own, else the default), or "" when it has none."""
         value = own.get(current_tenant(), default)
         return "" if _is_off(value) else value  # "" = no limit for this tenant
 
     def exempt() -> bool:
+        """Whether the current request is outside every limit: not under ``/v1``, or a tenant without one."""
         return _exempt() or not limit()
 
     def key() -> str:
+        """Whose budget the current request uses: its tenant with API keys, else its client address."""
         return f"tenant:{current_tenant()}" if keyed else f"addr:{request.remote_addr}"
 
     if settings.redis_url:

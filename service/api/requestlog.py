@@ -22,10 +22,15 @@ SAFE_ID = re.compile(r"^[A-Za-z0-9._:-]{1,128}$")
 
 
 def request_id() -> str | None:
+    """The current request's id (``X-Request-Id``), or None outside a request."""
     return g.get("request_id") if has_request_context() else None
 
 
 def init_app(app: Flask) -> None:
+    """Give each request of ``app`` its id, echoed in ``X-Request-Id``, and write one JSON access line per response.
+
+    Every log line written during a request carries the id too (:data:`service.logs.context_hook`).
+    """
     logs.context_hook = request_id  # every JSON log line written in a request carries its id
 
     @app.before_request

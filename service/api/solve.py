@@ -41,6 +41,7 @@ class KindListSchema(Schema):
 
 
 def limits() -> Limits:
+    """The size limits of this app, which every parsed problem must keep to."""
     return current_app.extensions["sluice"].limits
 
 
@@ -77,6 +78,11 @@ def solve_operation(kind: Kind):
 
 def _make_view(kind: Kind):
     def view():
+        """Answer ``POST /v1/{kind}``: 200 with the answer (cached when the same body was seen before), or
+        202 with a job under ``Prefer: respond-async``; errors are problem+json (:func:`solve_operation`).
+
+        ``_make_view`` replaces this docstring with the kind's summary.
+        """
         if jobs.prefers_async():  # Prefer: respond-async (RFC 7240): 202 and a job
             return jobs.submit(kind, decode_body(kind.dimacs))
         started = perf_counter()

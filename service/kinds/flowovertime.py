@@ -191,6 +191,21 @@ def _supply(supply, nodes, objective: str, n: int):
 
 
 def solve(problem: FlowOverTimeProblem, deadline: Deadline) -> dict:
+    """Solve a parsed flow-over-time problem for its objective.
+
+    Parameters
+    ----------
+    problem : FlowOverTimeProblem
+        ``max-by-horizon`` (source to sink), ``quickest`` (``amount`` from source to sink) or
+        ``min-cost`` (supplies and demands).
+    deadline : Deadline
+        Not passed on: these solvers take none.
+
+    Returns
+    -------
+    dict
+        The response document (:func:`answer`).
+    """
     net = problem.network
     if problem.objective == "max-by-horizon":
         sol = max_by_horizon(net, problem.source, problem.sink)

@@ -36,6 +36,7 @@ class MultiCommodityProblem:
 
     @property
     def whole(self) -> bool:
+        """Whether the flows must be whole units (:func:`whole_units` of the options)."""
         return whole_units(self.options)
 
     @property
@@ -46,6 +47,7 @@ class MultiCommodityProblem:
 
 
 def whole_units(options: dict) -> bool:
+    """Whether ``options`` ask for whole units: ``integral``, or ``single_path`` (each demand whole on one path)."""
     return bool(options.get("integral")) or bool(options.get("single_path"))
 
 
@@ -164,6 +166,22 @@ def _check_whole_data(network: Network, demands: np.ndarray, options: dict, arc_
 
 
 def solve(problem: MultiCommodityProblem, deadline: Deadline) -> dict:
+    """Solve a parsed multi-commodity problem: as an LP, or with whole units by :func:`_solve_whole`.
+
+    Parameters
+    ----------
+    problem : MultiCommodityProblem
+    deadline : Deadline
+        When the solve must end (status ``time_limit`` then).
+
+    Returns
+    -------
+    dict
+        The response document. As an LP: status, objective and cost; when optimal, what was
+        delivered, the flows and capacity prices asked for, and the bottlenecks; when infeasible
+        or unbounded, why; then the certificate, digest and engine. With whole units, the
+        document of :func:`_solve_whole` (paths, bound and gap among its members).
+    """
     net = problem.network
     cost = np.zeros(net.num_arcs) if net.cost is None else net.cost.astype(np.float64)
     flow_net = FlowNetwork(net.num_nodes, net.tail, net.head, net.capacity, net.unlimited, cost)
