@@ -5,10 +5,6 @@ its name does not start with ``_``, wherever it is defined: module functions, me
 (of any class, properties included) and functions nested in others alike. The rule is
 kept that simple so a count by hand (``ast.walk``) and this test always agree. The
 Cython ``.pyx`` modules are private (``_arcscan``, ``_firstseen``) and not read.
-
-:data:`PENDING` lists the parts of ``service/`` not yet documented, each with the slice
-of work that does it. It only shrinks: delete an entry when its part is done (a test
-fails while an entry is no longer needed).
 """
 
 from __future__ import annotations
@@ -18,26 +14,11 @@ import textwrap
 from functools import lru_cache
 from pathlib import Path
 
-import pytest
-
 ROOT = Path(__file__).resolve().parents[1]
 SERVICE = ROOT / "service"
 
-#: Parts of service/ (a package folder or one module, relative to the repository) whose
-#: public functions are not all documented yet.
-PENDING: dict[str, str] = {}
-
-
 def _rel(path: Path) -> str:
     return path.relative_to(ROOT).as_posix()
-
-
-def _pending_entry(rel: str) -> str | None:
-    """The entry of :data:`PENDING` covering the module ``rel``, if any."""
-    for entry in PENDING:
-        if rel == entry or rel.startswith(entry + "/"):
-            return entry
-    return None
 
 
 def missing_docstrings(source: str, filename: str = "<source>") -> list[tuple[int, str]]:
@@ -110,16 +91,8 @@ def test_the_walk_finds_each_kind_of_undocumented_function():
 
 
 def test_every_public_function_has_a_docstring():
-    missing = [f"{module}:{line} {name}" for module, line, name in _undocumented() if _pending_entry(module) is None]
+    missing = [f"{module}:{line} {name}" for module, line, name in _undocumented()]
     assert not missing, (
         f"{len(missing)} public function(s) without a docstring (numpydoc: a one-line summary, then "
         "Parameters / Returns / Raises where they apply):\n" + "\n".join(missing)
     )
-
-
-@pytest.mark.parametrize("entry", sorted(PENDING))
-def test_pending_entry_is_still_needed(entry):
-    path = ROOT / entry
-    assert path.exists(), f"PENDING names {entry}, which does not exist: delete the entry"
-    left = [f"{module}:{line} {name}" for module, line, name in _undocumented() if _pending_entry(module) == entry]
-    assert left, f"every public function under {entry} has a docstring now: delete its PENDING entry"
