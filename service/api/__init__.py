@@ -70,7 +70,7 @@ def create_app(config: Settings | dict | None = None) -> Flask:
     settings = config if isinstance(config, Settings) else Settings.from_env()
     if isinstance(config, dict):
         settings = Settings(**{**settings.__dict__, **config})
-    app = Flask(__name__)
+    app = Flask(__name__, static_folder=None)  # no static route: the explorer serves its own files
     app.json = OrjsonProvider(app)
     app.config["MAX_CONTENT_LENGTH"] = settings.max_body_bytes
     app.url_map.strict_slashes = False

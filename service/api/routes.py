@@ -11,13 +11,6 @@ from . import batch, diagram, explorer, jobs, metrics, networks, ops, solutions,
 BLUEPRINTS = (jobs.bp, metrics.bp, solve.bp, networks.bp, solutions.bp, verify.bp, batch.bp, diagram.bp,
               explorer.bp, ops.bp)
 
-#: Routes with no operation of their own, each with its reason.
-UNDOCUMENTED = {
-    "static": "Flask's static route: the app has no static folder (every request is a 404); the explorer's "
-              "files are GET /explorer/{name}",
-}
-
-
 def register(app: Flask) -> None:
     """Register every blueprint on ``app``."""
     for blueprint in BLUEPRINTS:
@@ -27,7 +20,7 @@ def register(app: Flask) -> None:
 def route_app() -> Flask:
     """An app with the routes and nothing else (no store, jobs or solver processes): what
     ``sluice spec`` documents without starting the service."""
-    app = Flask("service.api")
+    app = Flask("service.api", static_folder=None)
     app.url_map.strict_slashes = False
     register(app)
     return app

@@ -22,7 +22,7 @@ from marshmallow import Schema, fields
 from .. import __version__
 from ..model.schemas import ArcColumnsSchema, ArcSchema, ArcsField, NodeId, NodesField, StrictBoolean, StrictNumber
 from .declare import Operation, declared, problem
-from .routes import UNDOCUMENTED, route_app
+from .routes import route_app
 from .spec_text import description
 
 #: Methods Flask answers by itself on every route.
@@ -41,7 +41,7 @@ class ProblemSchema(Schema):
 
 
 class UndeclaredRoute(LookupError):
-    """A route of the app declares no operation (and is not in ``UNDOCUMENTED``)."""
+    """A route of the app declares no operation."""
 
 
 def _field_attributes(self, field, ret, **kwargs):
@@ -72,8 +72,6 @@ def declared_operations(app: Flask) -> list[tuple[str, str, Operation]]:
     registered; raises :class:`UndeclaredRoute` naming the routes that declare nothing."""
     found, missing = [], []
     for rule in app.url_map.iter_rules():
-        if rule.endpoint in UNDOCUMENTED:
-            continue
         op = declared(app.view_functions[rule.endpoint])
         if op is None:
             missing.append(f"{rule.rule} ({rule.endpoint})")
