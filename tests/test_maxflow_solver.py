@@ -13,7 +13,7 @@ from hypothesis import given, settings, strategies as st
 from scipy.sparse.csgraph import maximum_flow as scipy_maximum_flow
 
 from service.errors import SelfCheckFailed
-from service.solvers import maximum_flow
+from service.solvers import Graph, maximum_flow
 from service.solvers.certificates import check_max_flow
 from tests.checkers import assert_cut, assert_exact_max_flow, assert_integral, assert_max_flow
 from tests.references import max_flow_value
@@ -32,7 +32,7 @@ def arrays(arcs):
 
 def solve(n, arcs, s, t, engine="auto"):
     tail, head, cap, unlimited = arrays(arcs)
-    return maximum_flow(n, tail, head, cap, unlimited, s, t, engine=engine)
+    return maximum_flow(Graph(n, tail, head, cap, unlimited), s, t, engine=engine)
 
 
 def check_against_theorems(n, arcs, s, t, solution, tol=0.0):
@@ -210,7 +210,7 @@ def test_no_path_gives_zero_with_source_only_cut():
 # The certificate must fail on wrong answers, not only pass on right ones.
 def _good():
     tail, head, cap, _ = arrays(CLRS_26_1)
-    solution, _ = maximum_flow(6, tail, head, cap, None, 0, 5)
+    solution, _ = maximum_flow(Graph(6, tail, head, cap), 0, 5)
     return tail, head, cap, solution
 
 

@@ -42,7 +42,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from .graph import bfs_tree, reach
+from .graph import Graph, bfs_tree, reach
 from .plan_checks import (
     BACKWARD, FORWARD, MAX_LISTED_VIOLATIONS, RELATIVE_TOLERANCE, Residual, Verdict, _apply, _fail, _finite,
     _number, _unlimited_first, _walk, common_dtype, find_violations, node_balance, residual_network, tolerance_for,
@@ -72,16 +72,14 @@ def _path_to(parent: np.ndarray, src: np.ndarray, start: int, end: int) -> np.nd
     return np.array(path[::-1], dtype=np.int64)
 
 
-def verify_max_flow(num_nodes, tail, head, capacity, unlimited, source, sink, flows) -> Verdict:
+def verify_max_flow(graph: Graph, source: int, sink: int, flows: np.ndarray) -> Verdict:
     """Check a client's max-flow plan.
 
     Parameters
     ----------
-    num_nodes : int
-    tail, head : ndarray of int
-    capacity : ndarray
-        0 where ``unlimited``.
-    unlimited : ndarray of bool or None
+    graph : Graph
+        ``capacity`` (0 where ``unlimited``) and ``unlimited`` are read; ``cost`` and
+        ``lower`` are ignored.
     source, sink : int
     flows : ndarray
         The client's flow per arc.
@@ -97,11 +95,13 @@ def verify_max_flow(num_nodes, tail, head, capacity, unlimited, source, sink, fl
     Examples
     --------
     >>> import numpy as np
-    >>> v = verify_max_flow(3, np.array([0, 1]), np.array([1, 2]), np.array([5, 3]), None, 0, 2,
-    ...                     np.array([2, 2]))
+    >>> g = Graph(3, np.array([0, 1]), np.array([1, 2]), np.array([5, 3]))
+    >>> v = verify_max_flow(g, 0, 2, np.array([2, 2]))
     >>> v.feasible, v.optimal, v.objective, v.steps, v.gain
     (True, False, 2, [(0, 1), (1, 1)], 1)
     """
+    num_nodes, tail, head = graph.num_nodes, graph.tail, graph.head
+    capacity, unlimited = graph.capacity, graph.unlimited
     dtype = common_dtype(capacity, flows)
     capacity, flows = capacity.astype(dtype, copy=False), flows.astype(dtype, copy=False)
     tol = tolerance_for(dtype, capacity, flows)

@@ -9,6 +9,7 @@ import numpy as np
 
 from ..deadline import Deadline, expired
 from ..errors import SelfCheckFailed, SolveTimeout
+from .graph import Graph
 from .plan_checks import (
     FORWARD, RELATIVE_TOLERANCE, Residual, Verdict, _apply, _fail, _finite, _number, _unlimited_first, _walk,
     common_dtype, find_violations, residual_network, tolerance_for,
@@ -82,16 +83,15 @@ def negative_cycle(num_nodes, res: Residual, weight: np.ndarray, tol=0.0, deadli
     raise SelfCheckFailed("Bellman-Ford still improved after n rounds without a cycle of parent arcs")
 
 
-def verify_min_cost_flow(num_nodes, tail, head, capacity, unlimited, cost, lower, supply, flows,
+def verify_min_cost_flow(graph: Graph, supply: np.ndarray, flows: np.ndarray,
                          *, deadline: Deadline | None = None) -> Verdict:
     """Check a client's min-cost flow plan.
 
     Parameters
     ----------
-    capacity : ndarray
-        0 where ``unlimited``.
-    cost, lower : ndarray or None
-        Per-unit arc costs and lower bounds (None: all zero).
+    graph : Graph
+        ``capacity`` (0 where ``unlimited``), ``unlimited``, and the per-unit arc
+        ``cost`` and ``lower`` bounds (None: all zero).
     supply : ndarray
         Net outflow required at each node (positive: supply, negative: demand).
     flows : ndarray
@@ -112,11 +112,13 @@ def verify_min_cost_flow(num_nodes, tail, head, capacity, unlimited, cost, lower
     --------
     >>> import numpy as np
     >>> # Two parallel arcs 0 -> 1 costing 5 and 1; the plan ships 2 units on the dear one.
-    >>> v = verify_min_cost_flow(2, np.array([0, 0]), np.array([1, 1]), np.array([2, 2]), None,
-    ...                          np.array([5, 1]), None, np.array([2, -2]), np.array([2, 0]))
+    >>> g = Graph(2, np.array([0, 0]), np.array([1, 1]), np.array([2, 2]), cost=np.array([5, 1]))
+    >>> v = verify_min_cost_flow(g, np.array([2, -2]), np.array([2, 0]))
     >>> v.objective, v.optimal, v.steps, v.amount, v.unit_cost, v.gain
     (10, False, [(1, 1), (0, -1)], 2, -4, 8)
     """
+    num_nodes, tail, head = graph.num_nodes, graph.tail, graph.head
+    capacity, unlimited, cost, lower = graph.capacity, graph.unlimited, graph.cost, graph.lower
     if cost is None:
         cost = np.zeros(tail.size, dtype=np.int64)
     dtype = common_dtype(capacity, flows, lower, supply, weights=cost)
