@@ -162,32 +162,34 @@ def _depots_arrays():
 
 def test_cut_proof_check_fails_on_wrong_cuts():
     n, tail, head, cap, s, t = _depots_arrays()
+    graph = Graph(n, tail, head, cap)
     flows = np.array([100, 60, 30, 70, 30, 60, 100, 60, 0])
     good = np.array([True, True, True, True, True, False])
-    check_cut_proof(tail, head, cap, None, s, t, flows, 160, good)  # holds
+    check_cut_proof(graph, s, t, flows, 160, good)  # holds
     with pytest.raises(SelfCheckFailed, match="separate"):
-        check_cut_proof(tail, head, cap, None, s, t, flows, 160, np.ones(n, dtype=bool))
+        check_cut_proof(graph, s, t, flows, 160, np.ones(n, dtype=bool))
     with pytest.raises(SelfCheckFailed, match="differs"):
-        check_cut_proof(tail, head, cap, None, s, t, flows, 150, good)
+        check_cut_proof(graph, s, t, flows, 150, good)
     with pytest.raises(SelfCheckFailed):
-        check_cut_proof(tail, head, cap, None, s, t, flows, 160, np.array([True] + [False] * 5))
+        check_cut_proof(graph, s, t, flows, 160, np.array([True] + [False] * 5))
 
 
 def test_augmenting_path_check_fails_on_wrong_paths():
     n, tail, head, cap, s, t = _depots_arrays()
+    graph = Graph(n, tail, head, cap)
     flows = np.array(PLAN["flows"])
     good = [(1, FORWARD), (5, FORWARD), (7, FORWARD)]
-    check_augmenting_path(n, tail, head, cap, None, s, t, flows, good, 10)  # holds
+    check_augmenting_path(graph, s, t, flows, good, 10)  # holds
     with pytest.raises(SelfCheckFailed, match="breaks"):
-        check_augmenting_path(n, tail, head, cap, None, s, t, flows, good, 11)
+        check_augmenting_path(graph, s, t, flows, good, 11)
     with pytest.raises(SelfCheckFailed, match="not connected"):
-        check_augmenting_path(n, tail, head, cap, None, s, t, flows, [(1, FORWARD), (3, FORWARD), (7, FORWARD)], 1)
+        check_augmenting_path(graph, s, t, flows, [(1, FORWARD), (3, FORWARD), (7, FORWARD)], 1)
     with pytest.raises(SelfCheckFailed, match="source to the sink"):
-        check_augmenting_path(n, tail, head, cap, None, s, t, flows, [(1, FORWARD), (5, FORWARD)], 1)
+        check_augmenting_path(graph, s, t, flows, [(1, FORWARD), (5, FORWARD)], 1)
     with pytest.raises(SelfCheckFailed, match="not more than 0"):
-        check_augmenting_path(n, tail, head, cap, None, s, t, flows, good, 0)
+        check_augmenting_path(graph, s, t, flows, good, 0)
     with pytest.raises(SelfCheckFailed, match="without limit"):
-        check_augmenting_path(n, tail, head, cap, None, s, t, flows, good, None)
+        check_augmenting_path(graph, s, t, flows, good, None)
 
 
 def _mc_arrays():
@@ -204,33 +206,35 @@ def _mc_arrays():
 
 def test_negative_cycle_check_fails_on_wrong_cycles():
     n, tail, head, cap, cost, supply = _mc_arrays()
+    graph = Graph(n, tail, head, cap, None, cost)
     flows = np.array(MC_PLAN["flows"])
     good = [(1, BACKWARD), (0, FORWARD), (3, FORWARD)]
-    check_negative_cycle(n, tail, head, cap, None, cost, None, supply, flows, good, 40, 80)  # holds
+    check_negative_cycle(graph, supply, flows, good, 40, 80)  # holds
     with pytest.raises(SelfCheckFailed, match="saves"):
-        check_negative_cycle(n, tail, head, cap, None, cost, None, supply, flows, good, 40, 90)
+        check_negative_cycle(graph, supply, flows, good, 40, 90)
     with pytest.raises(SelfCheckFailed, match="breaks"):
-        check_negative_cycle(n, tail, head, cap, None, cost, None, supply, flows, good, 41, 82)
+        check_negative_cycle(graph, supply, flows, good, 41, 82)
     with pytest.raises(SelfCheckFailed, match="not less than 0"):
         reverse = [(1, FORWARD), (3, BACKWARD), (0, BACKWARD)]
-        check_negative_cycle(n, tail, head, cap, None, cost, None, supply, flows, reverse, 1, -2)
+        check_negative_cycle(graph, supply, flows, reverse, 1, -2)
     with pytest.raises(SelfCheckFailed, match="does not close"):
-        check_negative_cycle(n, tail, head, cap, None, cost, None, supply, flows, good[:2], 1, 1)
+        check_negative_cycle(graph, supply, flows, good[:2], 1, 1)
 
 
 def test_potentials_check_fails_on_wrong_potentials():
     n, tail, head, cap, cost, supply = _mc_arrays()
-    plan = verify_min_cost_flow(Graph(n, tail, head, cap, None, cost), supply, np.array(MC_PLAN["flows"]))
+    graph = Graph(n, tail, head, cap, None, cost)
+    plan = verify_min_cost_flow(graph, supply, np.array(MC_PLAN["flows"]))
     flows = np.array(MC_PLAN["flows"])
     for a, d in plan.steps:
         flows[a] += d * plan.amount
-    best = verify_min_cost_flow(Graph(n, tail, head, cap, None, cost), supply, flows)
+    best = verify_min_cost_flow(graph, supply, flows)
     assert best.optimal
-    check_potentials(tail, head, cap, None, cost, None, flows, best.potentials)  # holds
+    check_potentials(graph, flows, best.potentials)  # holds
     with pytest.raises(SelfCheckFailed, match="reduced cost"):
-        check_potentials(tail, head, cap, None, cost, None, flows, np.zeros(n, dtype=np.int64))
+        check_potentials(graph, flows, np.zeros(n, dtype=np.int64))
     with pytest.raises(SelfCheckFailed, match="reduced cost"):  # the sub-optimal plan has no such potentials
-        check_potentials(tail, head, cap, None, cost, None, np.array(MC_PLAN["flows"]), best.potentials)
+        check_potentials(graph, np.array(MC_PLAN["flows"]), best.potentials)
 
 
 # --- min-cost flow against networkx and scipy ------------------------------------
