@@ -11,7 +11,7 @@ import numpy as np
 import pytest
 
 from service.errors import SelfCheckFailed
-from service.solvers import mincost_checks as checks
+from service.solvers import Graph, mincost_checks as checks
 from service.solvers.certificates import check_max_flow
 from service.solvers.maxflow_lp import LP_TOLERANCE
 from service.solvers.multicommodity import Commodities, Network, check_flows, min_cost_model
@@ -226,15 +226,15 @@ def test_min_cost_checks_refuse_wrong_answers_beside_a_huge_lane():
     sup = np.array([5, 0, -5])
     good_flows = np.array([3, 3, 2])
     p = np.array([0, 4, 5])  # rc = cost + p[tail] - p[head]: -3 (s->a, full), 0, 0 (inside their bounds)
-    certificate = checks.check_min_cost_flow(3, tail, head, cap, None, None, cost, sup, good_flows, p)
+    certificate = checks.check_min_cost_flow(Graph(3, tail, head, cap, None, cost), sup, good_flows, p)
     assert certificate["primal_cost"] == certificate["dual_bound"] == 16
     for flows in (np.array([3, 3, 1]),  # t receives 4 of its 5
                   np.array([3, 1, 4])):  # s ships 7 of its 5, a keeps 2
         with pytest.raises(SelfCheckFailed):
-            checks.check_min_cost_flow(3, tail, head, cap, None, None, cost, sup, flows, p)
+            checks.check_min_cost_flow(Graph(3, tail, head, cap, None, cost), sup, flows, p)
     # In LP mode, an imbalance of 2 units at a node moving 5 is refused, whatever 2**62 elsewhere.
     with pytest.raises(SelfCheckFailed, match="conserved"):
-        checks.check_min_cost_flow(3, tail, head, cap.astype(float), None, None, cost.astype(float),
+        checks.check_min_cost_flow(Graph(3, tail, head, cap.astype(float), None, cost.astype(float)),
                                    sup.astype(float), np.array([3.0, 1.0, 2.0]), p.astype(float), LP_TOLERANCE)
 
 

@@ -26,7 +26,7 @@ def solved():
 
 
 def check(flows, potentials, lower=None):
-    return checks.check_min_cost_flow(4, TAIL, HEAD, CAP, None, lower, COST, SUP, flows, potentials)
+    return checks.check_min_cost_flow(Graph(4, TAIL, HEAD, CAP, None, COST, lower), SUP, flows, potentials)
 
 
 def test_right_answer_passes(solved):

@@ -223,9 +223,9 @@ def _min_cost_plan(lanes: Lanes):
     flows = solve_balanced(lanes.num_nodes, tail, head, caps, cost, supply)
     if flows is None:
         return None
-    potentials = node_potentials(Graph(lanes.num_nodes, tail, head, capacity, unlimited, cost), flows)
-    certificate = check_min_cost_flow(lanes.num_nodes, tail, head, capacity, unlimited, None, cost, supply, flows,
-                                      potentials)
+    graph = Graph(lanes.num_nodes, tail, head, capacity, unlimited, cost)
+    potentials = node_potentials(graph, flows)
+    certificate = check_min_cost_flow(graph, supply, flows, potentials)
     m = lanes.tail.size
     lane_flows = flows[:m].copy()
     lane_flows[extra] += flows[m:]

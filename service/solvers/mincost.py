@@ -260,8 +260,7 @@ def _solve_reject(net: _Net):
         return _infeasible(net, side)
     p = node_potentials(Graph(net.n, net.tail, net.head, bounds.caps, bounds.stand_in, net.cost), flows_t)
     flows = _plus_lower(flows_t, net.low)
-    certificate = checks.check_min_cost_flow(net.n, net.tail, net.head, net.cap, net.unl, net.low, net.cost,
-                                             net.sup, flows, p)
+    certificate = checks.check_min_cost_flow(net.graph, net.sup, flows, p)
     solution = MinCostSolution(
         "optimal", mincost_engine(), cost=certificate["primal_cost"], shipped=checks.exact_sum(net.sup[net.sup > 0]),
         flows=flows, potentials=p, reduced_costs=checks.reduced_costs(net.cost, p, net.tail, net.head))
@@ -292,8 +291,7 @@ def _solve_max_flow(net: _Net):
     p = node_potentials(Graph(aug.n, aug.tail, aug.head, bounds.caps, bounds.stand_in, aug.cost), flows_t)
     flows = _plus_lower(flows_t, aug.low)
     aug.sup[s], aug.sup[t] = shipped, -shipped
-    certificate = checks.check_min_cost_flow(aug.n, aug.tail, aug.head, aug.cap, aug.unl, aug.low, aug.cost,
-                                             aug.sup, flows, p)
+    certificate = checks.check_min_cost_flow(aug.graph, aug.sup, flows, p)
     side = residual_reach(aug.n, aug.tail, aug.head, flows_t, bounds.caps, bounds.stand_in, s)
     certificate["shipped_bound"] = checks.check_shipped_cut(aug.tail, aug.head, aug.cap, aug.unl, aug.low, side,
                                                             s, t, shipped)

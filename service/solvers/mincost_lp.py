@@ -79,8 +79,7 @@ def _lp_certified(net: _Net, lp, low, upper):
     """
     flows = np.clip(lp.x, low, upper)
     p = -lp.row_duals
-    certificate = checks.check_min_cost_flow(net.n, net.tail, net.head, net.cap, net.unl, net.low, net.cost,
-                                             net.sup, flows, p, LP_TOLERANCE)
+    certificate = checks.check_min_cost_flow(net.graph, net.sup, flows, p, LP_TOLERANCE)
     return flows, p, certificate
 
 
