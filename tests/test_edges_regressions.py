@@ -188,11 +188,11 @@ def test_max_flow_check_refuses_the_certified_wrong_answer_exactly():
     flows = np.array([0, 0, 5])
     for side in ([True, False, False], [True, True, False]):  # cut {s}: 2**62 + 5; cut {s, a}: 8
         with pytest.raises(SelfCheckFailed, match="cut capacity"):
-            check_max_flow(3, tail, head, cap, None, 0, 2, flows, 5, np.array(side))
+            check_max_flow(Graph(3, tail, head, cap), 0, 2, flows, 5, np.array(side))
     # Imbalance of 3 at a (the issue's max_imbalance 3.0): refused.
     with pytest.raises(SelfCheckFailed, match="conserved"):
-        check_max_flow(3, tail, head, cap, None, 0, 2, np.array([3, 0, 5]), 8, np.array([True, True, False]))
-    good = check_max_flow(3, tail, head, cap, None, 0, 2, np.array([3, 3, 5]), 8, np.array([True, True, False]))
+        check_max_flow(Graph(3, tail, head, cap), 0, 2, np.array([3, 0, 5]), 8, np.array([True, True, False]))
+    good = check_max_flow(Graph(3, tail, head, cap), 0, 2, np.array([3, 3, 5]), 8, np.array([True, True, False]))
     assert good["cut_capacity"] == 8 and good["tolerance"] == 0
 
 
@@ -201,21 +201,21 @@ def test_max_flow_check_in_lp_mode_measures_each_arc_against_itself():
     tail, head, cap = issue_network()
     fcap = cap.astype(np.float64)
     with pytest.raises(SelfCheckFailed):
-        check_max_flow(3, tail, head, fcap, None, 0, 2, np.array([0.0, 0.0, 5.0]), 5.0,
+        check_max_flow(Graph(3, tail, head, fcap), 0, 2, np.array([0.0, 0.0, 5.0]), 5.0,
                        np.array([True, True, False]), LP_TOLERANCE)
     # A tiny capacity beside a huge one (1e-6 then 1e12): value 0 is refused, 1e-6 passes.
     tail2, head2 = np.array([0, 1], np.int32), np.array([1, 2], np.int32)
     cap2 = np.array([1e-6, 1e12])
     with pytest.raises(SelfCheckFailed):
-        check_max_flow(3, tail2, head2, cap2, None, 0, 2, np.zeros(2), 0.0, np.array([True, False, False]),
+        check_max_flow(Graph(3, tail2, head2, cap2), 0, 2, np.zeros(2), 0.0, np.array([True, False, False]),
                        LP_TOLERANCE)
-    ok = check_max_flow(3, tail2, head2, cap2, None, 0, 2, np.array([1e-6, 1e-6]), 1e-6,
+    ok = check_max_flow(Graph(3, tail2, head2, cap2), 0, 2, np.array([1e-6, 1e-6]), 1e-6,
                         np.array([True, False, False]), LP_TOLERANCE)
     # The largest allowance is the big arc's own (1e-6 of 1e12); the tiny one is held to 1e-12.
     assert ok["relative_tolerance"] == LP_TOLERANCE and ok["tolerance"] == pytest.approx(1e6)
     # A flow 10% over the tiny arc: refused although 1e-7 is nothing beside 1e12.
     with pytest.raises(SelfCheckFailed, match="capacity"):
-        check_max_flow(3, tail2, head2, cap2, None, 0, 2, np.array([1.1e-6, 1.1e-6]), 1.1e-6,
+        check_max_flow(Graph(3, tail2, head2, cap2), 0, 2, np.array([1.1e-6, 1.1e-6]), 1.1e-6,
                        np.array([True, False, False]), LP_TOLERANCE)
 
 

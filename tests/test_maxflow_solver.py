@@ -219,7 +219,7 @@ def test_certificate_rejects_an_overfull_arc():
     flows = s.flows.copy()
     flows[0] = cap[0] + 1
     with pytest.raises(SelfCheckFailed, match="capacity"):
-        check_max_flow(6, tail, head, cap, None, 0, 5, flows, s.value, s.source_side)
+        check_max_flow(Graph(6, tail, head, cap), 0, 5, flows, s.value, s.source_side)
 
 
 def test_certificate_rejects_broken_conservation():
@@ -227,7 +227,7 @@ def test_certificate_rejects_broken_conservation():
     flows = s.flows.copy()
     flows[2] -= 1  # v1 -> v3 loses a unit: v1 now holds flow
     with pytest.raises(SelfCheckFailed, match="conserved"):
-        check_max_flow(6, tail, head, cap, None, 0, 5, flows, s.value, s.source_side)
+        check_max_flow(Graph(6, tail, head, cap), 0, 5, flows, s.value, s.source_side)
 
 
 def test_certificate_rejects_a_cut_that_is_not_minimum():
@@ -235,13 +235,13 @@ def test_certificate_rejects_a_cut_that_is_not_minimum():
     side = np.zeros(6, dtype=bool)
     side[0] = True  # {s}: capacity 29, not 23
     with pytest.raises(SelfCheckFailed, match="cut capacity"):
-        check_max_flow(6, tail, head, cap, None, 0, 5, s.flows, s.value, side)
+        check_max_flow(Graph(6, tail, head, cap), 0, 5, s.flows, s.value, side)
 
 
 def test_certificate_rejects_a_wrong_value():
     tail, head, cap, s = _good()
     with pytest.raises(SelfCheckFailed, match="value"):
-        check_max_flow(6, tail, head, cap, None, 0, 5, s.flows, s.value + 1, s.source_side)
+        check_max_flow(Graph(6, tail, head, cap), 0, 5, s.flows, s.value + 1, s.source_side)
 
 
 def test_certificate_rejects_a_cut_through_an_unlimited_arc():
@@ -249,4 +249,4 @@ def test_certificate_rejects_a_cut_through_an_unlimited_arc():
     cap, unlimited = np.array([0, 5]), np.array([True, False])
     side = np.array([True, False, False])
     with pytest.raises(SelfCheckFailed, match="without a capacity limit"):
-        check_max_flow(3, tail, head, cap, unlimited, 0, 2, np.array([5, 5]), 5, side)
+        check_max_flow(Graph(3, tail, head, cap, unlimited), 0, 2, np.array([5, 5]), 5, side)

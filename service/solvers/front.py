@@ -65,8 +65,7 @@ def maximum_flow(
     (3, True)
     """
     if engine == "lp":
-        solution = max_flow_lp(graph.num_nodes, graph.tail, graph.head, graph.capacity, graph.unlimited,
-                               source, sink, deadline=deadline)
+        solution = max_flow_lp(graph, source, sink, deadline=deadline)
         return solution, certify_max_flow(solution, graph, source, sink)
     return _exact_route(graph, source, sink)
 
@@ -164,15 +163,13 @@ def certify_max_flow(solution: MaxFlowSolution, graph: Graph, source: int, sink:
     SelfCheckFailed
         The answer does not hold.
     """
-    tail, head, capacity, unlimited = graph.tail, graph.head, graph.capacity, graph.unlimited
     if solution.status == "unbounded":
-        certificates.check_path(tail, head, unlimited, source, sink, solution.unbounded_path)
+        certificates.check_path(graph.tail, graph.head, graph.unlimited, source, sink, solution.unbounded_path)
         return {"checked": True, "unbounded_path_arcs": int(solution.unbounded_path.size)}
     relative = 0.0
     if solution.engine.get("kind") == "lp":
-        capacity = capacity.astype(np.float64)  # LP answers: compare in floating point, never wrap int64
+        # LP answers: compare in floating point, never wrap int64.
+        graph = graph.replace(capacity=graph.capacity.astype(np.float64))
         relative = LP_TOLERANCE
-    return certificates.check_max_flow(
-        graph.num_nodes, tail, head, capacity, unlimited, source, sink,
-        solution.flows, solution.value, solution.source_side, relative,
-    )
+    return certificates.check_max_flow(graph, source, sink, solution.flows, solution.value, solution.source_side,
+                                       relative)
