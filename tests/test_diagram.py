@@ -12,6 +12,7 @@ import pytest
 from service.api import create_app
 from service.api.diagram import render_diagram, solution_diagram
 from service.drawing.layout import layered_layout
+from service.solvers.graph import Graph
 from service.errors import InputError
 from service.kinds import KINDS
 from tests.conftest import scenario
@@ -54,7 +55,7 @@ def test_layout_is_layered_from_source_to_sink():
     rng = np.random.default_rng(4)
     n, m = 15, 40
     tail, head = rng.integers(0, n, m), rng.integers(0, n, m)
-    layer, rank = layered_layout(n, tail, head, [0], [n - 1])
+    layer, rank = layered_layout(Graph(n, tail, head), [0], [n - 1])
     g = nx.DiGraph()
     g.add_nodes_from(range(n))
     g.add_edges_from(zip(tail.tolist(), head.tolist()))

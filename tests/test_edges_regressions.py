@@ -11,7 +11,7 @@ import numpy as np
 import pytest
 
 from service.errors import SelfCheckFailed
-from service.solvers import mincost_checks as checks
+from service.solvers import Graph, mincost_checks as checks
 from service.solvers.certificates import check_max_flow
 from service.solvers.maxflow_lp import LP_TOLERANCE
 from service.solvers.multicommodity import Commodities, Network, check_flows, min_cost_model
@@ -188,11 +188,11 @@ def test_max_flow_check_refuses_the_certified_wrong_answer_exactly():
     flows = np.array([0, 0, 5])
     for side in ([True, False, False], [True, True, False]):  # cut {s}: 2**62 + 5; cut {s, a}: 8
         with pytest.raises(SelfCheckFailed, match="cut capacity"):
-            check_max_flow(3, tail, head, cap, None, 0, 2, flows, 5, np.array(side))
+            check_max_flow(Graph(3, tail, head, cap), 0, 2, flows, 5, np.array(side))
     # Imbalance of 3 at a (the issue's max_imbalance 3.0): refused.
     with pytest.raises(SelfCheckFailed, match="conserved"):
-        check_max_flow(3, tail, head, cap, None, 0, 2, np.array([3, 0, 5]), 8, np.array([True, True, False]))
-    good = check_max_flow(3, tail, head, cap, None, 0, 2, np.array([3, 3, 5]), 8, np.array([True, True, False]))
+        check_max_flow(Graph(3, tail, head, cap), 0, 2, np.array([3, 0, 5]), 8, np.array([True, True, False]))
+    good = check_max_flow(Graph(3, tail, head, cap), 0, 2, np.array([3, 3, 5]), 8, np.array([True, True, False]))
     assert good["cut_capacity"] == 8 and good["tolerance"] == 0
 
 
@@ -201,21 +201,21 @@ def test_max_flow_check_in_lp_mode_measures_each_arc_against_itself():
     tail, head, cap = issue_network()
     fcap = cap.astype(np.float64)
     with pytest.raises(SelfCheckFailed):
-        check_max_flow(3, tail, head, fcap, None, 0, 2, np.array([0.0, 0.0, 5.0]), 5.0,
+        check_max_flow(Graph(3, tail, head, fcap), 0, 2, np.array([0.0, 0.0, 5.0]), 5.0,
                        np.array([True, True, False]), LP_TOLERANCE)
     # A tiny capacity beside a huge one (1e-6 then 1e12): value 0 is refused, 1e-6 passes.
     tail2, head2 = np.array([0, 1], np.int32), np.array([1, 2], np.int32)
     cap2 = np.array([1e-6, 1e12])
     with pytest.raises(SelfCheckFailed):
-        check_max_flow(3, tail2, head2, cap2, None, 0, 2, np.zeros(2), 0.0, np.array([True, False, False]),
+        check_max_flow(Graph(3, tail2, head2, cap2), 0, 2, np.zeros(2), 0.0, np.array([True, False, False]),
                        LP_TOLERANCE)
-    ok = check_max_flow(3, tail2, head2, cap2, None, 0, 2, np.array([1e-6, 1e-6]), 1e-6,
+    ok = check_max_flow(Graph(3, tail2, head2, cap2), 0, 2, np.array([1e-6, 1e-6]), 1e-6,
                         np.array([True, False, False]), LP_TOLERANCE)
     # The largest allowance is the big arc's own (1e-6 of 1e12); the tiny one is held to 1e-12.
     assert ok["relative_tolerance"] == LP_TOLERANCE and ok["tolerance"] == pytest.approx(1e6)
     # A flow 10% over the tiny arc: refused although 1e-7 is nothing beside 1e12.
     with pytest.raises(SelfCheckFailed, match="capacity"):
-        check_max_flow(3, tail2, head2, cap2, None, 0, 2, np.array([1.1e-6, 1.1e-6]), 1.1e-6,
+        check_max_flow(Graph(3, tail2, head2, cap2), 0, 2, np.array([1.1e-6, 1.1e-6]), 1.1e-6,
                        np.array([True, False, False]), LP_TOLERANCE)
 
 
@@ -226,15 +226,15 @@ def test_min_cost_checks_refuse_wrong_answers_beside_a_huge_lane():
     sup = np.array([5, 0, -5])
     good_flows = np.array([3, 3, 2])
     p = np.array([0, 4, 5])  # rc = cost + p[tail] - p[head]: -3 (s->a, full), 0, 0 (inside their bounds)
-    certificate = checks.check_min_cost_flow(3, tail, head, cap, None, None, cost, sup, good_flows, p)
+    certificate = checks.check_min_cost_flow(Graph(3, tail, head, cap, None, cost), sup, good_flows, p)
     assert certificate["primal_cost"] == certificate["dual_bound"] == 16
     for flows in (np.array([3, 3, 1]),  # t receives 4 of its 5
                   np.array([3, 1, 4])):  # s ships 7 of its 5, a keeps 2
         with pytest.raises(SelfCheckFailed):
-            checks.check_min_cost_flow(3, tail, head, cap, None, None, cost, sup, flows, p)
+            checks.check_min_cost_flow(Graph(3, tail, head, cap, None, cost), sup, flows, p)
     # In LP mode, an imbalance of 2 units at a node moving 5 is refused, whatever 2**62 elsewhere.
     with pytest.raises(SelfCheckFailed, match="conserved"):
-        checks.check_min_cost_flow(3, tail, head, cap.astype(float), None, None, cost.astype(float),
+        checks.check_min_cost_flow(Graph(3, tail, head, cap.astype(float), None, cost.astype(float)),
                                    sup.astype(float), np.array([3.0, 1.0, 2.0]), p.astype(float), LP_TOLERANCE)
 
 

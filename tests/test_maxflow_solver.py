@@ -13,7 +13,7 @@ from hypothesis import given, settings, strategies as st
 from scipy.sparse.csgraph import maximum_flow as scipy_maximum_flow
 
 from service.errors import SelfCheckFailed
-from service.solvers import maximum_flow
+from service.solvers import Graph, maximum_flow
 from service.solvers.certificates import check_max_flow
 from tests.checkers import assert_cut, assert_exact_max_flow, assert_integral, assert_max_flow
 from tests.references import max_flow_value
@@ -32,7 +32,7 @@ def arrays(arcs):
 
 def solve(n, arcs, s, t, engine="auto"):
     tail, head, cap, unlimited = arrays(arcs)
-    return maximum_flow(n, tail, head, cap, unlimited, s, t, engine=engine)
+    return maximum_flow(Graph(n, tail, head, cap, unlimited), s, t, engine=engine)
 
 
 def check_against_theorems(n, arcs, s, t, solution, tol=0.0):
@@ -210,7 +210,7 @@ def test_no_path_gives_zero_with_source_only_cut():
 # The certificate must fail on wrong answers, not only pass on right ones.
 def _good():
     tail, head, cap, _ = arrays(CLRS_26_1)
-    solution, _ = maximum_flow(6, tail, head, cap, None, 0, 5)
+    solution, _ = maximum_flow(Graph(6, tail, head, cap), 0, 5)
     return tail, head, cap, solution
 
 
@@ -219,7 +219,7 @@ def test_certificate_rejects_an_overfull_arc():
     flows = s.flows.copy()
     flows[0] = cap[0] + 1
     with pytest.raises(SelfCheckFailed, match="capacity"):
-        check_max_flow(6, tail, head, cap, None, 0, 5, flows, s.value, s.source_side)
+        check_max_flow(Graph(6, tail, head, cap), 0, 5, flows, s.value, s.source_side)
 
 
 def test_certificate_rejects_broken_conservation():
@@ -227,7 +227,7 @@ def test_certificate_rejects_broken_conservation():
     flows = s.flows.copy()
     flows[2] -= 1  # v1 -> v3 loses a unit: v1 now holds flow
     with pytest.raises(SelfCheckFailed, match="conserved"):
-        check_max_flow(6, tail, head, cap, None, 0, 5, flows, s.value, s.source_side)
+        check_max_flow(Graph(6, tail, head, cap), 0, 5, flows, s.value, s.source_side)
 
 
 def test_certificate_rejects_a_cut_that_is_not_minimum():
@@ -235,13 +235,13 @@ def test_certificate_rejects_a_cut_that_is_not_minimum():
     side = np.zeros(6, dtype=bool)
     side[0] = True  # {s}: capacity 29, not 23
     with pytest.raises(SelfCheckFailed, match="cut capacity"):
-        check_max_flow(6, tail, head, cap, None, 0, 5, s.flows, s.value, side)
+        check_max_flow(Graph(6, tail, head, cap), 0, 5, s.flows, s.value, side)
 
 
 def test_certificate_rejects_a_wrong_value():
     tail, head, cap, s = _good()
     with pytest.raises(SelfCheckFailed, match="value"):
-        check_max_flow(6, tail, head, cap, None, 0, 5, s.flows, s.value + 1, s.source_side)
+        check_max_flow(Graph(6, tail, head, cap), 0, 5, s.flows, s.value + 1, s.source_side)
 
 
 def test_certificate_rejects_a_cut_through_an_unlimited_arc():
@@ -249,4 +249,4 @@ def test_certificate_rejects_a_cut_through_an_unlimited_arc():
     cap, unlimited = np.array([0, 5]), np.array([True, False])
     side = np.array([True, False, False])
     with pytest.raises(SelfCheckFailed, match="without a capacity limit"):
-        check_max_flow(3, tail, head, cap, unlimited, 0, 2, np.array([5, 5]), 5, side)
+        check_max_flow(Graph(3, tail, head, cap, unlimited), 0, 2, np.array([5, 5]), 5, side)

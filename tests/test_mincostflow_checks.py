@@ -6,7 +6,7 @@ import numpy as np
 import pytest
 
 from service.errors import SelfCheckFailed
-from service.solvers import mincost_checks as checks
+from service.solvers import Graph, mincost_checks as checks
 from service.solvers.mincost import min_cost_flow
 from service.solvers.potentials import node_potentials
 
@@ -20,13 +20,13 @@ SUP = np.array([6, 0, 0, -6])
 
 @pytest.fixture
 def solved():
-    sol, cert = min_cost_flow(4, TAIL, HEAD, CAP, None, COST, None, SUP)
+    sol, cert = min_cost_flow(Graph(4, TAIL, HEAD, CAP, None, COST), SUP)
     assert sol.status == "optimal" and cert["gap"] == 0
     return sol
 
 
 def check(flows, potentials, lower=None):
-    return checks.check_min_cost_flow(4, TAIL, HEAD, CAP, None, lower, COST, SUP, flows, potentials)
+    return checks.check_min_cost_flow(Graph(4, TAIL, HEAD, CAP, None, COST, lower), SUP, flows, potentials)
 
 
 def test_right_answer_passes(solved):
@@ -81,7 +81,7 @@ def test_potentials_refuse_a_non_optimal_flow():
     # has a negative cycle, so no potentials exist.
     flows = np.array([2, 2, 2, 2, 2])
     with pytest.raises(SelfCheckFailed, match="negative cycle"):
-        node_potentials(4, TAIL, HEAD, COST, flows, CAP, None)
+        node_potentials(Graph(4, TAIL, HEAD, CAP, None, COST), flows)
 
 
 def test_infeasible_set_check_rejects_a_set_that_proves_nothing():
@@ -145,7 +145,7 @@ def test_potentials_on_grids_prove_optimality(shape):
     amount = rng.integers(1, 6, rows)
     sup[idx[:, 0]] = amount
     sup[idx[:, -1]] = -amount
-    sol, cert = min_cost_flow(rows * cols, tail, head, cap, None, cost, None, sup)
+    sol, cert = min_cost_flow(Graph(rows * cols, tail, head, cap, None, cost), sup)
     assert sol.status == "optimal" and cert["gap"] == 0 and cert["slackness_violations"] == 0
     rc = cost + sol.potentials[tail] - sol.potentials[head]
     assert np.all(rc[sol.flows < cap] >= 0) and np.all(rc[sol.flows > 0] <= 0)

@@ -15,6 +15,7 @@ import numpy as np
 import pytest
 from scipy.optimize import linprog
 
+from service.solvers import Graph
 from service.solvers.mincost import min_cost_flow
 from tests.checkers import assert_capacities, assert_conservation, assert_integral
 from tests.references import max_flow_value, min_cost_flow_cost
@@ -93,7 +94,7 @@ def test_random_networks_match_network_simplex(engine, negative_unlimited):
     for seed in range(120):
         n = 8
         tail, head, cap, unl, cost, low, sup = random_network(n, 22, seed, negative_unlimited=negative_unlimited)
-        sol, cert = min_cost_flow(n, tail, head, cap, unl, cost, low, sup, engine=engine)
+        sol, cert = min_cost_flow(Graph(n, tail, head, cap, unl, cost, low), sup, engine=engine)
         status, value = networkx_reference(n, tail, head, cap, unl, cost, low, sup)
         statuses.add(sol.status)
         if status == "unbounded" and sol.status == "infeasible":
@@ -118,7 +119,7 @@ def test_decimal_data_are_solved_exactly_by_scaling():
     for seed in range(60):
         n = 7
         tail, head, cap, unl, cost, low, sup = random_network(n, 18, seed, decimals=True)
-        sol, cert = min_cost_flow(n, tail, head, cap, unl, cost, low, sup)
+        sol, cert = min_cost_flow(Graph(n, tail, head, cap, unl, cost, low), sup)
         # networkx's simplex is only reliable on integers: give it the data times 4 and 10.
         status, value = networkx_reference(n, tail, head, np.rint(cap * 4), unl, np.rint(cost * 10),
                                            np.rint(low * 4), np.rint(sup * 4))
@@ -136,7 +137,7 @@ def test_fractions_beyond_six_places_go_to_lp_with_stated_tolerance():
     cap = np.array([1 / 3, 2.0, 1.0, 2.0])
     cost = np.array([1.0, 2.5, 1.0, 1 / 7])
     sup = np.array([1.0, 0, 0, -1.0])
-    sol, cert = min_cost_flow(4, tail, head, cap, None, cost, None, sup)
+    sol, cert = min_cost_flow(Graph(4, tail, head, cap, None, cost), sup)
     assert sol.engine["kind"] == "lp" and sol.tolerance > 0
     # Reference: scipy.optimize.linprog (HiGHS) on the same LP.
     a = np.zeros((4, 4))
@@ -174,7 +175,7 @@ def test_max_flow_mode_matches_networkx_max_flow_min_cost():
         tail, head, cap, unl, cost, _, sup = random_network(n, 20, seed, lower=False)
         sup = sup.copy()
         sup[np.argmax(sup)] += 7  # unbalanced: more supply than demand
-        sol, cert = min_cost_flow(n, tail, head, cap, unl, cost, None, sup, shortage="max-flow")
+        sol, cert = min_cost_flow(Graph(n, tail, head, cap, unl, cost), sup, shortage="max-flow")
         shipped, value = max_flow_min_cost_reference(n, tail, head, cap, unl, cost, sup)
         assert sol.status == "optimal"
         assert sol.shipped == shipped and sol.cost == value
@@ -222,7 +223,7 @@ def test_max_flow_mode_with_lower_bounds_matches_highs():
         tail, head, cap, unl, cost, low, sup = random_network(n, 18, seed)
         sup = sup.copy()
         sup[np.argmin(sup)] -= 5  # more demand than supply
-        sol, cert = min_cost_flow(n, tail, head, cap, unl, cost, low, sup, shortage="max-flow")
+        sol, cert = min_cost_flow(Graph(n, tail, head, cap, unl, cost, low), sup, shortage="max-flow")
         status, shipped, value = lexicographic_linprog(n, tail, head, cap, unl, cost, low, sup)
         seen.add(sol.status)
         if status == "unbounded":
@@ -242,8 +243,8 @@ def test_max_flow_mode_lp_engine_agrees_with_graph_engine():
         tail, head, cap, unl, cost, low, sup = random_network(n, 18, seed)
         sup = sup.copy()
         sup[np.argmax(sup)] += 4
-        graph, _ = min_cost_flow(n, tail, head, cap, unl, cost, low, sup, shortage="max-flow")
-        lp, cert = min_cost_flow(n, tail, head, cap, unl, cost, low, sup, shortage="max-flow", engine="lp")
+        graph, _ = min_cost_flow(Graph(n, tail, head, cap, unl, cost, low), sup, shortage="max-flow")
+        lp, cert = min_cost_flow(Graph(n, tail, head, cap, unl, cost, low), sup, shortage="max-flow", engine="lp")
         assert lp.status == graph.status
         if graph.status == "optimal":
             assert lp.shipped == pytest.approx(graph.shipped, abs=1e-6)
@@ -254,7 +255,7 @@ def test_infeasibility_proof_set_satisfies_its_inequality():
     for seed in range(100):
         n = 8
         tail, head, cap, unl, cost, low, sup = random_network(n, 16, seed)
-        sol, _ = min_cost_flow(n, tail, head, cap, unl, cost, low, sup)
+        sol, _ = min_cost_flow(Graph(n, tail, head, cap, unl, cost, low), sup)
         if sol.status != "infeasible":
             continue
         proof = sol.infeasibility
@@ -280,7 +281,7 @@ def test_unbounded_answer_carries_a_negative_cycle_of_unlimited_arcs():
     unl = np.array([False, True, True, False])
     cost = np.array([1, -3, 1, 0])
     sup = np.array([0, 0, 0, 0])
-    sol, cert = min_cost_flow(4, tail, head, cap, unl, cost, None, sup)
+    sol, cert = min_cost_flow(Graph(4, tail, head, cap, unl, cost), sup)
     assert sol.status == "unbounded"
     assert sorted(sol.negative_cycle.tolist()) == [1, 2] and cert["cycle_cost"] == -2
     graph = nx.DiGraph()
@@ -298,7 +299,7 @@ def test_transportation_textbook_example():
     tail = np.repeat(np.arange(3), 4).astype(np.int32)
     head = (3 + np.tile(np.arange(4), 3)).astype(np.int32)
     sup = np.array(supply + [-d for d in demand])
-    sol, cert = min_cost_flow(7, tail, head, np.zeros(12, np.int64), np.ones(12, bool), costs.ravel(), None, sup)
+    sol, cert = min_cost_flow(Graph(7, tail, head, np.zeros(12, np.int64), np.ones(12, bool), costs.ravel()), sup)
     assert sol.status == "optimal" and sol.cost == 152_535
     assert cert["dual_bound"] == 152_535 and cert["gap"] == 0
     status, value = networkx_reference(7, tail, head, np.zeros(12), np.ones(12, bool), costs.ravel(),
@@ -315,7 +316,7 @@ def test_huge_costs_are_solved_exactly_by_their_common_factor_or_refused_with_a_
     tail = np.array([0], np.int32)
     head = np.array([1], np.int32)
     sup = np.array([1, -1])
-    sol, cert = min_cost_flow(2, tail, head, np.array([1]), None, np.array([2**60]), None, sup)
+    sol, cert = min_cost_flow(Graph(2, tail, head, np.array([1]), None, np.array([2**60])), sup)
     # 2**60 * (nodes + 1) overflows OR-Tools' int64 costs; divided by 2**60 it is 1.
     assert sol.engine["kind"] == "graph" and sol.cost == 2**60 and cert["cost_factor"] == 2**60
     assert cert["gap"] == 0 and cert["tolerance"] == 0
@@ -324,7 +325,7 @@ def test_huge_costs_are_solved_exactly_by_their_common_factor_or_refused_with_a_
     tail, head = np.array([0, 0], np.int32), np.array([1, 1], np.int32)
     for engine in ("auto", "graph"):  # coprime costs: no common factor helps; never the LP engine
         with pytest.raises(InputError) as info:
-            min_cost_flow(2, tail, head, np.array([1, 1]), None, np.array([2**60 + 1, 2**60 + 3]), None, sup,
+            min_cost_flow(Graph(2, tail, head, np.array([1, 1]), None, np.array([2**60 + 1, 2**60 + 3])), sup,
                           engine=engine)
         error = info.value.errors[0]
         assert error.pointer == "/arcs" and "arc 1's cost" in error.detail and "at most" in error.detail

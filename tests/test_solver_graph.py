@@ -7,10 +7,14 @@ path lengths for breadth-first layers) and the definition of the residual networ
 
 from __future__ import annotations
 
+import dataclasses
+
 import networkx as nx
 import numpy as np
 import pytest
 
+from service.kinds.base import graph_of
+from service.model.arcs import read_network
 from service.solvers.graph import (
     BACKWARD, FORWARD, Graph, bfs_depth, bfs_predecessors, bfs_tree, components, max_degree, node_balance, reach,
     residual_arcs, residual_network, residual_reach,
@@ -110,3 +114,31 @@ def test_residual_network_follows_its_definition(seed):
     assert (g.residual_reach(flows, 0) == reach(n, res.src, res.dst, 0)).all()
     assert (g.residual(flows).arc == res.arc).all()
     assert (residual_reach(n, tail, head, flows, capacity, unlimited, 0) == g.residual_reach(flows, 0)).all()
+
+
+def test_graph_residual_takes_its_lower_bounds():
+    # Definition of the residual network with lower bounds: flow above the lower bound
+    # can be taken back, so an arc at its lower bound has no backward residual arc.
+    tail, head = np.array([0, 1]), np.array([1, 2])
+    capacity, lower, flows = np.array([5, 5]), np.array([2, 0]), np.array([2, 2])
+    g = Graph(3, tail, head, capacity, lower=lower)
+    pairs = set(zip(g.residual(flows).arc.tolist(), g.residual(flows).direction.tolist()))
+    assert pairs == {(0, FORWARD), (1, FORWARD), (1, BACKWARD)}
+    assert set(zip(g.replace(lower=None).residual(flows).arc.tolist(),
+                   g.replace(lower=None).residual(flows).direction.tolist())) == pairs | {(0, BACKWARD)}
+
+
+def test_graph_shares_arrays_and_stays_frozen():
+    # Building or replacing a Graph copies no array (a 1M-arc solve pays nothing for it),
+    # and a Graph cannot be changed in place.
+    net, _ = read_network([{"from": "a", "to": "b", "capacity": 3, "cost": 2},
+                           {"from": "b", "to": "c", "capacity": 4, "lower": 1}], None, max_arcs=10, max_nodes=10)
+    g = graph_of(net)
+    assert g.num_nodes == net.num_nodes == 3
+    for name in ("tail", "head", "capacity", "unlimited", "cost", "lower"):
+        assert getattr(g, name) is getattr(net, name)
+    doubled = g.replace(capacity=g.capacity * 2)
+    assert doubled.tail is g.tail and doubled.cost is g.cost and doubled.capacity.tolist() == [6, 8]
+    assert g.capacity.tolist() == [3, 4]
+    with pytest.raises(dataclasses.FrozenInstanceError):
+        g.tail = g.head

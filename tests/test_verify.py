@@ -16,6 +16,7 @@ from scipy.optimize import linprog
 
 from service.errors import SelfCheckFailed
 from service.kinds import KINDS
+from service.solvers import Graph
 from service.solvers.verify import (
     BACKWARD, FORWARD, check_augmenting_path, check_cut_proof, check_negative_cycle, check_potentials,
     verify_max_flow, verify_min_cost_flow,
@@ -54,7 +55,7 @@ def test_networkx_maximum_is_reported_optimal_with_a_cut_of_equal_capacity(seed)
     n = int(rng.integers(5, 25))
     tail, head, cap = random_digraph(rng, n, int(rng.integers(n, 4 * n)))
     value, flows = networkx_max_flow(n, tail, head, cap)
-    verdict = verify_max_flow(n, tail, head, cap, None, 0, n - 1, flows)
+    verdict = verify_max_flow(Graph(n, tail, head, cap), 0, n - 1, flows)
     assert verdict.feasible and verdict.optimal and verdict.violation_count == 0
     assert verdict.objective == value and verdict.cut_capacity == value  # max-flow min-cut
     assert verdict.steps is None
@@ -72,7 +73,7 @@ def test_sub_optimal_plans_get_paths_whose_gains_reach_the_networkx_value(seed):
     flows = np.zeros_like(cap)  # the empty plan: feasible, value 0
     value = 0
     for _ in range(4 * tail.size + 2):
-        verdict = verify_max_flow(n, tail, head, cap, None, 0, n - 1, flows)
+        verdict = verify_max_flow(Graph(n, tail, head, cap), 0, n - 1, flows)
         assert verdict.feasible and verdict.objective == value
         if verdict.optimal:
             break
@@ -99,7 +100,7 @@ def test_a_maximum_flow_of_half_capacities_is_completed_by_paths():
     cap = cap * 2
     assert half > 0 and networkx_max_flow(n, tail, head, cap)[0] == 2 * half
     total, rounds = half, 0
-    while not (v := verify_max_flow(n, tail, head, cap, None, 0, n - 1, flows)).optimal:
+    while not (v := verify_max_flow(Graph(n, tail, head, cap), 0, n - 1, flows)).optimal:
         assert v.feasible and v.objective == total
         for a, d in v.steps:
             flows[a] += d * v.gain
@@ -113,7 +114,7 @@ def test_augmenting_path_can_run_backward_along_an_arc():
     tail, head = np.array([0, 0, 1, 1, 2]), np.array([1, 2, 2, 3, 3])
     cap = np.array([1, 1, 1, 1, 1])
     flows = np.array([1, 0, 1, 0, 1])
-    v = verify_max_flow(4, tail, head, cap, None, 0, 3, flows)
+    v = verify_max_flow(Graph(4, tail, head, cap), 0, 3, flows)
     assert v.feasible and not v.optimal and v.gain == 1
     assert v.steps == [(1, FORWARD), (2, BACKWARD), (3, FORWARD)]
 
@@ -124,7 +125,7 @@ def test_violations_are_reported_exactly():
     tail, head = np.array([0, 1, 0, 2]), np.array([1, 3, 2, 3])
     cap = np.array([4, 5, 6, 1])
     flows = np.array([7, 3, -2, 1])
-    v = verify_max_flow(4, tail, head, cap, None, 0, 3, flows)
+    v = verify_max_flow(Graph(4, tail, head, cap), 0, 3, flows)
     assert not v.feasible and not v.optimal and v.steps is None
     assert v.arc_violations == [(0, "capacity", 3), (2, "lower", 2)]
     assert v.node_violations == [(1, 4), (2, -3)]
@@ -134,15 +135,15 @@ def test_violations_are_reported_exactly():
 def test_fractional_plans_are_checked_with_a_stated_tolerance():
     tail, head = np.array([0, 1, 0]), np.array([1, 2, 2])
     cap = np.array([0.75, 0.5, 1.1])
-    v = verify_max_flow(3, tail, head, cap, None, 0, 2, np.array([0.5, 0.5, 1.1]))
+    v = verify_max_flow(Graph(3, tail, head, cap), 0, 2, np.array([0.5, 0.5, 1.1]))
     assert v.feasible and v.optimal and v.objective == pytest.approx(1.6) and v.tolerance > 0
-    v = verify_max_flow(3, tail, head, cap, None, 0, 2, np.array([0.25, 0.25, 1.1]))
+    v = verify_max_flow(Graph(3, tail, head, cap), 0, 2, np.array([0.25, 0.25, 1.1]))
     assert not v.optimal and v.gain == pytest.approx(0.25)
 
 
 def test_unlimited_path_means_unbounded():
     unlimited = np.array([True, True, False])
-    v = verify_max_flow(3, np.array([0, 1, 0]), np.array([1, 2, 2]), np.array([0, 0, 5]), unlimited, 0, 2,
+    v = verify_max_flow(Graph(3, np.array([0, 1, 0]), np.array([1, 2, 2]), np.array([0, 0, 5]), unlimited), 0, 2,
                         np.array([3, 3, 5]))
     assert v.feasible and not v.optimal and v.gain is None and v.steps == [(0, FORWARD), (1, FORWARD)]
 
@@ -161,32 +162,34 @@ def _depots_arrays():
 
 def test_cut_proof_check_fails_on_wrong_cuts():
     n, tail, head, cap, s, t = _depots_arrays()
+    graph = Graph(n, tail, head, cap)
     flows = np.array([100, 60, 30, 70, 30, 60, 100, 60, 0])
     good = np.array([True, True, True, True, True, False])
-    check_cut_proof(tail, head, cap, None, s, t, flows, 160, good)  # holds
+    check_cut_proof(graph, s, t, flows, 160, good)  # holds
     with pytest.raises(SelfCheckFailed, match="separate"):
-        check_cut_proof(tail, head, cap, None, s, t, flows, 160, np.ones(n, dtype=bool))
+        check_cut_proof(graph, s, t, flows, 160, np.ones(n, dtype=bool))
     with pytest.raises(SelfCheckFailed, match="differs"):
-        check_cut_proof(tail, head, cap, None, s, t, flows, 150, good)
+        check_cut_proof(graph, s, t, flows, 150, good)
     with pytest.raises(SelfCheckFailed):
-        check_cut_proof(tail, head, cap, None, s, t, flows, 160, np.array([True] + [False] * 5))
+        check_cut_proof(graph, s, t, flows, 160, np.array([True] + [False] * 5))
 
 
 def test_augmenting_path_check_fails_on_wrong_paths():
     n, tail, head, cap, s, t = _depots_arrays()
+    graph = Graph(n, tail, head, cap)
     flows = np.array(PLAN["flows"])
     good = [(1, FORWARD), (5, FORWARD), (7, FORWARD)]
-    check_augmenting_path(n, tail, head, cap, None, s, t, flows, good, 10)  # holds
+    check_augmenting_path(graph, s, t, flows, good, 10)  # holds
     with pytest.raises(SelfCheckFailed, match="breaks"):
-        check_augmenting_path(n, tail, head, cap, None, s, t, flows, good, 11)
+        check_augmenting_path(graph, s, t, flows, good, 11)
     with pytest.raises(SelfCheckFailed, match="not connected"):
-        check_augmenting_path(n, tail, head, cap, None, s, t, flows, [(1, FORWARD), (3, FORWARD), (7, FORWARD)], 1)
+        check_augmenting_path(graph, s, t, flows, [(1, FORWARD), (3, FORWARD), (7, FORWARD)], 1)
     with pytest.raises(SelfCheckFailed, match="source to the sink"):
-        check_augmenting_path(n, tail, head, cap, None, s, t, flows, [(1, FORWARD), (5, FORWARD)], 1)
+        check_augmenting_path(graph, s, t, flows, [(1, FORWARD), (5, FORWARD)], 1)
     with pytest.raises(SelfCheckFailed, match="not more than 0"):
-        check_augmenting_path(n, tail, head, cap, None, s, t, flows, good, 0)
+        check_augmenting_path(graph, s, t, flows, good, 0)
     with pytest.raises(SelfCheckFailed, match="without limit"):
-        check_augmenting_path(n, tail, head, cap, None, s, t, flows, good, None)
+        check_augmenting_path(graph, s, t, flows, good, None)
 
 
 def _mc_arrays():
@@ -203,33 +206,35 @@ def _mc_arrays():
 
 def test_negative_cycle_check_fails_on_wrong_cycles():
     n, tail, head, cap, cost, supply = _mc_arrays()
+    graph = Graph(n, tail, head, cap, None, cost)
     flows = np.array(MC_PLAN["flows"])
     good = [(1, BACKWARD), (0, FORWARD), (3, FORWARD)]
-    check_negative_cycle(n, tail, head, cap, None, cost, None, supply, flows, good, 40, 80)  # holds
+    check_negative_cycle(graph, supply, flows, good, 40, 80)  # holds
     with pytest.raises(SelfCheckFailed, match="saves"):
-        check_negative_cycle(n, tail, head, cap, None, cost, None, supply, flows, good, 40, 90)
+        check_negative_cycle(graph, supply, flows, good, 40, 90)
     with pytest.raises(SelfCheckFailed, match="breaks"):
-        check_negative_cycle(n, tail, head, cap, None, cost, None, supply, flows, good, 41, 82)
+        check_negative_cycle(graph, supply, flows, good, 41, 82)
     with pytest.raises(SelfCheckFailed, match="not less than 0"):
         reverse = [(1, FORWARD), (3, BACKWARD), (0, BACKWARD)]
-        check_negative_cycle(n, tail, head, cap, None, cost, None, supply, flows, reverse, 1, -2)
+        check_negative_cycle(graph, supply, flows, reverse, 1, -2)
     with pytest.raises(SelfCheckFailed, match="does not close"):
-        check_negative_cycle(n, tail, head, cap, None, cost, None, supply, flows, good[:2], 1, 1)
+        check_negative_cycle(graph, supply, flows, good[:2], 1, 1)
 
 
 def test_potentials_check_fails_on_wrong_potentials():
     n, tail, head, cap, cost, supply = _mc_arrays()
-    plan = verify_min_cost_flow(n, tail, head, cap, None, cost, None, supply, np.array(MC_PLAN["flows"]))
+    graph = Graph(n, tail, head, cap, None, cost)
+    plan = verify_min_cost_flow(graph, supply, np.array(MC_PLAN["flows"]))
     flows = np.array(MC_PLAN["flows"])
     for a, d in plan.steps:
         flows[a] += d * plan.amount
-    best = verify_min_cost_flow(n, tail, head, cap, None, cost, None, supply, flows)
+    best = verify_min_cost_flow(graph, supply, flows)
     assert best.optimal
-    check_potentials(tail, head, cap, None, cost, None, flows, best.potentials)  # holds
+    check_potentials(graph, flows, best.potentials)  # holds
     with pytest.raises(SelfCheckFailed, match="reduced cost"):
-        check_potentials(tail, head, cap, None, cost, None, flows, np.zeros(n, dtype=np.int64))
+        check_potentials(graph, flows, np.zeros(n, dtype=np.int64))
     with pytest.raises(SelfCheckFailed, match="reduced cost"):  # the sub-optimal plan has no such potentials
-        check_potentials(tail, head, cap, None, cost, None, np.array(MC_PLAN["flows"]), best.potentials)
+        check_potentials(graph, np.array(MC_PLAN["flows"]), best.potentials)
 
 
 # --- min-cost flow against networkx and scipy ------------------------------------
@@ -271,7 +276,7 @@ def test_cycle_cancelling_from_a_dear_plan_reaches_the_highs_optimum(seed):
     lo = None if not lower.any() else lower
     start = (cost * flows).sum()
     for _ in range(10 * m):
-        v = verify_min_cost_flow(n, tail, head, cap, None, cost, lo, supply, flows)
+        v = verify_min_cost_flow(Graph(n, tail, head, cap, None, cost, lo), supply, flows)
         assert v.feasible and v.violation_count == 0
         if v.optimal:
             break
@@ -302,7 +307,7 @@ def test_networkx_simplex_optimum_is_reported_optimal(seed):
     best_cost, flow = min_cost_flow(zip(tail.tolist(), head.tolist(), cap.tolist(), cost.tolist()),
                                     dict(enumerate(supply.tolist())), range(n))
     flows = np.array(flow)
-    v = verify_min_cost_flow(n, tail, head, cap, None, cost, None, supply, flows)
+    v = verify_min_cost_flow(Graph(n, tail, head, cap, None, cost), supply, flows)
     assert v.feasible and v.optimal and v.objective == best_cost
 
 
@@ -311,7 +316,7 @@ def test_min_cost_violations_with_lower_bounds_and_supplies():
     # Arc 1 (1->2) cap 3 carries 4: over by 1. Node 0 sends 1 of its 5: +4 left over;
     # node 1 gets 1 and sends 4: -3; node 2 gets 4 of 5: -1... as supply + in - out.
     tail, head = np.array([0, 1]), np.array([1, 2])
-    v = verify_min_cost_flow(3, tail, head, np.array([4, 3]), None, np.array([1, 1]), np.array([2, 0]),
+    v = verify_min_cost_flow(Graph(3, tail, head, np.array([4, 3]), None, np.array([1, 1]), np.array([2, 0])),
                              np.array([5, 0, -5]), np.array([1, 4]))
     assert not v.feasible
     assert v.arc_violations == [(0, "lower", 1), (1, "capacity", 1)]
@@ -322,14 +327,14 @@ def test_min_cost_violations_with_lower_bounds_and_supplies():
 def test_unlimited_negative_cycle_means_unbounded():
     # A two-arc cycle without limits whose round trip costs -1.
     unlimited = np.array([True, True, False])
-    v = verify_min_cost_flow(3, np.array([0, 1, 0]), np.array([1, 0, 2]), np.array([0, 0, 5]), unlimited,
-                             np.array([-3, 2, 1]), None, np.array([5, 0, -5]), np.array([0, 0, 5]))
+    v = verify_min_cost_flow(Graph(3, np.array([0, 1, 0]), np.array([1, 0, 2]), np.array([0, 0, 5]), unlimited,
+                                   np.array([-3, 2, 1])), np.array([5, 0, -5]), np.array([0, 0, 5]))
     assert v.feasible and not v.optimal and v.gain is None and v.amount is None and v.unit_cost == -1
 
 
 def test_self_loop_with_negative_cost_is_an_improving_cycle():
-    v = verify_min_cost_flow(2, np.array([0, 1]), np.array([1, 1]), np.array([3, 2]), None,
-                             np.array([1, -5]), None, np.array([3, -3]), np.array([3, 0]))
+    v = verify_min_cost_flow(Graph(2, np.array([0, 1]), np.array([1, 1]), np.array([3, 2]), None, np.array([1, -5])),
+                             np.array([3, -3]), np.array([3, 0]))
     assert v.steps == [(1, FORWARD)] and v.amount == 2 and v.gain == 10
 
 
@@ -450,9 +455,9 @@ def test_huge_integers_are_checked_without_wrapping_round():
     # Three arcs of 2**62 into one node: its imbalance (3 * 2**62) does not fit int64.
     big = 2**62
     tail, head = np.array([0, 0, 0, 1]), np.array([1, 1, 1, 2])
-    v = verify_max_flow(3, tail, head, np.array([big] * 4), None, 0, 2, np.array([big, big, big, 0]))
+    v = verify_max_flow(Graph(3, tail, head, np.array([big] * 4)), 0, 2, np.array([big, big, big, 0]))
     assert not v.feasible and v.node_violations == [(1, pytest.approx(3.0 * big))]
     # A cost of 2**40 on a flow of 2**40 is 2**80: reported as that, not wrapped.
-    v = verify_min_cost_flow(2, np.array([0]), np.array([1]), np.array([2**40]), None, np.array([2**40]), None,
+    v = verify_min_cost_flow(Graph(2, np.array([0]), np.array([1]), np.array([2**40]), None, np.array([2**40])),
                              np.array([2**40, -(2**40)]), np.array([2**40]))
     assert v.feasible and v.optimal and v.objective == pytest.approx(2.0**80)

@@ -6,7 +6,7 @@ import numpy as np
 from flask import Blueprint, current_app
 from marshmallow import Schema, fields
 
-from ..solvers import maximum_flow
+from ..solvers import Graph, maximum_flow
 from .declare import json_body, ok, operation
 from .storage import get_store
 from .jsonio import json_response
@@ -33,7 +33,7 @@ def healthz():
 def _tiny_solve_ok() -> bool:
     tail = np.array([0, 1], dtype=np.int32)
     head = np.array([1, 2], dtype=np.int32)
-    solution, _ = maximum_flow(3, tail, head, np.array([2, 1], dtype=np.int64), None, 0, 2)
+    solution, _ = maximum_flow(Graph(3, tail, head, np.array([2, 1], dtype=np.int64)), 0, 2)
     return solution.value == 1
 
 

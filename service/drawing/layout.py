@@ -2,10 +2,11 @@
 
 Layer 0 holds the anchors on the left (the source, or the supply nodes); every other
 node sits one layer right of its nearest predecessor by breadth-first search along
-the arcs (the solvers' :func:`~service.solvers.graph.bfs_depth`); the right anchors (the sink, or the demand nodes) take a layer of their own
-at the right edge; nodes the search does not reach go to a last column. Within a
-layer, nodes are ordered by the mean position of their neighbours in the layer before
-(two sweeps), which keeps most arcs from crossing.
+the arcs (the solvers' graph type, :meth:`~service.solvers.graph.Graph.depth`); the
+right anchors (the sink, or the demand nodes) take a layer of their own at the right
+edge; nodes the search does not reach go to a last column. Within a layer, nodes are
+ordered by the mean position of their neighbours in the layer before (two sweeps),
+which keeps most arcs from crossing.
 
 Columns are as far apart as their widest node needs to leave a channel between
 them, where arcs run; rows are spaced so that a gap between two nodes' footprints (the
@@ -18,7 +19,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ..solvers.graph import bfs_depth
+from ..solvers.graph import Graph
 from .geometry import Box, union
 
 COL_GAP, ROW_GAP = 230.0, 96.0
@@ -26,14 +27,13 @@ COL_GAP, ROW_GAP = 230.0, 96.0
 MIN_CHANNEL = 110.0
 
 
-def layered_layout(num_nodes: int, tail, head, sources, sinks) -> tuple[np.ndarray, np.ndarray]:
+def layered_layout(graph: Graph, sources, sinks) -> tuple[np.ndarray, np.ndarray]:
     """Layer (column) and rank (row within the column) of every node.
 
     Parameters
     ----------
-    num_nodes : int
-    tail, head : ndarray of int
-        Arc ends.
+    graph : Graph
+        The nodes and arcs (only ``num_nodes``, ``tail`` and ``head`` are read).
     sources, sinks : sequence of int
         Nodes for the left edge and for a right-most column of their own.
 
@@ -43,13 +43,15 @@ def layered_layout(num_nodes: int, tail, head, sources, sinks) -> tuple[np.ndarr
 
     Examples
     --------
-    >>> layer, rank = layered_layout(3, np.array([0, 1]), np.array([1, 2]), [0], [2])
+    >>> layer, rank = layered_layout(Graph(3, np.array([0, 1]), np.array([1, 2])), [0], [2])
     >>> layer.tolist(), rank.tolist()
     ([0, 1, 2], [0, 0, 0])
     """
-    tail, head = np.asarray(tail, dtype=np.int64), np.asarray(head, dtype=np.int64)
+    num_nodes = graph.num_nodes
+    tail, head = np.asarray(graph.tail, dtype=np.int64), np.asarray(graph.head, dtype=np.int64)
+    graph = graph.replace(tail=tail, head=head)
     sinks = [s for s in sinks if s not in set(sources)]
-    layer = bfs_depth(num_nodes, tail, head, sources or ([0] if num_nodes else []))
+    layer = graph.depth(sources or ([0] if num_nodes else []))
     inner = np.ones(num_nodes, dtype=bool)
     inner[list(sinks)] = False
     reached = (layer >= 0) & inner

@@ -14,6 +14,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from ..solvers.graph import Graph
 from . import svg
 from .base import Drawer, DrawnNetwork, Marks, fmt
 from .geometry import Box, bounds, sample, union
@@ -80,7 +81,7 @@ def draw(drawer: Drawer, net: DrawnNetwork, result: dict) -> str:
     potentials = drawer.potentials(net, result)
     shapes = [_shape(drawer, net, v, potentials) for v in range(net.num_nodes)]
     widths = _stroke_widths(net, flows, marks)
-    layer, rank = layered_layout(net.num_nodes, net.tail, net.head, *drawer.anchors(net))
+    layer, rank = layered_layout(Graph(net.num_nodes, net.tail, net.head), *drawer.anchors(net))
     texts = [drawer.arc_label(net, a, None if flows is None else flows[a]) + marks.notes.get(a, "")
              for a in range(net.num_arcs)]
     for spread in SPREADS:

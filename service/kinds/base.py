@@ -17,9 +17,11 @@ from ..errors import InputError
 from ..model.ids import NodeIndex, ids_of, lookalike, shown_id  # noqa: F401 - ids_of: the kinds take it from here
 from ..model.schemas import load_envelope
 from ..model.stored import body_of
+from ..solvers.graph import Graph
 
 if TYPE_CHECKING:
     from ..drawing import Drawer
+    from ..model.arcs import Network
 
 
 @dataclass(frozen=True)
@@ -192,6 +194,26 @@ def problem_size(problem) -> int:
     int
     """
     return problem.size
+
+
+def graph_of(network: "Network") -> Graph:
+    """The solvers' graph of a parsed network, built once per solve.
+
+    The model knows nothing of the solvers; the kinds stand between them and hand
+    the model's arrays over as they are (no copies).
+
+    Parameters
+    ----------
+    network : Network
+        A normalised network (:func:`service.model.arcs.read_network`).
+
+    Returns
+    -------
+    Graph
+        Nodes, arcs, capacities, unlimited arcs, costs and lower bounds of ``network``.
+    """
+    return Graph(network.num_nodes, network.tail, network.head, network.capacity, network.unlimited,
+                 network.cost, network.lower)
 
 
 def node_position(nodes: NodeIndex, node_id, ptr: str) -> int:

@@ -22,7 +22,9 @@ from ..model.schemas import (
 from ..solvers import maximum_flow
 from ..solvers.versions import ORTOOLS_VERSION
 from ..errors import InputError, ProblemTooLarge, FieldError
-from .base import Kind, Limits, digest_detail, ids_of, node_position, problem_size, wants, without_arc_keys
+from .base import (
+    Kind, Limits, digest_detail, graph_of, ids_of, node_position, problem_size, wants, without_arc_keys,
+)
 from .verify import max_flow_plans
 
 DETAIL = ["flows", "cut"]
@@ -228,10 +230,8 @@ def solve(problem: MaxFlowProblem, deadline: Deadline) -> dict:
         when unbounded), ``certificate``, ``digest`` and ``engine``.
     """
     net = problem.network
-    solution, certificate = maximum_flow(
-        net.num_nodes, net.tail, net.head, net.capacity, net.unlimited, problem.source, problem.sink,
-        engine=problem.options["engine"], deadline=deadline,
-    )
+    solution, certificate = maximum_flow(graph_of(net), problem.source, problem.sink,
+                                         engine=problem.options["engine"], deadline=deadline)
     out: dict = {"status": solution.status, "value": solution.value}
     if solution.status == "unbounded":
         path = solution.unbounded_path

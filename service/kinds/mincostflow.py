@@ -18,7 +18,7 @@ from ..model.nodes import read_nodes
 from ..model.schemas import ArcsField, NodeId, NodesField, OptionsSchema, detail_field, load_envelope
 from ..solvers.mincost import imbalance, min_cost_flow
 from ..solvers.versions import ORTOOLS_VERSION
-from .base import Kind, Limits, digest_detail, ids_of, problem_size, wants, without_arc_keys
+from .base import Kind, Limits, digest_detail, graph_of, ids_of, problem_size, wants, without_arc_keys
 from .maxflow import EngineSchema, TimingSchema
 from .verify import min_cost_plans
 
@@ -319,10 +319,8 @@ def solve(problem: MinCostFlowProblem, deadline: Deadline) -> dict:
     """
     net = problem.network
     options = problem.options
-    solution, certificate = min_cost_flow(
-        net.num_nodes, net.tail, net.head, net.capacity, net.unlimited, net.cost, net.lower, problem.supply,
-        shortage=options["shortage"], engine=options["engine"], deadline=deadline,
-    )
+    solution, certificate = min_cost_flow(graph_of(net), problem.supply, shortage=options["shortage"],
+                                          engine=options["engine"], deadline=deadline)
     out: dict = {"status": solution.status, "cost": solution.cost, "shipped": solution.shipped}
     if solution.status == "optimal":
         if _wants(options, "flows"):

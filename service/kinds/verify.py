@@ -31,7 +31,7 @@ from ..model.arcs import Network, read_network
 from ..model.columns import number_column
 from ..model.schemas import ArcsField, NodesField, load_envelope
 from ..solvers.verify import FORWARD, Verdict, verify_max_flow, verify_min_cost_flow
-from .base import Limits, PlanVerifier, ids_of
+from .base import Limits, PlanVerifier, graph_of, ids_of
 from .nested import under
 
 class VerifyRequest(Schema):
@@ -298,8 +298,7 @@ def check_max_flow(problem: VerifyProblem, deadline: Deadline) -> dict:
         a minimum cut as the proof.
     """
     net = problem.network
-    verdict = verify_max_flow(net.num_nodes, net.tail, net.head, net.capacity, net.unlimited,
-                              problem.source, problem.sink, problem.flows)
+    verdict = verify_max_flow(graph_of(net), problem.source, problem.sink, problem.flows)
     out = _verdict(net, verdict, "value")
     if verdict.steps is not None:
         out["improving_path"] = _steps(net, verdict.steps)
@@ -331,8 +330,7 @@ def check_min_cost(problem: VerifyProblem, deadline: Deadline) -> dict:
         or node potentials as the proof.
     """
     net = problem.network
-    verdict = verify_min_cost_flow(net.num_nodes, net.tail, net.head, net.capacity, net.unlimited, net.cost,
-                                   net.lower, problem.supply, problem.flows, deadline=deadline)
+    verdict = verify_min_cost_flow(graph_of(net), problem.supply, problem.flows, deadline=deadline)
     out = _verdict(net, verdict, "cost")
     if verdict.steps is not None:
         out["improving_cycle"] = _steps(net, verdict.steps)

@@ -6,6 +6,9 @@ or the HTTP layer.
 
 Public surface
 --------------
+Graph
+    The one graph type: a network as aligned arrays (tail, head, capacity,
+    unlimited, cost, lower), taken by every front below.
 maximum_flow
     Max-flow with a minimum cut, on the graph engine (exact integers, or exact
     decimal scaling) or the LP engine (GLOP, stated tolerance).
@@ -26,11 +29,12 @@ MinCostSolution, AssignmentSolution
 from __future__ import annotations
 
 from .front import EngineChoice, maximum_flow
+from .graph import Graph
 from .lp import LPModel, LPResult, solve_certified
 from .maxflow_graph import MaxFlowSolution
 from .multicommodity import multicommodity_flow
 from .mincost import MinCostSolution, min_cost_flow
 from .assignment import AssignmentSolution, solve_assignment
 
-__all__ = ["AssignmentSolution", "EngineChoice", "LPModel", "LPResult", "MaxFlowSolution", "MinCostSolution",
+__all__ = ["AssignmentSolution", "EngineChoice", "Graph", "LPModel", "LPResult", "MaxFlowSolution", "MinCostSolution",
            "maximum_flow", "min_cost_flow", "multicommodity_flow", "solve_assignment", "solve_certified"]

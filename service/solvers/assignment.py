@@ -34,6 +34,7 @@ from ortools.graph.python import max_flow as ortools_max_flow
 from ..errors import FieldError, InputError, SelfCheckFailed, SolverFailure
 from . import mincost_checks as checks
 from .maxflow_graph import graph_engine
+from .graph import Graph
 from .mincost import min_cost_flow
 from .scaling import MAX_DECIMALS, common_scale, rescale
 
@@ -281,7 +282,7 @@ def _by_flow(n_agents, n_tasks, rows, cols, cost, c, exact, maximize, need_agent
     unlimited = np.concatenate([np.ones(m, dtype=bool), np.zeros(side_arcs, dtype=bool)])
     flow_cost = np.concatenate([c, np.zeros(side_arcs, dtype=c.dtype)])
     try:
-        flow, _ = min_cost_flow(k + t + 1, tail, head, capacity, unlimited, flow_cost, None, supply, engine=engine)
+        flow, _ = min_cost_flow(Graph(k + t + 1, tail, head, capacity, unlimited, flow_cost), supply, engine=engine)
     except InputError as exc:
         raise _refused(exc, m) from None
     if flow.status != "optimal":

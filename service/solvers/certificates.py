@@ -13,7 +13,7 @@ from __future__ import annotations
 import numpy as np
 
 from ..errors import SelfCheckFailed
-from .graph import node_balance  # noqa: F401  (re-exported for the checkers)
+from .graph import Graph, node_balance  # noqa: F401  (node_balance: re-exported for the checkers)
 
 
 def capacity_excess(flows, capacity, unlimited, lower=None) -> np.ndarray:
@@ -55,11 +55,7 @@ def beyond(error, allowed, relative: float):
 
 
 def check_max_flow(
-    num_nodes: int,
-    tail: np.ndarray,
-    head: np.ndarray,
-    capacity: np.ndarray,
-    unlimited: np.ndarray | None,
+    graph: Graph,
     source: int,
     sink: int,
     flows: np.ndarray,
@@ -75,9 +71,14 @@ def check_max_flow(
 
     Parameters
     ----------
-    capacity, flows : ndarray
-        int64 or Python ints (object) for exact data: every comparison is then exact;
-        float64 for answers of the LP engine.
+    graph : Graph
+        With ``capacity`` (ignored where ``unlimited``) and ``unlimited``.
+    source, sink : int
+    flows : ndarray
+        With the capacities: int64 or Python ints (object) for exact data, every
+        comparison then exact; float64 for answers of the LP engine.
+    value : number
+        The flow's value.
     source_side : ndarray of bool
         Membership of each node in the cut's source side.
     relative : float
@@ -99,6 +100,8 @@ def check_max_flow(
     SelfCheckFailed
         When any of the conditions fails.
     """
+    num_nodes, tail, head = graph.num_nodes, graph.tail, graph.head
+    capacity, unlimited = graph.capacity, graph.unlimited
     excess = capacity_excess(flows, capacity, unlimited)
     arcs = relative * arc_magnitude(capacity, unlimited, flows) if relative else 0
     bad = beyond(excess, arcs, relative)

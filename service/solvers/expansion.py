@@ -42,6 +42,7 @@ from ortools.sat.python import cp_model
 from ..deadline import Deadline
 from ..errors import FieldError, InputError, SolverFailure
 from . import expansion_checks as checks
+from .graph import Graph
 from .maxflow_graph import CapacityOverflow, graph_engine, max_flow_graph
 from .mincost_checks import check_min_cost_flow
 from .mincost_graph import GraphRangeError, solve_balanced, solver_bounds
@@ -222,9 +223,9 @@ def _min_cost_plan(lanes: Lanes):
     flows = solve_balanced(lanes.num_nodes, tail, head, caps, cost, supply)
     if flows is None:
         return None
-    potentials = node_potentials(lanes.num_nodes, tail, head, cost, flows, capacity, unlimited)
-    certificate = check_min_cost_flow(lanes.num_nodes, tail, head, capacity, unlimited, None, cost, supply, flows,
-                                      potentials)
+    graph = Graph(lanes.num_nodes, tail, head, capacity, unlimited, cost)
+    potentials = node_potentials(graph, flows)
+    certificate = check_min_cost_flow(graph, supply, flows, potentials)
     m = lanes.tail.size
     lane_flows = flows[:m].copy()
     lane_flows[extra] += flows[m:]

@@ -8,6 +8,7 @@ import numpy as np
 
 from ..deadline import Deadline
 from . import certificates
+from .graph import Graph
 from .maxflow_graph import CapacityOverflow, MaxFlowSolution, check_capacity_sums, max_flow_graph
 from .maxflow_lp import LP_TOLERANCE, max_flow_lp
 from .maxflow_wide import max_flow_wide
@@ -17,11 +18,7 @@ EngineChoice = Literal["auto", "graph", "lp"]
 
 
 def maximum_flow(
-    num_nodes: int,
-    tail: np.ndarray,
-    head: np.ndarray,
-    capacity: np.ndarray,
-    unlimited: np.ndarray | None,
+    graph: Graph,
     source: int,
     sink: int,
     *,
@@ -37,6 +34,17 @@ def maximum_flow(
     (:mod:`service.solvers.maxflow_wide`) otherwise. ``lp`` uses GLOP, certified to
     a tolerance relative to each arc's and node's own magnitude.
 
+    Parameters
+    ----------
+    graph : Graph
+        ``capacity`` (0 where ``unlimited``) and ``unlimited`` are read; ``cost`` and
+        ``lower`` are ignored.
+    source, sink : int
+        Node positions.
+    engine : {"auto", "graph", "lp"}
+    deadline : Deadline, optional
+        When the LP engine must stop.
+
     Returns
     -------
     (MaxFlowSolution, certificate)
@@ -47,11 +55,19 @@ def maximum_flow(
         ``engine="lp"`` on capacities whose range GLOP cannot certify.
     SelfCheckFailed
         When the answer fails its certificate (a bug).
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> g = Graph(3, np.array([0, 1]), np.array([1, 2]), np.array([5, 3]))
+    >>> solution, certificate = maximum_flow(g, 0, 2)
+    >>> int(solution.value), certificate["checked"]
+    (3, True)
     """
     if engine == "lp":
-        solution = max_flow_lp(num_nodes, tail, head, capacity, unlimited, source, sink, deadline=deadline)
-        return solution, certify_max_flow(solution, num_nodes, tail, head, capacity, unlimited, source, sink)
-    return _exact_route(num_nodes, tail, head, capacity, unlimited, source, sink)
+        solution = max_flow_lp(graph, source, sink, deadline=deadline)
+        return solution, certify_max_flow(solution, graph, source, sink)
+    return _exact_route(graph, source, sink)
 
 
 def exact_capacities(capacity: np.ndarray) -> tuple[np.ndarray, int, dict]:
@@ -66,15 +82,20 @@ def exact_capacities(capacity: np.ndarray) -> tuple[np.ndarray, int, dict]:
     return ints, 2**e, {"binary_exponent": e}
 
 
-def _exact_route(num_nodes, tail, head, capacity, unlimited, source, sink):
-    solution, certificate, _, denominator, scaled = exact_max_flow(num_nodes, tail, head, capacity, unlimited,
-                                                                   source, sink)
+def _exact_route(graph: Graph, source: int, sink: int):
+    solution, certificate, _, denominator, scaled = exact_max_flow(graph, source, sink)
     _report(solution, certificate, denominator, scaled)
     return solution, certificate
 
 
-def exact_max_flow(num_nodes, tail, head, capacity, unlimited, source, sink):
+def exact_max_flow(graph: Graph, source: int, sink: int):
     """Solve on exact integers and certify exactly (Python ints where int64 overflows).
+
+    Parameters
+    ----------
+    graph : Graph
+        With ``capacity`` (0 where ``unlimited``) and ``unlimited``.
+    source, sink : int
 
     Returns
     -------
@@ -82,13 +103,14 @@ def exact_max_flow(num_nodes, tail, head, capacity, unlimited, source, sink):
         The answer and its certificate in the integers ``ints`` (the capacities times
         ``denominator``), before any rounding; ``scaled`` names the scaling.
     """
-    ints, denominator, scaled = exact_capacities(capacity)
+    n, tail, head, unlimited = graph.num_nodes, graph.tail, graph.head, graph.unlimited
+    ints, denominator, scaled = exact_capacities(graph.capacity)
     if _fits_int64(ints, unlimited):
-        solution = max_flow_graph(num_nodes, tail, head, ints, unlimited, source, sink)
+        solution = max_flow_graph(n, tail, head, ints, unlimited, source, sink)
     else:
         ints = ints.astype(object)  # the certificate's sums in Python integers too
-        solution = max_flow_wide(num_nodes, tail, head, ints, unlimited, source, sink)
-    certificate = certify_max_flow(solution, num_nodes, tail, head, ints, unlimited, source, sink)
+        solution = max_flow_wide(n, tail, head, ints, unlimited, source, sink)
+    certificate = certify_max_flow(solution, graph.replace(capacity=ints), source, sink)
     return solution, certificate, ints, denominator, scaled
 
 
@@ -115,7 +137,7 @@ def _report(solution: MaxFlowSolution, certificate: dict, denominator: int, scal
     solution.engine = dict(solution.engine, **scaled)
 
 
-def certify_max_flow(solution: MaxFlowSolution, num_nodes, tail, head, capacity, unlimited, source, sink) -> dict:
+def certify_max_flow(solution: MaxFlowSolution, graph: Graph, source: int, sink: int) -> dict:
     """Check a max-flow answer and return its certificate.
 
     A finite answer is checked by the max-flow min-cut theorem
@@ -126,12 +148,9 @@ def certify_max_flow(solution: MaxFlowSolution, num_nodes, tail, head, capacity,
     Parameters
     ----------
     solution : MaxFlowSolution
-    num_nodes : int
-    tail, head : ndarray of int
-    capacity : ndarray
-        The capacities the solution was computed on (scaled integers for the exact
-        route), so the check compares like with like.
-    unlimited : ndarray of bool or None
+    graph : Graph
+        With the capacities the solution was computed on (scaled integers for the
+        exact route), so the check compares like with like.
     source, sink : int
 
     Returns
@@ -145,13 +164,12 @@ def certify_max_flow(solution: MaxFlowSolution, num_nodes, tail, head, capacity,
         The answer does not hold.
     """
     if solution.status == "unbounded":
-        certificates.check_path(tail, head, unlimited, source, sink, solution.unbounded_path)
+        certificates.check_path(graph.tail, graph.head, graph.unlimited, source, sink, solution.unbounded_path)
         return {"checked": True, "unbounded_path_arcs": int(solution.unbounded_path.size)}
     relative = 0.0
     if solution.engine.get("kind") == "lp":
-        capacity = capacity.astype(np.float64)  # LP answers: compare in floating point, never wrap int64
+        # LP answers: compare in floating point, never wrap int64.
+        graph = graph.replace(capacity=graph.capacity.astype(np.float64))
         relative = LP_TOLERANCE
-    return certificates.check_max_flow(
-        num_nodes, tail, head, capacity, unlimited, source, sink,
-        solution.flows, solution.value, solution.source_side, relative,
-    )
+    return certificates.check_max_flow(graph, source, sink, solution.flows, solution.value, solution.source_side,
+                                       relative)

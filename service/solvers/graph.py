@@ -20,7 +20,7 @@ Three breadth-first searches serve everything:
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 import scipy.sparse as sp
@@ -70,7 +70,17 @@ class Graph:
     unlimited : ndarray of bool, optional
         Arcs without an upper bound; None for none.
     cost : ndarray, optional
-        Cost per unit of flow per arc.
+        Cost per unit of flow per arc (None: all zero).
+    lower : ndarray, optional
+        Lower bound per arc (None: all zero).
+
+    Notes
+    -----
+    The fields are the caller's arrays, never copies, so building a Graph costs
+    nothing at any size; solvers treat them as read-only. The hot engines
+    (:mod:`~service.solvers.maxflow_graph`, :mod:`~service.solvers.mincost_graph`) still
+    take plain arrays: the fronts unpack a Graph once at their entry. ``replace``
+    gives a graph with some arrays swapped (scaled capacities, stand-in bounds).
     """
 
     num_nodes: int
@@ -79,6 +89,21 @@ class Graph:
     capacity: np.ndarray | None = None
     unlimited: np.ndarray | None = None
     cost: np.ndarray | None = None
+    lower: np.ndarray | None = None
+
+    def replace(self, **changes) -> "Graph":
+        """The same graph with the named fields swapped (no array is copied).
+
+        Parameters
+        ----------
+        **changes
+            Field names and their new values, as for :func:`dataclasses.replace`.
+
+        Returns
+        -------
+        Graph
+        """
+        return replace(self, **changes)
 
     @property
     def num_arcs(self) -> int:
@@ -100,9 +125,10 @@ class Graph:
         """The most arcs meeting at one node (in plus out; 0 without arcs)."""
         return max_degree(self.num_nodes, self.tail, self.head)
 
-    def residual(self, flows: np.ndarray, lower: np.ndarray | None = None, tol=0.0) -> Residual:
-        """The residual arcs of a feasible plan; see :func:`residual_network`."""
-        return residual_network(self.tail, self.head, self.capacity, self.unlimited, lower, flows, tol)[0]
+    def residual(self, flows: np.ndarray, tol=0.0) -> Residual:
+        """The residual arcs of a feasible plan (above the graph's lower bounds); see
+        :func:`residual_network`."""
+        return residual_network(self.tail, self.head, self.capacity, self.unlimited, self.lower, flows, tol)[0]
 
     def depth(self, starts) -> np.ndarray:
         """Arcs from the nearest of ``starts``, -1 where unreached; see :func:`bfs_depth`."""

@@ -13,14 +13,14 @@ import scipy.sparse as sp
 
 from ..errors import FieldError, InputError, SelfCheckFailed, SolverFailure, SolveTimeout
 from . import certificates
-from .graph import residual_reach
+from .graph import Graph, residual_reach
 from .glop import incidence_matrix, solve_lp
 from .maxflow_graph import MaxFlowSolution, graph_engine, unlimited_path
 
 LP_TOLERANCE = 1e-6
 
 
-def max_flow_lp(num_nodes, tail, head, capacity, unlimited, source, sink, *, deadline=None) -> MaxFlowSolution:
+def max_flow_lp(graph: Graph, source: int, sink: int, *, deadline=None) -> MaxFlowSolution:
     """Maximum s-t flow by linear programming (GLOP), with a minimum cut.
 
     The model: maximise ``v`` subject to ``A f - b v = 0`` and ``0 <= f <= capacity``,
@@ -28,9 +28,21 @@ def max_flow_lp(num_nodes, tail, head, capacity, unlimited, source, sink, *, dea
     at the sink. The cut is the set of nodes reachable from the source in the residual
     network of the LP's flow.
 
-    Parameters and results as for
-    :func:`service.solvers.maxflow_graph.max_flow_graph`; ``capacity`` may be float.
+    Parameters
+    ----------
+    graph : Graph
+        With ``capacity`` (may be float; 0 where ``unlimited``) and ``unlimited``.
+    source, sink : int
+    deadline : Deadline, optional
+        When GLOP must stop.
+
+    Returns
+    -------
+    MaxFlowSolution
+        As :func:`service.solvers.maxflow_graph.max_flow_graph` gives.
     """
+    num_nodes, tail, head = graph.num_nodes, graph.tail, graph.head
+    capacity, unlimited = graph.capacity, graph.unlimited
     # Unboundedness is structural: the graph solver finds an unlimited s-t path exactly.
     path = unlimited_path(num_nodes, tail, head, unlimited, source, sink)
     if path is not None:
@@ -68,8 +80,8 @@ def max_flow_lp(num_nodes, tail, head, capacity, unlimited, source, sink, *, dea
         # GLOP's tolerances are absolute, so a scaling can lose small capacities or
         # strain large ones: only an answer that passes the certificate is taken.
         try:
-            certificates.check_max_flow(num_nodes, tail, head, cap, unlimited, source, sink, flows, value,
-                                        source_side, LP_TOLERANCE)
+            certificates.check_max_flow(graph.replace(capacity=cap), source, sink, flows, value, source_side,
+                                        LP_TOLERANCE)
         except SelfCheckFailed as exc:
             failure = f"{exc.detail} (scaling {scale:g})"
             continue

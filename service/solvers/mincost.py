@@ -40,7 +40,7 @@ import numpy as np
 from ..deadline import Deadline
 from ..errors import FieldError, InputError, SolverFailure
 from . import mincost_checks as checks
-from .graph import residual_reach
+from .graph import Graph, residual_reach
 from .mincost_graph import (
     GraphRangeError,
     SolverBounds,
@@ -76,21 +76,15 @@ def imbalance(supply: np.ndarray):
     return 0 if abs(total) <= 1e-9 * float(np.abs(supply).sum()) else total
 
 
-def min_cost_flow(num_nodes: int, tail: np.ndarray, head: np.ndarray, capacity: np.ndarray,
-                  unlimited: np.ndarray | None, cost: np.ndarray | None, lower: np.ndarray | None,
-                  supply: np.ndarray, *, shortage: str = "reject", engine: str = "auto",
+def min_cost_flow(graph: Graph, supply: np.ndarray, *, shortage: str = "reject", engine: str = "auto",
                   deadline: Deadline | None = None) -> tuple[MinCostSolution, dict]:
     """Solve and certify a min-cost flow problem.
 
     Parameters
     ----------
-    num_nodes : int
-    tail, head : ndarray of int32
-    capacity : ndarray
-        0 where ``unlimited``.
-    unlimited : ndarray of bool or None
-    cost, lower : ndarray or None
-        ``None`` means all zero.
+    graph : Graph
+        ``capacity`` (0 where ``unlimited``), ``unlimited``, ``cost`` and ``lower``
+        (``None`` cost or lower bounds mean all zero).
     supply : ndarray
         Per node; must sum to 0 when ``shortage == "reject"``.
     shortage : {"reject", "max-flow"}
@@ -110,10 +104,19 @@ def min_cost_flow(num_nodes: int, tail: np.ndarray, head: np.ndarray, capacity: 
         ``shortage="reject"``; data whose range the LP engine cannot certify.
     SelfCheckFailed
         When an exact answer fails its certificate (a bug).
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> g = Graph(3, np.array([0, 1, 0]), np.array([1, 2, 2]), np.array([4, 4, 1]), cost=np.array([1, 1, 5]))
+    >>> solution, certificate = min_cost_flow(g, np.array([2, 0, -2]))
+    >>> solution.status, solution.cost, solution.flows.tolist()
+    ('optimal', 4, [2, 2, 0])
     """
     if shortage == "reject" and imbalance(supply) != 0:
         raise InputError(FieldError("/nodes", f"supplies exceed demands by {imbalance(supply)}"))
-    net = _Net(num_nodes, tail, head, capacity,
+    tail, unlimited, cost, lower = graph.tail, graph.unlimited, graph.cost, graph.lower
+    net = _Net(graph.num_nodes, tail, graph.head, graph.capacity,
                unlimited if unlimited is not None and unlimited.any() else None,
                np.zeros(tail.size, dtype=np.int64) if cost is None else cost,
                lower if lower is not None and lower.any() else None, supply)
@@ -255,10 +258,9 @@ def _solve_reject(net: _Net):
     if flows_t is None:
         _, _, side = auxiliary_max_flow(net.n, net.tail, net.head, bounds.caps, sup_t)
         return _infeasible(net, side)
-    p = node_potentials(net.n, net.tail, net.head, net.cost, flows_t, bounds.caps, bounds.stand_in)
+    p = node_potentials(Graph(net.n, net.tail, net.head, bounds.caps, bounds.stand_in, net.cost), flows_t)
     flows = _plus_lower(flows_t, net.low)
-    certificate = checks.check_min_cost_flow(net.n, net.tail, net.head, net.cap, net.unl, net.low, net.cost,
-                                             net.sup, flows, p)
+    certificate = checks.check_min_cost_flow(net.graph, net.sup, flows, p)
     solution = MinCostSolution(
         "optimal", mincost_engine(), cost=certificate["primal_cost"], shipped=checks.exact_sum(net.sup[net.sup > 0]),
         flows=flows, potentials=p, reduced_costs=checks.reduced_costs(net.cost, p, net.tail, net.head))
@@ -286,11 +288,10 @@ def _solve_max_flow(net: _Net):
     flows_t = solve_balanced(aug.n, aug.tail, aug.head, bounds.caps, aug.cost, e)
     if flows_t is None:
         raise SolverFailure("the min-cost flow of the largest shipment was reported infeasible")
-    p = node_potentials(aug.n, aug.tail, aug.head, aug.cost, flows_t, bounds.caps, bounds.stand_in)
+    p = node_potentials(Graph(aug.n, aug.tail, aug.head, bounds.caps, bounds.stand_in, aug.cost), flows_t)
     flows = _plus_lower(flows_t, aug.low)
     aug.sup[s], aug.sup[t] = shipped, -shipped
-    certificate = checks.check_min_cost_flow(aug.n, aug.tail, aug.head, aug.cap, aug.unl, aug.low, aug.cost,
-                                             aug.sup, flows, p)
+    certificate = checks.check_min_cost_flow(aug.graph, aug.sup, flows, p)
     side = residual_reach(aug.n, aug.tail, aug.head, flows_t, bounds.caps, bounds.stand_in, s)
     certificate["shipped_bound"] = checks.check_shipped_cut(aug.tail, aug.head, aug.cap, aug.unl, aug.low, side,
                                                             s, t, shipped)

@@ -28,6 +28,7 @@ import numpy as np
 
 from ..errors import SelfCheckFailed
 from .certificates import arc_magnitude, beyond, capacity_excess, node_balance, throughput
+from .graph import Graph
 
 #: Above this magnitude int64 dot products switch to exact Python integers.
 _INT_SAFE = 2.0**62
@@ -76,16 +77,14 @@ def reduced_costs(cost: np.ndarray, potentials: np.ndarray, tail: np.ndarray, he
     return cost + potentials[tail] - potentials[head]
 
 
-def check_min_cost_flow(num_nodes, tail, head, capacity, unlimited, lower, cost, supply, flows, potentials,
-                        relative: float = 0.0) -> dict:
+def check_min_cost_flow(graph: Graph, supply, flows, potentials, relative: float = 0.0) -> dict:
     """Certify a min-cost flow: feasibility, reduced-cost optimality, zero duality gap.
 
     Parameters
     ----------
-    capacity : ndarray
-        Ignored where ``unlimited``.
-    lower : ndarray or None
-        Lower bounds (0 when ``None``).
+    graph : Graph
+        ``capacity`` (ignored where ``unlimited``), ``unlimited``, ``cost`` (not None)
+        and ``lower`` (0 when ``None``).
     supply : ndarray
         Required outflow minus inflow per node.
     flows, potentials : ndarray
@@ -108,6 +107,8 @@ def check_min_cost_flow(num_nodes, tail, head, capacity, unlimited, lower, cost,
         A bound or conservation is violated, an arc's reduced cost contradicts its
         flow, or the cost differs from the dual bound.
     """
+    num_nodes, tail, head, cost = graph.num_nodes, graph.tail, graph.head, graph.cost
+    capacity, unlimited, lower = graph.capacity, graph.unlimited, graph.lower
     low = np.zeros_like(flows) if lower is None else lower
     excess = capacity_excess(flows, capacity, unlimited, low)
     arcs = relative * arc_magnitude(capacity, unlimited, flows, lower) if relative else 0

@@ -10,6 +10,7 @@ from ..errors import SolverFailure, SolveTimeout
 from . import mincost_checks as checks
 from .certificates import throughput
 from .front import exact_max_flow
+from .graph import Graph
 from .graph import residual_reach
 from .glop import beyond_range, incidence_matrix, solve_lp
 from .maxflow_lp import LP_TOLERANCE
@@ -78,8 +79,7 @@ def _lp_certified(net: _Net, lp, low, upper):
     """
     flows = np.clip(lp.x, low, upper)
     p = -lp.row_duals
-    certificate = checks.check_min_cost_flow(net.n, net.tail, net.head, net.cap, net.unl, net.low, net.cost,
-                                             net.sup, flows, p, LP_TOLERANCE)
+    certificate = checks.check_min_cost_flow(net.graph, net.sup, flows, p, LP_TOLERANCE)
     return flows, p, certificate
 
 
@@ -94,7 +94,7 @@ def _exact_auxiliary(n, tail, head, cap, unl, supply, low=None):
     all_head = np.concatenate([head, src, np.full(dst.size, t)]).astype(np.int32)
     all_cap = np.concatenate([cap, supply[src], -supply[dst]])
     all_unl = None if unl is None else np.concatenate([unl, np.zeros(src.size + dst.size, bool)])
-    solution, _, ints, denominator, _ = exact_max_flow(n + 2, all_tail, all_head, all_cap, all_unl, s, t)
+    solution, _, ints, denominator, _ = exact_max_flow(Graph(n + 2, all_tail, all_head, all_cap, all_unl), s, t)
     if solution.value < checks.exact_sum(ints[m:m + src.size]):
         return solution.source_side[:n].copy(), None
     flows = rescale(solution.flows[:m], 1, denominator)

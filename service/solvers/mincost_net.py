@@ -11,7 +11,7 @@ from typing import Any
 import numpy as np
 
 from . import mincost_checks as checks
-from .graph import node_balance
+from .graph import Graph, node_balance
 from .mincost_graph import mincost_engine
 from .scaling import is_object, rescale
 
@@ -53,6 +53,11 @@ class _Net:
     cost: np.ndarray
     low: np.ndarray | None
     sup: np.ndarray
+
+    @property
+    def graph(self) -> Graph:
+        """The arcs and their bounds and costs as the solvers' graph (no copies)."""
+        return Graph(self.n, self.tail, self.head, self.cap, self.unl, self.cost, self.low)
 
 
 def _transform(net: _Net):

@@ -297,8 +297,7 @@ def _explain_infeasible(net: Network, com: Commodities, best: LPResult, total: f
     # Only a commodity left short in a best plan can fail on its own: one max-flow each.
     alone = []
     for k in short.tolist():
-        flow, _ = maximum_flow(n, net.tail, net.head, net.capacity, net.unlimited, int(com.sources[k]),
-                               int(com.sinks[k]))
+        flow, _ = maximum_flow(net, int(com.sources[k]), int(com.sinks[k]))
         if flow.value is not None and flow.value < com.demands[k]:  # an exact max-flow
             alone.append(k)
     info = {"short": short, "shortfall": shortfall, "max_delivered": float(best.objective),

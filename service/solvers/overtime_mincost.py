@@ -8,6 +8,7 @@ from ortools.graph.python import min_cost_flow as ortools_min_cost_flow
 
 from ..errors import InputError, SolverFailure
 from . import overtime_checks as checks
+from .graph import Graph
 from .maxflow_graph import graph_engine
 from .mincost_graph import GraphRangeError, auxiliary_max_flow, solver_bounds
 from .overtime_common import OverTimeSolution, Scale, _finite_total, release_late, to_integers
@@ -66,7 +67,7 @@ def min_cost(net: TimedNetwork, supply: np.ndarray) -> OverTimeSolution:
     release_late(flows, x.holdover_arcs(sup), x.num_arcs + np.arange(sup.size * H).reshape(sup.size, H))
     schedule = Schedule.from_flows(x, flows)
     figures, balance = checks.check_supplies_met(net, schedule, supply)
-    p = node_potentials(count, tail, head, cost, flows, capacity, unlimited)
+    p = node_potentials(Graph(count, tail, head, capacity, unlimited, cost), flows)
     release_price = np.zeros(n, np.int64)
     release_price[sup] = p[own]
     delivery_price = np.zeros(n, np.int64)

@@ -9,7 +9,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from ..errors import SelfCheckFailed
-from .graph import BACKWARD, FORWARD, Residual, max_degree, node_balance, residual_network
+from .graph import BACKWARD, FORWARD, Graph, Residual, max_degree, node_balance, residual_network
 
 __all__ = ["BACKWARD", "FORWARD", "MAX_LISTED_VIOLATIONS", "RELATIVE_TOLERANCE", "Residual", "Verdict",
            "common_dtype", "find_violations", "node_balance", "residual_network", "tolerance_for"]
@@ -86,14 +86,14 @@ def tolerance_for(dtype: np.dtype, *arrays) -> float:
 
 
 
-def find_violations(num_nodes, tail, head, capacity, unlimited, lower, flows, supply, free=None, tol=0.0):
+def find_violations(graph: Graph, flows, supply, free=None, tol=0.0):
     """Every bound and conservation violation of a plan.
 
     Parameters
     ----------
-    capacity, unlimited, lower : ndarray
-        Arc bounds (``unlimited`` marks arcs without an upper bound; ``lower`` may be
-        None for all zero).
+    graph : Graph
+        The arcs and their bounds: ``capacity``, ``unlimited`` (arcs without an upper
+        bound) and ``lower`` (None for all zero).
     flows : ndarray
         The plan, aligned with the arcs.
     supply : ndarray
@@ -113,10 +113,11 @@ def find_violations(num_nodes, tail, head, capacity, unlimited, lower, flows, su
         more leaves than arrives). Lists are cut at ``MAX_LISTED_VIOLATIONS``;
         ``count`` is the full total.
     """
-    above = flows - capacity
-    if unlimited is not None:
-        above = np.where(unlimited, 0, above)
-    below = (0 if lower is None else lower) - flows
+    num_nodes, tail, head = graph.num_nodes, graph.tail, graph.head
+    above = flows - graph.capacity
+    if graph.unlimited is not None:
+        above = np.where(graph.unlimited, 0, above)
+    below = (0 if graph.lower is None else graph.lower) - flows
     over = np.flatnonzero(above > tol)
     under = np.flatnonzero(below > tol)
     imbalance = supply + node_balance(num_nodes, tail, head, flows)

@@ -31,23 +31,20 @@ from __future__ import annotations
 import numpy as np
 
 from ..errors import SelfCheckFailed
-from .graph import bfs_predecessors, components, residual_masks
+from .graph import Graph, bfs_predecessors, components, residual_masks
 
 
-def node_potentials(num_nodes: int, tail: np.ndarray, head: np.ndarray, cost: np.ndarray, flows: np.ndarray,
-                    capacity: np.ndarray, unlimited: np.ndarray | None) -> np.ndarray:
+def node_potentials(graph: Graph, flows: np.ndarray) -> np.ndarray:
     """Potentials proving an integer flow optimal.
 
     Parameters
     ----------
-    num_nodes : int
-    tail, head : ndarray of int
-    cost : ndarray of int64
+    graph : Graph
+        ``cost`` (int64) per arc; ``capacity`` (int64) is ignored where
+        ``unlimited`` (such arcs always have room for more flow); ``lower`` is
+        ignored (the flow is measured from zero lower bounds).
     flows : ndarray of int64
         An optimal flow with zero lower bounds.
-    capacity : ndarray of int64
-        Ignored where ``unlimited`` (such arcs always have room for more flow).
-    unlimited : ndarray of bool or None
 
     Returns
     -------
@@ -63,14 +60,15 @@ def node_potentials(num_nodes: int, tail: np.ndarray, head: np.ndarray, cost: np
     Examples
     --------
     >>> import numpy as np
-    >>> node_potentials(3, np.array([0, 1]), np.array([1, 2]), np.array([2, 3]),
-    ...                 np.array([1, 0]), np.array([1, 1]), None).tolist()
+    >>> g = Graph(3, np.array([0, 1]), np.array([1, 2]), np.array([1, 1]), cost=np.array([2, 3]))
+    >>> node_potentials(g, np.array([1, 0])).tolist()
     [0, 2, 2]
     """
+    num_nodes, tail, head = graph.num_nodes, graph.tail, graph.head
     if num_nodes == 0:
         return np.zeros(0, dtype=np.int64)
-    cost = cost.astype(np.int64, copy=False)
-    forward, backward = residual_masks(flows, capacity, unlimited)
+    cost = graph.cost.astype(np.int64, copy=False)
+    forward, backward = residual_masks(flows, graph.capacity, graph.unlimited)
     free = forward & backward
     labels, offset, k = free_components(num_nodes, tail[free], head[free], cost[free])
     if not np.array_equal(offset[head[free]] - offset[tail[free]], cost[free]):

@@ -65,7 +65,7 @@ from ..deadline import Deadline, expired
 from ..errors import FieldError, InputError, SolverFailure, SolveTimeout
 from .certificates import check_max_flow, check_path
 from .closure_checks import ClosureChecks
-from .graph import components, pattern, reach_in, residual_arcs
+from .graph import Graph, components, pattern, reach_in, residual_arcs
 from .resilience_residual import ResidualSolver
 from .maxflow_graph import CapacityOverflow, check_capacity_sums, graph_engine, max_flow_graph
 from .mincost_graph import GraphRangeError, solve_balanced, solver_bounds
@@ -167,7 +167,7 @@ def arc_closures(num_nodes: int, tail: np.ndarray, head: np.ndarray, capacity: n
         return (ResilienceSolution("unbounded", None, empty, np.zeros(0, bool), empty, empty, empty, [], engine,
                                    unbounded_path=base.unbounded_path),
                 {"checked": True, "unbounded_path_arcs": int(base.unbounded_path.size)})
-    certificate = check_max_flow(num_nodes, tail, head, cap, unlimited, source, sink, base.flows, base.value,
+    certificate = check_max_flow(Graph(num_nodes, tail, head, cap, unlimited), source, sink, base.flows, base.value,
                                  base.source_side)
     checks = ClosureChecks(num_nodes, tail, head, cap, unlimited, source, sink, base.value)
     limited_cap = cap if unlimited is None else np.where(unlimited, big, cap)

@@ -42,7 +42,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from .graph import bfs_tree, reach
+from .graph import Graph, bfs_tree, reach
 from .plan_checks import (
     BACKWARD, FORWARD, MAX_LISTED_VIOLATIONS, RELATIVE_TOLERANCE, Residual, Verdict, _apply, _fail, _finite,
     _number, _unlimited_first, _walk, common_dtype, find_violations, node_balance, residual_network, tolerance_for,
@@ -72,16 +72,14 @@ def _path_to(parent: np.ndarray, src: np.ndarray, start: int, end: int) -> np.nd
     return np.array(path[::-1], dtype=np.int64)
 
 
-def verify_max_flow(num_nodes, tail, head, capacity, unlimited, source, sink, flows) -> Verdict:
+def verify_max_flow(graph: Graph, source: int, sink: int, flows: np.ndarray) -> Verdict:
     """Check a client's max-flow plan.
 
     Parameters
     ----------
-    num_nodes : int
-    tail, head : ndarray of int
-    capacity : ndarray
-        0 where ``unlimited``.
-    unlimited : ndarray of bool or None
+    graph : Graph
+        ``capacity`` (0 where ``unlimited``) and ``unlimited`` are read; ``cost`` and
+        ``lower`` are ignored.
     source, sink : int
     flows : ndarray
         The client's flow per arc.
@@ -97,29 +95,30 @@ def verify_max_flow(num_nodes, tail, head, capacity, unlimited, source, sink, fl
     Examples
     --------
     >>> import numpy as np
-    >>> v = verify_max_flow(3, np.array([0, 1]), np.array([1, 2]), np.array([5, 3]), None, 0, 2,
-    ...                     np.array([2, 2]))
+    >>> g = Graph(3, np.array([0, 1]), np.array([1, 2]), np.array([5, 3]))
+    >>> v = verify_max_flow(g, 0, 2, np.array([2, 2]))
     >>> v.feasible, v.optimal, v.objective, v.steps, v.gain
     (True, False, 2, [(0, 1), (1, 1)], 1)
     """
-    dtype = common_dtype(capacity, flows)
-    capacity, flows = capacity.astype(dtype, copy=False), flows.astype(dtype, copy=False)
+    dtype = common_dtype(graph.capacity, flows)
+    # The checks compare like with like: capacities in the plan's dtype; no lower bounds in max-flow.
+    graph = graph.replace(capacity=graph.capacity.astype(dtype, copy=False), lower=None)
+    flows = flows.astype(dtype, copy=False)
+    num_nodes, tail, head, capacity = graph.num_nodes, graph.tail, graph.head, graph.capacity
     tol = tolerance_for(dtype, capacity, flows)
     supply = np.zeros(num_nodes, dtype=dtype)
-    arcs, nodes, count = find_violations(num_nodes, tail, head, capacity, unlimited, None, flows, supply,
-                                         free=np.array([source, sink]), tol=tol)
-    value = _number(-node_balance(num_nodes, tail, head, flows)[source])
+    arcs, nodes, count = find_violations(graph, flows, supply, free=np.array([source, sink]), tol=tol)
+    value = _number(-graph.balance(flows)[source])
     verdict = Verdict(count == 0, value, tol, count, arcs, nodes)
     if not verdict.feasible:
         return verdict
-    res, _ = residual_network(tail, head, capacity, unlimited, None, flows, tol)
+    res = graph.residual(flows, tol)
     # A path of arcs without limits first: it shows the problem itself is unbounded.
     path = _unlimited_first(res, lambda r, _sub: _bfs_path(num_nodes, r, source, sink))
     if path is not None:
         verdict.steps = [(int(res.arc[k]), int(res.direction[k])) for k in path]
         verdict.gain = verdict.amount = _finite(res.room[path].min(), dtype)
-        check_augmenting_path(num_nodes, tail, head, capacity, unlimited, source, sink, flows,
-                              verdict.steps, verdict.gain, tol)
+        check_augmenting_path(graph, source, sink, flows, verdict.steps, verdict.gain, tol)
     else:
         reached = reach(num_nodes, res.src, res.dst, source)
         crossing = np.flatnonzero(reached[tail] & ~reached[head])
@@ -127,7 +126,7 @@ def verify_max_flow(num_nodes, tail, head, capacity, unlimited, source, sink, fl
         verdict.source_side = reached
         verdict.cut_arcs = crossing
         verdict.cut_capacity = _number(capacity[crossing].sum())
-        check_cut_proof(tail, head, capacity, unlimited, source, sink, flows, value, reached, tol)
+        check_cut_proof(graph, source, sink, flows, value, reached, tol)
     return verdict
 
 
@@ -138,11 +137,25 @@ def _bfs_path(num_nodes, res: Residual, source, sink):
     return _path_to(parent, res.src, source, sink) if reached[sink] else None
 
 
-def check_cut_proof(tail, head, capacity, unlimited, source, sink, flows, value, source_side, tol=0.0) -> None:
+def check_cut_proof(graph: Graph, source, sink, flows, value, source_side, tol=0.0) -> None:
     """Check that ``source_side`` proves a feasible plan of ``value`` maximum.
 
     Weak duality: no s-t flow exceeds the capacity of any s-t cut, so a flow whose
     value equals a cut's capacity is maximum.
+
+    Parameters
+    ----------
+    graph : Graph
+        With ``capacity`` and ``unlimited``.
+    source, sink : int
+    flows : ndarray
+        The plan.
+    value : number
+        The plan's value.
+    source_side : ndarray of bool
+        The cut's source side.
+    tol : float
+        Slack allowed in each comparison.
 
     Raises
     ------
@@ -150,6 +163,7 @@ def check_cut_proof(tail, head, capacity, unlimited, source, sink, flows, value,
         The cut does not separate source from sink, contains an arc without a limit,
         or its capacity differs from the value.
     """
+    tail, head, capacity, unlimited = graph.tail, graph.head, graph.capacity, graph.unlimited
     if not source_side[source] or source_side[sink]:
         _fail("the cut does not separate the source from the sink")
     crossing = source_side[tail] & ~source_side[head]
@@ -163,7 +177,7 @@ def check_cut_proof(tail, head, capacity, unlimited, source, sink, flows, value,
         _fail("the cut's arcs are not saturated outward and empty inward")
 
 
-def check_augmenting_path(num_nodes, tail, head, capacity, unlimited, source, sink, flows, steps, gain, tol=0.0):
+def check_augmenting_path(graph: Graph, source, sink, flows, steps, gain, tol=0.0):
     """Check that ``steps`` is a source-to-sink residual path that gains ``gain``.
 
     The path must be connected, run from the source to the sink through residual arcs
@@ -171,31 +185,45 @@ def check_augmenting_path(num_nodes, tail, head, capacity, unlimited, source, si
     limit), and pushing ``gain`` along it must keep the plan feasible and raise its
     value by exactly ``gain``.
 
+    Parameters
+    ----------
+    graph : Graph
+        With ``capacity`` and ``unlimited`` (lower bounds ignored: max-flow has none).
+    source, sink : int
+    flows : ndarray
+        The plan.
+    steps : list of (arc, direction)
+        The path, ``direction`` +1 forward or -1 backward.
+    gain : number or None
+        What the path adds to the value (None: no limit).
+    tol : float
+        Slack allowed in each comparison.
+
     Raises
     ------
     SelfCheckFailed
     """
     if not steps:
         _fail("the improving path is empty")
-    walk = _walk(steps, tail, head)
+    graph = graph.replace(lower=None)
+    walk = _walk(steps, graph.tail, graph.head)
     if walk[0][0] != source or walk[-1][1] != sink:
         _fail("the improving path does not run from the source to the sink")
     if any(walk[i][1] != walk[i + 1][0] for i in range(len(walk) - 1)):
         _fail("the improving path is not connected")
     if gain is None:
-        if not all(d == FORWARD and unlimited is not None and unlimited[a] for a, d in steps):
+        if not all(d == FORWARD and graph.unlimited is not None and graph.unlimited[a] for a, d in steps):
             _fail("an improving path without limit uses an arc with a limit")
         return
     if not gain > tol:
         _fail(f"the improving path gains {gain}, not more than 0")
     moved = _apply(flows, steps, gain)
-    supply = np.zeros(num_nodes, dtype=moved.dtype)
-    _, _, count = find_violations(num_nodes, tail, head, capacity, unlimited, None, moved, supply,
-                                  free=np.array([source, sink]), tol=tol)
+    supply = np.zeros(graph.num_nodes, dtype=moved.dtype)
+    _, _, count = find_violations(graph, moved, supply, free=np.array([source, sink]), tol=tol)
     if count:
         _fail("pushing the gain along the improving path breaks a bound or conservation")
-    before = -node_balance(num_nodes, tail, head, flows)[source]
-    after = -node_balance(num_nodes, tail, head, moved)[source]
+    before = -graph.balance(flows)[source]
+    after = -graph.balance(moved)[source]
     if abs(after - before - gain) > tol * len(steps):
         _fail(f"the improving path raises the value by {after - before}, not by {gain}")
 

@@ -9,6 +9,7 @@ import numpy as np
 
 from ..deadline import Deadline, expired
 from ..errors import SelfCheckFailed, SolveTimeout
+from .graph import Graph
 from .plan_checks import (
     FORWARD, RELATIVE_TOLERANCE, Residual, Verdict, _apply, _fail, _finite, _number, _unlimited_first, _walk,
     common_dtype, find_violations, residual_network, tolerance_for,
@@ -82,16 +83,15 @@ def negative_cycle(num_nodes, res: Residual, weight: np.ndarray, tol=0.0, deadli
     raise SelfCheckFailed("Bellman-Ford still improved after n rounds without a cycle of parent arcs")
 
 
-def verify_min_cost_flow(num_nodes, tail, head, capacity, unlimited, cost, lower, supply, flows,
+def verify_min_cost_flow(graph: Graph, supply: np.ndarray, flows: np.ndarray,
                          *, deadline: Deadline | None = None) -> Verdict:
     """Check a client's min-cost flow plan.
 
     Parameters
     ----------
-    capacity : ndarray
-        0 where ``unlimited``.
-    cost, lower : ndarray or None
-        Per-unit arc costs and lower bounds (None: all zero).
+    graph : Graph
+        ``capacity`` (0 where ``unlimited``), ``unlimited``, and the per-unit arc
+        ``cost`` and ``lower`` bounds (None: all zero).
     supply : ndarray
         Net outflow required at each node (positive: supply, negative: demand).
     flows : ndarray
@@ -112,18 +112,20 @@ def verify_min_cost_flow(num_nodes, tail, head, capacity, unlimited, cost, lower
     --------
     >>> import numpy as np
     >>> # Two parallel arcs 0 -> 1 costing 5 and 1; the plan ships 2 units on the dear one.
-    >>> v = verify_min_cost_flow(2, np.array([0, 0]), np.array([1, 1]), np.array([2, 2]), None,
-    ...                          np.array([5, 1]), None, np.array([2, -2]), np.array([2, 0]))
+    >>> g = Graph(2, np.array([0, 0]), np.array([1, 1]), np.array([2, 2]), cost=np.array([5, 1]))
+    >>> v = verify_min_cost_flow(g, np.array([2, -2]), np.array([2, 0]))
     >>> v.objective, v.optimal, v.steps, v.amount, v.unit_cost, v.gain
     (10, False, [(1, 1), (0, -1)], 2, -4, 8)
     """
-    if cost is None:
-        cost = np.zeros(tail.size, dtype=np.int64)
-    dtype = common_dtype(capacity, flows, lower, supply, weights=cost)
-    capacity, flows, cost, supply = (a.astype(dtype, copy=False) for a in (capacity, flows, cost, supply))
-    lower = None if lower is None else lower.astype(dtype, copy=False)
+    num_nodes, tail, head, unlimited = graph.num_nodes, graph.tail, graph.head, graph.unlimited
+    cost = np.zeros(tail.size, dtype=np.int64) if graph.cost is None else graph.cost
+    dtype = common_dtype(graph.capacity, flows, graph.lower, supply, weights=cost)
+    capacity, flows, cost, supply = (a.astype(dtype, copy=False) for a in (graph.capacity, flows, cost, supply))
+    lower = None if graph.lower is None else graph.lower.astype(dtype, copy=False)
+    # The checks below compare like with like: every figure in the plan's dtype.
+    graph = graph.replace(capacity=capacity, cost=cost, lower=lower)
     tol = tolerance_for(dtype, capacity, flows, cost, lower, supply)
-    arcs, nodes, count = find_violations(num_nodes, tail, head, capacity, unlimited, lower, flows, supply, tol=tol)
+    arcs, nodes, count = find_violations(graph, flows, supply, tol=tol)
     total = _number((cost * flows).sum())
     verdict = Verdict(count == 0, total, tol, count, arcs, nodes)
     if not verdict.feasible:
@@ -150,46 +152,71 @@ def verify_min_cost_flow(num_nodes, tail, head, capacity, unlimited, cost, lower
     if cycle is None:
         verdict.optimal = True
         verdict.potentials = found["potentials"]
-        check_potentials(tail, head, capacity, unlimited, cost, lower, flows, verdict.potentials,
-                         tol * 8 * num_nodes)
+        check_potentials(graph, flows, verdict.potentials, tol * 8 * num_nodes)
         return verdict
     cycle = np.asarray(cycle, dtype=np.int64)
     verdict.steps = [(int(res.arc[k]), int(res.direction[k])) for k in cycle]
     verdict.unit_cost = _number(weight[cycle].sum())
     verdict.amount = _finite(res.room[cycle].min(), dtype)
     verdict.gain = None if verdict.amount is None else _number(-verdict.unit_cost * verdict.amount)
-    check_negative_cycle(num_nodes, tail, head, capacity, unlimited, cost, lower, supply, flows,
-                         verdict.steps, verdict.amount, verdict.gain, tol)
+    check_negative_cycle(graph, supply, flows, verdict.steps, verdict.amount, verdict.gain, tol)
     return verdict
 
 
-def check_potentials(tail, head, capacity, unlimited, cost, lower, flows, potentials, tol=0.0) -> None:
+def check_potentials(graph: Graph, flows, potentials, tol=0.0) -> None:
     """Check the reduced-cost optimality conditions of a feasible min-cost plan.
 
     With reduced cost ``r = cost + p[tail] - p[head]``: an arc with room left (flow
     below capacity) needs ``r >= 0``, an arc carrying more than its lower bound needs
     ``r <= 0``. Then no residual cycle has negative cost, so the plan is of least cost.
 
+    Parameters
+    ----------
+    graph : Graph
+        With ``capacity``, ``unlimited``, ``cost`` (not None) and ``lower``.
+    flows : ndarray
+        The plan.
+    potentials : ndarray
+        One per node.
+    tol : float
+        Slack allowed in each comparison.
+
     Raises
     ------
     SelfCheckFailed
     """
-    reduced = cost + potentials[tail] - potentials[head]
-    room = capacity - flows > tol
-    if unlimited is not None:
-        room |= unlimited
-    above_lower = flows - (0 if lower is None else lower) > tol
+    reduced = graph.cost + potentials[graph.tail] - potentials[graph.head]
+    room = graph.capacity - flows > tol
+    if graph.unlimited is not None:
+        room |= graph.unlimited
+    above_lower = flows - (0 if graph.lower is None else graph.lower) > tol
     if (reduced[room] < -tol).any() or (reduced[above_lower] > tol).any():
         _fail("a residual arc has a negative reduced cost under the potentials")
 
 
-def check_negative_cycle(num_nodes, tail, head, capacity, unlimited, cost, lower, supply, flows,
-                         steps, amount, gain, tol=0.0) -> None:
+def check_negative_cycle(graph: Graph, supply, flows, steps, amount, gain, tol=0.0) -> None:
     """Check that ``steps`` is a residual cycle that saves ``gain`` when ``amount`` goes round.
 
     The cycle must close, have negative cost per unit, and pushing ``amount`` round it
     must keep the plan feasible and lower its cost by exactly ``gain``. ``amount`` None
     means every step is a forward arc without a limit (the problem is unbounded).
+
+    Parameters
+    ----------
+    graph : Graph
+        With ``capacity``, ``unlimited``, ``cost`` (not None) and ``lower``.
+    supply : ndarray
+        Net outflow required at each node.
+    flows : ndarray
+        The plan.
+    steps : list of (arc, direction)
+        The cycle, ``direction`` +1 forward or -1 backward.
+    amount : number or None
+        What goes round the cycle (None: no limit).
+    gain : number or None
+        The cost it saves.
+    tol : float
+        Slack allowed in each comparison.
 
     Raises
     ------
@@ -197,7 +224,8 @@ def check_negative_cycle(num_nodes, tail, head, capacity, unlimited, cost, lower
     """
     if not steps:
         _fail("the improving cycle is empty")
-    walk = _walk(steps, tail, head)
+    cost, unlimited = graph.cost, graph.unlimited
+    walk = _walk(steps, graph.tail, graph.head)
     if any(walk[i][1] != walk[(i + 1) % len(walk)][0] for i in range(len(walk))):
         _fail("the improving cycle does not close")
     unit = sum(float(cost[a]) * d for a, d in steps)
@@ -210,7 +238,7 @@ def check_negative_cycle(num_nodes, tail, head, capacity, unlimited, cost, lower
     if not amount > tol:
         _fail(f"the improving cycle moves {amount}, not more than 0")
     moved = _apply(flows, steps, amount)
-    _, _, count = find_violations(num_nodes, tail, head, capacity, unlimited, lower, moved, supply, tol=tol)
+    _, _, count = find_violations(graph, moved, supply, tol=tol)
     if count:
         _fail("pushing the amount round the improving cycle breaks a bound or conservation")
     saved = (cost * flows).sum() - (cost * moved).sum()

@@ -18,6 +18,7 @@ import orjson
 import requests
 from ortools.graph.python import min_cost_flow as ortools_min_cost_flow
 
+from service.solvers.graph import Graph
 from service.solvers.potentials import node_potentials
 from tests.perf.harness import best_of, post_json, served, table
 
@@ -112,7 +113,7 @@ def run(args) -> None:
     for name, (n, tail, head, cap, cost, supply) in cases:
         _, solve_s, flows = ortools_floor(n, tail, head, cap, cost, supply)
         t0 = time.perf_counter()
-        p = node_potentials(n, tail, head, cost, flows, cap, None)
+        p = node_potentials(Graph(n, tail, head, cap, None, cost), flows)
         pot_s = time.perf_counter() - t0
         rc = cost + p[tail] - p[head]
         assert np.all(rc[flows < cap] >= 0) and np.all(rc[flows > 0] <= 0)
