@@ -6,6 +6,8 @@ the test; nothing is mocked. Reference values come from scipy.sparse.csgraph.max
 
 from __future__ import annotations
 
+import json
+
 import signal
 import threading
 import time
@@ -90,6 +92,16 @@ def test_sync_solve_past_the_limit_is_504_and_the_worker_stays(tight):
     assert sorted(gunicorn_workers(tight.proc.pid)) == workers  # no worker was replaced
     metrics = tight.get("/metrics", timeout=5).text
     assert 'sluice_solve_timeouts_total{kind="maxflow"} 1.0' in metrics
+
+
+def test_a_stored_network_question_past_the_limit_is_the_documented_504(tight):
+    """A what-if runs the same bounded solve: past the limit it is a 504 time-limit, which
+    the document lists for the what-if routes too (RunningServer checks every answer)."""
+    doc = json.loads(instance("large")[0])
+    ends = {"source": doc.pop("source"), "sink": doc.pop("sink"), "options": doc.pop("options")}
+    assert tight.put("/v1/networks/layered-large", json=doc, timeout=120).status_code == 201
+    r = tight.post("/v1/networks/layered-large/maxflow", json=ends, timeout=60)
+    assert r.status_code == 504 and r.json()["type"].endswith(":time-limit"), r.text[:300]
 
 
 def test_the_same_problem_as_a_job_finishes(tight):

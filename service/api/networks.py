@@ -311,7 +311,9 @@ def what_if_operation(kind):
                  f"{title}WhatIfResponse": response_schema},
         responses={"200": ok("Solved.", json_body(f"{title}WhatIfResponse"), headers=CACHE_STATUS),
                    **problems(400, 413, 415, 422, 500, texts=NAMED_BODY_TEXT), "404": _NOT_FOUND,
-                   "503": _UNAVAILABLE})
+                   "503": _UNAVAILABLE,
+                   # the same bounded solve as POST /v1/{kind}: a stored network's question can run out too
+                   "504": problem(504, "The solve exceeded the synchronous time limit and was stopped; use a job.")})
 
 
 # One route per kind that can be asked of a stored network, so that every route has
