@@ -24,8 +24,8 @@ from service.kinds import KINDS
 from tests.conftest import SCENARIOS, scenario
 from tests.test_explorer_browser import browser  # noqa: F401  (the fixture: headless chromium)
 
-#: The drawn kinds: those that declare a drawer.
-DRAWN = {name for name, kind in KINDS.items() if kind.drawer is not None}
+#: The drawn kinds: those that declare a picture.
+DRAWN = {name for name, kind in KINDS.items() if kind.picture is not None}
 
 SVG = "{http://www.w3.org/2000/svg}"
 

@@ -23,8 +23,8 @@ def test_every_registered_kind_is_one_declaration():
     for name, kind in KINDS.items():
         assert isinstance(kind, Kind) and kind.name == name
         assert (ROOT / "service" / "scenarios" / kind.example).is_file()
-        # a kind's drawer draws that kind (it names it in the SVG's data-kind)
-        assert kind.drawer is None or kind.drawer.kind == name
+        # a kind's picture is drawn by that kind's drawer (it names it in the SVG's data-kind)
+        assert kind.picture is None or kind.picture.drawer.kind == name
 
 
 def test_a_half_declared_what_if_is_refused():
@@ -34,7 +34,7 @@ def test_a_half_declared_what_if_is_refused():
     with pytest.raises(TypeError, match="dimacs"):
         Kind(**{**maxflow.__dict__, "dimacs": "max-flow"})
     with pytest.raises(TypeError, match="its drawer draws 'mincostflow'"):
-        Kind(**{**maxflow.__dict__, "drawer": KINDS["mincostflow"].drawer})
+        Kind(**{**maxflow.__dict__, "picture": KINDS["mincostflow"].picture})
 
 
 def test_kinds_endpoint_lists_each_declaration(client):
@@ -46,7 +46,7 @@ def test_kinds_endpoint_lists_each_declaration(client):
         caps = listed[name]["capabilities"]
         assert listed[name]["endpoint"] == f"/v1/{name}" and listed[name]["summary"] == kind.summary
         assert caps["what_if"] == (kind.from_network is not None) and caps["dimacs"] == kind.dimacs
-        assert caps["diagram"] == (kind.drawer is not None) and caps["verify"] == (kind.verify is not None)
+        assert caps["diagram"] == (kind.picture is not None) and caps["verify"] == (kind.verify is not None)
         assert client.get(f"/v1/scenarios/{listed[name]['example']}").status_code == 200
     # what the capabilities say holds: a what-if route where declared, none elsewhere
     rules = {r.rule for r in client.application.url_map.iter_rules()}
@@ -132,7 +132,7 @@ def test_a_new_kind_needs_only_its_declaration_in_the_registry():
 
 
 # A throwaway kind declaring every capability a Kind has: what-ifs on stored networks,
-# DIMACS bodies, a drawer, plan checks, a size, a time-limit grace, what a solver process
+# DIMACS bodies, a picture (its drawer and drawn form), plan checks, a size, a time-limit grace, what a solver process
 # is sent and extra example files. It is built from the max-flow parts (a real new kind's
 # module would import its solver the same way) and registered before the HTTP layer is
 # imported, in a fresh interpreter; every route, spec entry and listing below must follow
@@ -142,6 +142,7 @@ EVERY_CAPABILITY = textwrap.dedent('''
     from service.drawing.maxflow import MaxFlowDrawer
     from service.kinds import KINDS, maxflow
     from service.kinds.base import Kind, problem_size, without_arc_keys
+    from service.kinds.picture import network_picture, problem_ends
     from service.kinds.verify import max_flow_plans
 
     class LanesDrawer(MaxFlowDrawer):
@@ -156,7 +157,7 @@ EVERY_CAPABILITY = textwrap.dedent('''
         response_schema=subclass(maxflow.MaxFlowResponse, "LanesResponse"),
         example="depots-maxflow.json", parse=maxflow.parse, solve=maxflow.solve,
         query_schema=subclass(maxflow.MaxFlowQuery, "LanesQuery"), from_network=maxflow.from_network,
-        dimacs="max", drawer=LanesDrawer(), verify=max_flow_plans(maxflow.parse), size=problem_size,
+        dimacs="max", picture=network_picture(LanesDrawer(), ends=problem_ends), verify=max_flow_plans(maxflow.parse), size=problem_size,
         honours_time_limit=True, for_solver_process=without_arc_keys, examples=("depots-maxflow.dimacs",))
 
     from service.api import create_app

@@ -44,7 +44,8 @@ ALLOWED = {
     "model": {"errors"},
     "solvers": {"errors", "deadline"},
     # config: the size limits take their defaults from Settings (one place they are written).
-    # drawing: a kind declares its drawer (Kind.drawer); the drawing room is a leaf, so no circle.
+    # drawing: a kind declares its picture (Kind.picture: its drawer and drawn form); the drawing
+    # room is a leaf, so no circle.
     "kinds": {"errors", "config", "deadline", "model", "solvers", "drawing"},
     "store": {"errors", "model"},
     "jobs": {"errors", "config", "deadline", "kinds", "memory"},

@@ -1,8 +1,10 @@
 """Diagrams over HTTP: ``POST /v1/diagram.svg`` and the record that draws a cached answer.
 
 The drawing itself (layout, routing, labels, SVG) is :mod:`service.drawing`, which
-knows nothing of HTTP or of the model; this module turns a parsed problem (or a
-kept record of one) into its :class:`~service.drawing.DrawnNetwork` and answers.
+knows nothing of HTTP or of the model; how a kind's problem (or a kept record of
+one) becomes a :class:`~service.drawing.DrawnNetwork` is the kind's own declaration
+(:attr:`service.kinds.base.Kind.picture`, :mod:`service.kinds.picture`). This module
+asks it and answers.
 
 Diagrams are for small networks: above ``SLUICE_MAX_DIAGRAM_NODES`` nodes or
 ``SLUICE_MAX_DIAGRAM_ARCS`` arcs the answer is a 413 problem.
@@ -13,17 +15,15 @@ from __future__ import annotations
 from dataclasses import replace
 from time import perf_counter
 
-import numpy as np
 import orjson
 from flask import Blueprint, Response, current_app
 from marshmallow import RAISE, Schema, fields
 
-from ..drawing import DrawnNetwork, draw
+from ..drawing import draw
 from ..errors import FieldError, InputError, ProblemTooLarge
 from ..kinds import KINDS
 from ..kinds.nested import under
-from ..model.arcs import Network, export_network, read_network
-from ..model.columns import number_column
+from ..kinds.picture import drawn_body, drawn_timed
 from ..model.schemas import load_envelope
 from .bounded import bounded_solve
 from .declare import SVG_MEDIA_TYPE, json_body, ok, operation, problems, scenario_json, text_body
@@ -36,14 +36,14 @@ DRAWING_SUFFIX = ":drawing"
 
 
 def diagram_kinds() -> list[str]:
-    """The kinds that declare a ``drawer``.
+    """The kinds that declare a ``picture``.
 
     Returns
     -------
     list of str
         Kind names in registry order.
     """
-    return [name for name, kind in KINDS.items() if kind.drawer is not None]
+    return [name for name, kind in KINDS.items() if kind.picture is not None]
 
 
 class DiagramRequest(Schema):
@@ -54,75 +54,14 @@ class DiagramRequest(Schema):
     problem = fields.Dict(required=True, metadata={"description": "The request body of POST /v1/{kind}."})
 
 
-def drawn_network(network: Network, *, supply=None, source: int | None = None,
-                  sink: int | None = None) -> DrawnNetwork:
-    """The plain form of a normalised network that :mod:`service.drawing` draws."""
-    ids = np.asarray(network.nodes.ids).tolist() if network.nodes.kind is int else list(network.nodes.ids)
-    capacity = network.capacity.astype(np.float64)
-    if network.unlimited is not None:
-        capacity[network.unlimited] = np.inf
-    return DrawnNetwork(ids, network.tail.astype(np.int64), network.head.astype(np.int64), capacity,
-                        lower=_floats(network.lower), cost=_floats(network.cost), keys=network.keys,
-                        supply=_floats(supply), source=source, sink=sink)
-
-
-def _floats(values) -> np.ndarray | None:
-    return None if values is None else np.asarray(values, dtype=np.float64)
-
-
-def drawn_problem(problem) -> DrawnNetwork:
-    """A parsed problem of a drawn kind as a :class:`DrawnNetwork`."""
-    if hasattr(problem.network, "transit"):
-        return drawn_timed(timed_record(problem))
-    ends = _ends(problem)
-    return drawn_network(problem.network, supply=getattr(problem, "supply", None),
-                         source=getattr(ends, "source", None), sink=getattr(ends, "sink", None))
-
-
-def timed_record(problem) -> dict:
-    """A flow-over-time problem as plain JSON values: what its lanes-against-periods
-    picture needs (ids, lanes, transit, capacity per period with null for no limit)."""
-    net = problem.network
-    m, horizon = net.num_arcs, net.horizon
-    capacity = np.broadcast_to(np.asarray(net.capacity, dtype=np.float64).reshape(m, -1), (m, horizon)).copy()
-    if net.unlimited is not None:
-        capacity[np.broadcast_to(net.unlimited.reshape(m, -1), (m, horizon))] = np.nan
-    ids = problem.nodes.ids
-    return {"ids": np.asarray(ids).tolist() if problem.nodes.kind is int else list(ids),
-            "tail": net.tail.tolist(), "head": net.head.tolist(), "transit": net.transit.tolist(),
-            "capacity": [[None if np.isnan(c) else c for c in row] for row in capacity.tolist()],
-            "keys": problem.keys,
-            "source": problem.source, "sink": problem.sink}
-
-
-def drawn_timed(record: dict) -> DrawnNetwork:
-    """The flow-over-time picture of a record made by :func:`timed_record`.
-
-    Each lane is drawn with its largest capacity over the periods and keeps its capacities per
-    period; a null capacity (no limit) becomes infinity.
-    """
-    capacity = np.array([[np.inf if c is None else c for c in row] for row in record["capacity"]],
-                        dtype=np.float64).reshape(len(record["tail"]), -1)
-    return DrawnNetwork(record["ids"], np.asarray(record["tail"], dtype=np.int64),
-                        np.asarray(record["head"], dtype=np.int64),
-                        capacity.max(axis=1) if capacity.size else np.zeros(len(record["tail"])),
-                        keys=record["keys"], source=record["source"], sink=record["sink"],
-                        transit=np.asarray(record["transit"], dtype=np.int64), period_capacity=capacity)
-
-
-def _ends(problem):
-    """What holds the problem's source and sink (an expansion keeps them with its lanes)."""
-    return getattr(problem, "lanes", problem)
-
-
 def render_diagram(kind: str, body: dict, result: dict, *, max_nodes: int = 60, max_arcs: int = 200) -> str:
     """Draw a solved problem from its request body and its response, as SVG.
 
     Parameters
     ----------
     kind : str
-        A kind that declares a ``drawer`` (network pictures: not flows over time, whose
-        cached record is drawn by :func:`cached_diagram`).
+        A kind that declares a network ``picture`` (not flows over time, whose cached
+        record is drawn by :func:`cached_diagram`).
     body : dict
         The problem's request body (as sent to ``POST /v1/{kind}``, or as kept by
         :func:`drawing_record`).
@@ -131,6 +70,11 @@ def render_diagram(kind: str, body: dict, result: dict, *, max_nodes: int = 60, 
     max_nodes, max_arcs : int
         Size limits of a drawing.
 
+    Returns
+    -------
+    str
+        The SVG document.
+
     Raises
     ------
     InputError
@@ -138,16 +82,8 @@ def render_diagram(kind: str, body: dict, result: dict, *, max_nodes: int = 60, 
     ProblemTooLarge
         Above the size limits.
     """
-    if not isinstance(body, dict) or "arcs" not in body:
-        raise InputError.at("/arcs", "is required")
-    network, nodes = read_network(body["arcs"], body.get("nodes"), max_arcs=max_arcs, max_nodes=max_nodes)
-    supply = np.zeros(network.num_nodes)
-    column = nodes.fields.get("supply")
-    if column is not None:
-        values = number_column(column.values, column.where).values
-        supply[: values.size] = values
-    ends = {end: network.nodes.index_of(body[end]) for end in ("source", "sink") if end in body}
-    return draw(KINDS[kind].drawer, drawn_network(network, supply=supply, **ends), plain(result))
+    drawn = drawn_body(body, max_nodes=max_nodes, max_arcs=max_arcs)
+    return draw(KINDS[kind].picture.drawer, drawn, plain(result))
 
 
 def plain(result: dict) -> dict:
@@ -159,8 +95,6 @@ def plain(result: dict) -> dict:
 def svg_response(svg: str) -> Response:
     """An SVG drawing as a 200 response with ``Cache-Control: no-store``."""
     return Response(svg, mimetype=SVG_MEDIA_TYPE, headers={"Cache-Control": "no-store"})
-
-
 
 
 def _check_drawn(kind: str) -> None:
@@ -184,30 +118,34 @@ def solution_diagram(kind: str, problem_body: dict, result: dict) -> Response:
 def drawing_record(kind_name: str, problem) -> bytes | None:
     """What ``GET /v1/solutions/{digest}/diagram.svg`` needs to draw a cached answer later.
 
-    The result cache keeps answers, not problems; for the kinds that are drawn, a
-    small record with the problem's request body (as columns) is kept beside the
-    answer: ``{"kind", "body": {"nodes", "arcs", "source"?, "sink"?}}`` (nodes with
-    their ``supply`` when the problem has supplies). Problems above the diagram limits
-    keep only their size, ``{"kind", "too_large": {"nodes", "arcs"}}``, so the route can
-    answer 413 rather than 404. ``None`` for kinds that are not drawn.
+    The result cache keeps answers, not problems; for the kinds that are drawn, a small
+    record is kept beside the answer: ``{"kind", ...}`` joined with what the kind's
+    :attr:`~service.kinds.base.Kind.picture` keeps (``"body"``: the request body as
+    columns, or ``"timed"``: a flow over time's drawn form; :mod:`service.kinds.picture`).
+    Problems above the diagram limits keep only their size,
+    ``{"kind", "too_large": {"nodes", "arcs"}}``, so the route can answer 413 rather
+    than 404.
+
+    Parameters
+    ----------
+    kind_name : str
+        The problem's kind.
+    problem : Problem
+        The parsed problem (its ``network`` gives the size).
+
+    Returns
+    -------
+    bytes or None
+        The record as JSON; ``None`` for kinds that are not drawn.
     """
-    if KINDS[kind_name].drawer is None:
+    picture = KINDS[kind_name].picture
+    if picture is None:
         return None
     network = problem.network
     settings = current_app.extensions["sluice"].settings
     if network.num_nodes > settings.max_diagram_nodes or network.num_arcs > settings.max_diagram_arcs:
         return orjson.dumps({"kind": kind_name, "too_large": {"nodes": network.num_nodes, "arcs": network.num_arcs}})
-    if hasattr(network, "transit"):  # flows over time: the drawn form itself (its body has no Network)
-        return orjson.dumps({"kind": kind_name, "timed": timed_record(problem)})
-    body = export_network(network)
-    ids = network.nodes.ids
-    for end in ("source", "sink"):
-        if getattr(_ends(problem), end, None) is not None:
-            body[end] = ids[getattr(_ends(problem), end)]
-    supply = getattr(problem, "supply", None)
-    if supply is not None:
-        body["nodes"] = {"id": list(ids), "supply": np.asarray(supply).tolist()}
-    return orjson.dumps({"kind": kind_name, "body": body}, option=orjson.OPT_SERIALIZE_NUMPY)
+    return orjson.dumps({"kind": kind_name, **picture.record(problem)}, option=orjson.OPT_SERIALIZE_NUMPY)
 
 
 def cached_diagram(record: bytes, result: bytes) -> Response:
@@ -220,7 +158,7 @@ def cached_diagram(record: bytes, result: bytes) -> Response:
                                              f"diagrams are drawn for at most {settings.max_diagram_nodes} nodes "
                                              f"and {settings.max_diagram_arcs} arcs"))
     if "timed" in doc:
-        return svg_response(draw(KINDS[doc["kind"]].drawer, drawn_timed(doc["timed"]), orjson.loads(result)))
+        return svg_response(draw(KINDS[doc["kind"]].picture.drawer, drawn_timed(doc["timed"]), orjson.loads(result)))
     return solution_diagram(doc["kind"], doc["body"], orjson.loads(result))
 
 
@@ -256,6 +194,6 @@ def diagram():
     with under("/problem"):
         problem = _parse_drawable(kind, envelope["problem"], state)
         result = bounded_solve(kind, problem)
-    response = svg_response(draw(kind.drawer, drawn_problem(problem), plain(result)))
+    response = svg_response(draw(kind.picture.drawer, kind.picture.drawn(problem), plain(result)))
     response.headers["Server-Timing"] = f"total;dur={(perf_counter() - started) * 1000:.1f}"
     return response

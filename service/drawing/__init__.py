@@ -3,7 +3,7 @@
 ``draw(drawer, network, result)`` draws ``result`` (an answer as a client receives it,
 a JSON document) on a :class:`DrawnNetwork`. What differs between kinds is a
 :class:`Drawer`, one module per drawn kind (its ``DRAWER``); a kind declares the one it
-is drawn with (:attr:`service.kinds.base.Kind.drawer`), so no list of drawn kinds is
+is drawn with (in its :attr:`service.kinds.base.Kind.picture`), so no list of drawn kinds is
 kept here:
 
 - :mod:`.layout` places nodes in layers; :mod:`.routing` runs arcs around them;
@@ -29,7 +29,7 @@ def draw(drawer: Drawer | FlowOverTimeDrawer, network: DrawnNetwork, result: dic
     Parameters
     ----------
     drawer : Drawer or FlowOverTimeDrawer
-        The drawn kind's drawer (:attr:`service.kinds.base.Kind.drawer`).
+        The drawn kind's drawer (of its :attr:`service.kinds.base.Kind.picture`).
     network : DrawnNetwork
         The problem's network (and supplies, or source and sink).
     result : dict

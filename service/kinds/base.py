@@ -20,8 +20,8 @@ from ..model.stored import body_of
 from ..solvers.graph import Graph
 
 if TYPE_CHECKING:
-    from ..drawing import Drawer
     from ..model.arcs import Network
+    from .picture import Picture
 
 
 @dataclass(frozen=True)
@@ -101,9 +101,11 @@ class Kind:
         ``from_network(network, query, limits) -> Problem`` for a stored network.
     dimacs : {"max", "min"}, optional
         The DIMACS ``p`` format the solve endpoint also takes as ``text/x-dimacs``.
-    drawer : Drawer, optional
-        How the kind's answers are drawn (``POST /v1/diagram.svg``): one of the drawers
-        of :mod:`service.drawing`, whose ``kind`` is this kind's ``name``.
+    picture : Picture, optional
+        How the kind's answers are drawn (``POST /v1/diagram.svg``, and cached answers
+        by digest): its drawer (one of :mod:`service.drawing`, whose ``kind`` is this
+        kind's ``name``), how a problem becomes the drawn network and what is kept of it
+        beside a cached answer (:mod:`.picture`).
     verify : PlanVerifier, optional
         How clients' plans are checked (``POST /v1/verify/{name}``, built with
         :mod:`.verify`); ``None``: plans of the kind are not checked.
@@ -138,7 +140,7 @@ class Kind:
     query_schema: type | None = None
     from_network: Callable[[Any, Any, Limits], Problem] | None = None
     dimacs: str | None = None
-    drawer: Drawer | None = None
+    picture: Picture | None = None
     verify: PlanVerifier | None = None
     size: Callable[[Problem], int] | None = None
     honours_time_limit: bool = False
@@ -151,12 +153,12 @@ class Kind:
             raise TypeError(f"kind {self.name!r}: query_schema and from_network go together")
         if self.dimacs not in (None, "max", "min"):
             raise TypeError(f"kind {self.name!r}: dimacs must be 'max', 'min' or None")
-        if self.drawer is not None and self.drawer.kind != self.name:
-            raise TypeError(f"kind {self.name!r}: its drawer draws {self.drawer.kind!r}")
+        if self.picture is not None and self.picture.drawer.kind != self.name:
+            raise TypeError(f"kind {self.name!r}: its drawer draws {self.picture.drawer.kind!r}")
 
     def capabilities(self) -> dict:
         """What the kind can do beyond ``POST /v1/{name}``, as ``GET /v1/kinds`` lists it."""
-        return {"what_if": self.from_network is not None, "dimacs": self.dimacs, "diagram": self.drawer is not None,
+        return {"what_if": self.from_network is not None, "dimacs": self.dimacs, "diagram": self.picture is not None,
                 "verify": self.verify is not None, "jobs": True, "batch": True}
 
 

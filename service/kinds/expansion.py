@@ -20,6 +20,7 @@ from ..solvers.versions import ORTOOLS_VERSION
 from .base import Kind, Limits, ids_of, node_position, posted_whole, wants, without_arc_keys
 from .maxflow import TimingSchema
 from .mincostflow import POTENTIAL_MEANING
+from .picture import network_picture, lanes_ends
 
 DETAIL = ["flows", "additions", "potentials", "cut"]
 
@@ -319,6 +320,6 @@ KIND = Kind(
     solve=solve,
     query_schema=ExpansionQuery,
     from_network=from_network,
-    drawer=DRAWER,
+    picture=network_picture(DRAWER, ends=lanes_ends),
     for_solver_process=without_arc_keys,
 )

@@ -37,6 +37,7 @@ from ..solvers.timeexpanded import TimedNetwork
 from ..solvers.versions import ORTOOLS_VERSION
 from .base import Kind, Limits, ids_of, node_position, posted_whole, problem_size
 from .flowovertime_schemas import THROUGH, FlowOverTimeQuery, FlowOverTimeRequest, FlowOverTimeResponse
+from .picture import timed_picture
 
 _REQUEST = FlowOverTimeRequest()
 _QUERY = FlowOverTimeQuery()
@@ -280,7 +281,7 @@ KIND = Kind(
     solve=solve,
     query_schema=FlowOverTimeQuery,
     from_network=from_network,
-    drawer=DRAWER,
+    picture=timed_picture(DRAWER),
     per_period_capacity=True,
     size=problem_size,
 )

@@ -25,6 +25,7 @@ from ..errors import InputError, ProblemTooLarge, FieldError
 from .base import (
     Kind, Limits, digest_detail, graph_of, ids_of, node_position, problem_size, wants, without_arc_keys,
 )
+from .picture import network_picture, problem_ends
 from .verify import max_flow_plans
 
 DETAIL = ["flows", "cut"]
@@ -267,7 +268,7 @@ KIND = Kind(
     query_schema=MaxFlowQuery,
     from_network=from_network,
     dimacs="max",
-    drawer=DRAWER,
+    picture=network_picture(DRAWER, ends=problem_ends),
     verify=max_flow_plans(parse),
     size=problem_size,
     for_solver_process=without_arc_keys,

@@ -20,6 +20,7 @@ from ..solvers.mincost import imbalance, min_cost_flow
 from ..solvers.versions import ORTOOLS_VERSION
 from .base import Kind, Limits, digest_detail, graph_of, ids_of, problem_size, wants, without_arc_keys
 from .maxflow import EngineSchema, TimingSchema
+from .picture import network_picture, problem_supply
 from .verify import min_cost_plans
 
 DETAIL = ["flows", "potentials", "reduced_costs"]
@@ -362,7 +363,7 @@ KIND = Kind(
     query_schema=MinCostFlowQuery,
     from_network=from_network,
     dimacs="min",
-    drawer=DRAWER,
+    picture=network_picture(DRAWER, supply=problem_supply),
     verify=min_cost_plans(parse),
     size=problem_size,
     for_solver_process=without_arc_keys,

@@ -17,6 +17,7 @@ from ..solvers.resilience import arc_closures
 from ..solvers.versions import ORTOOLS_VERSION
 from .base import Kind, Limits, ids_of, node_position, posted_whole, wants, without_arc_keys
 from .maxflow import CutSchema, EngineSchema, MaxFlowCertificate, MaxFlowRequest, TimingSchema, UnboundedPathSchema
+from .picture import network_picture, problem_ends
 
 DETAIL = ["flows", "cut", "cuts"]
 
@@ -245,6 +246,6 @@ KIND = Kind(
     solve=solve,
     query_schema=ResilienceQuery,
     from_network=from_network,
-    drawer=DRAWER,
+    picture=network_picture(DRAWER, ends=problem_ends),
     for_solver_process=without_arc_keys,
 )
