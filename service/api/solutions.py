@@ -10,7 +10,7 @@ from ..errors import NotFound
 from ..store import check_digest
 from .declare import SVG_MEDIA_TYPE, header_parameter, json_body, ok, operation, path_parameter, problem, problems
 from .declare import text_body
-from .diagram import DRAWING_SUFFIX, cached_diagram
+from .diagram import DRAWING_SUFFIX, cached_diagram, diagram_kinds
 from .storage import get_store, tenant
 
 #: The ``{digest}`` of these paths (what a solve response's ``digest`` holds).
@@ -46,7 +46,7 @@ def get_solution(digest: str):
 
 
 @bp.get("/<digest>/diagram.svg")
-@operation("draw_cached_solution", "Draw a cached max-flow or min-cost flow answer as SVG",
+@operation("draw_cached_solution", "Draw a cached answer of a drawn kind as SVG",
            description="Small solved problems are kept beside their cached answers so they can be drawn by "
                        "digest; a problem above the diagram limits answers 413, an unknown or evicted one 404.",
            parameters=[DIGEST],
@@ -59,5 +59,5 @@ def get_solution_diagram(digest: str):
     record = store.get_result(tenant(), digest + DRAWING_SUFFIX) if value is not None else None
     if value is None or record is None:
         raise NotFound(f"no drawable cached solution for {digest}: solve the problem again "
-                       "(diagrams are kept for max-flow and min-cost flow answers)")
+                       f"(diagrams are kept for answers of {', '.join(diagram_kinds())})")
     return cached_diagram(record, value)

@@ -3,7 +3,13 @@
 The operations themselves are declared on their routes (:mod:`service.api.declare`);
 what is here explains what cuts across them: answers and certificates, the result
 cache, stored networks, DIMACS bodies, plan checks, batches, diagrams, jobs, access.
+Where it names the kinds that take DIMACS, check plans or are drawn, the names come
+from their declarations (``$``-placeholders filled by :func:`description`).
 """
+
+from string import Template
+
+from ..kinds import KINDS
 
 #: Answers, certificates, the result cache, stored networks, status codes.
 DESCRIPTION = """Network-flow optimisation over HTTP: max-flow with minimum cuts, certified.
@@ -60,7 +66,7 @@ stock must be reviewed by a responsible planner and follow local rules."""
 EXTRAS = """
 ## Text bodies: the DIMACS formats
 
-`POST /v1/maxflow` and `POST /v1/mincostflow` also take a DIMACS file (the open text
+$dimacs_routes also take a DIMACS file (the open text
 formats of the DIMACS implementation challenges) with `Content-Type: text/x-dimacs`
 (optionally `; charset=...`, default UTF-8): `p max NODES ARCS`, `n ID s`, `n ID t`,
 `a FROM TO CAPACITY` for max-flow; `p min NODES ARCS`, `n ID SUPPLY`,
@@ -76,7 +82,7 @@ anything a bounded problem can put on one arc.
 
 ## Checking a client's plan
 
-`POST /v1/verify/maxflow` and `POST /v1/verify/mincostflow` take `{"problem": <the
+$verify_routes take `{"problem": <the
 solve request body>, "flows": [one number per arc]}`. Errors in the problem point
 under `/problem`; flows of the wrong length are a 422 at `/flows`. A violation is
 `{"arc", "kind": "capacity" | "lower", "excess"}` (`lower` also covers negative
@@ -105,10 +111,11 @@ problem object.
 
 ## Diagrams and the explorer
 
-`POST /v1/diagram.svg` with `{"kind": "maxflow" | "mincostflow", "problem": ...}`
+`POST /v1/diagram.svg` with `{"kind": $drawn_kinds, "problem": ...}`
 solves the problem and draws the answer as SVG: a layered left-to-right layout from
 source to sink, flows, the minimum cut (max-flow) or the arcs at capacity (min-cost
-flow), node potentials when the answer has them. Arcs run around the nodes they do not
+flow), node potentials when the answer has them (a flow over time is drawn as its lanes
+against the periods instead). Arcs run around the nodes they do not
 join; each is labelled `flow/capacity` (`flow/lower..capacity` with a lower bound,
 then `@cost` for min-cost flow), and no two texts overlap. Control characters in ids
 and keys are drawn as their Unicode control pictures (U+0000 as ␀), so the document
@@ -157,5 +164,13 @@ when it is 1-128 characters of letters, digits and `._:-`, else a new one)."""
 
 
 def description() -> str:
-    """The whole ``info.description``."""
-    return DESCRIPTION + "\n" + EXTRAS + "\n" + OPERATIONS
+    """The whole ``info.description``, the kinds it names taken from their declarations."""
+    def routes(prefix: str, names) -> str:
+        """``POST {prefix}{name}`` for each name, joined with "and"."""
+        return " and ".join(f"`POST {prefix}{name}`" for name in names)
+
+    extras = Template(EXTRAS).substitute(
+        dimacs_routes=routes("/v1/", [k.name for k in KINDS.values() if k.dimacs]),
+        verify_routes=routes("/v1/verify/", [k.name for k in KINDS.values() if k.verify]),
+        drawn_kinds=" | ".join(f'"{k.name}"' for k in KINDS.values() if k.picture))
+    return DESCRIPTION + "\n" + extras + "\n" + OPERATIONS
