@@ -51,7 +51,8 @@ def lp_engine(**extra) -> dict:
     return {"kind": "lp", "solver": "OR-Tools GLOP", "version": ORTOOLS_VERSION, **extra}
 
 
-def _glop(c, matrix, row_lower, row_upper, col_lower, col_upper, maximize, seconds, params) -> LPSolution:
+def _glop(c, matrix, row_lower, row_upper, col_lower, col_upper, maximize, deadline: Deadline | None,
+          params) -> LPSolution:
     model = mbh.ModelBuilderHelper()
     model.fill_model_from_sparse_data(
         np.ascontiguousarray(col_lower, dtype=np.float64),
@@ -63,8 +64,9 @@ def _glop(c, matrix, row_lower, row_upper, col_lower, col_upper, maximize, secon
     )
     model.set_maximize(maximize)
     solver = mbh.ModelSolverHelper("glop")
+    seconds = remaining(deadline)  # read once the model is filled: GLOP's clock starts now
     if seconds is not None:
-        solver.set_time_limit_in_seconds(max(float(seconds), MIN_SLICE))
+        solver.set_time_limit_in_seconds(max(seconds, MIN_SLICE))
     if params:
         solver.set_solver_specific_parameters(" ".join(params))
     solver.solve(model)
@@ -111,7 +113,8 @@ def solve_lp(
     maximize : bool
     deadline : Deadline, optional
         When the whole call must end (both solves when a status is confirmed); GLOP
-        gets what is left of it, at least :data:`MIN_SLICE`. None: no limit.
+        gets what is left of it once its model is filled, at least :data:`MIN_SLICE`.
+        None: no limit.
     presolve : bool
         Use GLOP's presolve. It reports unbounded models as infeasible (measured on
         OR-Tools 9.15 even for ``min -x, x >= 0``), hence ``confirm``.
@@ -136,7 +139,7 @@ def solve_lp(
     """
     params = ["use_dual_simplex: true"] if dual_simplex else []
     try:
-        first = _glop(c, matrix, row_lower, row_upper, col_lower, col_upper, maximize, remaining(deadline),
+        first = _glop(c, matrix, row_lower, row_upper, col_lower, col_upper, maximize, deadline,
                       params + ([] if presolve else ["use_preprocessing: false"]))
     except SolverFailure:
         if not presolve:
@@ -144,14 +147,14 @@ def solve_lp(
         # An abnormal stop (badly scaled data) sometimes passes with the other simplex
         # method and no presolve (measured on OR-Tools 9.15).
         other = [] if dual_simplex else ["use_dual_simplex: true"]
-        return _glop(c, matrix, row_lower, row_upper, col_lower, col_upper, maximize, remaining(deadline),
+        return _glop(c, matrix, row_lower, row_upper, col_lower, col_upper, maximize, deadline,
                      other + ["use_preprocessing: false"])
     if not (presolve and confirm and first.status in ("infeasible", "unbounded")):
         return first
     left = remaining(deadline)
     if left is not None and left < MIN_SLICE:
         return first
-    return _glop(c, matrix, row_lower, row_upper, col_lower, col_upper, maximize, left,
+    return _glop(c, matrix, row_lower, row_upper, col_lower, col_upper, maximize, deadline,
                  params + ["use_preprocessing: false"])
 
 
