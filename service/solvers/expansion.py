@@ -289,8 +289,7 @@ def _with_one_off_charges(lanes: Lanes, deadline: Deadline | None,
     first_flows, first_additions, _, first_certificate = plan
     own_bound = first_certificate["dual_bound"]  # the one-off charges only add to any plan's cost
     first = _replay(lanes, first_flows, first_additions)
-    left = None if deadline is None else max(0.01, deadline.remaining())
-    found, solver_bound, search = _search(lanes, first_flows, left, gap)
+    found, solver_bound, search = _search(lanes, first_flows, deadline, gap)
     flows, certificate = first_flows, first
     if found is not None:
         found_certificate = _replay(lanes, found, _additions(lanes, found))
@@ -308,8 +307,9 @@ def _with_one_off_charges(lanes: Lanes, deadline: Deadline | None,
                              bound=bound, gap=relative, stats={"search": search}), certificate
 
 
-def _search(lanes: Lanes, hint_flows: np.ndarray, seconds: float | None, gap: float):
-    """CP-SAT on the fixed-charge model, hinted with the plan for per-unit charges alone.
+def _search(lanes: Lanes, hint_flows: np.ndarray, deadline: Deadline | None, gap: float):
+    """CP-SAT on the fixed-charge model, hinted with the plan for per-unit charges alone,
+    given what is left of ``deadline`` once the model is built (at least 0.01 s).
 
     Returns
     -------
@@ -351,8 +351,8 @@ def _search(lanes: Lanes, hint_flows: np.ndarray, seconds: float | None, gap: fl
     solver = cp_model.CpSolver()
     solver.parameters.num_workers = MIP_WORKERS
     solver.parameters.relative_gap_limit = gap
-    if seconds is not None:
-        solver.parameters.max_time_in_seconds = seconds
+    if deadline is not None:
+        solver.parameters.max_time_in_seconds = max(0.01, deadline.remaining())
     status = solver.solve(model)
     if status in (cp_model.INFEASIBLE, cp_model.MODEL_INVALID):
         raise SolverFailure(f"CP-SAT returned {solver.status_name(status)} for a feasible expansion")
