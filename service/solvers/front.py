@@ -169,7 +169,7 @@ def certify_max_flow(solution: MaxFlowSolution, graph: Graph, source: int, sink:
     relative = 0.0
     if solution.engine.get("kind") == "lp":
         # LP answers: compare in floating point, never wrap int64.
-        graph = graph.replace(capacity=graph.capacity.astype(np.float64))
+        graph = graph.replace(capacity=graph.capacity.astype(np.float64, copy=False))
         relative = LP_TOLERANCE
     return certificates.check_max_flow(graph, source, sink, solution.flows, solution.value, solution.source_side,
                                        relative)

@@ -49,7 +49,7 @@ def max_flow_lp(graph: Graph, source: int, sink: int, *, deadline=None) -> MaxFl
         return MaxFlowSolution("unbounded", None, np.empty(0), np.empty(0, bool),
                                graph_engine("SimpleMaxFlow"), unbounded_path=path)
     m = tail.size
-    cap = capacity.astype(np.float64)
+    cap = capacity.astype(np.float64, copy=False)  # read only: float capacities are not copied
     upper = np.where(unlimited, np.inf, cap) if unlimited is not None else cap
     b = np.zeros((num_nodes, 1))
     b[source, 0], b[sink, 0] = -1.0, 1.0
