@@ -21,7 +21,7 @@ def execute(run, kind: str, body: bytes, limits: Limits, time_limit: float, on_t
     Parameters
     ----------
     run : callable
-        ``run(message, budget=..., on_tick=..., on_progress=...) -> reply``
+        ``run(message, budget=..., grace=..., on_tick=..., on_progress=...) -> reply``
         (:meth:`SolverPool.run`, or a :meth:`SolverProcess.run` already started).
     time_limit : float
         Seconds for the whole job (parse and solve) from the moment its solver process

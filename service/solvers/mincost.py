@@ -90,7 +90,7 @@ def min_cost_flow(graph: Graph, supply: np.ndarray, *, shortage: str = "reject",
     shortage : {"reject", "max-flow"}
     engine : {"auto", "graph", "lp"}
     deadline : Deadline, optional
-        When the LP engine must stop (the others do not take long enough to need one).
+        When the LP engine must stop; the graph engine does not read it.
 
     Returns
     -------
