@@ -10,8 +10,7 @@ from ..errors import SolverFailure, SolveTimeout
 from . import mincost_checks as checks
 from .certificates import throughput
 from .front import exact_max_flow
-from .graph import Graph
-from .graph import residual_reach
+from .graph import Graph, residual_reach
 from .glop import beyond_range, incidence_matrix, solve_lp
 from .maxflow_lp import LP_TOLERANCE
 from .mincost_graph import GraphRangeError, mincost_engine, negative_unlimited_cycle

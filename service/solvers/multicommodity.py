@@ -40,6 +40,7 @@ from .glop import beyond_range, incidence_matrix, lp_engine
 from .lp import LPModel, LPResult, settle_feasible, solve_certified
 from .multicommodity_checks import HOLD_SLACK, check_flows, check_throughput, flow_tolerance
 
+
 @dataclass
 class Commodities:
     sources: np.ndarray  # node index per commodity

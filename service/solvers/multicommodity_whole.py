@@ -56,6 +56,7 @@ FIX_SHARE = 0.25
 #: The certificate of an answer without a plan: nothing to check but the reason.
 NO_PLAN = {"checked": True, "reason": "no plan within the time limit"}
 
+
 @dataclass
 class WholeSolution:
     status: str  # optimal | feasible | time_limit | infeasible | unbounded
@@ -116,7 +117,7 @@ def whole_unit_flow(net: Network, com: Commodities, *, objective: str = "min-cos
     if lp is not None and lp.status == "unbounded":
         return _unbounded(data, model, lp, deadline, engine)
     search = Search(data, model, gap, started, on_progress, "deliver" if data.throughput else "cost",
-                     trivial_bound(model))
+                    trivial_bound(model))
     solved = lp is not None and lp.status == "optimal"
     if solved:
         search.tighten(_lp_bound(data, lp))
