@@ -35,7 +35,7 @@ def _fail(what: str) -> None:
 
 def throughput(num_nodes: int, tail: np.ndarray, head: np.ndarray, flows: np.ndarray) -> np.ndarray:
     """Per node, the larger of its inflow and outflow (float64): its own magnitude."""
-    f = np.abs(flows.astype(np.float64))
+    f = np.abs(flows.astype(np.float64, copy=False))
     return np.maximum(np.bincount(head, f, num_nodes), np.bincount(tail, f, num_nodes))
 
 

@@ -48,14 +48,6 @@ def _max(a: np.ndarray) -> float:
     return float(a.max()) if a.size else 0.0
 
 
-def _finite_max(*arrays) -> float:
-    top = 0.0
-    for a in arrays:
-        f = np.abs(a[np.isfinite(a)])
-        top = max(top, _max(f))
-    return top
-
-
 def sense(model) -> float:
     """The sign ``s`` of the module's sign convention: +1 for ``min``, -1 for ``max``."""
     return -1.0 if model.maximize else 1.0

@@ -12,6 +12,7 @@ import numpy as np
 
 from ..errors import SelfCheckFailed
 from . import lp_checks
+from .certificates import throughput
 
 if TYPE_CHECKING:
     from .lp import LPResult
@@ -47,8 +48,7 @@ def check_flows(net: Network, com: Commodities, flows: np.ndarray, delivered: np
     offset = (n * np.arange(K))[:, None]
     tails, heads = (offset + net.tail[None, :]).ravel(), (offset + net.head[None, :]).ravel()
     balance = np.bincount(tails, flows.ravel(), K * n) - np.bincount(heads, flows.ravel(), K * n)
-    size = np.abs(flows.ravel())
-    through = np.maximum(np.bincount(tails, size, K * n), np.bincount(heads, size, K * n))
+    through = throughput(K * n, tails, heads, flows.ravel())
     expected = np.zeros(K * n)
     np.add.at(expected, n * np.arange(K) + com.sources, delivered)
     np.add.at(expected, n * np.arange(K) + com.sinks, -delivered)

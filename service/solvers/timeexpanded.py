@@ -145,10 +145,6 @@ class Expansion:
         where[self.ref[hold], self.period[hold]] = hold
         return where[nodes]
 
-    def node_period(self, expanded: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-        """(node, period) of expanded node indices."""
-        return expanded % self.num_nodes, expanded // self.num_nodes
-
 
 def finite_total(net: TimedNetwork) -> int:
     """Sum of every finite capacity over the horizon: lane copies and holdover steps.
