@@ -70,10 +70,9 @@ def create_app(config: Settings | dict | None = None) -> Flask:
     settings = config if isinstance(config, Settings) else Settings.from_env()
     if isinstance(config, dict):
         settings = Settings(**{**settings.__dict__, **config})
-    app = Flask(__name__, static_folder=None)  # no static route: the explorer serves its own files
+    app = routes.bare_app()  # the same app as the one `sluice spec` documents
     app.json = OrjsonProvider(app)
     app.config["MAX_CONTENT_LENGTH"] = settings.max_body_bytes
-    app.url_map.strict_slashes = False
     limits = Limits.from_settings(settings)
     problems.init_app(app)
     # Order matters: request id and clock first (so every answer is counted and logged),

@@ -26,6 +26,7 @@ from ..errors import PROBLEM_BASE, FieldError, InputError, ProblemTooLarge, Slui
 from ..kinds import KINDS, Limits
 from ..kinds.nested import under
 from .bounded import bounded_solve
+from .cache import stage_timing
 from .declare import json_body, ok, operation, problems, scenario_json
 from .jsonio import json_response, read_json_body
 
@@ -120,8 +121,7 @@ def solve_item(item, limits: Limits, deadline: Deadline) -> dict:
         parsed = perf_counter()
         result = bounded_solve(kind, problem, deadline.within(problem.options.get("time_limit")))
     done = perf_counter()
-    result["timing_ms"] = {"parse": round((parsed - started) * 1000, 3), "solve": round((done - parsed) * 1000, 3),
-                           "total": round((done - started) * 1000, 3)}
+    result["timing_ms"] = stage_timing(started, parsed, done)
     return result
 
 

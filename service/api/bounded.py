@@ -6,8 +6,9 @@ an LP, allowed pairs for an assignment) is at most ``SLUICE_INLINE_MAX_ARCS`` (d
 20,000) is solved inline on the request thread: such solves take milliseconds, and the
 IPC of a solver process would cost more than the solve. A larger problem (or one whose
 size a kind does not report) goes to this worker's pool of warm solver processes. Either
-way the solve has one :class:`~service.deadline.Deadline`, made here once per request:
-``min(options.time_limit, SLUICE_TIME_LIMIT)`` from the start of the solve. The kinds and
+way the solve has one :class:`~service.deadline.Deadline`, made here once per solve:
+``min(options.time_limit, SLUICE_TIME_LIMIT)`` from its start (a batch makes one for all
+its items and gives each what is left, :mod:`service.api.batch`). The kinds and
 solvers read what is left of it; a solver process is killed at it (plus a short grace
 for the kinds that stop themselves at it and answer ``time_limit``); past it the
 process is killed (the OR-Tools solvers cannot be interrupted), the client gets 504 ``time-limit`` with a hint

@@ -164,6 +164,12 @@ def _quietly(fn, *args) -> None:
         log.debug("cache skipped: %s", exc.detail)
 
 
+def stage_timing(started: float, parsed: float, done: float) -> dict:
+    """``timing_ms`` of a request read by ``parsed`` and answered by ``done`` (``perf_counter()`` instants)."""
+    return {"parse": round((parsed - started) * 1000, 3), "solve": round((done - parsed) * 1000, 3),
+            "total": round((done - started) * 1000, 3)}
+
+
 def _timing(started: float, solve_started: float, solve_s: float) -> dict:
     now = perf_counter()
     return {

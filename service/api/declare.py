@@ -55,6 +55,8 @@ SOLVE_BODY_TEXT = {400: "The body is not valid JSON.", 415: "The Content-Type is
 NAMED_BODY_TEXT = {**SOLVE_BODY_TEXT, 400: "The body is not valid JSON, or the name is malformed."}
 #: ... for a route that also takes DIMACS text.
 DIMACS_BODY_TEXT = {415: "The Content-Type is neither JSON nor text/x-dimacs."}
+#: The 504 of a bounded solve (:mod:`service.api.bounded`) whose problem could be a job.
+SOLVE_TIMEOUT_TEXT = "The solve exceeded the synchronous time limit and was stopped; use a job."
 
 
 def problem(status: int, text: str | None = None, headers: dict | None = None) -> dict:

@@ -182,7 +182,9 @@ def _parse_drawable(kind, body, state):
            request=json_body("DiagramRequest", {"kind": "maxflow", "problem": scenario_json("depots-maxflow.json")}),
            schemas={"DiagramRequest": DiagramRequest},
            responses={"200": ok("The drawing.", text_body(SVG_MEDIA_TYPE)),
-                      **problems(400, 413, 415, 422, 500, 504)})
+                      # a solve, not a plan check: the standard 504 wording is the check's
+                      **problems(400, 413, 415, 422, 500, 504,
+                                 texts={504: "The solve exceeded the synchronous time limit and was stopped."})})
 def diagram():
     """Solve a small problem and draw the answer as SVG."""
     state = current_app.extensions["sluice"]

@@ -25,7 +25,7 @@ from . import cache
 from .storage import get_store, tenant
 from ..model.dimacs import MEDIA_TYPE as DIMACS_MEDIA_TYPE
 from .declare import CACHE_STATUS, DIMACS_BODY_TEXT, NAMED_BODY_TEXT, header_parameter, json_body, kind_title, ok
-from .declare import operation, path_parameter, problem, problems, text_body
+from .declare import SOLVE_TIMEOUT_TEXT, operation, path_parameter, problem, problems, text_body
 from .jsonio import decode_body, dimacs_response, json_response, read_json_body
 
 bp = Blueprint("networks", __name__, url_prefix="/v1/networks")
@@ -313,7 +313,7 @@ def what_if_operation(kind):
                    **problems(400, 413, 415, 422, 500, texts=NAMED_BODY_TEXT), "404": _NOT_FOUND,
                    "503": _UNAVAILABLE,
                    # the same bounded solve as POST /v1/{kind}: a stored network's question can run out too
-                   "504": problem(504, "The solve exceeded the synchronous time limit and was stopped; use a job.")})
+                   "504": problem(504, SOLVE_TIMEOUT_TEXT)})
 
 
 # One route per kind that can be asked of a stored network, so that every route has

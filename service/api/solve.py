@@ -12,7 +12,7 @@ from ..kinds import KINDS, Kind, Limits
 from ..model.dimacs import MEDIA_TYPE as DIMACS_MEDIA_TYPE
 from . import cache, jobs
 from .declare import CACHE_STATUS, DIMACS_BODY_TEXT, SOLVE_BODY_TEXT, json_body, kind_title, ok, operation, problem
-from .declare import problems, scenario_json, scenario_text, text_body
+from .declare import SOLVE_TIMEOUT_TEXT, problems, scenario_json, scenario_text, text_body
 from .jsonio import decode_body, json_response
 
 bp = Blueprint("solve", __name__, url_prefix="/v1")
@@ -72,7 +72,7 @@ def solve_operation(kind: Kind):
             **problems(400, 413, 415, 422, 500, texts={**SOLVE_BODY_TEXT, **(DIMACS_BODY_TEXT if kind.dimacs else {})}),
             "202": jobs.ACCEPTED,
             "503": problem(503, "Solver processes busy, or (with Prefer) the job queue is down."),
-            "504": problem(504, "The solve exceeded the synchronous time limit and was stopped; use a job."),
+            "504": problem(504, SOLVE_TIMEOUT_TEXT),
         })
 
 

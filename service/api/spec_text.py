@@ -10,6 +10,8 @@ from their declarations (``$``-placeholders filled by :func:`description`).
 from string import Template
 
 from ..kinds import KINDS
+from .diagram import diagram_kinds
+from .verify import verify_kinds
 
 #: Answers, certificates, the result cache, stored networks, status codes.
 DESCRIPTION = """Network-flow optimisation over HTTP: max-flow with minimum cuts, certified.
@@ -171,6 +173,6 @@ def description() -> str:
 
     extras = Template(EXTRAS).substitute(
         dimacs_routes=routes("/v1/", [k.name for k in KINDS.values() if k.dimacs]),
-        verify_routes=routes("/v1/verify/", [k.name for k in KINDS.values() if k.verify]),
-        drawn_kinds=" | ".join(f'"{k.name}"' for k in KINDS.values() if k.picture))
+        verify_routes=routes("/v1/verify/", verify_kinds()),
+        drawn_kinds=" | ".join(f'"{name}"' for name in diagram_kinds()))
     return DESCRIPTION + "\n" + extras + "\n" + OPERATIONS

@@ -10,6 +10,7 @@ from ..deadline import Deadline
 from ..errors import NotFound
 from ..kinds import KINDS
 from ..kinds.verify import VerifyRequest, VerifyResponse
+from .cache import stage_timing
 from .declare import json_body, ok, operation, path_parameter, problems, scenario_json
 from .jsonio import json_response, read_json_body
 from .solve import limits
@@ -46,6 +47,5 @@ def verify(kind: str):
     parsed = perf_counter()
     out = plans.check(problem, Deadline.after(current_app.extensions["sluice"].settings.time_limit))
     done = perf_counter()
-    out["timing_ms"] = {"parse": round((parsed - started) * 1000, 3), "solve": round((done - parsed) * 1000, 3),
-                        "total": round((done - started) * 1000, 3)}
+    out["timing_ms"] = stage_timing(started, parsed, done)
     return json_response(out)

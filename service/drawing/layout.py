@@ -49,7 +49,6 @@ def layered_layout(graph: Graph, sources, sinks) -> tuple[np.ndarray, np.ndarray
     """
     num_nodes = graph.num_nodes
     tail, head = np.asarray(graph.tail, dtype=np.int64), np.asarray(graph.head, dtype=np.int64)
-    graph = graph.replace(tail=tail, head=head)
     sinks = [s for s in sinks if s not in set(sources)]
     layer = graph.depth(sources or ([0] if num_nodes else []))
     inner = np.ones(num_nodes, dtype=bool)

@@ -289,9 +289,10 @@ def solve(problem: AssignmentProblem, deadline: Deadline) -> dict:
     Parameters
     ----------
     problem : AssignmentProblem
-        From :func:`parse` or :func:`from_network`.
+        From :func:`parse` (assignments are not asked of stored networks).
     deadline : Deadline
-        When the solve must stop: made once per request or job.
+        Not passed on: the assignment solvers take none (a solve in a solver process
+        is stopped at it all the same).
 
     Returns
     -------

@@ -256,7 +256,7 @@ def solve(problem: LPProblem, deadline: Deadline) -> dict:
     Parameters
     ----------
     problem : LPProblem
-        From :func:`parse` or :func:`from_network`.
+        From :func:`parse` (linear programs are not asked of stored networks).
     deadline : Deadline
         When the solve must stop: made once per request or job.
 

@@ -155,7 +155,7 @@ def drawn_network(network: Network, *, supply=None, source: int | None = None,
     -------
     DrawnNetwork
     """
-    ids = np.asarray(network.nodes.ids).tolist() if network.nodes.kind is int else list(network.nodes.ids)
+    ids = _plain_ids(network.nodes)
     capacity = network.capacity.astype(np.float64)
     if network.unlimited is not None:
         capacity[network.unlimited] = np.inf
@@ -166,6 +166,11 @@ def drawn_network(network: Network, *, supply=None, source: int | None = None,
 
 def _floats(values) -> np.ndarray | None:
     return None if values is None else np.asarray(values, dtype=np.float64)
+
+
+def _plain_ids(nodes) -> list:
+    """The node ids as a list of plain Python values (integer ids may be held in a numpy array)."""
+    return np.asarray(nodes.ids).tolist() if nodes.kind is int else list(nodes.ids)
 
 
 def drawn_body(body: dict, *, max_nodes: int, max_arcs: int) -> DrawnNetwork:
@@ -244,8 +249,7 @@ def timed_record(problem) -> dict:
     capacity = np.broadcast_to(np.asarray(net.capacity, dtype=np.float64).reshape(m, -1), (m, horizon)).copy()
     if net.unlimited is not None:
         capacity[np.broadcast_to(net.unlimited.reshape(m, -1), (m, horizon))] = np.nan
-    ids = problem.nodes.ids
-    return {"ids": np.asarray(ids).tolist() if problem.nodes.kind is int else list(ids),
+    return {"ids": _plain_ids(problem.nodes),
             "tail": net.tail.tolist(), "head": net.head.tolist(), "transit": net.transit.tolist(),
             "capacity": [[None if np.isnan(c) else c for c in row] for row in capacity.tolist()],
             "keys": problem.keys,
