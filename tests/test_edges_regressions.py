@@ -14,7 +14,7 @@ from service.errors import SelfCheckFailed
 from service.solvers import Graph, mincost_checks as checks
 from service.solvers.certificates import check_max_flow
 from service.solvers.maxflow_lp import LP_TOLERANCE
-from service.solvers.multicommodity import Commodities, Network, check_flows, min_cost_model
+from service.solvers.multicommodity import Commodities, check_flows, min_cost_model
 from tests.http import pointers
 
 BIG = 2**62
@@ -133,7 +133,7 @@ def test_integer_costs_out_of_range_are_a_422_naming_the_field(client):
 
 def mc_example(v):
     """Two commodities sharing s->a (capacity v): 7 from s to t, v from s to a."""
-    net = Network(3, np.array([0, 1, 0], np.int32), np.array([1, 2, 2], np.int32), np.array([v, 3.0, 5.0]), None,
+    net = Graph(3, np.array([0, 1, 0], np.int32), np.array([1, 2, 2], np.int32), np.array([v, 3.0, 5.0]), None,
                   np.array([1.0, v, 2.0]))
     return net, Commodities(np.array([0, 0]), np.array([2, 1]), np.array([7.0, v]))
 
@@ -259,7 +259,7 @@ def test_proof_checks_are_exact_at_any_scale():
 
 
 def test_multicommodity_check_measures_each_arc_against_its_own_capacity():
-    net = Network(3, np.array([0, 1], np.int32), np.array([1, 2], np.int32), np.array([1e-6, 1e12]), None,
+    net = Graph(3, np.array([0, 1], np.int32), np.array([1, 2], np.int32), np.array([1e-6, 1e12]), None,
                   np.array([1.0, 1.0]))
     com = Commodities(np.array([0]), np.array([2]), np.array([1e-6]))
     lp = {"primal_residual": 0.0, "dual_residual": 0.0, "dual_objective": 2e-6, "gap": 0.0,

@@ -9,7 +9,8 @@ import pytest
 from scipy.optimize import linprog
 
 from service.errors import SelfCheckFailed
-from service.solvers.multicommodity import Commodities, Network, check_flows, multicommodity_flow
+from service.solvers.graph import Graph
+from service.solvers.multicommodity import Commodities, check_flows, multicommodity_flow
 from tests.checkers import assert_capacities, assert_conservation
 from tests.conftest import scenario
 from tests.http import pointers
@@ -296,7 +297,7 @@ def test_columnar_arcs_and_integer_ids(client):
 
 
 def small():
-    net = Network(3, np.array([0, 1, 0], dtype=np.int32), np.array([1, 2, 2], dtype=np.int32),
+    net = Graph(3, np.array([0, 1, 0], dtype=np.int32), np.array([1, 2, 2], dtype=np.int32),
                   np.array([4, 4, 1]), None, np.array([1.0, 1.0, 5.0]))
     com = Commodities(np.array([0]), np.array([2]), np.array([5.0]))
     return net, com

@@ -26,7 +26,8 @@ from scipy.optimize import Bounds, LinearConstraint, milp
 from service.deadline import Deadline
 from service.errors import SelfCheckFailed
 from service.jobs.model import DONE, RUNNING
-from service.solvers.multicommodity import Commodities, Network, multicommodity_flow
+from service.solvers.graph import Graph
+from service.solvers.multicommodity import Commodities, multicommodity_flow
 from service.solvers.multicommodity_whole import whole_unit_flow
 from service.solvers.whole_checks import check_plan, relative_gap
 from service.solvers.whole_model import WholeData, cost_scale
@@ -53,14 +54,14 @@ def random_instance(seed: int, n: int = 7, m: int = 18, k: int = 3):
     src = rng.integers(0, n, k)
     snk = (src + rng.integers(1, n, k)) % n
     demand = rng.integers(1, 10, k).astype(np.float64)
-    return (Network(n, tail, head, np.where(unlimited, 0, cap), unlimited if unlimited.any() else None, cost),
+    return (Graph(n, tail, head, np.where(unlimited, 0, cap), unlimited if unlimited.any() else None, cost),
             Commodities(src, snk, demand))
 
 
 # --------------------------------------------------------------------------- reference
 
 
-def reference(net: Network, com: Commodities, *, single_path: bool, objective: str = "min-cost"):
+def reference(net: Graph, com: Commodities, *, single_path: bool, objective: str = "min-cost"):
     """The arc-flow model for scipy.optimize.milp, row by row.
 
     Integral: x[k, a] whole units. Single path: x[k, a] in {0, 1}, flow d_k x[k, a],
@@ -129,7 +130,7 @@ def reference(net: Network, com: Commodities, *, single_path: bool, objective: s
 # --------------------------------------------------------------------------- replay
 
 
-def replay(net: Network, com: Commodities, sol, *, single_path: bool, throughput: bool = False) -> None:
+def replay(net: Graph, com: Commodities, sol, *, single_path: bool, throughput: bool = False) -> None:
     """Check a whole-unit answer from its flows alone (plain loops, not the service's code)."""
     K, m = com.count, net.num_arcs
     flows = np.asarray(sol.flows)
@@ -224,7 +225,7 @@ def test_cp_sat_agrees_with_milp():
 
 def test_infeasible_single_path_is_proven_by_the_solver_and_names_who_cannot_travel():
     # Demand 6 over two lanes of 4: the fractional plan splits it, one path cannot.
-    net = Network(4, np.array([0, 0, 1, 2]), np.array([1, 2, 3, 3]), np.array([4, 4, 9, 9]), None,
+    net = Graph(4, np.array([0, 0, 1, 2]), np.array([1, 2, 3, 3]), np.array([4, 4, 9, 9]), None,
                   np.array([1.0, 1.0, 1.0, 1.0]))
     com = Commodities(np.array([0]), np.array([3]), np.array([6.0]))
     assert multicommodity_flow(net, com).status == "optimal"
@@ -235,7 +236,7 @@ def test_infeasible_single_path_is_proven_by_the_solver_and_names_who_cannot_tra
 
 
 def test_lp_infeasible_is_the_proof_when_even_fractions_cannot_move_the_demand():
-    net = Network(2, np.array([0]), np.array([1]), np.array([3]), None, np.array([1.0]))
+    net = Graph(2, np.array([0]), np.array([1]), np.array([3]), None, np.array([1.0]))
     com = Commodities(np.array([0]), np.array([1]), np.array([5.0]))
     sol = whole_unit_flow(net, com, deadline=Deadline.after(30))
     assert sol.status == "infeasible" and sol.infeasibility["proof"] == "lp-relaxation"
@@ -243,7 +244,7 @@ def test_lp_infeasible_is_the_proof_when_even_fractions_cannot_move_the_demand()
 
 
 def test_negative_cycle_without_limit_is_unbounded_in_whole_units_too():
-    net = Network(3, np.array([0, 1, 2, 1]), np.array([1, 2, 1, 2]), np.array([5, 0, 0, 5]),
+    net = Graph(3, np.array([0, 1, 2, 1]), np.array([1, 2, 1, 2]), np.array([5, 0, 0, 5]),
                   np.array([False, True, True, False]), np.array([1.0, -2.0, 1.0, 1.0]))
     com = Commodities(np.array([0]), np.array([2]), np.array([3.0]))
     sol = whole_unit_flow(net, com, deadline=Deadline.after(30))
@@ -270,7 +271,7 @@ def _scenario_data():
     body = SCENARIO
     names = sorted({a["from"] for a in body["arcs"]} | {a["to"] for a in body["arcs"]})
     index = {name: i for i, name in enumerate(names)}
-    net = Network(len(names), np.array([index[a["from"]] for a in body["arcs"]]),
+    net = Graph(len(names), np.array([index[a["from"]] for a in body["arcs"]]),
                   np.array([index[a["to"]] for a in body["arcs"]]), np.array([a["capacity"] for a in body["arcs"]]),
                   None, np.array([float(a["cost"]) for a in body["arcs"]]))
     com = Commodities(np.array([index[c["source"]] for c in body["commodities"]]),

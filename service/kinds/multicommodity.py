@@ -12,7 +12,7 @@ from ..model.arcs import Network, read_network
 from ..model.digest import problem_digest
 from ..model.schemas import load_envelope
 from ..solvers.multicommodity import Commodities, multicommodity_flow
-from ..solvers.multicommodity import Network as FlowNetwork
+from ..solvers.graph import Graph
 from ..solvers.multicommodity_whole import whole_unit_flow
 from ..solvers.versions import ORTOOLS_VERSION
 from ..solvers.whole_model import whole_data_issue
@@ -184,7 +184,7 @@ def solve(problem: MultiCommodityProblem, deadline: Deadline) -> dict:
     """
     net = problem.network
     cost = np.zeros(net.num_arcs) if net.cost is None else net.cost.astype(np.float64)
-    flow_net = FlowNetwork(net.num_nodes, net.tail, net.head, net.capacity, net.unlimited, cost)
+    flow_net = Graph(net.num_nodes, net.tail, net.head, net.capacity, net.unlimited, cost)
     if problem.whole:
         return _solve_whole(problem, flow_net, deadline)
     solution = multicommodity_flow(flow_net, problem.commodities, objective=problem.objective,
@@ -218,7 +218,7 @@ def _infeasibility(ids: list, info: dict) -> dict:
     }
 
 
-def _solve_whole(problem: MultiCommodityProblem, flow_net: FlowNetwork, deadline: Deadline) -> dict:
+def _solve_whole(problem: MultiCommodityProblem, flow_net: Graph, deadline: Deadline) -> dict:
     options, ids = problem.options, problem.commodity_ids
     solution = whole_unit_flow(flow_net, problem.commodities, objective=problem.objective,
                                single_path=bool(options.get("single_path")), gap=float(options.get("gap") or 0.0),

@@ -53,10 +53,6 @@ class Commodities:
         return int(self.sources.size)
 
 
-#: The shared network: capacity 0 where unlimited, cost float64 (the solvers' one graph type).
-Network = Graph
-
-
 @dataclass
 class MultiCommoditySolution:
     status: str  # optimal | infeasible | unbounded | time_limit
@@ -71,12 +67,12 @@ class MultiCommoditySolution:
     engine: dict = field(default_factory=lp_engine)
 
 
-def _conservation(net: Network, com: Commodities) -> sp.csr_matrix:
+def _conservation(net: Graph, com: Commodities) -> sp.csr_matrix:
     incidence = incidence_matrix(net.num_nodes, net.tail, net.head)
     return sp.kron(sp.identity(com.count, format="csr"), incidence, format="csr")
 
 
-def _capacity_rows(net: Network, k: int, extra_cols: int = 0) -> sp.csr_matrix:
+def _capacity_rows(net: Graph, k: int, extra_cols: int = 0) -> sp.csr_matrix:
     limited = net.limited
     m, L = net.num_arcs, limited.size
     rows = np.tile(np.arange(L), k)
@@ -84,7 +80,7 @@ def _capacity_rows(net: Network, k: int, extra_cols: int = 0) -> sp.csr_matrix:
     return sp.csr_matrix((np.ones(k * L), (rows, cols)), shape=(L, k * m + extra_cols))
 
 
-def min_cost_model(net: Network, com: Commodities) -> LPModel:
+def min_cost_model(net: Graph, com: Commodities) -> LPModel:
     """All demand met at least cost: ``A_k f_k = b_k`` for every k, ``sum_k f_k <= u``."""
     K, n, m = com.count, net.num_nodes, net.num_arcs
     supply = np.zeros(K * n)
@@ -102,7 +98,7 @@ def min_cost_model(net: Network, com: Commodities) -> LPModel:
     )
 
 
-def throughput_model(net: Network, com: Commodities) -> LPModel:
+def throughput_model(net: Graph, com: Commodities) -> LPModel:
     """Most delivery: variables f (K*m) then t (K), ``A_k f_k = t_k (e_s - e_t)``, ``0 <= t_k <= d_k``."""
     K, n, m = com.count, net.num_nodes, net.num_arcs
     offset = n * np.arange(K)
@@ -123,7 +119,7 @@ def throughput_model(net: Network, com: Commodities) -> LPModel:
     )
 
 
-def hold_delivery(model: LPModel, net: Network, com: Commodities, delivered: float, slack: float) -> LPModel:
+def hold_delivery(model: LPModel, net: Graph, com: Commodities, delivered: float, slack: float) -> LPModel:
     """The cost model of max-throughput: the delivery model with ``sum_k t_k`` held at
     least at ``delivered`` (less ``slack``, relative) and the objective switched to cost."""
     K, m = com.count, net.num_arcs
@@ -138,13 +134,13 @@ def hold_delivery(model: LPModel, net: Network, com: Commodities, delivered: flo
     )
 
 
-def multicommodity_flow(net: Network, com: Commodities, *, objective: str = "min-cost",
+def multicommodity_flow(net: Graph, com: Commodities, *, objective: str = "min-cost",
                         deadline: Deadline | None = None) -> MultiCommoditySolution:
     """Solve and certify a multi-commodity flow problem.
 
     Parameters
     ----------
-    net : Network
+    net : Graph
         Arcs with shared capacities and per-unit costs.
     com : Commodities
         Source, sink and demand of each commodity (node indices).
@@ -172,7 +168,7 @@ def multicommodity_flow(net: Network, com: Commodities, *, objective: str = "min
                            costs=net.cost, demands=com.demands) from None
 
 
-def _solve(net: Network, com: Commodities, objective: str, deadline: Deadline | None) -> MultiCommoditySolution:
+def _solve(net: Graph, com: Commodities, objective: str, deadline: Deadline | None) -> MultiCommoditySolution:
     if objective == "max-throughput":
         return _max_throughput(net, com, deadline)
     model = min_cost_model(net, com)
@@ -198,7 +194,7 @@ def _solve(net: Network, com: Commodities, objective: str, deadline: Deadline | 
     return _timed_out(settled)
 
 
-def multicommodity_answer(net: Network, com: Commodities, result: LPResult) -> MultiCommoditySolution:
+def multicommodity_answer(net: Graph, com: Commodities, result: LPResult) -> MultiCommoditySolution:
     """The certified answer of an optimal min-cost model: every demand met.
 
     Capacity prices are the capacity rows' duals with the sign flipped (raising a
@@ -207,7 +203,7 @@ def multicommodity_answer(net: Network, com: Commodities, result: LPResult) -> M
 
     Parameters
     ----------
-    net : Network
+    net : Graph
     com : Commodities
     result : LPResult
         An optimal solve of :func:`min_cost_model`.
@@ -240,7 +236,7 @@ def _delivery_model_failed(result: LPResult) -> MultiCommoditySolution:
     raise SolverFailure(f"the delivery model is always feasible and bounded, yet it came back {result.status}")
 
 
-def _max_throughput(net: Network, com: Commodities, deadline: Deadline | None) -> MultiCommoditySolution:
+def _max_throughput(net: Graph, com: Commodities, deadline: Deadline | None) -> MultiCommoditySolution:
     K, m, n = com.count, net.num_arcs, net.num_nodes
     model = throughput_model(net, com)
     # Primal simplex here: measured far faster than the dual on this model (3 s against
@@ -275,7 +271,7 @@ def _answer(result: LPResult, flows, delivered, prices, certificate) -> MultiCom
     )
 
 
-def _prices(net: Network, row_prices: np.ndarray, certificate: dict) -> np.ndarray:
+def _prices(net: Graph, row_prices: np.ndarray, certificate: dict) -> np.ndarray:
     """Per-arc capacity prices (0 on unlimited arcs), with dual noise below the dual
     tolerance set to exactly 0 so that "positive" means positive."""
     prices = np.zeros(net.num_arcs)
@@ -287,7 +283,7 @@ def _prices(net: Network, row_prices: np.ndarray, certificate: dict) -> np.ndarr
     return np.maximum(prices, 0.0)
 
 
-def _explain_infeasible(net: Network, com: Commodities, best: LPResult, total: float) -> MultiCommoditySolution:
+def _explain_infeasible(net: Graph, com: Commodities, best: LPResult, total: float) -> MultiCommoditySolution:
     """Infeasible min-cost, proved by the delivery model: no plan delivers more than its
     dual bound, which is below the total demand. Which commodities fall short in that
     best plan, which cannot be met even alone, and which arcs bind (positive price)."""
@@ -311,7 +307,7 @@ def _explain_infeasible(net: Network, com: Commodities, best: LPResult, total: f
     return MultiCommoditySolution("infeasible", infeasibility=info, certificate=certificate, engine=best.engine)
 
 
-def _unbounded(net: Network, com: Commodities, result: LPResult) -> MultiCommoditySolution:
+def _unbounded(net: Graph, com: Commodities, result: LPResult) -> MultiCommoditySolution:
     K, m = com.count, net.num_arcs
     direction = result.ray[:K * m].reshape(K, m)
     moving = np.flatnonzero(np.abs(direction).max(axis=1) > 0)

@@ -16,7 +16,8 @@ from .certificates import throughput
 
 if TYPE_CHECKING:
     from .lp import LPResult
-    from .multicommodity import Commodities, Network
+    from .graph import Graph
+    from .multicommodity import Commodities
 
 #: Relative slack of the delivery held in the second (cost) model of max-throughput.
 HOLD_SLACK = 1e-9
@@ -27,7 +28,7 @@ def flow_tolerance(total: float) -> float:
     return lp_checks.REL * abs(total)
 
 
-def check_flows(net: Network, com: Commodities, flows: np.ndarray, delivered: np.ndarray, prices: np.ndarray,
+def check_flows(net: Graph, com: Commodities, flows: np.ndarray, delivered: np.ndarray, prices: np.ndarray,
                 lp_certificate: dict) -> dict:
     """Re-check a multi-commodity plan from the flows alone.
 

@@ -37,7 +37,8 @@ import numpy as np
 
 from ..deadline import Deadline
 from ..errors import SolverFailure
-from .multicommodity import Commodities, MultiCommoditySolution, Network, multicommodity_flow
+from .graph import Graph
+from .multicommodity import Commodities, MultiCommoditySolution, multicommodity_flow
 from .whole_checks import check_flows, check_plan, plan_cost, relative_gap
 from .whole_engines import engine_info, run_engine
 from .whole_heuristic import Plan, cheapest_path, kept_from_lp, read_plan, route_greedily
@@ -72,14 +73,14 @@ class WholeSolution:
     engine: dict = field(default_factory=lambda: engine_info("scip"))
 
 
-def whole_unit_flow(net: Network, com: Commodities, *, objective: str = "min-cost", single_path: bool = False,
+def whole_unit_flow(net: Graph, com: Commodities, *, objective: str = "min-cost", single_path: bool = False,
                     deadline: Deadline, gap: float = 0.0, engine: str = "scip",
                     on_progress: OnProgress | None = None) -> WholeSolution:
     """Solve and certify a whole-unit multi-commodity flow problem.
 
     Parameters
     ----------
-    net : Network
+    net : Graph
         Capacities must be whole numbers; costs at most six decimals.
     com : Commodities
         Demands must be whole numbers.
@@ -142,7 +143,7 @@ def whole_unit_flow(net: Network, com: Commodities, *, objective: str = "min-cos
     return _answer(data, search, cost_bound, engine)
 
 
-def _whole_data(net: Network, com: Commodities, objective: str, single_path: bool) -> WholeData:
+def _whole_data(net: Graph, com: Commodities, objective: str, single_path: bool) -> WholeData:
     issue = whole_data_issue(net.capacity, limited_mask(net), net.cost, com.demands, single_path)
     if issue is not None:
         field_name, index, reason = issue
@@ -151,7 +152,7 @@ def _whole_data(net: Network, com: Commodities, objective: str, single_path: boo
     return WholeData(net, com, com.demands.astype(np.int64), cost, scale, single_path, objective == "max-throughput")
 
 
-def _relaxation(net: Network, com: Commodities, objective: str, deadline: Deadline) -> MultiCommoditySolution | None:
+def _relaxation(net: Graph, com: Commodities, objective: str, deadline: Deadline) -> MultiCommoditySolution | None:
     """The LP relaxation, or None when it could not be had (then the search starts cold)."""
     try:
         lp = multicommodity_flow(net, com, objective=objective, deadline=deadline)
@@ -191,7 +192,7 @@ def _fix_and_solve(search: Search, lp: MultiCommoditySolution, engine: str, unti
     room = np.where(data.limited, data.upper - used, 0)
     if (room < 0).any():
         return
-    sub = WholeData(Network(net.num_nodes, net.tail, net.head, room, net.unlimited, net.cost),
+    sub = WholeData(Graph(net.num_nodes, net.tail, net.head, room, net.unlimited, net.cost),
                     Commodities(com.sources[free], com.sinks[free], com.demands[free]), data.demands[free],
                     data.cost, data.scale, data.single_path, False)
     result = run_engine(engine, build_model(sub), None, deadline=until, gap=search.target)

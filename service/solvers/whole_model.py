@@ -30,7 +30,8 @@ import numpy as np
 import scipy.sparse as sp
 
 from .glop import incidence_matrix
-from .multicommodity import Commodities, Network
+from .graph import Graph
+from .multicommodity import Commodities
 from .scaling import decimal_places, scale_to_int
 
 #: Largest magnitude of any integer in the model (CP-SAT works in int64 and needs
@@ -60,7 +61,7 @@ class WholeModel:
 class WholeData:
     """A whole-unit problem in integers: the network, the commodities and the mode."""
 
-    net: Network
+    net: Graph
     com: Commodities
     demands: np.ndarray  # int64
     cost: np.ndarray  # int64, scaled by 10**scale
@@ -93,7 +94,7 @@ class WholeData:
         return limited_mask(self.net)
 
 
-def limited_mask(net: Network) -> np.ndarray:
+def limited_mask(net: Graph) -> np.ndarray:
     """Boolean mask of the arcs with a capacity (all of them when ``unlimited`` is None)."""
     return np.ones(net.num_arcs, dtype=bool) if net.unlimited is None else ~net.unlimited
 

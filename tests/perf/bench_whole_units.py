@@ -41,7 +41,8 @@ from scipy.optimize import Bounds, LinearConstraint, milp
 
 from service.deadline import Deadline
 from service.solvers import whole_engines
-from service.solvers.multicommodity import Commodities, Network, multicommodity_flow
+from service.solvers.graph import Graph
+from service.solvers.multicommodity import Commodities, multicommodity_flow
 from service.solvers.multicommodity_whole import whole_unit_flow
 from service.solvers.whole_model import INT_LIMIT, WholeData, build_model, cost_scale
 from tests.perf.harness import table
@@ -70,7 +71,7 @@ def depot_network(seed: int, *, nodes: int = 200, arcs: int = 1500, commodities:
     src = rng.integers(0, nodes, commodities)
     snk = (src + rng.integers(1, nodes, commodities)) % nodes
     demand = np.floor(rng.integers(5, 30, commodities) * load)
-    return Network(nodes, tail, head, cap, None, cost), Commodities(src, snk, demand)
+    return Graph(nodes, tail, head, cap, None, cost), Commodities(src, snk, demand)
 
 
 CASES = {  # name -> (network arguments, single_path); loads chosen so the LP plan is fractional
@@ -80,7 +81,7 @@ CASES = {  # name -> (network arguments, single_path); loads chosen so the LP pl
 QUICK = dict(nodes=60, arcs=420, commodities=12)
 
 
-def whole_data(net: Network, com: Commodities, single_path: bool) -> WholeData:
+def whole_data(net: Graph, com: Commodities, single_path: bool) -> WholeData:
     scale, cost = cost_scale(net.cost)
     return WholeData(net, com, com.demands.astype(np.int64), cost, scale, single_path, False)
 
